@@ -1,0 +1,54 @@
+#!/usr/bin/env bash
+# One entry point for set-up and the two jobs the README promises.
+#   bash dev.sh demo   set up .venv, solve the bundled demo town, write exports and the packet
+#   bash dev.sh test   set up .venv (and headless Chromium for browser tests), run the whole suite
+# A second run reuses .venv; it reinstalls only when pyproject.toml has changed.
+set -euo pipefail
+cd "$(dirname "$0")"
+root=$(pwd)
+venv="$root/.venv"
+py="${PYTHON:-python3}"
+
+setup_venv() {
+  if [ ! -x "$venv/bin/python" ]; then
+    "$py" -m venv "$venv"
+  fi
+  stamp="$venv/.installed-$(sha256sum pyproject.toml | cut -c1-16)"
+  if [ ! -f "$stamp" ]; then
+    "$venv/bin/python" -m pip install --quiet --upgrade pip
+    "$venv/bin/python" -m pip install --quiet -e ".[test]"
+    rm -f "$venv"/.installed-*
+    touch "$stamp"
+  fi
+}
+
+setup_chromium() {
+  # Browser tests drive Debian's Chromium through Playwright; never a browser download.
+  if [ ! -x /usr/bin/chromium ]; then
+    if [ "$(id -u)" = "0" ]; then
+      apt-get update -qq
+      DEBIAN_FRONTEND=noninteractive apt-get install -y -qq chromium >/dev/null
+    else
+      sudo apt-get update -qq
+      sudo DEBIAN_FRONTEND=noninteractive apt-get install -y -qq chromium >/dev/null
+    fi
+  fi
+}
+
+cmd="${1:-}"
+shift || true
+case "$cmd" in
+  demo)
+    setup_venv
+    exec "$venv/bin/districting" demo "$@"
+    ;;
+  test)
+    setup_venv
+    setup_chromium
+    exec "$venv/bin/python" -m pytest "$@"
+    ;;
+  *)
+    echo "usage: bash dev.sh demo | test" >&2
+    exit 2
+    ;;
+esac

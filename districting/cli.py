@@ -1,0 +1,291 @@
+"""The `districting` command: check, solve, options, packet, demo (and serve, from ui/).
+
+Each sub-command is a thin wrapper over the engine's public functions; all the work lives
+in the modules it calls. Sub-commands from outside the engine (the workbench's ``serve``)
+register through the ``districting.commands`` entry point, so this module never imports
+the UI.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import time
+from collections.abc import Sequence
+from importlib.metadata import entry_points
+from pathlib import Path
+
+from . import DRAFT_NOTICE
+
+__all__ = ["main"]
+
+
+# ----------------------------------------------------------------------------- helpers
+def _load(path: str):
+    from .project import load_project
+    from .validate import ProjectError
+
+    try:
+        return load_project(path)
+    except ProjectError as err:
+        print(err.report.format(), file=sys.stderr)
+        print(f"\n{path}: fix the errors above, then run again "
+              f"(`districting check {path}` lists them).", file=sys.stderr)
+        raise SystemExit(1) from None
+    except FileNotFoundError as err:
+        print(f"{path}: {err}", file=sys.stderr)
+        raise SystemExit(1) from None
+
+
+class Progress:
+    """One status line per round on a terminal; silent when output is not a terminal."""
+
+    def __init__(self, label: str, stream=None):
+        self.stream = stream or sys.stderr
+        self.live = self.stream.isatty()
+        self.label = label
+
+    def __call__(self, rnd) -> None:
+        if not self.live:
+            return
+        best = "-" if rnd.objective == float("inf") else f"{rnd.objective:,.0f}"
+        gap = "-" if rnd.gap == float("inf") else f"{100 * rnd.gap:.3f}%"
+        self.stream.write(
+            f"\r{self.label}: round {rnd.number}  best {best}  bound {rnd.bound:,.0f}  "
+            f"gap {gap}  {rnd.seconds:.1f} s   "
+        )
+        self.stream.flush()
+
+    def done(self) -> None:
+        if self.live:
+            self.stream.write("\n")
+            self.stream.flush()
+
+
+def plan_summary(outcome) -> str:
+    """A few lines on a plan: status, travel, moves, schools out of band."""
+    plan, m = outcome.plan, outcome.metrics
+    prob = outcome.problem
+    total = prob.demand[0].sum()
+    oob = [outcome.site_ids[j] for j in range(prob.n_sites) if m.out_of_band[j]]
+    opened = int(plan.open_sites.sum())
+    lines = [
+        f"  {outcome.level}: {plan.status}"
+        + (f" (gap {100 * plan.gap:.3f}%)" if plan.gap == plan.gap else "")
+        + f", {opened} schools open, {total:,.0f} students in {prob.years[0]}",
+        f"    mean travel {m.overall_mean_distance / 1000:.2f} km, "
+        f"longest {m.overall_max_distance / 1000:.2f} km; "
+        f"{m.students_moved:,.0f} students ({m.units_moved} units) change school",
+        f"    rounds {plan.rounds}, cuts {plan.cuts}, "
+        f"build {plan.build_seconds:.2f} s, solve {plan.solve_seconds:.2f} s",
+    ]
+    if oob:
+        lines.append(f"    outside the utilization band in some year: {', '.join(oob)}")
+    if plan.message:
+        lines.append("    " + plan.message.replace("\n", "\n    "))
+    return "\n".join(lines)
+
+
+# ----------------------------------------------------------------------------- commands
+def cmd_check(args) -> int:
+    from .validate import check_command
+
+    return check_command(args.project)
+
+
+def _run_settings(args, level: str):
+    from .study import RunSettings
+
+    return RunSettings(
+        level=level,
+        plan_year=args.plan_year,
+        max_utilization=args.max_util,
+        min_utilization=args.min_util,
+        stability_weight=args.stability_weight,
+        max_distance=args.max_distance,
+        gap=args.gap,
+        time_limit=args.time_limit,
+        solver=args.solver,
+    )
+
+
+def cmd_solve(args) -> int:
+    from .exports import export_all
+    from .options import save_option
+    from .study import run
+
+    inputs = _load(args.project)
+    levels = inputs.settings.levels if args.level == "all" else [args.level]
+    status = 0
+    for level in levels:
+        progress = Progress(level)
+        outcome = run(inputs, _run_settings(args, level), name=args.save or "", progress=progress)
+        progress.done()
+        print(plan_summary(outcome))
+        if not outcome.plan.feasible:
+            status = 1
+            continue
+        out = Path(args.out) if args.out else inputs.settings.path.parent / "out"
+        name = args.save or f"{level}-latest"
+        files = export_all(outcome.renamed(name), out / name)
+        print(f"    wrote {len(files)} files to {out / name}")
+        if args.save:
+            save_option(inputs, outcome, args.save, overwrite=args.overwrite)
+            print(f"    saved as option {args.save!r} in {inputs.settings.store}")
+    return status
+
+
+def cmd_options(args) -> int:
+    from .options import delete_option, list_options, rename_option
+
+    inputs = _load(args.project)
+    store = inputs.settings.store
+    if args.delete:
+        delete_option(store, args.delete)
+        print(f"deleted option {args.delete!r}")
+    if args.rename:
+        rename_option(store, args.rename[0], args.rename[1])
+        print(f"renamed option {args.rename[0]!r} to {args.rename[1]!r}")
+    infos = list_options(store)
+    if not infos:
+        print(f"no saved options in {store}")
+        return 0
+    print(f"{'name':24} {'level':11} {'created':20} {'status':10} {'moved':>8} {'mean km':>8}")
+    for o in infos:
+        print(f"{o.name[:24]:24} {o.level:11} {o.created[:19]:20} {o.status:10} "
+              f"{o.students_moved:8,.0f} {o.mean_distance / 1000:8.2f}")
+    return 0
+
+
+def cmd_packet(args) -> int:
+    from .options import load_option
+    from .packet import write_packet
+
+    inputs = _load(args.project)
+    names = [n.strip() for n in args.options.split(",") if n.strip()]
+    outcomes = [load_option(inputs, n) for n in names]
+    pages = write_packet(outcomes, Path(args.out))
+    print(f"wrote {args.out} ({len(pages)} pages) for options {', '.join(names)}")
+    return 0
+
+
+def cmd_demo(args) -> int:
+    """Solve the demo town for every level, save two options, export, write the packets."""
+    from .demo import copy_demo
+    from .exports import export_all
+    from .options import save_option
+    from .packet import write_packet
+    from .project import load_project
+    from .study import RunSettings, run
+    from .validate import check_summary
+
+    out = Path(args.out).resolve()
+    toml = copy_demo(out / "project")
+    inputs = load_project(toml)
+    print(f"{inputs.settings.name}: demo project copied to {toml.parent}")
+    print(check_summary(inputs))
+    started = time.perf_counter()
+    # Two options a planner would bring to a hearing: shortest travel, and fewer moves.
+    variants = [
+        ("shortest-travel", {}),
+        ("fewer-moves", {"stability_weight": args.stability_weight}),
+    ]
+    for level in inputs.settings.levels:
+        outcomes = []
+        for suffix, extra in variants:
+            name = f"{level}-{suffix}"
+            progress = Progress(name)
+            outcome = run(inputs, RunSettings(level=level, **extra), name=name, progress=progress)
+            progress.done()
+            print(f"option {name}:")
+            print(plan_summary(outcome))
+            if not outcome.plan.feasible:
+                print(f"    no plan for {name}; see the message above", file=sys.stderr)
+                return 1
+            save_option(inputs, outcome, name, overwrite=True)
+            export_all(outcome, out / name)
+            outcomes.append(outcome)
+        pdf = out / f"packet-{level}.pdf"
+        pages = write_packet(outcomes, pdf, png_folder=out / f"packet-{level}")
+        print(f"  hearing packet: {pdf} ({len(pages)} pages)")
+    print(f"\nAll outputs in {out} ({time.perf_counter() - started:.1f} s).")
+    print(DRAFT_NOTICE)
+    return 0
+
+
+# ----------------------------------------------------------------------------- parser
+def _add_solve_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--plan-year", type=int, help="year the zones take effect")
+    p.add_argument("--max-util", type=float, help="highest share of capacity, e.g. 1.0")
+    p.add_argument("--min-util", type=float, help="lowest share of capacity, e.g. 0.7")
+    p.add_argument("--stability-weight", type=float,
+                   help="metres of travel charged per student moved from today's school")
+    p.add_argument("--max-distance", type=float, help="longest allowed travel in metres")
+    p.add_argument("--gap", type=float, help="relative optimality gap to prove, e.g. 1e-4")
+    p.add_argument("--time-limit", type=float, help="seconds; the best plan found is kept")
+    p.add_argument("--solver", help="'highs' (default) or any solver name Pyomo drives")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="districting",
+        description="Attendance-zone options for school district planning staff.",
+        epilog="Results are decision support; the board decides under its policy and law.",
+    )
+    sub = parser.add_subparsers(dest="command", required=True)
+
+    p = sub.add_parser("check", help="validate a project and print a summary")
+    p.add_argument("project")
+    p.set_defaults(func=cmd_check)
+
+    p = sub.add_parser("solve", help="solve one level (or all) and write the plan")
+    p.add_argument("project")
+    p.add_argument("--level", default="all", help="elementary, middle, high, or all")
+    p.add_argument("--save", metavar="NAME", help="save the plan as a named option")
+    p.add_argument("--overwrite", action="store_true", help="replace an option of that name")
+    p.add_argument("--out", help="folder for the exports (default: <project>/out)")
+    _add_solve_options(p)
+    p.set_defaults(func=cmd_solve)
+
+    p = sub.add_parser("options", help="list, delete or rename saved options")
+    p.add_argument("project")
+    p.add_argument("--delete", metavar="NAME")
+    p.add_argument("--rename", nargs=2, metavar=("OLD", "NEW"))
+    p.set_defaults(func=cmd_options)
+
+    p = sub.add_parser("packet", help="write the hearing packet (PDF + PNG pages)")
+    p.add_argument("project")
+    p.add_argument("--options", required=True, help="comma-separated option names")
+    p.add_argument("--out", default="packet.pdf")
+    p.set_defaults(func=cmd_packet)
+
+    p = sub.add_parser("demo", help="solve the bundled demo town and write everything")
+    p.add_argument("--out", default="out/demo", help="output folder (default out/demo)")
+    p.add_argument("--stability-weight", type=float, default=3000.0,
+                   help="weight of the 'fewer-moves' option (metres per student moved)")
+    p.set_defaults(func=cmd_demo)
+
+    for ep in entry_points(group="districting.commands"):
+        try:
+            ep.load()(sub)
+        except ImportError as err:  # the workbench's extras are missing: say so, go on
+            reason = f"{ep.name} is unavailable here: {err}"
+            q = sub.add_parser(ep.name, help=reason)
+            q.set_defaults(func=lambda _args, why=reason: print(why, file=sys.stderr) or 1)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    args = build_parser().parse_args(argv)
+    try:
+        return int(args.func(args) or 0)
+    except KeyboardInterrupt:
+        print("stopped", file=sys.stderr)
+        return 130
+    except ValueError as err:  # bad settings from the command line, named in the message
+        print(f"districting {args.command}: {err}", file=sys.stderr)
+        return 2
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

@@ -1,0 +1,260 @@
+"""The assignment problem as plain arrays.
+
+A :class:`Problem` is what every solver route reads: per-student costs between planning
+units and school sites, student counts per year, capacities and utilization bands, which
+sites are open, candidates or closed, the unit adjacency (for contiguity), each site's root
+unit, locks, forbidden pairs, today's assignment and the stability weight. It carries no
+geometry and no names; :mod:`districting.study` builds one from a validated project.
+
+Notation used across the engine (and in :mod:`districting.model`):
+
+- ``i`` a planning unit (``n`` of them), ``j`` a site (``m``), ``t`` a year (``T`` rows,
+  row 0 the plan year);
+- ``c[i, j]`` cost per student, ``d[t, i]`` students, ``Q[j]`` capacity,
+  ``u_max[j]``, ``u_min[j]`` the utilization band;
+- ``x[i, j]`` = 1 when unit i is assigned to site j, ``y[j]`` = 1 when site j is open.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from collections.abc import Iterable, Mapping
+from dataclasses import dataclass, field
+
+import numpy as np
+
+__all__ = ["Problem"]
+
+
+def _as_float_array(name: str, value, shape: tuple[int, ...]) -> np.ndarray:
+    arr = np.asarray(value, dtype=float)
+    if arr.ndim == 0:
+        arr = np.full(shape, float(arr))
+    if arr.shape != shape:
+        raise ValueError(f"{name} has shape {arr.shape}; expected {shape}")
+    return arr
+
+
+@dataclass(frozen=True, eq=False)
+class Problem:
+    """A capacitated, optionally contiguous, whole-unit assignment problem.
+
+    Build one with :meth:`from_arrays`; change one for a re-solve with :meth:`replace`.
+    All arrays are read-only views; a Problem never changes after it is made.
+    """
+
+    cost: np.ndarray  # (n, m) cost per student; inf where the pair is not allowed
+    demand: np.ndarray  # (T, n) students; row 0 is the plan year
+    capacity: np.ndarray | None  # (m,) or None: no capacity limit
+    max_util: np.ndarray  # (m,) upper share of capacity, every year
+    min_util: np.ndarray  # (m,) lower share of capacity, every year (open sites only)
+    p: int | None  # total number of open sites (forced-open ones included); None: all open
+    open_sites: np.ndarray  # (m,) bool: forced open
+    closed_sites: np.ndarray  # (m,) bool: excluded, nobody is assigned there
+    edges: np.ndarray | None  # (k, 2) int unit pairs; when given every zone is connected
+    roots: np.ndarray | None  # (m,) unit index each site stands in, -1 for none
+    locks: np.ndarray  # (n,) site index a unit is locked to, -1 for none
+    forbidden: np.ndarray  # (n, m) bool: pair may not be used
+    current: np.ndarray  # (n,) today's site per unit, -1 for none
+    stability_weight: float = 0.0  # added cost per student moved away from today's site
+    max_moved: float | None = None  # at most this many students (plan year) change site
+    distance: np.ndarray | None = None  # (n, m) travel distance for reports; None: = cost
+    years: tuple = field(default=())  # labels of the demand rows, for messages
+    unit_names: tuple = field(default=())  # unit ids, for messages (empty: "unit <i>")
+    site_names: tuple = field(default=())  # site names, for messages (empty: "site <j>")
+    level: str = ""  # school level, for messages
+
+    # ------------------------------------------------------------------ constructors
+    @classmethod
+    def from_arrays(
+        cls,
+        cost,
+        demand,
+        capacity=None,
+        p: int | None = None,
+        open_sites=None,
+        edges: Iterable[tuple[int, int]] | None = None,
+        roots=None,
+        locks: Mapping[int, int] | None = None,
+        *,
+        max_util=1.0,
+        min_util=0.0,
+        closed_sites=None,
+        forbidden=None,
+        current=None,
+        stability_weight: float = 0.0,
+        max_moved: float | None = None,
+        distance=None,
+        years: Iterable = (),
+        unit_names: Iterable = (),
+        site_names: Iterable = (),
+        level: str = "",
+    ) -> Problem:
+        """Make a problem from arrays.
+
+        ``cost`` is (n_units, n_sites); ``demand`` is (n_units,) or (n_years, n_units) with
+        the plan year first. The objective is ``sum_ij demand[0, i] * cost[i, j] * x[i, j]``
+        (plus ``stability_weight * demand[0, i]`` for every unit moved away from
+        ``current[i]``); capacity and the utilization band hold in every demand row.
+        ``p`` is the number of open sites in total, those forced open by ``open_sites``
+        included; ``None`` opens every site that is not closed. With ``edges`` every zone
+        must be connected in that graph and hold its site's root unit; ``roots`` defaults
+        to ``arange(n)`` when units and sites are the same points (n_units == n_sites).
+        """
+        cost = np.array(cost, dtype=float)
+        if cost.ndim != 2:
+            raise ValueError(f"cost must be 2-D (units x sites); got shape {cost.shape}")
+        n, m = cost.shape
+        cost = np.where(np.isnan(cost), np.inf, cost)
+        demand = np.array(demand, dtype=float)
+        if demand.ndim == 1:
+            demand = demand[None, :]
+        if demand.ndim != 2 or demand.shape[1] != n:
+            raise ValueError(f"demand must be ({n},) or (years, {n}); got {demand.shape}")
+        if np.any(~np.isfinite(demand)) or np.any(demand < 0):
+            raise ValueError("demand must be finite and non-negative")
+        cap = None if capacity is None else _as_float_array("capacity", capacity, (m,))
+        if p is not None and not 1 <= int(p) <= m:
+            raise ValueError(f"p={p} must be between 1 and the number of sites ({m})")
+        opened = np.zeros(m, bool) if open_sites is None else np.asarray(open_sites, bool)
+        closed = np.zeros(m, bool) if closed_sites is None else np.asarray(closed_sites, bool)
+        if opened.shape != (m,) or closed.shape != (m,):
+            raise ValueError(f"open_sites and closed_sites must have shape ({m},)")
+        if np.any(opened & closed):
+            raise ValueError("a site cannot be both forced open and closed")
+        edge_arr = None
+        if edges is not None:
+            edge_arr = np.asarray(list(edges) if not isinstance(edges, np.ndarray) else edges,
+                                  dtype=np.int64).reshape(-1, 2)
+            if edge_arr.size and (edge_arr.min() < 0 or edge_arr.max() >= n):
+                raise ValueError(f"edges must name unit indices 0..{n - 1}")
+            edge_arr = edge_arr[edge_arr[:, 0] != edge_arr[:, 1]]
+            edge_arr = np.unique(np.sort(edge_arr, axis=1), axis=0)
+        root_arr = None
+        if roots is not None:
+            root_arr = np.asarray(roots, dtype=np.int64)
+            if root_arr.shape != (m,) or root_arr.max(initial=-1) >= n:
+                raise ValueError(f"roots must be ({m},) unit indices (or -1)")
+        elif edge_arr is not None:
+            if n != m:
+                raise ValueError("roots are required with edges when units and sites differ")
+            root_arr = np.arange(m, dtype=np.int64)
+        lock_arr = np.full(n, -1, dtype=np.int64)
+        for unit, site in (locks or {}).items():
+            if not (0 <= int(unit) < n and 0 <= int(site) < m):
+                raise ValueError(f"lock {unit}->{site} is outside 0..{n - 1} x 0..{m - 1}")
+            lock_arr[int(unit)] = int(site)
+        forb = np.zeros((n, m), bool) if forbidden is None else np.asarray(forbidden, bool)
+        if forb.shape != (n, m):
+            raise ValueError(f"forbidden must have shape ({n}, {m})")
+        cur = np.full(n, -1, np.int64) if current is None else np.asarray(current, np.int64)
+        if cur.shape != (n,):
+            raise ValueError(f"current must have shape ({n},)")
+        dist = None if distance is None else _as_float_array("distance", distance, (n, m))
+        prob = cls(
+            cost=cost,
+            demand=demand,
+            capacity=cap,
+            max_util=_as_float_array("max_util", max_util, (m,)),
+            min_util=_as_float_array("min_util", min_util, (m,)),
+            p=None if p is None else int(p),
+            open_sites=opened,
+            closed_sites=closed,
+            edges=edge_arr,
+            roots=root_arr,
+            locks=lock_arr,
+            forbidden=forb,
+            current=cur,
+            stability_weight=float(stability_weight),
+            max_moved=None if max_moved is None else float(max_moved),
+            distance=dist,
+            years=tuple(years),
+            unit_names=tuple(unit_names),
+            site_names=tuple(site_names),
+            level=level,
+        )
+        prob._freeze()
+        return prob
+
+    def _freeze(self) -> None:
+        for f in dataclasses.fields(self):
+            value = getattr(self, f.name)
+            if isinstance(value, np.ndarray):
+                value.setflags(write=False)
+
+    def replace(self, **changes) -> Problem:
+        """A copy with some fields changed (for a re-solve after a lock, a cap, a closure)."""
+        prob = dataclasses.replace(self, **changes)
+        prob._freeze()
+        return prob
+
+    # ------------------------------------------------------------------ derived views
+    @property
+    def n_units(self) -> int:
+        return self.cost.shape[0]
+
+    @property
+    def n_sites(self) -> int:
+        return self.cost.shape[1]
+
+    @property
+    def n_years(self) -> int:
+        return self.demand.shape[0]
+
+    @property
+    def contiguous(self) -> bool:
+        return self.edges is not None
+
+    @property
+    def candidates(self) -> np.ndarray:
+        """Sites whose opening the solver decides (none when p is None)."""
+        if self.p is None:
+            return np.zeros(self.n_sites, bool)
+        return ~self.open_sites & ~self.closed_sites
+
+    @property
+    def always_open(self) -> np.ndarray:
+        """Sites open in every plan: forced open, or every non-closed site when p is None."""
+        if self.p is None:
+            return ~self.closed_sites
+        return self.open_sites.copy()
+
+    @property
+    def allowed(self) -> np.ndarray:
+        """(n, m) bool: pairs a plan may use (finite cost, not forbidden, site not closed).
+
+        A lock allows only its own site for that unit.
+        """
+        ok = np.isfinite(self.cost) & ~self.forbidden & ~self.closed_sites[None, :]
+        locked = self.locks >= 0
+        if locked.any():
+            ok[locked] = False
+            ok[np.flatnonzero(locked), self.locks[locked]] = True
+        return ok
+
+    @property
+    def weighted_cost(self) -> np.ndarray:
+        """(n, m) objective coefficient of x[i, j]: d[0, i] * c[i, j] (+ stability term)."""
+        d0 = self.demand[0][:, None]
+        with np.errstate(invalid="ignore"):
+            w = np.where(np.isfinite(self.cost), d0 * self.cost, np.inf)
+        if self.stability_weight:
+            moved = (self.current[:, None] >= 0) & (
+                np.arange(self.n_sites)[None, :] != self.current[:, None]
+            )
+            w = w + self.stability_weight * d0 * moved
+        return w
+
+    def unit_label(self, i: int) -> str:
+        return str(self.unit_names[i]) if self.unit_names else f"unit {i}"
+
+    def site_label(self, j: int) -> str:
+        return str(self.site_names[j]) if self.site_names else f"site {j}"
+
+    def year_label(self, t: int) -> str:
+        return str(self.years[t]) if self.years else ("plan year" if t == 0 else f"year row {t}")
+
+    @property
+    def travel(self) -> np.ndarray:
+        """(n, m) distance used in reports (the cost when no separate distance is given)."""
+        return self.cost if self.distance is None else self.distance

@@ -1,0 +1,331 @@
+"""One level of a project, as a problem and as an outcome with names.
+
+:func:`build_problem` turns validated :class:`~districting.project.Inputs` and a
+:class:`RunSettings` (level, caps, weights, locks, forbids, site status changes) into a
+:class:`~districting.problem.Problem`; :func:`run` solves it and wraps the
+:class:`~districting.plan.Plan` in an :class:`Outcome` that knows unit ids, site ids and
+names. Options, exports, the packet and the workbench all work on Outcomes.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime as _dt
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field
+
+import numpy as np
+import shapely
+
+from .plan import Plan, PlanMetrics, plan_metrics
+from .problem import Problem
+from .project import Inputs
+
+__all__ = ["RunSettings", "Outcome", "build_problem", "run", "outcome_from_assignment"]
+
+
+@dataclass(frozen=True)
+class RunSettings:
+    """What one run asks for; every field is JSON-friendly so options can store it.
+
+    ``None`` means "the project's [solve] default". ``capacity``, ``status``,
+    ``max_util`` and ``min_util`` override per site id; ``locks`` and ``forbids`` map a
+    unit id to a site id (forbids to a list of site ids).
+    """
+
+    level: str
+    plan_year: int | None = None
+    max_utilization: float | None = None
+    min_utilization: float | None = None
+    stability_weight: float | None = None
+    max_distance: float | None = None  # metres; 0 = no limit
+    max_moved: float | None = None  # 0 = no limit
+    open_count: int | None = None
+    gap: float | None = None
+    time_limit: float | None = None
+    solver: str | None = None
+    capacity: dict[str, float] = field(default_factory=dict)
+    status: dict[str, str] = field(default_factory=dict)
+    site_max_util: dict[str, float] = field(default_factory=dict)
+    site_min_util: dict[str, float] = field(default_factory=dict)
+    locks: dict[str, str] = field(default_factory=dict)
+    forbids: dict[str, list[str]] = field(default_factory=dict)
+
+    def to_dict(self) -> dict:
+        return dataclasses.asdict(self)
+
+    @classmethod
+    def from_dict(cls, data: Mapping) -> RunSettings:
+        names = {f.name for f in dataclasses.fields(cls)}
+        return cls(**{k: v for k, v in data.items() if k in names})
+
+    def replace(self, **changes) -> RunSettings:
+        return dataclasses.replace(self, **changes)
+
+
+def resolved(inputs: Inputs, rs: RunSettings) -> RunSettings:
+    """``rs`` with every ``None`` filled from the project's [solve] table and file locks."""
+    s = inputs.settings
+    d = s.solve
+    locks = {lk.unit: lk.site for lk in s.locks if lk.level == rs.level}
+    locks.update(rs.locks)
+    forbids: dict[str, list[str]] = {}
+    for fb in s.forbids:
+        if fb.level == rs.level:
+            forbids.setdefault(fb.unit, []).append(fb.site)
+    for unit, sites in rs.forbids.items():
+        forbids[unit] = sorted(set(forbids.get(unit, [])) | set(sites))
+
+    def pick(value, default):
+        return default if value is None else value
+
+    return rs.replace(
+        plan_year=pick(rs.plan_year, s.plan_year),
+        max_utilization=pick(rs.max_utilization, d.max_utilization),
+        min_utilization=pick(rs.min_utilization, d.min_utilization),
+        stability_weight=pick(rs.stability_weight, d.stability_weight),
+        max_distance=pick(rs.max_distance, d.max_distance.get(rs.level, 0.0)),
+        max_moved=pick(rs.max_moved, d.max_moved or 0.0),
+        open_count=pick(rs.open_count, d.open_count.get(rs.level)),
+        gap=pick(rs.gap, d.gap),
+        time_limit=pick(rs.time_limit, d.time_limit),
+        solver=pick(rs.solver, d.solver),
+        locks=locks,
+        forbids=forbids,
+    )
+
+
+def level_sites(inputs: Inputs, level: str) -> np.ndarray:
+    """Row indices into ``inputs.sites`` of the level's sites (the problem's site order)."""
+    if level not in inputs.settings.levels:
+        raise ValueError(
+            f"level {level!r} is not in the project (levels: {', '.join(inputs.settings.levels)})"
+        )
+    return np.flatnonzero((inputs.sites["level"] == level).to_numpy())
+
+
+def demand_years(inputs: Inputs, plan_year: int) -> tuple[int, ...]:
+    """Demand rows of a problem: the plan year first, then the other projected years."""
+    years = inputs.settings.years
+    if plan_year not in years:
+        raise ValueError(f"plan year {plan_year} is not one of the projected years {years}")
+    return (plan_year, *[y for y in years if y != plan_year])
+
+
+def build_problem(inputs: Inputs, rs: RunSettings) -> tuple[Problem, np.ndarray]:
+    """The :class:`Problem` for one level, and the site rows it uses (into ``inputs.sites``).
+
+    Site status in the plan year: ``open`` and ``new`` sites are open; ``closing`` and
+    ``closed`` sites take no students; ``candidate`` sites are opened by the solver when
+    ``open_count`` is set (the total number of open sites), otherwise all open.
+    """
+    rs = resolved(inputs, rs)
+    rows = level_sites(inputs, rs.level)
+    sites = inputs.sites.iloc[rows]
+    site_ids = sites["site_id"].astype(str).tolist()
+    unit_ids = inputs.units["unit_id"].astype(str).tolist()
+    unit_pos = {u: i for i, u in enumerate(unit_ids)}
+    site_pos = {s: j for j, s in enumerate(site_ids)}
+
+    def unit_index(uid: str, what: str) -> int:
+        if uid not in unit_pos:
+            raise ValueError(f"{what}: unit {uid!r} is not in the project's units")
+        return unit_pos[uid]
+
+    def site_index(sid: str, what: str) -> int:
+        if sid not in site_pos:
+            raise ValueError(
+                f"{what}: site {sid!r} is not a {rs.level} site (sites: {', '.join(site_ids)})"
+            )
+        return site_pos[sid]
+
+    status = np.array([rs.status.get(s, st) for s, st in zip(site_ids, sites["status"])])
+    cap = np.array([rs.capacity.get(s, c) for s, c in zip(site_ids, sites["capacity"])], float)
+    max_u = np.array(
+        [rs.site_max_util.get(s, u) for s, u in zip(site_ids, sites["max_util"])], float
+    )
+    min_u = np.array(
+        [rs.site_min_util.get(s, u) for s, u in zip(site_ids, sites["min_util"])], float
+    )
+    max_u = np.where(np.isnan(max_u), rs.max_utilization, max_u)
+    min_u = np.where(np.isnan(min_u), rs.min_utilization, min_u)
+
+    closed = np.isin(status, ["closing", "closed"])
+    forced = np.isin(status, ["open", "new"])
+    candidate = status == "candidate"
+    p = None
+    if candidate.any() and rs.open_count:
+        p = int(rs.open_count)
+    elif candidate.any():
+        forced = forced | candidate
+    if p is not None:
+        open_sites = forced
+    else:
+        open_sites = forced
+        closed = closed | ~(forced | candidate)
+
+    points = shapely.get_coordinates(inputs.units["point"].to_numpy())
+    site_xy = shapely.get_coordinates(sites.geometry.to_numpy())
+    distance = np.hypot(points[:, None, 0] - site_xy[None, :, 0],
+                        points[:, None, 1] - site_xy[None, :, 1])
+    cost = distance if inputs.travel is None else inputs.travel[:, rows]
+
+    forbidden = np.zeros(distance.shape, bool)
+    if rs.max_distance:
+        forbidden |= distance > float(rs.max_distance)
+    roots = sites["unit_index"].to_numpy(dtype=np.int64)
+    forbidden[roots, np.arange(len(rows))] = False  # a site's own unit may always join it
+    for uid, sids in rs.forbids.items():
+        for sid in sids:
+            forbidden[unit_index(uid, "forbid"), site_index(sid, "forbid")] = True
+    locks = {
+        unit_index(u, "lock"): site_index(s, f"lock of unit {u}") for u, s in rs.locks.items()
+    }
+    for i, j in locks.items():
+        forbidden[i, j] = False
+
+    years = demand_years(inputs, int(rs.plan_year))
+    counts = inputs.counts[rs.level]
+    demand = np.stack([counts[inputs.year_row(y)] for y in years])
+    global_to_local = np.full(len(inputs.sites), -1, dtype=np.int64)
+    global_to_local[rows] = np.arange(len(rows))
+    cur_global = inputs.current[rs.level]
+    current = np.where(cur_global >= 0, global_to_local[np.maximum(cur_global, 0)], -1)
+
+    problem = Problem.from_arrays(
+        cost,
+        demand,
+        capacity=cap,
+        p=p,
+        open_sites=open_sites,
+        edges=inputs.adjacency.edges,
+        roots=roots,
+        locks=locks,
+        max_util=max_u,
+        min_util=min_u,
+        closed_sites=closed,
+        forbidden=forbidden,
+        current=current,
+        stability_weight=float(rs.stability_weight or 0.0),
+        max_moved=float(rs.max_moved) if rs.max_moved else None,
+        distance=distance,
+        years=years,
+        unit_names=unit_ids,
+        site_names=[f"{n} ({s})" for n, s in zip(sites["name"], site_ids)],
+        level=rs.level,
+    )
+    return problem, rows
+
+
+@dataclass(frozen=True, eq=False)
+class Outcome:
+    """A plan for one level of a project, with the names staff know it by."""
+
+    inputs: Inputs
+    settings: RunSettings  # resolved: no None left
+    site_rows: np.ndarray  # problem site j -> row of inputs.sites
+    problem: Problem
+    plan: Plan
+    name: str = ""
+    created: str = ""  # ISO 8601, UTC
+
+    @property
+    def level(self) -> str:
+        return self.settings.level
+
+    @property
+    def sites(self):
+        """The level's sites (GeoDataFrame), in problem order."""
+        return self.inputs.sites.iloc[self.site_rows].reset_index(drop=True)
+
+    @property
+    def site_ids(self) -> list[str]:
+        return self.sites["site_id"].astype(str).tolist()
+
+    @property
+    def unit_ids(self) -> list[str]:
+        return self.inputs.units["unit_id"].astype(str).tolist()
+
+    @property
+    def assignment(self) -> np.ndarray:
+        return self.plan.assignment
+
+    @property
+    def current(self) -> np.ndarray:
+        return self.problem.current
+
+    def site_id_of(self, assignment: np.ndarray) -> np.ndarray:
+        """Site id per unit for an index assignment ('' where -1)."""
+        ids = np.array(self.site_ids + [""], dtype=object)
+        return ids[np.where(assignment >= 0, assignment, len(self.site_ids))]
+
+    @property
+    def metrics(self) -> PlanMetrics:
+        return self.plan.metrics or plan_metrics(self.problem, self.plan.assignment,
+                                                 self.plan.open_sites)
+
+    @property
+    def current_metrics(self) -> PlanMetrics:
+        """Figures of today's zones under the same problem (students, utilization...)."""
+        cur = self.problem.current
+        return plan_metrics(self.problem.replace(current=cur), cur)
+
+    def renamed(self, name: str) -> Outcome:
+        return dataclasses.replace(self, name=name)
+
+
+def now_iso() -> str:
+    return _dt.datetime.now(_dt.UTC).replace(microsecond=0).isoformat()
+
+
+def run(
+    inputs: Inputs,
+    rs: RunSettings,
+    *,
+    name: str = "",
+    progress: Callable | None = None,
+    cancel: Callable[[], bool] | None = None,
+    previous: Plan | None = None,
+) -> Outcome:
+    """Solve one level; ``progress`` gets each :class:`~districting.plan.Round`."""
+    from .solve import solve  # late import keeps study importable while solve builds
+
+    full = resolved(inputs, rs)
+    problem, rows = build_problem(inputs, full)
+    plan = solve(
+        problem,
+        gap=float(full.gap),
+        time_limit=full.time_limit,
+        solver=full.solver,
+        progress=progress,
+        cancel=cancel,
+        start=None if previous is None else previous.assignment,
+    )
+    return Outcome(inputs, full, rows, problem, plan, name=name, created=now_iso())
+
+
+def outcome_from_assignment(
+    inputs: Inputs, rs: RunSettings, assignment, plan_fields: Mapping | None = None,
+    *, name: str = "", created: str = "",
+) -> Outcome:
+    """Rebuild an Outcome from a stored assignment (site index per unit), e.g. an option."""
+    full = resolved(inputs, rs)
+    problem, rows = build_problem(inputs, full)
+    a = np.asarray(assignment, dtype=np.int64)
+    opened = np.zeros(problem.n_sites, bool)
+    opened[a[a >= 0]] = True
+    opened |= problem.always_open
+    fields = dict(plan_fields or {})
+    plan = Plan(
+        status=fields.pop("status", "feasible"),
+        objective=float(fields.pop("objective", float((problem.weighted_cost[
+            np.arange(len(a)), a]).sum()))),
+        bound=float(fields.pop("bound", float("nan"))),
+        gap=float(fields.pop("gap", float("nan"))),
+        assignment=a,
+        open_sites=opened,
+        metrics=plan_metrics(problem, a, opened),
+        **{k: v for k, v in fields.items() if k in {"message", "rounds", "cuts", "route",
+                                                    "build_seconds", "solve_seconds"}},
+    )
+    return Outcome(inputs, full, rows, problem, plan, name=name, created=created or now_iso())
