@@ -1,5 +1,727 @@
-"""Placeholder while the engine is written (issue 3); replaced by the real solve loop."""
+"""The assignment engine: capacitated p-median with whole units and contiguous zones.
+
+:func:`solve` (one shot) and :class:`Session` (re-solves after a lock, a cap or a closure)
+run the same loop over one of two backends:
+
+- ``solver="highs"``: the mixed-integer program is built straight from numpy arrays and
+  passed to HiGHS through highspy (only allowed unit-site pairs become columns);
+- any other name: the Pyomo model of :mod:`districting.model`, solved by that solver.
+
+The model (notation of :mod:`districting.problem`)::
+
+    min  sum_ij w[i,j] x[i,j]                       w = problem.weighted_cost
+    s.t. sum_j x[i,j] = 1                           every unit
+         x[i,j] <= y[j]                             candidate sites (strong linking)
+         sum_j y[j] = p                             when p is set
+         x[r_j, j] = y[j]                           a site's own unit is in its zone
+         sum_i d[t,i] x[i,j] <= u_max[j] Q[j] y[j]  every demand row t
+         sum_i d[t,i] x[i,j] >= u_min[j] Q[j] y[j]  every row t, when u_min > 0
+         sum_i d[0,i] (1 - x[i,cur_i]) <= max_moved
+         x[i,lock_i] = 1
+
+and, when the problem has edges, contiguity through separator cuts added in rounds
+(:mod:`districting.contiguity`; Validi, Buchanan & Lykhovyd, Operations Research 70(2), 2022).
+
+The loop: solve the MIP with the cuts so far (warm-started from the best valid plan) ->
+hand out the units without students again and repair what is still cut off
+(:func:`districting.contiguity.repair`) -> the repaired plan is an upper bound, the MIP
+bound a lower bound (the MIP is a relaxation: every cut is valid) -> stop when the gap is
+within the request, else add the cuts the MIP answer violates and solve again. A round
+whose MIP answer becomes contiguous by re-handing empty units alone ends the loop with the
+MIP's own gap.
+
+Columns are removed only with a proof: a pair whose students exceed the site's upper
+capacity in some year can never be used, and after a valid plan of cost UB is known,
+reduced-cost fixing drops every pair with LP bound + reduced cost > UB (any plan using it
+costs more than UB: for the LP relaxation min c x, a feasible x has c x >= z_LP +
+sum_k rc_k x_k over columns at their lower bound).
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.sparse as sp
+
+from . import contiguity as cg
+from .plan import Plan, Round, plan_metrics, relative_gap
+from .problem import Problem
+
+__all__ = ["solve", "Session"]
+
+_TOL = 1e-6
+_LINK_LIMIT = 300_000  # disaggregated x <= y rows up to this many pairs
 
 
-def solve(problem, gap=1e-4, time_limit=None, **kwargs):
-    raise NotImplementedError("the engine is being written")
+@dataclass
+class _Answer:
+    """What one MIP solve returned."""
+
+    status: str  # optimal | feasible | time_limit | infeasible | cancelled | error
+    assignment: np.ndarray | None  # None: no solution
+    objective: float
+    bound: float
+    message: str = ""
+
+
+# ---------------------------------------------------------------------- highspy backend
+class _HighsBackend:
+    """The MIP built from arrays in one highspy model; cuts are added as rows."""
+
+    name = "highs"
+
+    def __init__(self, problem: Problem, threads: int = 2) -> None:
+        import highspy
+
+        self._hs = highspy
+        self.problem = problem
+        n, m = problem.n_units, problem.n_sites
+        ok = problem.allowed.copy()
+        if problem.capacity is not None:  # a unit too big for a site in some year: no pair
+            hi = problem.max_util * problem.capacity
+            ok &= ~(problem.demand[:, :, None] > hi[None, None, :] + _TOL).any(axis=0)
+            if problem.locks.max(initial=-1) >= 0:  # keep locks: their infeasibility is
+                li = np.flatnonzero(problem.locks >= 0)  # reported, not hidden
+                ok[li, problem.locks[li]] = problem.allowed[li, problem.locks[li]]
+        xi, xj = np.nonzero(ok)
+        k = len(xi)
+        self.xi, self.xj = xi, xj
+        self.colmap = np.full((n, m), -1, np.int64)
+        self.colmap[xi, xj] = np.arange(k)
+        cand = np.flatnonzero(problem.candidates)
+        self.ycol = np.full(m, -1, np.int64)
+        self.ycol[cand] = k + np.arange(len(cand))
+        ncol = k + len(cand)
+        cost = np.zeros(ncol)
+        cost[:k] = problem.weighted_cost[xi, xj]
+        lower = np.zeros(ncol)
+        upper = np.ones(ncol)
+        rows: list[np.ndarray] = []
+        cols: list[np.ndarray] = []
+        vals: list[np.ndarray] = []
+        rlo: list[np.ndarray] = []
+        rhi: list[np.ndarray] = []
+        nrow = 0
+        self.infeasible_reason = ""
+
+        def add(r, c, v, lo, hi):
+            nonlocal nrow
+            rows.append(np.asarray(r, np.int64) + nrow)
+            cols.append(np.asarray(c, np.int64))
+            vals.append(np.asarray(v, float))
+            lo = np.atleast_1d(np.asarray(lo, float))
+            hi = np.atleast_1d(np.asarray(hi, float))
+            rlo.append(lo)
+            rhi.append(hi)
+            nrow += len(lo)
+
+        inf = np.inf
+        # assignment: sum_j x[i,j] = 1
+        add(xi, np.arange(k), np.ones(k), np.ones(n), np.ones(n))
+        missing = np.flatnonzero(np.bincount(xi, minlength=n) == 0)
+        if len(missing):
+            self.infeasible_reason = f"{problem.unit_label(int(missing[0]))} has no site"
+        is_cand = self.ycol[xj] >= 0
+        cap = problem.capacity
+        # linking x <= y (strong form) where cheap, else aggregated
+        ci = np.flatnonzero(is_cand)
+        if len(ci):
+            if len(ci) <= _LINK_LIMIT or cap is None:
+                r = np.arange(len(ci))
+                add(np.concatenate([r, r]), np.concatenate([ci, self.ycol[xj[ci]]]),
+                    np.concatenate([np.ones(len(ci)), -np.ones(len(ci))]),
+                    np.full(len(ci), -inf), np.zeros(len(ci)))
+            # count: sum_j y[j] = p - (sites open anyway)
+            if problem.p is not None:
+                rest = problem.p - int(problem.always_open.sum())
+                add(np.zeros(len(cand)), self.ycol[cand], np.ones(len(cand)), rest, rest)
+        # roots: x[r_j, j] = y[j] (always-open sites: x[r_j, j] = 1)
+        if problem.roots is not None:
+            for j in np.flatnonzero(problem.roots >= 0).tolist():
+                r = int(problem.roots[j])
+                c = self.colmap[r, j]
+                if problem.closed_sites[j]:
+                    continue
+                if self.ycol[j] < 0:
+                    if c < 0:
+                        self.infeasible_reason = (
+                            f"{problem.site_label(j)} cannot take its own unit "
+                            f"{problem.unit_label(r)}")
+                    else:
+                        lower[c] = 1.0
+                elif c < 0:
+                    upper[self.ycol[j]] = 0.0
+                else:
+                    add([0, 0], [c, self.ycol[j]], [1.0, -1.0], 0.0, 0.0)
+        # capacity and floor rows, every demand row that is not dominated by another
+        if cap is not None:
+            d = problem.demand
+            hi = problem.max_util * cap
+            lo = problem.min_util * cap
+            for t in _undominated(d, larger=True):
+                self._band_rows(add, d[t], hi, upper_side=True)
+            if np.any(lo > _TOL):
+                for t in _undominated(d, larger=False):
+                    self._band_rows(add, d[t], lo, upper_side=False)
+            # cover: open capacity must hold the students of every row
+            if len(cand):
+                for t in _undominated(d, larger=True):
+                    need = d[t].sum() - hi[problem.always_open].sum()
+                    if need > _TOL:
+                        add(np.zeros(len(cand)), self.ycol[cand], hi[cand], need, inf)
+        # max moved: sum_i d0_i (1 - x[i, cur_i]) <= M
+        if problem.max_moved is not None:
+            cur = problem.current
+            d0 = problem.demand[0]
+            has = (cur >= 0) & (d0 > 0)
+            total = float(d0[has].sum())
+            c = self.colmap[np.flatnonzero(has), cur[has]]
+            stay = c >= 0
+            add(np.zeros(int(stay.sum())), c[stay], -d0[has][stay], -inf,
+                problem.max_moved - total)
+        # locks: fix the one column of a locked unit
+        li = np.flatnonzero(problem.locks >= 0)
+        lc = self.colmap[li, problem.locks[li]]
+        lower[lc[lc >= 0]] = 1.0
+
+        r = np.concatenate(rows)
+        c = np.concatenate(cols)
+        v = np.concatenate(vals)
+        a = sp.csc_matrix((v, (r, c)), shape=(nrow, ncol))
+        a.sum_duplicates()
+        lp = highspy.HighsLp()
+        lp.num_col_ = ncol
+        lp.num_row_ = nrow
+        lp.col_cost_ = cost
+        lp.col_lower_ = lower
+        lp.col_upper_ = upper
+        lp.row_lower_ = np.concatenate(rlo)
+        lp.row_upper_ = np.concatenate(rhi)
+        lp.a_matrix_.format_ = highspy.MatrixFormat.kColwise
+        lp.a_matrix_.start_ = a.indptr.astype(np.int32)
+        lp.a_matrix_.index_ = a.indices.astype(np.int32)
+        lp.a_matrix_.value_ = a.data
+        lp.integrality_ = [highspy.HighsVarType.kInteger] * ncol
+        self.ncol = ncol
+        self.lower0 = lower
+        self.upper0 = upper
+        h = highspy.Highs()
+        h.setOptionValue("output_flag", False)
+        h.setOptionValue("threads", int(threads))
+        h.setOptionValue("presolve", "on")
+        h.passModel(lp)
+        self.h = h
+        self._cancel: Callable[[], bool] | None = None
+        self._deadline = float("inf")
+        h.cbMipInterrupt.subscribe(self._interrupt)
+        self.fixed = 0
+
+    def _band_rows(self, add, dt, bound, upper_side: bool) -> None:
+        """sum_i d[t,i] x[i,j] <= (>=) bound[j] y[j] for every site whose row can bind."""
+        p = self.problem
+        xi, xj = self.xi, self.xj
+        coef = dt[xi]
+        reach = np.bincount(xj, weights=coef, minlength=p.n_sites)
+        for j in range(p.n_sites):
+            if not np.isfinite(bound[j]) or p.closed_sites[j]:
+                continue
+            cand = self.ycol[j] >= 0
+            if upper_side and reach[j] <= bound[j] + _TOL and not cand:
+                continue  # every student it may take fits: the row cannot bind
+            if not upper_side and bound[j] <= _TOL:
+                continue
+            sel = np.flatnonzero((xj == j) & (coef != 0))
+            cs = sel.tolist()
+            vs = coef[sel].tolist()
+            if cand:
+                cs.append(int(self.ycol[j]))
+                vs.append(-float(bound[j]))
+                lo, hi = (-np.inf, 0.0) if upper_side else (0.0, np.inf)
+            else:
+                lo, hi = (-np.inf, bound[j]) if upper_side else (bound[j], np.inf)
+            add(np.zeros(len(cs)), cs, vs, lo, hi)
+
+    def _interrupt(self, e) -> None:
+        if (self._cancel is not None and self._cancel()) or time.monotonic() > self._deadline:
+            e.interrupt()
+
+    # --------------------------------------------------------------- interface
+    def vector(self, assignment: np.ndarray) -> np.ndarray:
+        """Column values of a plan (x and y)."""
+        p = self.problem
+        a = np.asarray(assignment, np.int64)
+        x = np.zeros(self.ncol)
+        c = self.colmap[np.arange(p.n_units), a]
+        x[c[c >= 0]] = 1.0
+        opened = cg.open_from_assignment(p, a)
+        yc = self.ycol[opened & (self.ycol >= 0)]
+        x[yc] = 1.0
+        return x
+
+    def add_cuts(self, cuts: Sequence[cg.Cut]) -> int:
+        """Add x[i,j] (+ x[a,j] - 1) - sum_S x[s,j] <= 0 rows; returns the number added."""
+        starts, idx, val, ub = [], [], [], []
+        nnz = 0
+        for cut in cuts:
+            j = cut.site
+            sc = self.colmap[cut.separator, j]
+            sc = sc[sc >= 0]
+            ac = self.colmap[cut.anchor, j] if cut.anchor >= 0 else -1
+            for i in cut.units.tolist():
+                ic = self.colmap[i, j]
+                if ic < 0:
+                    continue
+                starts.append(nnz)
+                row_c = [ic, *sc.tolist()]
+                row_v = [1.0] + [-1.0] * len(sc)
+                if ac >= 0:
+                    row_c.append(int(ac))
+                    row_v.append(1.0)
+                idx.extend(row_c)
+                val.extend(row_v)
+                nnz += len(row_c)
+                ub.append(1.0 if ac >= 0 else 0.0)
+        if not starts:
+            return 0
+        k = len(starts)
+        self.h.addRows(k, np.full(k, -np.inf), np.array(ub), nnz, np.array(starts, np.int32),
+                       np.array(idx, np.int32), np.array(val))
+        return k
+
+    def solve(self, gap: float, time_left: float | None, start: np.ndarray | None,
+              cancel: Callable[[], bool] | None) -> _Answer:
+        hs, h = self._hs, self.h
+        if self.infeasible_reason:
+            return _Answer("infeasible", None, np.inf, np.inf, self.infeasible_reason)
+        h.setOptionValue("mip_rel_gap", float(gap))
+        tl = np.inf if time_left is None else max(float(time_left), 0.01)
+        h.setOptionValue("time_limit", float(tl))
+        self._cancel = cancel
+        self._deadline = time.monotonic() + tl + 0.5
+        if start is not None:
+            sol = hs.HighsSolution()
+            sol.col_value = self.vector(start)
+            sol.value_valid = True
+            h.setSolution(sol)
+        h.run()
+        st = h.getModelStatus()
+        info = h.getInfo()
+        ms = hs.HighsModelStatus
+        has = info.primal_solution_status == 2
+        a = None
+        if has:
+            col = np.asarray(h.getSolution().col_value)
+            xv = col[: len(self.xi)] > 0.5
+            a = np.full(self.problem.n_units, -1, np.int64)
+            a[self.xi[xv]] = self.xj[xv]
+            if (a < 0).any():
+                a, has = None, False
+        status = {
+            ms.kOptimal: "optimal",
+            ms.kInfeasible: "infeasible",
+            ms.kTimeLimit: "time_limit",
+            ms.kInterrupt: "cancelled",
+            ms.kHighsInterrupt: "cancelled",
+            ms.kSolutionLimit: "feasible",
+        }.get(st, "error")
+        if status == "cancelled" and (cancel is None or not cancel()):
+            status = "time_limit"  # the deadline guard fired, not the user
+        bound = float(info.mip_dual_bound)
+        obj = float(info.objective_function_value) if has else np.inf
+        if status == "optimal" and not has:
+            status = "error"
+        if status == "infeasible":
+            bound = np.inf
+        msg = "" if status != "error" else f"HiGHS stopped: {h.modelStatusToString(st)}"
+        return _Answer(status, a, obj, bound if np.isfinite(bound) else -np.inf, msg)
+
+    def fix_by_reduced_cost(self, ub: float) -> int:
+        """Reduced-cost fixing against a valid plan of cost ``ub``; returns columns fixed.
+
+        Solves the LP relaxation (current rows, no integrality) and sets x[i,j] <= 0 where
+        z_LP + rc[i,j] > ub: any solution using that pair costs more than the known plan.
+        """
+        hs, h = self._hs, self.h
+        k = len(self.xi)
+        allc = np.arange(self.ncol, dtype=np.int32)
+        h.changeColsIntegrality(self.ncol, allc,
+                                np.full(self.ncol, hs.HighsVarType.kContinuous))
+        h.setOptionValue("time_limit", np.inf)
+        h.run()
+        ok = h.getModelStatus() == hs.HighsModelStatus.kOptimal
+        fixed = 0
+        if ok:
+            z = float(h.getInfo().objective_function_value)
+            rc = np.asarray(h.getSolution().col_dual)[:k]
+            lower = np.asarray(h.getLp().col_lower_)[:k]
+            slack = max(abs(ub), 1.0) * 1e-9
+            drop = np.flatnonzero((z + rc > ub + slack) & (lower < 0.5))
+            if len(drop):
+                h.changeColsBounds(len(drop), drop.astype(np.int32), np.zeros(len(drop)),
+                                   np.zeros(len(drop)))
+            fixed = len(drop)
+        h.changeColsIntegrality(self.ncol, allc, np.full(self.ncol, hs.HighsVarType.kInteger))
+        self.fixed += fixed
+        return fixed
+
+
+def _undominated(d: np.ndarray, larger: bool) -> list[int]:
+    """Demand rows not implied by another row (for capacity: rows no other row covers)."""
+    keep: list[int] = []
+    for t in range(d.shape[0]):
+        dominated = False
+        for s in range(d.shape[0]):
+            if s == t:
+                continue
+            ge = np.all(d[s] >= d[t]) if larger else np.all(d[s] <= d[t])
+            if ge and (not np.array_equal(d[s], d[t]) or s < t):
+                dominated = True
+                break
+        if not dominated:
+            keep.append(t)
+    return keep
+
+
+# ---------------------------------------------------------------------- Pyomo backend
+class _PyomoBackend:
+    """The Pyomo reference model of :mod:`districting.model`, any solver Pyomo drives."""
+
+    def __init__(self, problem: Problem, solver: str) -> None:
+        from . import model as md
+
+        self._md = md
+        self.name = solver
+        self.problem = problem
+        self.model = md.build_model(problem, contiguity="cuts")
+        self.fixed = 0
+
+    def add_cuts(self, cuts: Sequence[cg.Cut]) -> int:
+        allowed = self.problem.allowed
+        m = self.model
+        k = 0
+        for cut in cuts:
+            j = cut.site
+            sep = [int(s) for s in cut.separator if allowed[s, j]]
+            for i in cut.units.tolist():
+                if not allowed[i, j]:
+                    continue
+                if cut.anchor < 0:
+                    self._md.add_separator_cut(m, i, j, sep)
+                else:  # a-b form for a site without a root unit
+                    a = int(cut.anchor)
+                    m.separator_cuts.add(
+                        m.x[i, j] + m.x[a, j] - 1 <= sum(m.x[s, j] for s in sep))
+                k += 1
+        return k
+
+    def solve(self, gap, time_left, start, cancel) -> _Answer:
+        r = self._md.solve_model(self.model, self.name, gap, time_left, start)
+        a = None if r.assignment is None or np.any(np.asarray(r.assignment) < 0) else (
+            np.asarray(r.assignment, np.int64))
+        status = r.status
+        if a is None and status in ("optimal", "feasible"):
+            status = "error"
+        obj = float(r.objective) if a is not None else np.inf
+        bound = float(r.bound) if r.bound is not None and np.isfinite(r.bound) else -np.inf
+        msg = getattr(r, "message", "") or ("" if status != "error" else f"{self.name}: error")
+        return _Answer(status, a, obj, bound, msg)
+
+    def fix_by_reduced_cost(self, ub: float) -> int:
+        return 0
+
+
+# ---------------------------------------------------------------------- the loop
+def _make_backend(problem: Problem, solver: str):
+    return _HighsBackend(problem) if solver == "highs" else _PyomoBackend(problem, solver)
+
+
+def _objective(problem: Problem, a: np.ndarray) -> float:
+    return float(problem.weighted_cost[np.arange(problem.n_units), a].sum())
+
+
+def _prepare_start(problem: Problem, graph: cg.UnitGraph | None, start) -> np.ndarray | None:
+    """A previous plan adapted to this problem: locks applied, units on sites they may no
+    longer use moved to their cheapest usable site, roots put back, then repaired."""
+    if start is None:
+        return None
+    a = np.asarray(start, dtype=np.int64).copy()
+    n, m = problem.n_units, problem.n_sites
+    if a.shape != (n,):
+        return None
+    allowed = problem.allowed
+    li = np.flatnonzero(problem.locks >= 0)
+    a[li] = problem.locks[li]
+    bad = (a < 0) | (a >= m)
+    bad[~bad] = ~allowed[np.flatnonzero(~bad), a[~bad]]
+    if bad.any():
+        opened = problem.always_open | np.isin(np.arange(m), a[~bad])
+        wc = np.where(allowed & opened[None, :], problem.weighted_cost, np.inf)
+        for i in np.flatnonzero(bad).tolist():
+            j = int(np.argmin(wc[i]))
+            if not np.isfinite(wc[i, j]):
+                return None
+            a[i] = j
+    if problem.roots is not None:
+        opened = cg.open_from_assignment(problem, a)
+        rj = np.flatnonzero(opened & (problem.roots >= 0))
+        a[problem.roots[rj]] = rj
+    if graph is not None:
+        fixed = cg.repair(problem, graph, a)
+        if fixed is not None:
+            a = fixed
+    return a
+
+
+class Session:
+    """A solver that keeps its built model, cuts and best plan between re-solves.
+
+    ``Session(problem).solve(...)`` solves; ``update(problem2)`` changes the problem (a lock,
+    a capacity, a closure): the cuts are kept when the unit graph and the roots are the same
+    (a separator cut depends only on them), and the previous plan becomes the warm start.
+    """
+
+    def __init__(self, problem: Problem, solver: str = "highs") -> None:
+        self.solver = solver
+        self.problem = problem
+        self.cuts: list[cg.Cut] = []
+        self.last: Plan | None = None
+        self._backend = None
+        self._graph = cg.UnitGraph.of(problem) if problem.contiguous else None
+        self.build_seconds = 0.0
+
+    def update(self, problem: Problem) -> None:
+        """Switch to a changed problem; keeps the cuts when graph and roots are unchanged."""
+        old = self.problem
+        same_graph = (
+            problem.n_units == old.n_units
+            and problem.n_sites == old.n_sites
+            and _same(problem.edges, old.edges)
+            and _same(problem.roots, old.roots)
+        )
+        if not same_graph:
+            self.cuts = []
+            self._graph = cg.UnitGraph.of(problem) if problem.contiguous else None
+        self.problem = problem
+        self._backend = None
+
+    def _ensure_backend(self):
+        if self._backend is None:
+            t0 = time.perf_counter()
+            self._backend = _make_backend(self.problem, self.solver)
+            if self.cuts:
+                self._backend.add_cuts(self.cuts)
+            self.build_seconds = time.perf_counter() - t0
+        return self._backend
+
+    def solve(
+        self,
+        gap: float = 1e-4,
+        time_limit: float | None = None,
+        *,
+        progress: Callable[[Round], None] | None = None,
+        cancel: Callable[[], bool] | None = None,
+        start=None,
+        max_rounds: int = 200,
+    ) -> Plan:
+        """Solve the current problem; ``start`` defaults to the last plan of this session."""
+        t0 = time.monotonic()
+        problem = self.problem
+        route = self.solver
+        if start is None and self.last is not None and self.last.feasible:
+            start = self.last.assignment
+        reasons = _precheck(problem)
+        if reasons:
+            return self._finish(_infeasible(problem, "\n".join(reasons), route))
+        try:
+            backend = self._ensure_backend()
+        except (ImportError, RuntimeError, ValueError) as exc:
+            return self._finish(_failed(problem, f"could not build the model: {exc}", route))
+        build = self.build_seconds
+        self.build_seconds = 0.0
+        graph = self._graph
+        best: np.ndarray | None = None
+        best_obj = np.inf
+        cand = _prepare_start(problem, graph, start)
+        if cand is not None and not cg.plan_checks(problem, cand, graph):
+            best, best_obj = cand, _objective(problem, cand)
+        hint = best if best is not None else cand
+        if hint is not None and cg.plan_checks(problem, hint, graph, contiguity=False):
+            hint = None
+        bound = -np.inf
+        history: list[Round] = []
+        status = "feasible"
+        message = ""
+        rounds = 0
+        fixed_once = False
+        for rnd in range(1, max_rounds + 1):
+            if cancel is not None and cancel():
+                status = "cancelled"
+                break
+            left = None if time_limit is None else time_limit - (time.monotonic() - t0)
+            if left is not None and left <= 0:
+                status = "time_limit"
+                break
+            rounds = rnd
+            if (best is not None and not fixed_once and problem.contiguous and rnd > 1):
+                backend.fix_by_reduced_cost(best_obj)  # cuts will follow: shrink the MIP once
+                fixed_once = True
+            ans = backend.solve(gap, left, best if best is not None else hint, cancel)
+            if ans.status == "infeasible":
+                if best is None:
+                    message = _explain(problem) or ans.message
+                    return self._finish(_infeasible(problem, message, route, rounds, history,
+                                                    build, time.monotonic() - t0))
+                bound = best_obj  # every cut is valid: nothing beats the plan in hand
+                status = "optimal"
+                break
+            if ans.status == "error":
+                message = ans.message
+                if best is None:
+                    return self._finish(_failed(problem, message, route))
+                status = "feasible"
+                break
+            bound = max(bound, ans.bound)
+            n_frag, added = 0, 0
+            if ans.assignment is not None:
+                a = ans.assignment
+                if graph is None:
+                    if ans.objective < best_obj:
+                        best, best_obj = a, ans.objective
+                else:
+                    n_frag = len(cg.fragments(problem, graph, a))
+                    b, detached = cg.reassign_empty(problem, graph, a)
+                    if not detached.any() and not cg.plan_checks(problem, b, graph):
+                        if ans.objective < best_obj - _TOL or best is None:
+                            best, best_obj = b, _objective(problem, b)
+                    else:
+                        cuts = cg.separator_cuts(problem, graph, a, only=detached)
+                        added = backend.add_cuts(cuts)
+                        self.cuts.extend(cuts)
+                        fixed = cg.repair(problem, graph, a)
+                        if fixed is not None:
+                            fixed = cg.improve(problem, graph, fixed)
+                            if not cg.plan_checks(problem, fixed, graph):
+                                obj = _objective(problem, fixed)
+                                if obj < best_obj:
+                                    best, best_obj = fixed, obj
+            bound = min(bound, best_obj) if best is not None else bound
+            g = relative_gap(best_obj, bound)
+            elapsed = time.monotonic() - t0
+            history.append(Round(rnd, best_obj, bound, g, added, n_frag, elapsed))
+            if progress is not None:
+                progress(history[-1])
+            if best is not None and g <= gap + 1e-12:
+                status = "optimal"
+                break
+            if ans.status == "cancelled":
+                status = "cancelled"
+                break
+            if ans.status == "time_limit" and (
+                time_limit is not None and time.monotonic() - t0 >= time_limit - 1e-3
+            ):
+                status = "time_limit"
+                break
+            if added == 0 and ans.assignment is not None and graph is not None:
+                # the MIP answer is contiguous after re-handing empty units, yet the gap
+                # is open: only the MIP's own gap is left; solving again cannot add cuts
+                status = "feasible" if ans.status == "optimal" else status
+                if ans.status == "optimal":
+                    break
+            if graph is None and ans.status == "optimal":
+                break
+        solve_s = time.monotonic() - t0
+        if best is None:
+            msg = message or (
+                "no plan that meets every constraint was found within the time limit"
+                if status == "time_limit" else "no plan that meets every constraint was found")
+            st = status if status in ("time_limit", "cancelled") else "infeasible"
+            plan = Plan(st, np.inf, bound, np.inf, np.full(problem.n_units, -1, np.int64),
+                        np.zeros(problem.n_sites, bool), message=msg, rounds=rounds,
+                        cuts=len(self.cuts), build_seconds=build, solve_seconds=solve_s,
+                        history=tuple(history), route=route)
+            return self._finish(plan)
+        opened = cg.open_from_assignment(problem, best)
+        g = relative_gap(best_obj, bound)
+        if status == "feasible" and g <= gap + 1e-12:
+            status = "optimal"
+        plan = Plan(
+            status=status,
+            objective=best_obj,
+            bound=float(bound),
+            gap=g,
+            assignment=best,
+            open_sites=opened,
+            message=message,
+            rounds=rounds,
+            cuts=len(self.cuts),
+            build_seconds=build,
+            solve_seconds=solve_s,
+            history=tuple(history),
+            metrics=plan_metrics(problem, best, opened),
+            route=route,
+        )
+        return self._finish(plan)
+
+    def _finish(self, plan: Plan) -> Plan:
+        self.last = plan
+        return plan
+
+
+def _same(a, b) -> bool:
+    if a is None or b is None:
+        return a is None and b is None
+    return a.shape == b.shape and bool(np.array_equal(a, b))
+
+
+def _precheck(problem: Problem) -> list[str]:
+    try:
+        from . import diagnose
+    except ImportError:  # written alongside the engine; the solve itself still proves
+        return []
+    return list(diagnose.precheck(problem))
+
+
+def _explain(problem: Problem) -> str:
+    try:
+        from . import diagnose
+    except ImportError:
+        return "no plan meets every constraint (the solver proved it infeasible)"
+    return diagnose.explain(problem)
+
+
+def _infeasible(problem: Problem, message: str, route: str, rounds: int = 0,
+                history: Sequence[Round] = (), build: float = 0.0, seconds: float = 0.0) -> Plan:
+    return Plan("infeasible", np.inf, np.inf, np.inf, np.full(problem.n_units, -1, np.int64),
+                np.zeros(problem.n_sites, bool), message=message, rounds=rounds,
+                build_seconds=build, solve_seconds=seconds, history=tuple(history), route=route)
+
+
+def _failed(problem: Problem, message: str, route: str) -> Plan:
+    """No plan because the solver could not run or stopped with an error (not a proof)."""
+    return Plan("infeasible", np.inf, -np.inf, np.inf, np.full(problem.n_units, -1, np.int64),
+                np.zeros(problem.n_sites, bool), message=message, route=route)
+
+
+def solve(
+    problem: Problem,
+    gap: float = 1e-4,
+    time_limit: float | None = None,
+    *,
+    solver: str = "highs",
+    progress: Callable[[Round], None] | None = None,
+    cancel: Callable[[], bool] | None = None,
+    start=None,
+    max_rounds: int = 200,
+) -> Plan:
+    """Solve ``problem`` to within ``gap`` (relative) or until ``time_limit`` seconds.
+
+    Returns a :class:`~districting.plan.Plan`: the best valid plan with its proven bound,
+    or an infeasible plan whose ``message`` says why in words. ``start`` is an assignment
+    (site index per unit) reused as a warm start after repair. See :class:`Session` for
+    re-solves that keep the model and the cuts.
+    """
+    return Session(problem, solver=solver or "highs").solve(
+        gap, time_limit, progress=progress, cancel=cancel, start=start, max_rounds=max_rounds)

@@ -139,14 +139,16 @@ def build_problem(inputs: Inputs, rs: RunSettings) -> tuple[Problem, np.ndarray]
             )
         return site_pos[sid]
 
-    status = np.array([rs.status.get(s, st) for s, st in zip(site_ids, sites["status"])])
-    cap = np.array([rs.capacity.get(s, c) for s, c in zip(site_ids, sites["capacity"])], float)
-    max_u = np.array(
-        [rs.site_max_util.get(s, u) for s, u in zip(site_ids, sites["max_util"])], float
-    )
-    min_u = np.array(
-        [rs.site_min_util.get(s, u) for s, u in zip(site_ids, sites["min_util"])], float
-    )
+    def per_site(overrides: Mapping, column: str, dtype=float) -> np.ndarray:
+        """The site column, with per-run overrides by site id."""
+        values = sites[column].tolist()
+        return np.array([overrides.get(s, v) for s, v in zip(site_ids, values, strict=True)],
+                        dtype=dtype)
+
+    status = per_site(rs.status, "status", dtype=object).astype(str)
+    cap = per_site(rs.capacity, "capacity")
+    max_u = per_site(rs.site_max_util, "max_util")
+    min_u = per_site(rs.site_min_util, "min_util")
     max_u = np.where(np.isnan(max_u), rs.max_utilization, max_u)
     min_u = np.where(np.isnan(min_u), rs.min_utilization, min_u)
 
@@ -211,7 +213,7 @@ def build_problem(inputs: Inputs, rs: RunSettings) -> tuple[Problem, np.ndarray]
         distance=distance,
         years=years,
         unit_names=unit_ids,
-        site_names=[f"{n} ({s})" for n, s in zip(sites["name"], site_ids)],
+        site_names=[f"{n} ({s})" for n, s in zip(sites["name"], site_ids, strict=True)],
         level=rs.level,
     )
     return problem, rows

@@ -1,0 +1,554 @@
+"""Contiguous zones: connectivity checks, separator cuts and the repair of fragments.
+
+A zone is contiguous when the units assigned to its site induce a connected subgraph of the
+unit graph that holds the site's root unit (Oehrlein & Haunert, "A cutting-plane method for
+contiguity-constrained spatial aggregation", Journal of Spatial Information Science 15, 2017,
+for the root-based form). A plan that breaks this is cut off with minimal a-b separator
+inequalities (Validi, Buchanan & Lykhovyd, "Imposing contiguity constraints in political
+districting models", Operations Research 70(2), 2022, 867-892): if unit ``i`` sits in zone
+``j`` but is cut from the root ``r_j``, every vertex set ``S`` separating ``i`` from ``r_j``
+must hold a unit of zone ``j``::
+
+    x[i, j] <= sum_{s in S} x[s, j]
+
+(for a site without a root the a-b form ``x[a, j] + x[i, j] - 1 <= sum_S x[s, j]`` with an
+anchor unit ``a``). The functions here are pure numpy / scipy over a :class:`UnitGraph`;
+:mod:`districting.solve` runs them between MIP rounds.
+
+Repair turns any assignment that meets every other constraint into a contiguous plan when
+it can: units with no students are handed out again (they cost nothing, so the MIP places
+them at random), then disconnected pieces with students move into a neighbouring zone that
+can take them, cheapest first, and a local search moves boundary units while every zone
+stays connected and in band.
+"""
+
+from __future__ import annotations
+
+from collections import deque
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.sparse as sp
+from scipy.sparse.csgraph import connected_components
+
+from .problem import Problem
+
+__all__ = [
+    "UnitGraph",
+    "Cut",
+    "zone_components",
+    "fragments",
+    "is_contiguous",
+    "separator",
+    "separator_cuts",
+    "reassign_empty",
+    "repair",
+    "improve",
+    "plan_checks",
+    "open_from_assignment",
+]
+
+_TOL = 1e-6
+
+
+class UnitGraph:
+    """The unit adjacency as CSR arrays plus the edge list (read-only)."""
+
+    def __init__(self, n: int, edges) -> None:
+        e = np.asarray(edges, dtype=np.int64).reshape(-1, 2)
+        self.n = int(n)
+        self.u = np.concatenate([e[:, 0], e[:, 1]])
+        self.v = np.concatenate([e[:, 1], e[:, 0]])
+        adj = sp.csr_matrix((np.ones(len(self.u), np.int8), (self.u, self.v)), shape=(n, n))
+        adj.sum_duplicates()
+        adj.sort_indices()
+        self.adj = adj
+        self.indptr = adj.indptr
+        self.indices = adj.indices
+        self._lists: list[list[int]] | None = None
+
+    @classmethod
+    def of(cls, problem: Problem) -> UnitGraph:
+        edges = problem.edges if problem.edges is not None else np.zeros((0, 2), np.int64)
+        return cls(problem.n_units, edges)
+
+    def neighbours(self, i: int) -> np.ndarray:
+        return self.indices[self.indptr[i]:self.indptr[i + 1]]
+
+    @property
+    def lists(self) -> list[list[int]]:
+        """Neighbour lists as Python lists (fast for breadth-first searches in Python)."""
+        if self._lists is None:
+            ind = self.indices.tolist()
+            ptr = self.indptr.tolist()
+            self._lists = [ind[ptr[k]:ptr[k + 1]] for k in range(self.n)]
+        return self._lists
+
+    def touching(self, mask: np.ndarray) -> np.ndarray:
+        """Bool mask of units adjacent to some unit of ``mask`` (mask itself may be included)."""
+        return (self.adj @ mask.astype(np.int8)) > 0
+
+    def components(self, keep: np.ndarray) -> np.ndarray:
+        """Component label per unit in the subgraph induced by ``keep`` (-1 outside)."""
+        sel = keep[self.u] & keep[self.v]
+        g = sp.csr_matrix(
+            (np.ones(int(sel.sum()), np.int8), (self.u[sel], self.v[sel])), shape=(self.n,) * 2
+        )
+        _, labels = connected_components(g, directed=False)
+        return np.where(keep, labels, -1)
+
+
+@dataclass(frozen=True)
+class Cut:
+    """``x[i, site] (+ x[anchor, site] - 1) <= sum_{s in separator} x[s, site]`` per i."""
+
+    site: int
+    units: np.ndarray  # the units i of the fragment (one inequality each)
+    separator: np.ndarray  # S, a minimal vertex separator between the fragment and the root
+    anchor: int = -1  # -1: the site's root is the other side; else the a-b form
+
+
+def zone_components(graph: UnitGraph, assignment: np.ndarray) -> np.ndarray:
+    """Label per unit of its connected piece within its own zone (-1 when unassigned)."""
+    a = np.asarray(assignment)
+    sel = (a[graph.u] == a[graph.v]) & (a[graph.u] >= 0)
+    g = sp.csr_matrix(
+        (np.ones(int(sel.sum()), np.int8), (graph.u[sel], graph.v[sel])), shape=(graph.n,) * 2
+    )
+    _, labels = connected_components(g, directed=False)
+    return np.where(a >= 0, labels, -1)
+
+
+def _main_labels(problem: Problem, a: np.ndarray, labels: np.ndarray) -> np.ndarray:
+    """Per site, the label of its main piece: the root's piece, else the piece with most
+    students (-2: the root is elsewhere, so every piece is a fragment; -3: unused site)."""
+    roots = problem.roots
+    main = np.full(problem.n_sites, -3, np.int64)
+    ok = a >= 0
+    if not ok.any():
+        return main
+    weight = problem.demand.sum(axis=0) + 1e-9  # every unit counts a little: ties -> size
+    for j in np.unique(a[ok]).tolist():
+        r = -1 if roots is None else int(roots[j])
+        if r >= 0:
+            main[j] = labels[r] if a[r] == j else -2
+        else:
+            members = np.flatnonzero(a == j)
+            w = np.bincount(labels[members], weights=weight[members])
+            main[j] = int(np.argmax(w))
+    return main
+
+
+def _attached(a: np.ndarray, labels: np.ndarray, main: np.ndarray) -> np.ndarray:
+    """Units in their zone's main piece."""
+    return (a >= 0) & (labels == main[np.maximum(a, 0)])
+
+
+def fragments(problem: Problem, graph: UnitGraph, assignment: np.ndarray) -> list[np.ndarray]:
+    """Units of each zone piece that is not the zone's main piece (root piece), one array each."""
+    a = np.asarray(assignment, dtype=np.int64)
+    labels = zone_components(graph, a)
+    bad = (a >= 0) & ~_attached(a, labels, _main_labels(problem, a, labels))
+    if not bad.any():
+        return []
+    idx = np.flatnonzero(bad)
+    order = np.argsort(labels[idx], kind="stable")
+    idx = idx[order]
+    splits = np.flatnonzero(np.diff(labels[idx])) + 1
+    return np.split(idx, splits)
+
+
+def is_contiguous(problem: Problem, graph: UnitGraph, assignment: np.ndarray) -> bool:
+    """True when every zone is one connected piece holding its site's root."""
+    return not fragments(problem, graph, assignment)
+
+
+def separator(graph: UnitGraph, piece: np.ndarray, other: int) -> np.ndarray:
+    """A minimal vertex separator between the unit set ``piece`` and unit ``other``.
+
+    ``piece`` is a maximal connected piece of a zone that misses ``other``,
+    so its neighbourhood N(C) lies outside the zone and separates the two. It is shrunk from
+    both sides: keep the units of N(C) adjacent to the component of ``other`` in G - N(C),
+    then those adjacent to the component of the piece in G - S (Validi, Buchanan &
+    Lykhovyd 2022, section on minimal separators).
+    """
+    in_c = np.zeros(graph.n, bool)
+    in_c[piece] = True
+    nbr = graph.touching(in_c) & ~in_c
+    if nbr[other]:
+        return np.array([other])
+    lab = graph.components(~nbr)
+    side = lab == lab[other]
+    s1 = nbr & graph.touching(side)
+    lab2 = graph.components(~s1)
+    side2 = lab2 == lab2[piece[0]]
+    return np.flatnonzero(s1 & graph.touching(side2))
+
+
+def separator_cuts(
+    problem: Problem,
+    graph: UnitGraph,
+    assignment: np.ndarray,
+    only: np.ndarray | None = None,
+) -> list[Cut]:
+    """Separator cuts violated by ``assignment``, one :class:`Cut` per fragment.
+
+    ``only`` (bool mask) limits the cuts to fragments holding at least one of those units.
+    For a zone whose root sits elsewhere the whole zone is a fragment (its root piece is empty).
+    """
+    a = np.asarray(assignment, dtype=np.int64)
+    labels = zone_components(graph, a)
+    main = _main_labels(problem, a, labels)
+    cuts: list[Cut] = []
+    for piece in fragments(problem, graph, a):
+        if only is not None and not only[piece].any():
+            continue
+        j = int(a[piece[0]])
+        r = -1 if problem.roots is None else int(problem.roots[j])
+        if r >= 0:
+            other, anchor = r, -1
+        else:
+            members = np.flatnonzero((a == j) & (labels == main[j]))
+            if not len(members):
+                continue
+            other = anchor = int(members[0])
+        sep = separator(graph, piece, other)
+        cuts.append(Cut(site=j, units=piece, separator=sep, anchor=anchor))
+    return cuts
+
+
+# ---------------------------------------------------------------------- feasibility checks
+def open_from_assignment(problem: Problem, assignment: np.ndarray) -> np.ndarray:
+    """Open sites implied by an assignment: always-open sites plus used candidates.
+
+    When ``p`` asks for more sites, unused candidates that may stay empty (no root, no
+    floor) are added, so the count row can hold.
+    """
+    a = np.asarray(assignment, dtype=np.int64)
+    opened = problem.always_open.copy()
+    used = np.zeros(problem.n_sites, bool)
+    used[a[a >= 0]] = True
+    opened |= used & ~problem.closed_sites
+    if problem.p is not None and opened.sum() < problem.p:
+        spare = problem.candidates & ~opened
+        if problem.roots is not None:
+            spare &= problem.roots < 0
+        if problem.capacity is not None:
+            spare &= problem.min_util * problem.capacity <= _TOL
+        extra = np.flatnonzero(spare)[: problem.p - int(opened.sum())]
+        opened[extra] = True
+    return opened
+
+
+def plan_checks(problem: Problem, assignment: np.ndarray, graph: UnitGraph | None = None,
+                contiguity: bool = True) -> list[str]:
+    """What ``assignment`` breaks (empty list: a valid plan), in short words."""
+    a = np.asarray(assignment, dtype=np.int64)
+    n, m = problem.n_units, problem.n_sites
+    out: list[str] = []
+    if a.shape != (n,) or a.min(initial=0) < 0 or a.max(initial=0) >= m:
+        return ["not every unit has a site"]
+    if not problem.allowed[np.arange(n), a].all():
+        out.append("a unit is assigned to a site it may not use")
+    opened = open_from_assignment(problem, a)
+    if problem.p is not None and int(opened.sum()) != problem.p:
+        out.append(f"{int(opened.sum())} sites open, {problem.p} asked")
+    if problem.roots is not None:
+        r = problem.roots
+        rooted = opened & (r >= 0)
+        if np.any(a[r[rooted]] != np.flatnonzero(rooted)):
+            out.append("a site's own unit is in another zone")
+    if problem.capacity is not None:
+        load = _loads(problem, a)
+        cap = problem.capacity[None, :]
+        if np.any(opened & (load > problem.max_util * cap + _TOL).any(axis=0)):
+            out.append("capacity exceeded")
+        if np.any(opened & (load < problem.min_util * cap - _TOL).any(axis=0)):
+            out.append("below minimum utilization")
+    if problem.max_moved is not None and _moved(problem, a) > problem.max_moved + _TOL:
+        out.append("too many students moved")
+    if contiguity and problem.contiguous:
+        g = graph or UnitGraph.of(problem)
+        if fragments(problem, g, a):
+            out.append("a zone is not connected")
+    return out
+
+
+def _loads(problem: Problem, a: np.ndarray) -> np.ndarray:
+    m = problem.n_sites
+    return np.stack([np.bincount(a, weights=row, minlength=m) for row in problem.demand])
+
+
+def _moved(problem: Problem, a: np.ndarray) -> float:
+    cur = problem.current
+    moved = (cur >= 0) & (a != cur)
+    return float(problem.demand[0][moved].sum())
+
+
+# ---------------------------------------------------------------------- repair
+def _free_units(problem: Problem, opened: np.ndarray) -> np.ndarray:
+    """Units without students in any row that no lock or root ties to a site."""
+    free = ~(problem.demand > 0).any(axis=0)
+    free &= problem.locks < 0
+    if problem.roots is not None:
+        r = problem.roots[opened & (problem.roots >= 0)]
+        free[r] = False
+    return free
+
+
+def reassign_empty(
+    problem: Problem, graph: UnitGraph, assignment: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """Hand the units without students out again so that zones become connected.
+
+    Units with students keep their site (so the objective, loads and moves are unchanged:
+    empty units cost nothing). Empty units in a zone's root piece stay; the others are
+    released. Each remaining piece with students is joined to its zone through a shortest
+    path of released units that may use that site (breadth-first search); then the released
+    units left are given to neighbouring zones by a multi-source breadth-first search.
+    Returns the new assignment and a mask of units still cut from their zone's root piece.
+    """
+    a = np.asarray(assignment, dtype=np.int64).copy()
+    n = graph.n
+    opened = open_from_assignment(problem, a)
+    labels = zone_components(graph, a)
+    attached = _attached(a, labels, _main_labels(problem, a, labels))
+    free = _free_units(problem, opened) & ~attached
+    if not free.any() and attached.all():
+        return a, np.zeros(n, bool)
+    allowed = problem.allowed
+    b = a.copy()
+    b[free] = -1
+    nbrs = graph.lists
+    bl = b.tolist()
+    att = attached.tolist()
+    # pieces with students that are cut off: join each through released units
+    pieces_lab = zone_components(graph, np.where(attached, -1, b))
+    cut_units = np.flatnonzero(pieces_lab >= 0)
+    order = np.argsort(pieces_lab[cut_units], kind="stable")
+    cut_units = cut_units[order]
+    split = np.split(cut_units, np.flatnonzero(np.diff(pieces_lab[cut_units])) + 1)
+    pieces = [p for p in split if len(p)]
+    # pieces of one zone join in any order; larger pieces first
+    pieces.sort(key=lambda p: -float(problem.demand[:, p].sum()))
+    for _ in range(2):
+        left = []
+        for piece in pieces:
+            j = bl[int(piece[0])]
+            if att[int(piece[0])]:
+                continue
+            if not _join(piece, j, bl, att, nbrs, allowed[:, j]):
+                left.append(piece)
+        if len(left) == len(pieces):
+            break
+        pieces = left
+    # released units left over: nearest zone through released units (multi-source BFS)
+    queue: deque[int] = deque(k for k in range(n) if att[k] and bl[k] >= 0)
+    while queue:
+        u = queue.popleft()
+        j = bl[u]
+        for w in nbrs[u]:
+            if bl[w] == -1 and allowed[w, j]:
+                bl[w] = j
+                att[w] = True
+                queue.append(w)
+    b = np.array(bl, dtype=np.int64)
+    still = b < 0
+    b[still] = a[still]
+    detached = ~np.array(att, bool)
+    return b, detached
+
+
+def _join(piece, j, bl, att, nbrs, ok_j) -> bool:
+    """Shortest path from ``piece`` to zone j's attached part through released units."""
+    parent: dict[int, int] = {int(k): -1 for k in piece}
+    queue = deque(parent)
+    while queue:
+        u = queue.popleft()
+        for w in nbrs[u]:
+            if w in parent:
+                continue
+            if bl[w] == j and att[w]:
+                k = u
+                while k != -1:  # claim the path back to the piece
+                    bl[k] = j
+                    att[k] = True
+                    k = parent[k]
+                for k in piece:
+                    att[int(k)] = True
+                return True
+            if bl[w] == -1 and ok_j[w]:
+                parent[w] = u
+                queue.append(w)
+    return False
+
+
+class _Loads:
+    """Incremental loads and moved students for repair and local search."""
+
+    def __init__(self, problem: Problem, a: np.ndarray) -> None:
+        self.p = problem
+        self.load = _loads(problem, a)
+        self.moved = _moved(problem, a)
+        cap = problem.capacity
+        self.hi = None if cap is None else problem.max_util * cap
+        self.lo = None if cap is None else problem.min_util * cap
+
+    def can_move(self, units: np.ndarray, frm: int, to: int) -> bool:
+        d = self.p.demand[:, units].sum(axis=1)
+        if self.hi is not None:
+            if np.any(self.load[:, to] + d > self.hi[to] + _TOL):
+                return False
+            if np.any(self.load[:, frm] - d < self.lo[frm] - _TOL):
+                return False
+        if self.p.max_moved is not None:
+            if self.moved + self._dmoved(units, frm, to) > self.p.max_moved + _TOL:
+                return False
+        return True
+
+    def _dmoved(self, units, frm, to) -> float:
+        cur = self.p.current[units]
+        d0 = self.p.demand[0, units]
+        before = (cur >= 0) & (cur != frm)
+        after = (cur >= 0) & (cur != to)
+        return float(d0[after].sum() - d0[before].sum())
+
+    def apply(self, units: np.ndarray, frm: int, to: int) -> None:
+        d = self.p.demand[:, units].sum(axis=1)
+        self.load[:, to] += d
+        self.load[:, frm] -= d
+        self.moved += self._dmoved(units, frm, to)
+
+
+def repair(
+    problem: Problem,
+    graph: UnitGraph,
+    assignment: np.ndarray,
+    max_iter: int = 50,
+) -> np.ndarray | None:
+    """A contiguous plan close to ``assignment``, or None when no repair was found.
+
+    ``assignment`` must meet every constraint but contiguity. Empty units are handed out
+    again (:func:`reassign_empty`); each piece with students still cut from its root then
+    moves as a whole into a neighbouring zone's root piece where every pair is allowed,
+    no unit is locked, capacity holds in every year, the zone it leaves keeps its floor and
+    the moved-students limit holds -- cheapest move first. Repeats until no piece is left.
+    """
+    a = np.asarray(assignment, dtype=np.int64).copy()
+    wc = problem.weighted_cost
+    allowed = problem.allowed
+    locked = problem.locks >= 0
+    root_unit = np.zeros(graph.n, bool)
+    if problem.roots is not None:
+        root_unit[problem.roots[problem.roots >= 0]] = True
+    for _ in range(max_iter):
+        b, detached = reassign_empty(problem, graph, a)
+        if not detached.any():
+            return b
+        loads = _Loads(problem, b)
+        labels = zone_components(graph, np.where(detached, b, -1))
+        moved_any = False
+        for lab in np.unique(labels[detached]).tolist():
+            piece = np.flatnonzero(labels == lab)
+            j = int(b[piece[0]])
+            if locked[piece].any() or root_unit[piece].any():
+                continue
+            mask = np.zeros(graph.n, bool)
+            mask[piece] = True
+            touch = graph.touching(mask) & ~mask & ~detached
+            best = None
+            for k in np.unique(b[touch]).tolist():
+                if k == j or not allowed[piece, k].all():
+                    continue
+                if not loads.can_move(piece, j, k):
+                    continue
+                delta = float(wc[piece, k].sum() - wc[piece, j].sum())
+                if best is None or delta < best[0]:
+                    best = (delta, k)
+            if best is not None:
+                k = best[1]
+                loads.apply(piece, j, k)
+                b[piece] = k
+                detached[piece] = False
+                moved_any = True
+        if not moved_any:
+            return None
+        a = b
+    return None
+
+
+def improve(
+    problem: Problem,
+    graph: UnitGraph,
+    assignment: np.ndarray,
+    passes: int = 3,
+) -> np.ndarray:
+    """Local search: move boundary units to a neighbouring zone while it lowers the cost.
+
+    A move of unit i from zone j to a neighbouring zone k is taken when it is allowed, i is
+    not locked and not a site's root, capacity and floors hold in every year, the
+    moved-students limit holds, and zone j stays connected without i (checked by a
+    breadth-first search from one of i's neighbours in j). Best improvement first.
+    """
+    a = np.asarray(assignment, dtype=np.int64).copy()
+    wc = problem.weighted_cost
+    allowed = problem.allowed
+    movable = problem.locks < 0
+    if problem.roots is not None:
+        movable[problem.roots[problem.roots >= 0]] = False
+    loads = _Loads(problem, a)
+    nbrs = graph.lists
+    n = graph.n
+    for _ in range(passes):
+        u, v = graph.u, graph.v
+        diff = a[u] != a[v]
+        cu, cv = u[diff], a[v[diff]]
+        gain = wc[cu, a[cu]] - wc[cu, cv]
+        keep = (gain > _TOL) & movable[cu] & allowed[cu, cv]
+        cu, cv, gain = cu[keep], cv[keep], gain[keep]
+        if not len(cu):
+            break
+        order = np.argsort(-gain, kind="stable")
+        done = np.zeros(n, bool)
+        changed = False
+        al = a.tolist()
+        for i, k in zip(cu[order].tolist(), cv[order].tolist(), strict=True):
+            if done[i]:
+                continue
+            j = al[i]
+            if j == k or not any(al[w] == k for w in nbrs[i]):
+                continue
+            one = np.array([i])
+            if not loads.can_move(one, j, k):
+                continue
+            if not _stays_connected(i, j, al, nbrs):
+                continue
+            loads.apply(one, j, k)
+            al[i] = k
+            done[i] = True
+            changed = True
+        a = np.array(al, dtype=np.int64)
+        if not changed:
+            break
+    return a
+
+
+def _stays_connected(i: int, j: int, al: list[int], nbrs: list[list[int]]) -> bool:
+    """True when zone j stays connected after unit i leaves it."""
+    same = [w for w in nbrs[i] if al[w] == j]
+    if len(same) <= 1:
+        return True
+    targets = set(same[1:])
+    seen = {i, same[0]}
+    queue = deque([same[0]])
+    while queue:
+        u = queue.popleft()
+        for w in nbrs[u]:
+            if w not in seen and al[w] == j:
+                if w in targets:
+                    targets.discard(w)
+                    if not targets:
+                        return True
+                seen.add(w)
+                queue.append(w)
+    return not targets

@@ -1,0 +1,601 @@
+"""The assignment problem as a Pyomo model: the reference route and the route to other solvers.
+
+Every constraint family is one function whose docstring states its formula in the notation
+of :mod:`districting.problem` (``i`` unit, ``j`` site, ``t`` demand row; ``x[i, j]``
+assignment, ``y[j]`` open site). :func:`build_model` calls them in turn on a
+``pyo.ConcreteModel``; :func:`solve_model` runs any solver Pyomo drives and reads the answer
+back as a :class:`ModelResult`.
+
+Sets and variables:
+
+- ``m.I`` units, ``m.J`` sites that may be open (not closed), ``m.J_cand`` candidate sites
+  (opening decided by the solver), ``m.P`` the allowed ``(i, j)`` pairs (``problem.allowed``);
+- ``m.x[i, j]`` binary on ``m.P``; ``m.y[j]`` binary on ``m.J``, fixed to 1 for the
+  always-open sites.
+
+Contiguity comes in two interchangeable forms: separator cuts added in rounds by the solve
+loop (:func:`contiguity_cuts`, :func:`add_separator_cut`; Validi, Buchanan & Lykhovyd,
+Operations Research 70(2) 2022, 867-892), or the single-commodity flow formulation of Shirabe
+(2005) (:func:`contiguity_flow`), which is exact in one solve and the baseline the cut loop is
+measured against in ``benchmarks/``.
+
+``build_model(..., elastic=...)`` gives chosen families a non-negative slack (the model stays
+feasible and the slack says by how much a rule must give); :mod:`districting.diagnose` uses
+it to explain an infeasible problem in words.
+"""
+
+from __future__ import annotations
+
+import inspect
+import time
+from collections import deque
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+import pyomo.environ as pyo
+from pyomo.opt import TerminationCondition
+
+from .problem import Problem
+
+__all__ = [
+    "ModelResult",
+    "ELASTIC_FAMILIES",
+    "build_model",
+    "solve_model",
+    "add_separator_cut",
+    "objective",
+    "assignment",
+    "linking",
+    "count",
+    "roots",
+    "capacity",
+    "floor",
+    "locks",
+    "max_moved",
+    "contiguity_cuts",
+    "contiguity_flow",
+]
+
+#: Families that :func:`build_model` can build with a slack (``elastic=``).
+ELASTIC_FAMILIES = ("capacity", "floor", "locks", "max_moved")
+
+#: Name of each solver's relative MIP gap option (Pyomo passes ``options`` through as is).
+_GAP_OPTION = {
+    "appsi_highs": "mip_rel_gap",
+    "highs": "mip_rel_gap",
+    "cbc": "ratioGap",
+    "glpk": "mipgap",
+    "gurobi": "MIPGap",
+    "gurobi_direct": "MIPGap",
+    "gurobi_persistent": "MIPGap",
+    "appsi_gurobi": "MIPGap",
+    "cplex": "mip_tolerances_mipgap",
+    "cplex_direct": "mipgap",
+    "appsi_cplex": "mip_tolerances_mipgap",
+    "scip": "limits/gap",
+    "xpress": "miprelstop",
+}
+
+
+@dataclass(frozen=True)
+class ModelResult:
+    """What a solver proved about a model built by :func:`build_model`.
+
+    ``status`` is "optimal" | "feasible" | "time_limit" | "infeasible" | "error";
+    ``assignment[i]`` the site of unit i (-1 without a solution); ``bound`` the best lower
+    bound the solver proved (-inf when it reported none); ``message`` says in words what went
+    wrong when the status is "error".
+    """
+
+    status: str
+    assignment: np.ndarray
+    open_sites: np.ndarray
+    objective: float
+    bound: float
+    seconds: float
+    message: str = ""
+
+    @property
+    def has_solution(self) -> bool:
+        return bool(np.all(self.assignment >= 0))
+
+
+# ---------------------------------------------------------------------------- building
+def build_model(
+    problem: Problem,
+    contiguity: str = "cuts",
+    *,
+    elastic: Iterable[str] = (),
+) -> pyo.ConcreteModel:
+    """The Pyomo model of ``problem``: one component per constraint family.
+
+    ``contiguity`` is "cuts" (an empty cut list the solve loop fills, see
+    :func:`add_separator_cut`), "flow" (Shirabe's exact flow formulation) or "none".
+    Contiguity applies only when the problem has edges. ``elastic`` names families from
+    :data:`ELASTIC_FAMILIES` to build with a slack (for diagnosis).
+
+    Raises ``ValueError`` with the reasons in words when the problem cannot even be written
+    down (a unit with no allowed school, a lock to a closed school...).
+    """
+    if contiguity not in ("cuts", "flow", "none"):
+        raise ValueError(f"contiguity must be 'cuts', 'flow' or 'none'; got {contiguity!r}")
+    elastic = frozenset(elastic)
+    unknown = elastic - set(ELASTIC_FAMILIES)
+    if unknown:
+        raise ValueError(f"elastic families must be among {ELASTIC_FAMILIES}; got {unknown}")
+    from .diagnose import unbuildable
+
+    reasons = unbuildable(problem)
+    if reasons:
+        raise ValueError("\n".join(reasons))
+
+    m = pyo.ConcreteModel(name=f"districting {problem.level}".strip())
+    m.problem = problem
+    m.elastic = elastic
+    # Soft locks keep every pair a lock would remove, so a slack can move the unit.
+    pair_source = problem.replace(locks=np.full(problem.n_units, -1)) if (
+        "locks" in elastic
+    ) else problem
+    allowed = pair_source.allowed
+    ii, jj = np.nonzero(allowed)
+    m.pairs = np.column_stack([ii, jj])
+    m.sites_of = [[] for _ in range(problem.n_units)]
+    m.units_of = [[] for _ in range(problem.n_sites)]
+    for i, j in zip(ii.tolist(), jj.tolist(), strict=True):
+        m.sites_of[i].append(j)
+        m.units_of[j].append(i)
+
+    m.I = pyo.Set(initialize=range(problem.n_units), ordered=True)
+    m.J = pyo.Set(initialize=np.flatnonzero(~problem.closed_sites).tolist(), ordered=True)
+    m.J_cand = pyo.Set(initialize=np.flatnonzero(problem.candidates).tolist(), ordered=True)
+    m.P = pyo.Set(dimen=2, initialize=list(zip(ii.tolist(), jj.tolist(), strict=True)),
+                  ordered=True)
+    m.x = pyo.Var(m.P, domain=pyo.Binary)
+    m.y = pyo.Var(m.J, domain=pyo.Binary)
+    for j in np.flatnonzero(problem.always_open).tolist():
+        m.y[j].fix(1)
+
+    objective(m)
+    assignment(m)
+    linking(m)
+    count(m)
+    roots(m)
+    capacity(m)
+    floor(m)
+    locks(m)
+    max_moved(m)
+    if problem.contiguous and contiguity == "cuts":
+        contiguity_cuts(m)
+    elif problem.contiguous and contiguity == "flow":
+        contiguity_flow(m)
+    return m
+
+
+def _sum(terms: Sequence) -> object:
+    return pyo.quicksum(terms) if terms else 0.0
+
+
+def _slack(m: pyo.ConcreteModel, family: str, index) -> pyo.Var | None:
+    """A non-negative slack ``m.<family>_slack`` over ``index`` when the family is elastic."""
+    if family not in m.elastic:
+        return None
+    var = pyo.Var(index, domain=pyo.NonNegativeReals)
+    m.add_component(f"{family}_slack", var)
+    return var
+
+
+def objective(m: pyo.ConcreteModel) -> None:
+    """min sum_{(i,j) in P} w[i, j] x[i, j], with w = ``problem.weighted_cost``.
+
+    w[i, j] = d[0, i] c[i, j] + stability_weight d[0, i] [j != current_i].
+    """
+    w = m.problem.weighted_cost
+    m.objective = pyo.Objective(
+        expr=_sum([float(w[i, j]) * m.x[i, j] for i, j in m.P]), sense=pyo.minimize
+    )
+
+
+def assignment(m: pyo.ConcreteModel) -> None:
+    """sum_{j: (i,j) in P} x[i, j] = 1 for every unit i (each unit in exactly one zone)."""
+
+    def rule(m, i):
+        return _sum([m.x[i, j] for j in m.sites_of[i]]) == 1
+
+    m.assignment = pyo.Constraint(m.I, rule=rule)
+
+
+def linking(m: pyo.ConcreteModel) -> None:
+    """x[i, j] <= y[j] for every allowed pair of a candidate site j (the strong form)."""
+    cand = set(m.J_cand)
+    m.link_pairs = pyo.Set(dimen=2, initialize=[(i, j) for i, j in m.P if j in cand],
+                           ordered=True)
+    m.linking = pyo.Constraint(m.link_pairs, rule=lambda m, i, j: m.x[i, j] <= m.y[j])
+
+
+def count(m: pyo.ConcreteModel) -> None:
+    """sum_{j in J} y[j] = p (forced-open sites included) when p is not None."""
+    if m.problem.p is not None:
+        m.count = pyo.Constraint(expr=_sum([m.y[j] for j in m.J]) == m.problem.p)
+
+
+def roots(m: pyo.ConcreteModel) -> None:
+    """x[r_j, j] = y[j] for every site j with a root unit r_j (y[j] = 1 when always open).
+
+    A site stands in its root unit, so an open site's zone holds that unit. A candidate whose
+    root may not be assigned to it cannot open (y[j] fixed to 0).
+    """
+    prob = m.problem
+    if prob.roots is None:
+        return
+    rooted = []
+    for j in m.J:
+        r = int(prob.roots[j])
+        if r < 0:
+            continue
+        if (r, j) in m.x:
+            rooted.append(j)
+        elif not m.y[j].fixed:
+            m.y[j].fix(0)
+    m.J_root = pyo.Set(initialize=rooted, ordered=True)
+    m.roots = pyo.Constraint(
+        m.J_root, rule=lambda m, j: m.x[int(prob.roots[j]), j] == m.y[j]
+    )
+
+
+def _load(m: pyo.ConcreteModel, t: int, j: int):
+    d = m.problem.demand[t]
+    return _sum([float(d[i]) * m.x[i, j] for i in m.units_of[j] if d[i] > 0])
+
+
+def _band_index(m: pyo.ConcreteModel, share: np.ndarray) -> list[tuple[int, int]]:
+    cap = m.problem.capacity
+    if cap is None:
+        return []
+    return [(t, j) for t in range(m.problem.n_years) for j in m.J
+            if np.isfinite(cap[j]) and np.isfinite(share[j]) and share[j] > 0]
+
+
+def capacity(m: pyo.ConcreteModel) -> None:
+    """sum_i d[t, i] x[i, j] <= u_max[j] Q[j] y[j] for every demand row t and site j.
+
+    Holds in every projected year; with y[j] on the right it also links a closed candidate.
+    Elastic: the right-hand side gains ``capacity_slack[t, j]`` (students over the limit).
+    """
+    prob = m.problem
+    if prob.capacity is None:
+        return
+    m.capacity_index = pyo.Set(dimen=2, initialize=_band_index(m, np.ones(prob.n_sites)),
+                               ordered=True)
+    slack = _slack(m, "capacity", m.capacity_index)
+
+    def rule(m, t, j):
+        rhs = float(prob.max_util[j] * prob.capacity[j]) * m.y[j]
+        if slack is not None:
+            rhs = rhs + slack[t, j]
+        return _load(m, t, j) <= rhs
+
+    m.capacity = pyo.Constraint(m.capacity_index, rule=rule)
+
+
+def floor(m: pyo.ConcreteModel) -> None:
+    """sum_i d[t, i] x[i, j] >= u_min[j] Q[j] y[j] for every row t, where u_min[j] > 0.
+
+    Elastic: the left-hand side gains ``floor_slack[t, j]`` (students short of the floor).
+    """
+    prob = m.problem
+    if prob.capacity is None or not np.any(prob.min_util > 0):
+        return
+    m.floor_index = pyo.Set(dimen=2, initialize=_band_index(m, prob.min_util), ordered=True)
+    slack = _slack(m, "floor", m.floor_index)
+
+    def rule(m, t, j):
+        lhs = _load(m, t, j)
+        if slack is not None:
+            lhs = lhs + slack[t, j]
+        return lhs >= float(prob.min_util[j] * prob.capacity[j]) * m.y[j]
+
+    m.floor = pyo.Constraint(m.floor_index, rule=rule)
+
+
+def locks(m: pyo.ConcreteModel) -> None:
+    """x[i, lock_i] = 1 for every locked unit i (its other pairs are not in P).
+
+    Elastic: the other pairs stay in P and ``x[i, lock_i] + locks_slack[i] = 1``.
+    """
+    lk = m.problem.locks
+    locked = np.flatnonzero(lk >= 0).tolist()
+    if not locked:
+        return
+    m.locked = pyo.Set(initialize=locked, ordered=True)
+    slack = _slack(m, "locks", m.locked)
+
+    def rule(m, i):
+        lhs = m.x[i, int(lk[i])]
+        if slack is not None:
+            lhs = lhs + slack[i]
+        return lhs == 1
+
+    m.locks = pyo.Constraint(m.locked, rule=rule)
+
+
+def max_moved(m: pyo.ConcreteModel) -> None:
+    """sum_{i: current_i >= 0} d[0, i] (1 - x[i, current_i]) <= max_moved.
+
+    A pair (i, current_i) outside P counts as moved for sure (a constant d[0, i]).
+    Elastic: the right-hand side gains ``max_moved_slack`` (students over the limit).
+    """
+    prob = m.problem
+    if prob.max_moved is None:
+        return
+    d0 = prob.demand[0]
+    terms, fixed = [], 0.0
+    for i in np.flatnonzero((prob.current >= 0) & (d0 > 0)).tolist():
+        j = int(prob.current[i])
+        if (i, j) in m.x:
+            terms.append(float(d0[i]) * (1 - m.x[i, j]))
+        else:
+            fixed += float(d0[i])
+    slack = _slack(m, "max_moved", [0])
+    if not terms and slack is None:
+        return  # nothing left to decide; ``unbuildable`` rejects a limit already broken
+    rhs = prob.max_moved - fixed
+    if slack is not None:
+        rhs = rhs + slack[0]
+    m.max_moved = pyo.Constraint(expr=_sum(terms) <= rhs)
+
+
+# ---------------------------------------------------------------------------- contiguity
+def contiguity_cuts(m: pyo.ConcreteModel) -> None:
+    """An empty list ``m.separator_cuts`` that the solve loop fills in rounds.
+
+    Each cut, for unit i assigned to site j and a set S separating i from the root r_j in the
+    unit graph, reads x[i, j] <= sum_{s in S} x[s, j] (Validi, Buchanan & Lykhovyd 2022;
+    root-based form as in Oehrlein & Haunert 2017). See :func:`add_separator_cut`.
+    """
+    m.separator_cuts = pyo.ConstraintList()
+
+
+def add_separator_cut(model: pyo.ConcreteModel, i: int, j: int, separator: Iterable[int]) -> None:
+    """Add x[i, j] <= sum_{s in S} x[s, j] to ``model.separator_cuts``.
+
+    Terms only for allowed pairs (a unit that may not go to j contributes 0). Nothing is
+    added when (i, j) itself is not allowed.
+    """
+    if (int(i), int(j)) not in model.x:
+        return
+    if not hasattr(model, "separator_cuts"):
+        contiguity_cuts(model)
+    terms = [model.x[int(s), int(j)] for s in separator if (int(s), int(j)) in model.x]
+    model.separator_cuts.add(model.x[int(i), int(j)] <= _sum(terms))
+
+
+def contiguity_flow(m: pyo.ConcreteModel) -> None:
+    """The single-commodity flow formulation of contiguity, one commodity per site.
+
+    Shirabe, T. (2005), "A model of contiguity for spatial unit allocation", Geographical
+    Analysis 37(1), 2-16. For site j with root r_j and n_j allowed units, flow f[u, v, j] >= 0
+    runs on both directions of every edge whose ends may both join j, and
+
+    - consumption: sum_u f[u, i, j] - sum_v f[i, v, j] = x[i, j] for every unit i != r_j;
+    - supply: sum_v f[r_j, v, j] - sum_u f[u, r_j, j] = sum_{i != r_j} x[i, j];
+    - flow only inside the zone: f[u, v, j] <= (n_j - 1) x[u, j] and <= (n_j - 1) x[v, j].
+
+    Every unit of zone j then receives its unit of flow from r_j along units of zone j, so the
+    zone is connected and holds its root. A site without a root unit chooses its source:
+    binary w[i, j] <= x[i, j], sum_i w[i, j] = y[j], supply s[i, j] <= (n_j - 1) w[i, j] and
+    the consumption row of every unit gains + s[i, j] (Shirabe's source choice).
+    """
+    prob = m.problem
+    roots_arr = prob.roots if prob.roots is not None else np.full(prob.n_sites, -1)
+    edges = prob.edges
+    arcs, big = [], {}
+    nbrs: dict[tuple[int, int], tuple[list, list]] = {}
+    for j in m.J:
+        members = m.units_of[j]
+        if not members:
+            continue
+        big[j] = float(len(members) - 1)
+        ok = np.zeros(prob.n_units, bool)
+        ok[members] = True
+        e = edges[ok[edges[:, 0]] & ok[edges[:, 1]]]
+        for u, v in e.tolist():
+            arcs.append((u, v, j))
+            arcs.append((v, u, j))
+    m.flow_arcs = pyo.Set(dimen=3, initialize=arcs, ordered=True)
+    m.f = pyo.Var(m.flow_arcs, domain=pyo.NonNegativeReals)
+    for u, v, j in arcs:
+        nbrs.setdefault((v, j), ([], []))[0].append(m.f[u, v, j])  # into v
+        nbrs.setdefault((u, j), ([], []))[1].append(m.f[u, v, j])  # out of u
+    m.flow_tail = pyo.Constraint(
+        m.flow_arcs, rule=lambda m, u, v, j: m.f[u, v, j] <= big[j] * m.x[u, j]
+    )
+    m.flow_head = pyo.Constraint(
+        m.flow_arcs, rule=lambda m, u, v, j: m.f[u, v, j] <= big[j] * m.x[v, j]
+    )
+    rootless = [j for j in big if roots_arr[j] < 0]
+    m.source_pairs = pyo.Set(dimen=2, initialize=[(i, j) for j in rootless
+                                                  for i in m.units_of[j]], ordered=True)
+    m.source = pyo.Var(m.source_pairs, domain=pyo.Binary)
+    m.supply = pyo.Var(m.source_pairs, domain=pyo.NonNegativeReals)
+    m.source_in_zone = pyo.Constraint(
+        m.source_pairs, rule=lambda m, i, j: m.source[i, j] <= m.x[i, j]
+    )
+    m.source_supply = pyo.Constraint(
+        m.source_pairs, rule=lambda m, i, j: m.supply[i, j] <= big[j] * m.source[i, j]
+    )
+    m.J_rootless = pyo.Set(initialize=rootless, ordered=True)
+    m.one_source = pyo.Constraint(
+        m.J_rootless,
+        rule=lambda m, j: _sum([m.source[i, j] for i in m.units_of[j]]) == m.y[j],
+    )
+
+    def balance(m, i, j):
+        into, out = nbrs.get((i, j), ([], []))
+        net_in = _sum(into) - _sum(out)
+        r = int(roots_arr[j])
+        if r == i:
+            others = [m.x[k, j] for k in m.units_of[j] if k != r]
+            return -net_in == _sum(others)
+        if r < 0:
+            return net_in + m.supply[i, j] == m.x[i, j]
+        return net_in == m.x[i, j]
+
+    m.flow_pairs = pyo.Set(dimen=2, initialize=[(i, j) for j in big for i in m.units_of[j]],
+                           ordered=True)
+    m.flow_balance = pyo.Constraint(m.flow_pairs, rule=balance)
+
+
+# ---------------------------------------------------------------------------- solving
+def _set_start(m: pyo.ConcreteModel, start) -> None:
+    """Give x, y (and flows) the values of the assignment ``start`` for a warm start."""
+    prob = m.problem
+    a = np.asarray(start, dtype=np.int64)
+    if a.shape != (prob.n_units,):
+        raise ValueError(f"start must have one site per unit ({prob.n_units}); got {a.shape}")
+    for (i, j), var in m.x.items():
+        var.set_value(1 if a[i] == j else 0)
+    used = np.zeros(prob.n_sites, bool)
+    used[a[a >= 0]] = True
+    for j in m.J:
+        if not m.y[j].fixed:
+            m.y[j].set_value(1 if used[j] else 0)
+    if hasattr(m, "f"):
+        _set_start_flow(m, a)
+
+
+def _set_start_flow(m: pyo.ConcreteModel, a: np.ndarray) -> None:
+    """Flows of a connected start: on a BFS tree from each source, an arc carries its subtree."""
+    prob = m.problem
+    for var in m.f.values():
+        var.set_value(0)
+    for var in list(m.source.values()) + list(m.supply.values()):
+        var.set_value(0)
+    adj: dict[int, list[int]] = {}
+    for u, v in prob.edges.tolist():
+        adj.setdefault(u, []).append(v)
+        adj.setdefault(v, []).append(u)
+    roots_arr = prob.roots if prob.roots is not None else np.full(prob.n_sites, -1)
+    for j in m.J:
+        zone = np.flatnonzero(a == j).tolist()
+        if not zone:
+            continue
+        r = int(roots_arr[j]) if roots_arr[j] >= 0 else zone[0]
+        if a[r] != j:
+            continue
+        parent, order, seen = {r: -1}, [], {r}
+        queue = deque([r])
+        while queue:
+            u = queue.popleft()
+            order.append(u)
+            for v in adj.get(u, ()):
+                if v not in seen and a[v] == j:
+                    seen.add(v)
+                    parent[v] = u
+                    queue.append(v)
+        if len(order) != len(zone):
+            continue  # the start zone is not connected: leave the solver to find flows
+        size = dict.fromkeys(order, 1)
+        for u in reversed(order[1:]):
+            size[parent[u]] += size[u]
+            m.f[parent[u], u, j].set_value(size[u])
+        if roots_arr[j] < 0:
+            m.source[r, j].set_value(1)
+            m.supply[r, j].set_value(len(zone))
+
+
+def _solver(name: str):
+    try:
+        opt = pyo.SolverFactory(name)
+    except Exception as exc:  # Pyomo raises its own errors for unknown plugins
+        return None, f"Pyomo does not know a solver named {name!r} ({exc})."
+    try:
+        ok = opt is not None and opt.available(exception_flag=False)
+    except Exception:
+        ok = False
+    if not ok:
+        return None, (
+            f"The solver {name!r} is not available on this machine (Pyomo could not find or "
+            "start it). Install it, or use solver='appsi_highs' or the default 'highs' route."
+        )
+    return opt, ""
+
+
+def solve_model(
+    model: pyo.ConcreteModel,
+    solver: str = "appsi_highs",
+    gap: float = 1e-4,
+    time_limit: float | None = None,
+    start=None,
+) -> ModelResult:
+    """Solve ``model`` with the Pyomo solver ``solver`` (any name Pyomo's SolverFactory knows).
+
+    ``gap`` is the relative MIP gap asked of the solver, ``time_limit`` seconds (None: no
+    limit), ``start`` an assignment (site index per unit) passed as a warm start when the
+    solver supports one. A solver that is missing returns status "error" with the reason.
+    """
+    prob: Problem = model.problem
+    n, msites = prob.n_units, prob.n_sites
+    none = np.full(n, -1, dtype=np.int64)
+    t0 = time.perf_counter()
+    opt, why = _solver(solver)
+    if opt is None:
+        return ModelResult("error", none, np.zeros(msites, bool), float("inf"),
+                           -float("inf"), 0.0, why)
+    kwargs: dict = {"load_solutions": False}
+    gap_name = _GAP_OPTION.get(solver)
+    if gap_name is not None:
+        kwargs["options"] = {gap_name: float(gap)}
+    if time_limit is not None:
+        kwargs["timelimit"] = float(time_limit)
+    if start is not None:
+        _set_start(model, start)
+        capable = getattr(opt, "warm_start_capable", None)
+        accepts = "warmstart" in inspect.signature(opt.solve).parameters or bool(
+            capable and capable()
+        )
+        if accepts:
+            kwargs["warmstart"] = True
+    try:
+        results = opt.solve(model, **kwargs)
+    except Exception as exc:
+        return ModelResult("error", none, np.zeros(msites, bool), float("inf"),
+                           -float("inf"), time.perf_counter() - t0,
+                           f"The solver {solver!r} failed: {exc}")
+    seconds = time.perf_counter() - t0
+    tc = results.solver.termination_condition
+    has_solution = len(results.solution) > 0
+    bound = _number(getattr(results.problem, "lower_bound", None), -float("inf"))
+    if tc in (TerminationCondition.infeasible, TerminationCondition.infeasibleOrUnbounded):
+        return ModelResult("infeasible", none, np.zeros(msites, bool), float("inf"),
+                           float("inf"), seconds, "")
+    if not has_solution:
+        status = "time_limit" if tc == TerminationCondition.maxTimeLimit else "error"
+        msg = "" if status == "time_limit" else f"The solver {solver!r} stopped: {tc}."
+        return ModelResult(status, none, np.zeros(msites, bool), float("inf"), bound,
+                           seconds, msg)
+    model.solutions.load_from(results)
+    assign = none.copy()
+    for (i, j), var in model.x.items():
+        if var.value is not None and var.value > 0.5:
+            assign[i] = j
+    open_mask = np.zeros(msites, bool)
+    for j in model.J:
+        open_mask[j] = model.y[j].value is not None and model.y[j].value > 0.5
+    obj = float(pyo.value(model.objective))
+    if tc == TerminationCondition.optimal:
+        status = "optimal"
+        bound = obj if not np.isfinite(bound) else bound
+    elif tc == TerminationCondition.maxTimeLimit:
+        status = "time_limit"
+    else:
+        status = "feasible"
+    return ModelResult(status, assign, open_mask, obj, min(bound, obj), seconds, "")
+
+
+def _number(value, default: float) -> float:
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        return default
+    return v if np.isfinite(v) else default
