@@ -41,6 +41,7 @@ __all__ = [
     "is_contiguous",
     "separator",
     "separator_cuts",
+    "free_units",
     "reassign_empty",
     "repair",
     "improve",
@@ -190,16 +191,25 @@ def separator_cuts(
     graph: UnitGraph,
     assignment: np.ndarray,
     only: np.ndarray | None = None,
+    passable: np.ndarray | None = None,
+    strict: bool = False,
 ) -> list[Cut]:
     """Separator cuts violated by ``assignment``, one :class:`Cut` per fragment.
 
     ``only`` (bool mask) limits the cuts to fragments holding at least one of those units.
-    For a zone whose root sits elsewhere the whole zone is a fragment (its root piece is empty).
+    ``passable`` marks units any zone may take at no cost (no students, no lock, no root):
+    a fragment C is first grown through them to C' (its piece in the graph of its zone plus
+    the passable units). When C' misses the root, N(C') separates C from the root and holds
+    no passable unit, so the cut asks for a unit with students -- the MIP cannot answer it
+    by annexing one empty unit at a time. When C' reaches the root the usual separator
+    around C is used, or, with ``strict``, the fragment gets no cut (the caller's model has
+    no columns for passable units).
     """
     a = np.asarray(assignment, dtype=np.int64)
     labels = zone_components(graph, a)
     main = _main_labels(problem, a, labels)
     cuts: list[Cut] = []
+    grown_by_site: dict[int, np.ndarray] = {}
     for piece in fragments(problem, graph, a):
         if only is not None and not only[piece].any():
             continue
@@ -212,9 +222,32 @@ def separator_cuts(
             if not len(members):
                 continue
             other = anchor = int(members[0])
-        sep = separator(graph, piece, other)
-        cuts.append(Cut(site=j, units=piece, separator=sep, anchor=anchor))
+        units = piece
+        sep = None
+        if passable is not None:
+            if j not in grown_by_site:
+                grown_by_site[j] = graph.components((a == j) | passable)
+            grown_lab = grown_by_site[j]
+            grown = np.flatnonzero(grown_lab == grown_lab[piece[0]])
+            if grown_lab[other] != grown_lab[piece[0]]:
+                units = grown[a[grown] == j]
+                sep = separator(graph, grown, other)
+            elif strict:
+                continue
+        if sep is None:
+            sep = separator(graph, piece, other)
+        cuts.append(Cut(site=j, units=units, separator=sep, anchor=anchor))
     return cuts
+
+
+def free_units(problem: Problem) -> np.ndarray:
+    """Units any zone may take at no cost: no students in any row, no lock, no site's root."""
+    free = ~(problem.demand > 0).any(axis=0)
+    free &= problem.locks < 0
+    if problem.roots is not None:
+        r = problem.roots[(problem.roots >= 0) & ~problem.closed_sites]
+        free[r] = False
+    return free
 
 
 # ---------------------------------------------------------------------- feasibility checks
@@ -286,16 +319,6 @@ def _moved(problem: Problem, a: np.ndarray) -> float:
 
 
 # ---------------------------------------------------------------------- repair
-def _free_units(problem: Problem, opened: np.ndarray) -> np.ndarray:
-    """Units without students in any row that no lock or root ties to a site."""
-    free = ~(problem.demand > 0).any(axis=0)
-    free &= problem.locks < 0
-    if problem.roots is not None:
-        r = problem.roots[opened & (problem.roots >= 0)]
-        free[r] = False
-    return free
-
-
 def reassign_empty(
     problem: Problem, graph: UnitGraph, assignment: np.ndarray
 ) -> tuple[np.ndarray, np.ndarray]:
@@ -310,10 +333,9 @@ def reassign_empty(
     """
     a = np.asarray(assignment, dtype=np.int64).copy()
     n = graph.n
-    opened = open_from_assignment(problem, a)
     labels = zone_components(graph, a)
     attached = _attached(a, labels, _main_labels(problem, a, labels))
-    free = _free_units(problem, opened) & ~attached
+    free = free_units(problem) & ~attached
     if not free.any() and attached.all():
         return a, np.zeros(n, bool)
     allowed = problem.allowed

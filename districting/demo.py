@@ -143,6 +143,7 @@ class DemoTown:
     years: tuple[int, ...] = YEARS
     plan_year: int = PLAN_YEAR
 
+
 # --------------------------------------------------------------------------- geometry
 def _outline(rng: np.random.Generator, radius: float) -> shapely.Polygon:
     """A star-shaped outline: radius times (1 + a few random harmonics)."""
@@ -152,7 +153,7 @@ def _outline(rng: np.random.Generator, radius: float) -> shapely.Polygon:
         r += amp * rng.uniform(0.6, 1.0) * np.cos(k * theta + rng.uniform(0, 2 * np.pi))
     x = CENTRE[0] + radius * r * np.cos(theta) * 1.08
     y = CENTRE[1] + radius * r * np.sin(theta) * 0.93
-    return shapely.make_valid(shapely.Polygon(np.column_stack([x, y])))
+    return shapely.Polygon(np.column_stack([x, y]))  # star-shaped with r > 0: simple
 
 
 #: Each line runs between two outline vertices: (kind, entry angle, exit angle, meander
@@ -182,8 +183,9 @@ def _lines(rng: np.random.Generator, outline: shapely.Polygon, radius: float):
             a = (a + rng.uniform(-12.0, 12.0)) % 360.0
             ends.append(ring[np.argmin(np.abs((ang - a + 180.0) % 360.0 - 180.0))])
         p, q = ends
-        wiggle = sum(rng.uniform(0.5, 1.0) * np.sin(2 * np.pi * w * t + rng.uniform(0, 6.3))
-                     for w in waves)
+        wiggle = sum(
+            rng.uniform(0.5, 1.0) * np.sin(2 * np.pi * w * t + rng.uniform(0, 6.3)) for w in waves
+        )
         shapes.append((kind, p, q, amp * radius * np.sin(np.pi * t) ** 0.8 * wiggle))
     for damp in (1.0, 0.7, 0.45, 0.25, 0.0):
         lines = {}
@@ -437,8 +439,9 @@ def generate(seed: int = 2027, n_units: int = 1500, radius: float = 6800.0) -> D
     # zones grow over pairs with a clear shared border (>= 5 m), so they stay connected in
     # any rook graph of the units that cuts only pairs along the lines
     base = ~across & (blen >= 5.0)
-    bridges, kept = _bridges(n, i, j, base, across, kind_of, border, blen, line_arr, kinds,
-                             hood_names[hood])
+    bridges, kept = _bridges(
+        n, i, j, base, across, kind_of, border, blen, line_arr, kinds, hood_names[hood]
+    )
     keep = base | kept
     gi, gj = i[keep], j[keep]
     gw = np.hypot(*(xy[gi] - xy[gj]).T)
@@ -447,14 +450,17 @@ def generate(seed: int = 2027, n_units: int = 1500, radius: float = 6800.0) -> D
 
     land_use = _land_use(rng, n, gi, gj, i, j, across, kind_of, blen, hood, xy, inside, kinds)
     counts = _counts(rng, n, land_use, hood, n_hood + 1)
-    sites, zones = _sites_and_zones(rng, n, gi, gj, gw, xy, point, land_use, hood, hood_names,
-                                    centres, counts)
+    sites, zones = _sites_and_zones(
+        rng, n, gi, gj, gw, xy, point, land_use, hood, hood_names, centres, counts
+    )
 
-    units = pd.DataFrame({
-        "unit_id": [f"U{k + 1:04d}" for k in range(n)],
-        "neighbourhood": hood_names[hood],
-        "land_use": land_use,
-    })
+    units = pd.DataFrame(
+        {
+            "unit_id": [f"U{k + 1:04d}" for k in range(n)],
+            "neighbourhood": hood_names[hood],
+            "land_use": land_use,
+        }
+    )
     units = pd.concat([units, pd.DataFrame(counts), pd.DataFrame(zones)], axis=1)
     units = gpd.GeoDataFrame(units, geometry=geoms, crs=CRS)
     barriers = gpd.GeoDataFrame(
@@ -479,8 +485,7 @@ def _bridges(n, i, j, base, across, kind_of, border, blen, lines, kinds, hood_of
     for k, kind in enumerate(kinds):
         on = np.flatnonzero(cand & (kind_of == k))
         line = lines[k]
-        pos = shapely.line_locate_point(line, shapely.point_on_surface(border[on]),
-                                        normalized=True)
+        pos = shapely.line_locate_point(line, shapely.point_on_surface(border[on]), normalized=True)
         for target in per_kind[kind]:
             kept[on[np.argmin(np.abs(pos - target))]] = True
     # more crossings (never on the river) until one connected piece
@@ -500,8 +505,12 @@ def _bridges(n, i, j, base, across, kind_of, border, blen, lines, kinds, hood_of
     e = np.flatnonzero(kept)
     on_line = shapely.line_interpolate_point(border[e], 0.5, normalized=True)
     kind = np.array(kinds)[kind_of[e]]
-    pos = np.array([shapely.line_locate_point(lines[kind_of[x]], p, normalized=True)
-                    for x, p in zip(e, on_line, strict=True)])
+    pos = np.array(
+        [
+            shapely.line_locate_point(lines[kind_of[x]], p, normalized=True)
+            for x, p in zip(e, on_line, strict=True)
+        ]
+    )
     order = np.lexsort((pos, kind_of[e]))
     e, on_line, kind = e[order], on_line[order], kind[order]
     names, used, river_no = [], set(), 0
@@ -569,9 +578,9 @@ def _counts(rng, n, land_use, hood, n_hood) -> dict[str, np.ndarray]:
     trend = rng.uniform(-0.025, 0.008, n_hood)
     trend[0] = -0.035  # the old town loses families
     years = np.arange(CURRENT_YEAR, YEARS[-1] + 1)
-    build = rng.integers(CURRENT_YEAR - 3, YEARS[-1], n)
+    build = rng.integers(CURRENT_YEAR - 5, YEARS[-1], n)  # phases 2021-2030
     lag = {"elementary": 0, "middle": 2, "high": 3}
-    sub_share = {"elementary": 0.025, "middle": 0.02, "high": 0.015}
+    sub_share = {"elementary": 0.023, "middle": 0.02, "high": 0.015}  # x4: the build-out
     out: dict[str, np.ndarray] = {}
     for level in LEVELS:
         mix = rng.uniform(0.75, 1.25, n_hood)
@@ -579,8 +588,7 @@ def _counts(rng, n, land_use, hood, n_hood) -> dict[str, np.ndarray]:
         p[sub] = 0.0
         # full build-out of a subdivision unit: well above a typical unit (young families)
         full = np.zeros(n)
-        full[sub] = rng.poisson(sub_share[level] * TOTALS[level] * 4 / max(sub.sum(), 1),
-                                sub.sum())
+        full[sub] = rng.poisson(sub_share[level] * TOTALS[level] * 4 / max(sub.sum(), 1), sub.sum())
         built = [
             np.floor(full * np.clip((year - build - lag[level]) / 2.0, 0.0, 1.0) + 0.5)
             for year in years
@@ -595,8 +603,7 @@ def _counts(rng, n, land_use, hood, n_hood) -> dict[str, np.ndarray]:
     return out
 
 
-def _sites_and_zones(rng, n, gi, gj, gw, xy, point, land_use, hood, hood_names, centres,
-                     counts):
+def _sites_and_zones(rng, n, gi, gj, gw, xy, point, land_use, hood, hood_names, centres, counts):
     """Sites per level at weighted k-means centres, today's zones by graph Voronoi, and
     capacities that crowd a few schools and leave a few far under capacity today."""
     res = land_use == "residential"
@@ -633,31 +640,35 @@ def _sites_and_zones(rng, n, gi, gj, gw, xy, point, land_use, hood, hood_names, 
             new_root = int(in_sub[np.argmin(np.hypot(*(xy[in_sub] - centres[1]).T))])
         plan_open = status != "closing"
         demand = np.array([counts[f"{level}_{y}"].sum() for y in years], float)
-        cap = _capacities(rng, level, zone_now, relief, closing, plan_open, demand, new_root,
-                          counts, years)
+        sub_late = float(late[hood == 1].sum())
+        cap = _capacities(
+            rng, level, zone_now, relief, closing, plan_open, demand, new_root, sub_late
+        )
         ids = [f"{level[0].upper()}{m + 1:02d}" for m in range(k + (new_root is not None))]
         zones[f"zone_{level}"] = np.array(ids)[zone]
         all_roots = np.r_[roots, [new_root] if new_root is not None else []].astype(int)
         all_status = list(status) + (["new"] if new_root is not None else [])
         names = _school_names(level, all_roots, hood, hood_names, xy, centres, taken)
         for m, root in enumerate(all_roots):
-            rows.append({
-                "site_id": ids[m],
-                "name": names[m],
-                "level": level,
-                "capacity": int(cap[m]),
-                "status": all_status[m],
-                "geometry": point[root],
-            })
+            rows.append(
+                {
+                    "site_id": ids[m],
+                    "name": names[m],
+                    "level": level,
+                    "capacity": int(cap[m]),
+                    "status": all_status[m],
+                    "geometry": point[root],
+                }
+            )
     sites = gpd.GeoDataFrame(rows, geometry="geometry")
     return sites, zones
 
 
-def _capacities(rng, level, zone_now, relief, closing, plan_open, demand, new_root, counts,
-                years):
+def _capacities(rng, level, zone_now, relief, closing, plan_open, demand, new_root, sub_late):
     """Seats per site: over-capacity and under-used schools today at set utilizations,
     the others sharing what is left so that the plan-year capacity (open and new sites)
-    is CAPACITY_RATIO times the largest projected enrolment. Includes the new site last."""
+    is CAPACITY_RATIO times the largest projected enrolment. The new site (last) is sized
+    for the built-out subdivision (``sub_late`` students), at least an average school."""
     k = len(zone_now)
     order = np.argsort(-zone_now, kind="stable")
     over = [relief] if relief is not None else []
@@ -674,8 +685,8 @@ def _capacities(rng, level, zone_now, relief, closing, plan_open, demand, new_ro
     fixed = [*over, *under] + ([closing] if closing is not None else [])
     cap[fixed] = zone_now[fixed] / util[fixed]
     new_cap = 0.0
-    if new_root is not None:  # a school of average size
-        new_cap = float(demand.max()) / (k - 1)
+    if new_root is not None:
+        new_cap = max(float(demand.max()) / (k - 1), 1.1 * sub_late)
     target = CAPACITY_RATIO * demand.max()
     left = target - cap[[m for m in fixed if plan_open[m]]].sum() - new_cap
     share = zone_now[normal] * rng.uniform(0.92, 1.08, len(normal))
@@ -690,8 +701,9 @@ def _capacities(rng, level, zone_now, relief, closing, plan_open, demand, new_ro
 def _school_names(level, roots, hood, hood_names, xy, centres, taken) -> list[str]:
     """'<neighbourhood> Elementary School' etc.; a compass word tells apart two schools of
     one level in the same neighbourhood."""
-    suffix = {"elementary": "Elementary School", "middle": "Middle School",
-              "high": "High School"}[level]
+    suffix = {"elementary": "Elementary School", "middle": "Middle School", "high": "High School"}[
+        level
+    ]
     names = []
     used = taken.setdefault(level, set())
     for r in roots:
@@ -699,8 +711,11 @@ def _school_names(level, roots, hood, hood_names, xy, centres, taken) -> list[st
         name = f"{hood_names[h]} {suffix}"
         if name in used:
             dx, dy = xy[r] - centres[h]
-            word = ("East" if dx > 0 else "West") if abs(dx) > abs(dy) else (
-                "North" if dy > 0 else "South")
+            word = (
+                ("East" if dx > 0 else "West")
+                if abs(dx) > abs(dy)
+                else ("North" if dy > 0 else "South")
+            )
             name = f"{hood_names[h]} {word} {suffix}"
             extra = 2
             while name in used:
@@ -817,4 +832,3 @@ def main(argv: list[str] | None = None) -> int:
 
 if __name__ == "__main__":
     sys.exit(main())
-

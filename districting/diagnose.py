@@ -42,6 +42,10 @@ def _units(problem: Problem, idx, most: int = 5) -> str:
     return names + (f" and {len(idx) - most} more" if len(idx) > most else "")
 
 
+def _plural(value: float, word: str) -> str:
+    return word if abs(value - 1) < 1e-9 else word + "s"
+
+
 def _n(value: float) -> str:
     return f"{value:,.0f}" if abs(value - round(value)) < 1e-9 else f"{value:,.1f}"
 
@@ -114,12 +118,13 @@ def _count_issues(problem: Problem) -> list[str]:
     can_open = int((~problem.closed_sites).sum())
     pre = _prefix(problem)
     if forced > p:
-        return [f"{pre}the run asks for {p} open schools, but {forced} must stay open. Raise "
-                f"the number of open schools to at least {forced}, or make some of them "
-                "candidates."]
+        return [f"{pre}the run asks for {p} open {_plural(p, 'school')}, but {forced} must "
+                f"stay open. Raise the number of open schools to at least {forced}, or make "
+                "some of them candidates."]
     if can_open < p:
-        return [f"{pre}the run asks for {p} open schools, but only {can_open} are not closed. "
-                f"Lower the number of open schools to {can_open} or add candidate sites."]
+        return [f"{pre}the run asks for {p} open {_plural(p, 'school')}, but only {can_open} "
+                f"are not closed. Lower the number of open schools to {can_open} or add "
+                "candidate sites."]
     return []
 
 
@@ -363,12 +368,12 @@ def _elastic_details(problem: Problem, contiguity: str, fams: list[str],
                 t, j = key
                 lim = problem.max_util[j] * cap[j]
                 out.append(f"{problem.site_label(j)} in {problem.year_label(t)} would need "
-                           f"{_n(s)} seats over its limit of {_n(lim)}")
+                           f"{_n(s)} {_plural(s, 'seat')} over its limit of {_n(lim)}")
             elif fam == "floor":
                 t, j = key
                 fl = problem.min_util[j] * cap[j]
                 out.append(f"{problem.site_label(j)} in {problem.year_label(t)} would be "
-                           f"{_n(s)} students short of its floor of {_n(fl)}")
+                           f"{_n(s)} {_plural(s, 'student')} short of its floor of {_n(fl)}")
             elif fam == "locks":
                 j = int(problem.locks[key])
                 out.append(f"{problem.unit_label(key)} would have to leave its lock to "

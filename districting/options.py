@@ -11,7 +11,10 @@ project's layers:
   JSON columns: the run settings (:meth:`~districting.study.RunSettings.to_dict`), the plan
   (status, objective, bound, gap, rounds, open sites...) and the metrics;
 - ``districting_assignments``: (option, unit_id, site_id), one row per unit;
-- ``districting_state``: (key, updated, state_json) for the workbench.
+- ``districting_state``: (key, updated, state_json) for the workbench;
+- ``districting_zones``: a features layer (written by GDAL through pyogrio) with the
+  dissolved zones of every option (option, level, site_id, name, n_units, students,
+  n_parts), so a GIS user can map any saved option straight from the store.
 
 Every change is atomic: the store is copied to a temporary file beside it, the copy is
 edited and fsynced, and only then renamed over the original
@@ -29,11 +32,12 @@ import math
 import os
 import sqlite3
 import warnings
-from collections.abc import Iterator, Mapping
+from collections.abc import Callable, Iterator, Mapping
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
+import pyogrio
 
 from .io import atomic_copy_edit
 from .plan import PlanMetrics
@@ -60,11 +64,14 @@ __all__ = [
     "OPTIONS_TABLE",
     "ASSIGNMENTS_TABLE",
     "STATE_TABLE",
+    "ZONES_LAYER",
 ]
 
 OPTIONS_TABLE = "districting_options"
 ASSIGNMENTS_TABLE = "districting_assignments"
 STATE_TABLE = "districting_state"
+#: Features layer with the zones of every saved option (column ``option``), for GIS users.
+ZONES_LAYER = "districting_zones"
 
 #: "GPKG" in ASCII, and version 1.3.0, per GeoPackage 1.3 clause 1.1.1.1.
 GPKG_APPLICATION_ID = 0x47504B47
@@ -220,8 +227,12 @@ def _checkpoint(store: Path) -> None:
 
 
 @contextlib.contextmanager
-def _edit(store: str | os.PathLike) -> Iterator[sqlite3.Connection]:
-    """A connection to a temporary copy of ``store``; committed and swapped in on success."""
+def _edit(store: str | os.PathLike, then: Callable[[Path], None] | None = None
+          ) -> Iterator[sqlite3.Connection]:
+    """A connection to a temporary copy of ``store``; committed and swapped in on success.
+
+    ``then(path)`` runs on the committed copy before the swap (e.g. GDAL adding a layer).
+    """
     store = Path(store)
     with _writer_lock(store):
         # Copies left by a writer that was killed mid-save (names from io.atomic_path);
@@ -245,6 +256,8 @@ def _edit(store: str | os.PathLike) -> Iterator[sqlite3.Connection]:
                 con.execute("COMMIT")
             finally:
                 con.close()
+            if then is not None:
+                then(tmp)
 
 
 @contextlib.contextmanager
@@ -390,7 +403,19 @@ def save_option(inputs: Inputs, outcome: Outcome, name: str, overwrite: bool = F
         "metrics_json": _dumps(metrics_to_dict(metrics, site_ids, years)),
     }
     units = [(name, u, s) for u, s in zip(outcome.unit_ids, site_of_unit.tolist(), strict=True)]
-    with _edit(store) as con:
+    zones = _zones_layer(outcome, name, site_of_unit)
+
+    def add_zones(path: Path) -> None:
+        exists = ZONES_LAYER in {n for n, _ in pyogrio.list_layers(path)}
+        # no R-tree: its triggers call SpatiaLite functions that plain sqlite3 lacks, and
+        # delete / rename edit this layer with plain SQL
+        pyogrio.write_dataframe(zones, path, layer=ZONES_LAYER, driver="GPKG", append=exists,
+                                promote_to_multi=True, geometry_type="MultiPolygon",
+                                layer_options=None if exists else {
+                                    "SPATIAL_INDEX": "NO",
+                                    "DESCRIPTION": "Zones of the saved options"})
+
+    with _edit(store, then=add_zones) as con:
         if name in _names(con):
             if not overwrite:
                 raise OptionError(
@@ -405,6 +430,20 @@ def save_option(inputs: Inputs, outcome: Outcome, name: str, overwrite: bool = F
             f"INSERT INTO {ASSIGNMENTS_TABLE} (option, unit_id, site_id) VALUES (?, ?, ?)", units
         )
         _touch(con, OPTIONS_TABLE, ASSIGNMENTS_TABLE)
+
+
+def _zones_layer(outcome: Outcome, name: str, site_of_unit: np.ndarray):
+    """The option's dissolved zones as rows of :data:`ZONES_LAYER`."""
+    from .zones import dissolve_zones
+
+    zones = dissolve_zones(outcome.inputs.units[["unit_id", "geometry"]], site_of_unit,
+                           site_ids=outcome.site_ids, counts=outcome.problem.demand[0])
+    names = dict(zip(outcome.site_ids, outcome.sites["name"].astype(str), strict=True))
+    zones = zones[["site_id", "n_units", "students", "n_parts", "geometry"]].copy()
+    zones.insert(0, "name", zones["site_id"].map(names))
+    zones.insert(0, "level", outcome.level)
+    zones.insert(0, "option", name)
+    return zones
 
 
 def _info(row: sqlite3.Row) -> OptionInfo:
@@ -495,9 +534,16 @@ def load_option(inputs: Inputs, name: str) -> Outcome:
     return outcome
 
 
+def _has_table(con: sqlite3.Connection, table: str) -> bool:
+    return con.execute("SELECT 1 FROM sqlite_master WHERE type='table' AND name = ?",
+                       (table,)).fetchone() is not None
+
+
 def _delete(con: sqlite3.Connection, name: str) -> None:
     con.execute(f"DELETE FROM {OPTIONS_TABLE} WHERE name = ?", (name,))
     con.execute(f"DELETE FROM {ASSIGNMENTS_TABLE} WHERE option = ?", (name,))
+    if _has_table(con, ZONES_LAYER):
+        con.execute(f"DELETE FROM {ZONES_LAYER} WHERE option = ?", (name,))
 
 
 def delete_option(store: str | os.PathLike, name: str) -> None:
@@ -528,6 +574,8 @@ def rename_option(store: str | os.PathLike, old: str, new: str) -> None:
     with _edit(store) as con:
         con.execute(f"UPDATE {OPTIONS_TABLE} SET name = ? WHERE name = ?", (new, old))
         con.execute(f"UPDATE {ASSIGNMENTS_TABLE} SET option = ? WHERE option = ?", (new, old))
+        if _has_table(con, ZONES_LAYER):
+            con.execute(f"UPDATE {ZONES_LAYER} SET option = ? WHERE option = ?", (new, old))
         _touch(con, OPTIONS_TABLE, ASSIGNMENTS_TABLE)
 
 
@@ -555,10 +603,7 @@ def load_state(store_path: str | os.PathLike, key: str) -> dict | None:
     with _read(store_path) as con:
         if con is None:
             return None
-        have = con.execute(
-            "SELECT 1 FROM sqlite_master WHERE type='table' AND name = ?", (STATE_TABLE,)
-        ).fetchone()
-        if not have:
+        if not _has_table(con, STATE_TABLE):
             return None
         row = con.execute(
             f"SELECT state_json FROM {STATE_TABLE} WHERE key = ?", (key,)

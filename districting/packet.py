@@ -50,8 +50,7 @@ __all__ = ["write_packet", "packet_figures", "school_rows", "pair_rows", "summar
 #: Landscape page sizes in inches.
 PAPER = {"letter": (11.0, 8.5), "a4": (11.69, 8.27)}
 PNG_DPI = 110
-SCHOOL_ROWS_PER_PAGE = 20
-PAIR_ROWS_PER_PAGE = 24
+TABLE_FONT = 7.8  # points; a table row is twice the font size high
 OVER, UNDER = "\u25b2", "\u25bc"  # up / down triangles: readable without colour
 FLAG_SHADE = "#cfcfcf"
 HEAD_SHADE = "#3b3b3b"
@@ -73,6 +72,18 @@ def _pct(x) -> str:
     return "" if x is None or not np.isfinite(x) else f"{100 * x:.0f}%"
 
 
+def _util_text(r, y) -> str:
+    """Utilization in whole percent, or to 0.1% when rounding would hide a flag (100.4%)."""
+    u, flag = r[f"util_{y}"], r[f"flag_{y}"]
+    text = _pct(u)
+    if flag and np.isfinite(u):
+        shown = round(100 * u)
+        if (flag == "over" and shown <= 100 * r["max_util"]) or (
+                flag == "under" and shown >= 100 * r["min_util"]):
+            text = f"{100 * u:.1f}%"
+    return text
+
+
 def _years(outcome: Outcome) -> list[int]:
     return sorted(int(y) for y in outcome.problem.years)
 
@@ -92,13 +103,14 @@ def school_rows(outcome: Outcome) -> tuple[list[str], list[list[str]], list[list
               *[str(y) for y in years], "Moved in", "Moved out", "Mean km", "Max km"]
     rows, flags = [], []
     for _, r in t.iterrows():
-        cells = [f"{r['name']} ({r['site_id']})", str(r["status"]), _int(r["capacity"]),
+        cells = [f"{_short_name(str(r['name']))} ({r['site_id']})", str(r["status"]),
+                 _int(r["capacity"]),
                  f"{100 * r['min_util']:.0f}-{100 * r['max_util']:.0f}%",
                  _int(r["students_now"])]
         marks = [""] * len(cells)
         for y in years:
             flag = r[f"flag_{y}"]
-            text = f"{_int(r[f'students_{y}'])} ({_pct(r[f'util_{y}'])})"
+            text = f"{_int(r[f'students_{y}'])} ({_util_text(r, y)})"
             if flag:
                 text = f"{OVER if flag == 'over' else UNDER} {text}"
             cells.append(text)
@@ -145,17 +157,18 @@ def _status_text(outcome: Outcome) -> str:
     return f"{plan.status}{gap}"
 
 
-def summary_rows(outcomes: Sequence[Outcome]) -> tuple[list[str], list[list[str]]]:
-    """Header and one row per option of the comparison page."""
+def summary_rows(outcomes: Sequence[Outcome], pages: Sequence[str] | None = None
+                 ) -> tuple[list[str], list[list[str]]]:
+    """Header and one row per option of the comparison page (``pages``: where each is)."""
     header = ["Option", "Level", "Plan year", "Students moved", "Units moved",
-              "Mean km", "Max km", "Schools out of band", "Status"]
+              "Mean km", "Max km", "Schools out of band", "Status", "Pages"]
     rows = []
-    for o in outcomes:
+    for k, o in enumerate(outcomes):
         m = o.metrics
         rows.append([o.name or "(unsaved)", o.level, str(o.settings.plan_year),
                      _int(m.students_moved), str(m.units_moved), _km(m.overall_mean_distance),
                      _km(m.overall_max_distance), str(int(np.count_nonzero(m.out_of_band))),
-                     _status_text(o)])
+                     _status_text(o), pages[k] if pages else ""])
     return header, rows
 
 
@@ -450,6 +463,13 @@ def _draw_table(ax, header, rows, widths, flags=None, font=8.0, total=False, ali
     return y
 
 
+def _rows_that_fit(fig: Figure, height: float, font: float, reserve_in: float) -> int:
+    """Table rows (plus a two-line header) that fit ``height`` (figure fraction)."""
+    row_in = font * 2.0 / 72
+    free = height * fig.get_size_inches()[1] - reserve_in - 1.6 * row_in
+    return max(3, int(free // row_in))
+
+
 def _chunks(n: int, size: int) -> list[tuple[int, int]]:
     return [(k, min(k + size, n)) for k in range(0, max(n, 1), size)]
 
@@ -464,9 +484,10 @@ def _table_pages(outcome: Outcome, paper: str, stamp: str, page: int) -> list[Fi
     p = outcome.problem
     head = ["School", "Status", "Capacity", "Band", *[h.replace(" ", "\n") for h in header[4:]]]
     head[-4:] = ["Moved\nin", "Moved\nout", "Mean\nkm", "Max\nkm"]
-    widths = [0.22, 0.06, 0.06, 0.06, 0.055, *[0.085] * len(years), 0.05, 0.05, 0.045, 0.045]
+    widths = [0.16, 0.055, 0.06, 0.06, 0.055, *[0.095] * len(years), 0.05, 0.05, 0.045, 0.045]
     pages = []
-    chunks = _chunks(len(rows), SCHOOL_ROWS_PER_PAGE)
+    fit = _rows_that_fit(_page(paper), 0.88 - 0.05, TABLE_FONT, reserve_in=0.9)
+    chunks = _chunks(len(rows), fit)
     for k, (a, b) in enumerate(chunks):
         fig = _page(paper)
         top = _frame(fig, _title(outcome, f"schools{_more(k, len(chunks))}"),
@@ -474,7 +495,7 @@ def _table_pages(outcome: Outcome, paper: str, stamp: str, page: int) -> list[Fi
                      "the proposed zones, with utilization (students / capacity).",
                      _footer(outcome, stamp), page + k, full_notice=False)
         ax = fig.add_axes([0.03, 0.05, 0.94, top - 0.05])
-        bottom = _draw_table(ax, head, rows[a:b], widths, flags[a:b], font=7.8,
+        bottom = _draw_table(ax, head, rows[a:b], widths, flags[a:b], font=TABLE_FONT,
                              total=b == len(rows))
         band = (f"{100 * np.nanmin(p.min_util):.0f}-{100 * np.nanmax(p.max_util):.0f}%"
                 if p.n_sites else "")
@@ -494,7 +515,8 @@ def _moves_pages(outcome: Outcome, d: dict, paper: str, stamp: str, page: int) -
     header, rows = d["pairs"]
     areas, extent = d["areas"], d["extent"]
     pages = []
-    chunks = _chunks(len(rows), PAIR_ROWS_PER_PAGE)
+    fit = _rows_that_fit(_page(paper), 0.88 - 0.05, TABLE_FONT, reserve_in=0.1)
+    chunks = _chunks(len(rows), fit)
     m = outcome.metrics
     for k, (a, b) in enumerate(chunks):
         fig = _page(paper)
@@ -505,7 +527,7 @@ def _moves_pages(outcome: Outcome, d: dict, paper: str, stamp: str, page: int) -
                      _footer(outcome, stamp), page + k, full_notice=False)
         tax = fig.add_axes([0.03, 0.05, 0.40, top - 0.05])
         if rows:
-            _draw_table(tax, header, rows[a:b], [0.06, 0.34, 0.34, 0.11, 0.15], font=7.8,
+            _draw_table(tax, header, rows[a:b], [0.06, 0.34, 0.34, 0.11, 0.15], font=TABLE_FONT,
                         total=b == len(rows), align=["center", "left", "left", "center",
                                                      "center"])
         else:
@@ -533,25 +555,27 @@ def _moves_pages(outcome: Outcome, d: dict, paper: str, stamp: str, page: int) -
     return pages
 
 
-def _summary_page(outcomes: Sequence[Outcome], paper: str, stamp: str) -> Figure:
+def _summary_page(outcomes: Sequence[Outcome], pages: list[str], paper: str,
+                  stamp: str) -> Figure:
     fig = _page(paper)
     names = sorted({o.inputs.settings.name for o in outcomes})
     top = _frame(fig, "Options compared", f"{'; '.join(names)}.  {len(outcomes)} options; "
-                 "each is shown on the pages that follow.", _footer(None, stamp), 1,
+                 "each is shown on the pages listed.", _footer(None, stamp), 1,
                  full_notice=True)
-    header, rows = summary_rows(outcomes)
+    header, rows = summary_rows(outcomes, pages)
     head = [h.replace("Students moved", "Students\nmoved").replace("Units moved", "Units\nmoved")
             .replace("Schools out of band", "Schools out\nof band").replace("Plan year",
                                                                             "Plan\nyear")
             for h in header]
+    flags = [["over" if c == 7 and r[7] != "0" else "" for c in range(len(r))] for r in rows]
     ax = fig.add_axes([0.03, 0.05, 0.94, top - 0.05])
-    bottom = _draw_table(ax, head, rows, [0.25, 0.09, 0.06, 0.09, 0.07, 0.07, 0.07, 0.1, 0.2],
-                         font=9)
+    bottom = _draw_table(ax, head, rows, [0.24, 0.08, 0.05, 0.08, 0.06, 0.06, 0.06, 0.09,
+                                          0.17, 0.07], flags=flags, font=9)
     note = ("Students moved: plan-year students whose school changes from today's zones.  "
-            "Mean and Max km: student-weighted mean and longest travel.  Schools out of band: "
-            "open schools above or below their utilization band in some projected year.  "
-            "Status: optimal = proven best for the stated rules within the gap; the gap "
-            "bounds how far from the best a plan can be.")
+            "Mean and Max km: student-weighted mean and longest travel.  Schools out of band "
+            "(shaded when any): open schools above or below their utilization band in some "
+            "projected year.  Status: optimal = proven best for the stated rules within the "
+            "gap; the gap bounds how far from the best a plan can be.")
     ax.text(0.0, bottom - 0.03, "\n".join(textwrap.wrap(note, 160)), fontsize=8.5, va="top",
             transform=ax.transAxes)
     return fig
@@ -567,12 +591,18 @@ def packet_figures(outcomes: Sequence[Outcome], paper: str = "letter",
     for o in outcomes:
         require_plan(o, "hearing packet")
     stamp = stamp or now_iso()[:10]
-    pages = [_summary_page(outcomes, paper, stamp)] if len(outcomes) > 1 else []
+    first = 2 if len(outcomes) > 1 else 1
+    pages: list[Figure] = []
+    where = []
     for o in outcomes:
         d = _drawing(o)
-        pages.append(_map_page(o, d, paper, stamp, len(pages) + 1))
-        pages += _table_pages(o, paper, stamp, len(pages) + 1)
-        pages += _moves_pages(o, d, paper, stamp, len(pages) + 1)
+        start = first + len(pages)
+        pages.append(_map_page(o, d, paper, stamp, start))
+        pages += _table_pages(o, paper, stamp, first + len(pages))
+        pages += _moves_pages(o, d, paper, stamp, first + len(pages))
+        where.append(f"{start}-{first + len(pages) - 1}")
+    if len(outcomes) > 1:
+        pages.insert(0, _summary_page(outcomes, where, paper, stamp))
     return pages
 
 

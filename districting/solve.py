@@ -73,13 +73,16 @@ class _HighsBackend:
 
     name = "highs"
 
-    def __init__(self, problem: Problem, threads: int = 2) -> None:
+    def __init__(self, problem: Problem, drop: np.ndarray | None = None,
+                 threads: int = 2) -> None:
+        """``drop`` marks units left out of the MIP (free empty units handed out after)."""
         import highspy
 
         self._hs = highspy
         self.problem = problem
         n, m = problem.n_units, problem.n_sites
-        ok = problem.allowed.copy()
+        self.drop = np.zeros(n, bool) if drop is None else np.asarray(drop, bool)
+        ok = problem.allowed & ~self.drop[:, None]
         if problem.capacity is not None:  # a unit too big for a site in some year: no pair
             hi = problem.max_util * problem.capacity
             ok &= ~(problem.demand[:, :, None] > hi[None, None, :] + _TOL).any(axis=0)
@@ -120,8 +123,9 @@ class _HighsBackend:
 
         inf = np.inf
         # assignment: sum_j x[i,j] = 1
-        add(xi, np.arange(k), np.ones(k), np.ones(n), np.ones(n))
-        missing = np.flatnonzero(np.bincount(xi, minlength=n) == 0)
+        need = np.where(self.drop, 0.0, 1.0)
+        add(xi, np.arange(k), np.ones(k), need, need)
+        missing = np.flatnonzero((np.bincount(xi, minlength=n) == 0) & ~self.drop)
         if len(missing):
             self.infeasible_reason = f"{problem.unit_label(int(missing[0]))} has no site"
         is_cand = self.ycol[xj] >= 0
@@ -254,7 +258,8 @@ class _HighsBackend:
         p = self.problem
         a = np.asarray(assignment, np.int64)
         x = np.zeros(self.ncol)
-        c = self.colmap[np.arange(p.n_units), a]
+        has = np.flatnonzero(a >= 0)
+        c = self.colmap[has, a[has]]
         x[c[c >= 0]] = 1.0
         opened = cg.open_from_assignment(p, a)
         yc = self.ycol[opened & (self.ycol >= 0)]
@@ -317,7 +322,7 @@ class _HighsBackend:
             xv = col[: len(self.xi)] > 0.5
             a = np.full(self.problem.n_units, -1, np.int64)
             a[self.xi[xv]] = self.xj[xv]
-            if (a < 0).any():
+            if (a[~self.drop] < 0).any():
                 a, has = None, False
         status = {
             ms.kOptimal: "optimal",
@@ -434,8 +439,10 @@ class _PyomoBackend:
 
 
 # ---------------------------------------------------------------------- the loop
-def _make_backend(problem: Problem, solver: str):
-    return _HighsBackend(problem) if solver == "highs" else _PyomoBackend(problem, solver)
+def _make_backend(problem: Problem, solver: str, drop: np.ndarray | None = None):
+    if solver == "highs":
+        return _HighsBackend(problem, drop)
+    return _PyomoBackend(problem, solver)
 
 
 def _objective(problem: Problem, a: np.ndarray) -> float:
@@ -489,6 +496,7 @@ class Session:
         self.cuts: list[cg.Cut] = []
         self.last: Plan | None = None
         self._backend = None
+        self._full = False  # True once empty units had to join the MIP
         self._graph = cg.UnitGraph.of(problem) if problem.contiguous else None
         self.build_seconds = 0.0
 
@@ -506,11 +514,12 @@ class Session:
             self._graph = cg.UnitGraph.of(problem) if problem.contiguous else None
         self.problem = problem
         self._backend = None
+        self._full = False
 
-    def _ensure_backend(self):
+    def _ensure_backend(self, drop: np.ndarray | None = None):
         if self._backend is None:
             t0 = time.perf_counter()
-            self._backend = _make_backend(self.problem, self.solver)
+            self._backend = _make_backend(self.problem, self.solver, drop)
             if self.cuts:
                 self._backend.add_cuts(self.cuts)
             self.build_seconds = time.perf_counter() - t0
@@ -535,13 +544,17 @@ class Session:
         reasons = _precheck(problem)
         if reasons:
             return self._finish(_infeasible(problem, "\n".join(reasons), route))
+        graph = self._graph
+        passable = cg.free_units(problem) if graph is not None else None
+        # units without students stay out of the MIP (highs route) until a round needs them
+        relaxed = bool(route == "highs" and passable is not None and passable.any()
+                       and not self._full)
         try:
-            backend = self._ensure_backend()
+            backend = self._ensure_backend(passable if relaxed else None)
         except (ImportError, RuntimeError, ValueError) as exc:
             return self._finish(_failed(problem, f"could not build the model: {exc}", route))
         build = self.build_seconds
         self.build_seconds = 0.0
-        graph = self._graph
         best: np.ndarray | None = None
         best_obj = np.inf
         cand = _prepare_start(problem, graph, start)
@@ -597,9 +610,16 @@ class Session:
                         if ans.objective < best_obj - _TOL or best is None:
                             best, best_obj = b, _objective(problem, b)
                     else:
-                        cuts = cg.separator_cuts(problem, graph, a, only=detached)
+                        cuts = cg.separator_cuts(problem, graph, a, only=detached,
+                                                 passable=passable, strict=relaxed)
                         added = backend.add_cuts(cuts)
                         self.cuts.extend(cuts)
+                        if relaxed and added == 0:
+                            # empty units must join the MIP: only cuts through them are left
+                            relaxed, self._full, self._backend = False, True, None
+                            backend = self._ensure_backend(None)
+                            build += self.build_seconds
+                            added = -1
                         fixed = cg.repair(problem, graph, a)
                         if fixed is not None:
                             fixed = cg.improve(problem, graph, fixed)
@@ -610,7 +630,7 @@ class Session:
             bound = min(bound, best_obj) if best is not None else bound
             g = relative_gap(best_obj, bound)
             elapsed = time.monotonic() - t0
-            history.append(Round(rnd, best_obj, bound, g, added, n_frag, elapsed))
+            history.append(Round(rnd, best_obj, bound, g, max(added, 0), n_frag, elapsed))
             if progress is not None:
                 progress(history[-1])
             if best is not None and g <= gap + 1e-12:

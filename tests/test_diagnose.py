@@ -127,7 +127,7 @@ def test_move_limit_below_forced_moves():
 
 def test_open_count_below_forced_open():
     p = make(np.ones((2, 3)), [1, 1], p=1, open_sites=[True, True, False])
-    assert "at least 2" in only(precheck(p), "asks for 1 open schools")
+    assert "at least 2" in only(precheck(p), "asks for 1 open school,")
 
 
 def test_open_school_whose_unit_may_not_join_it():
@@ -165,7 +165,7 @@ def test_explain_names_contiguity():
     assert precheck(p) == []
     msg = explain(p)
     assert "together with connected zones" in msg
-    assert "1 seats over its limit of 10" in msg
+    assert "1 seat over its limit of 10" in msg
     assert "adjacency links" in msg
 
 

@@ -20,6 +20,7 @@ from districting.options import (
     ASSIGNMENTS_TABLE,
     OPTIONS_TABLE,
     STATE_TABLE,
+    ZONES_LAYER,
     OptionError,
     delete_option,
     list_options,
@@ -115,12 +116,32 @@ def test_store_is_a_geopackage_that_gdal_lists(town):
     con.close()
     assert app_id == 0x47504B47 and version == 10300  # GeoPackage 1.3, clause 1.1.1.1
     assert kinds == {OPTIONS_TABLE: "attributes", ASSIGNMENTS_TABLE: "attributes",
-                     STATE_TABLE: "attributes"}
+                     STATE_TABLE: "attributes", ZONES_LAYER: "features"}
     # GDAL (through pyogrio, an independent reader) sees the attribute tables as layers
     layers = {name for name, _ in pyogrio.list_layers(store)}
     assert {OPTIONS_TABLE, ASSIGNMENTS_TABLE, STATE_TABLE} <= layers
     df = pyogrio.read_dataframe(store, layer=ASSIGNMENTS_TABLE)
     assert len(df) == len(town.units) and set(df["option"]) == {"A"}
+
+
+def test_zones_layer_follows_the_options(town):
+    store = town.settings.store
+    out = make_outcome(town)
+    save_option(town, out, "A")
+    save_option(town, out, "B's")
+    zones = pyogrio.read_dataframe(store, layer=ZONES_LAYER)
+    assert sorted(set(zones["option"])) == ["A", "B's"]
+    a = zones[zones["option"] == "A"].reset_index(drop=True)
+    assert list(a["site_id"]) == out.site_ids
+    np.testing.assert_allclose(a["students"], out.metrics.load[0])
+    assert a.geometry.area.sum() == pytest.approx(town.units.geometry.area.sum())
+    assert a.crs.equals(town.crs)
+    rename_option(store, "B's", "C")
+    delete_option(store, "A")
+    zones = pyogrio.read_dataframe(store, layer=ZONES_LAYER)
+    assert set(zones["option"]) == {"C"} and len(zones) == len(out.site_ids)
+    save_option(town, out, "C", overwrite=True)
+    assert len(pyogrio.read_dataframe(store, layer=ZONES_LAYER)) == len(out.site_ids)
 
 
 def test_store_can_be_a_gdal_geopackage_with_layers(tmp_path):

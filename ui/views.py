@@ -52,7 +52,8 @@ def polygon_paths(geoms) -> tuple[list, list]:
     """Bokeh multi-polygon xs / ys (unit -> polygons -> rings) from (Multi)Polygons.
 
     One ``shapely.to_ragged_array`` call gives every coordinate and the ring, part and
-    geometry offsets; the nested lists Bokeh wants are slices of those arrays.
+    geometry offsets; the nested lists Bokeh wants are slices of those arrays. Plain lists,
+    not arrays: BokehJS decodes one array per ring otherwise, several times slower.
     """
     geoms = np.asarray(geoms, dtype=object)
     kind, coords, offsets = shapely.to_ragged_array(geoms)
@@ -65,8 +66,10 @@ def polygon_paths(geoms) -> tuple[list, list]:
     else:
         raise ValueError(f"planning units must be polygons; got {kind.name.lower()} geometries")
     coords = np.round(coords, 1)
-    rx = np.split(coords[:, 0], ring_off[1:-1])
-    ry = np.split(coords[:, 1], ring_off[1:-1])
+    x, y = coords[:, 0].tolist(), coords[:, 1].tolist()
+    bounds = list(zip(ring_off[:-1].tolist(), ring_off[1:].tolist(), strict=True))
+    rx = [x[a:b] for a, b in bounds]
+    ry = [y[a:b] for a, b in bounds]
     xs, ys = [], []
     for g0, g1 in zip(geom_off[:-1], geom_off[1:], strict=True):
         parts = list(zip(part_off[g0:g1], part_off[g0 + 1:g1 + 1], strict=True))
@@ -86,8 +89,11 @@ def line_paths(geoms) -> tuple[list, list]:
     if not len(lines):
         return [], []
     coords, index = shapely.get_coordinates(lines, return_index=True)
-    cuts = np.flatnonzero(np.diff(index)) + 1
-    return np.split(np.round(coords[:, 0], 1), cuts), np.split(np.round(coords[:, 1], 1), cuts)
+    cuts = [0, *(np.flatnonzero(np.diff(index)) + 1).tolist(), len(index)]
+    coords = np.round(coords, 1)
+    x, y = coords[:, 0].tolist(), coords[:, 1].tolist()
+    pairs = list(zip(cuts[:-1], cuts[1:], strict=True))
+    return [x[a:b] for a, b in pairs], [y[a:b] for a, b in pairs]
 
 
 _SHAPES: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
@@ -187,6 +193,8 @@ class MapView(pn.viewable.Viewer):
         self.units = ColumnDataSource(name="units-source", data={
             "xs": xs, "ys": ys, "unit_id": st.unit_ids, **self._unit_columns(n)})
         self.changed = ColumnDataSource(name="changed-source", data={"xs": [], "ys": []})
+        self.marked = ColumnDataSource(name="locked-source", data={
+            "xs": [], "ys": [], "unit_id": [], "hatch": [], "line_width": []})
         self.today = ColumnDataSource(name="today-source", data={"xs": [], "ys": []})
         self.sites = ColumnDataSource(name="sites-source", data=self._site_columns())
         bounds = inputs.units.total_bounds
@@ -203,11 +211,17 @@ class MapView(pn.viewable.Viewer):
         fig.background_fill_color = "#f4f4f0"
         self.unit_glyphs = fig.multi_polygons(
             "xs", "ys", source=self.units, fill_color="color", fill_alpha=0.82,
-            line_color="line_color", line_width="line_width", hatch_pattern="hatch",
-            hatch_color="#1a1a1a", hatch_alpha=0.55, hatch_scale=9,
+            line_color="#ffffff", line_width=0.4,
             selection_line_color="#d400d4", selection_line_width=3, selection_fill_alpha=0.95,
             nonselection_fill_alpha=0.55, name="units",
         )
+        # Locked and forbidden units: a small layer of their own (hatching every unit
+        # would slow the page down for nothing).
+        fig.multi_polygons(
+            "xs", "ys", source=self.marked, fill_alpha=0, line_color="#000000",
+            line_width="line_width", hatch_pattern="hatch", hatch_color="#111111",
+            hatch_alpha=0.6, hatch_scale=8, name="locked-units",
+            legend_label="locked (hatched) / forbidden (dots)")
         self.change_glyphs = fig.multi_polygons(
             "xs", "ys", source=self.changed, fill_alpha=0, line_color="#c0392b",
             line_width=2, line_dash="dotted", name="changed-units",
@@ -263,10 +277,8 @@ class MapView(pn.viewable.Viewer):
     # ---------------------------------------------------------- data
     def _unit_columns(self, n: int) -> dict:
         return {k: [""] * n for k in ("current", "current_name", "proposed", "proposed_name",
-                                      "locked", "forbidden", "hatch")} | {
-            "students": np.zeros(n), "distance": np.zeros(n),
-            "color": [NO_ZONE_COLOR] * n, "line_color": ["#ffffff"] * n,
-            "line_width": np.full(n, 0.4)}
+                                      "locked", "forbidden")} | {
+            "students": np.zeros(n), "distance": np.zeros(n), "color": [NO_ZONE_COLOR] * n}
 
     def _barrier_source(self, kind: str | None) -> ColumnDataSource | None:
         """Barrier lines of one kind (river, highway, rail), or of no known kind (None)."""
@@ -324,7 +336,7 @@ class MapView(pn.viewable.Viewer):
         locked = frame["locked"].to_numpy(dtype=object) != ""
         forbidden = frame["forbidden"].to_numpy(dtype=object) != ""
         names = st.site_names()
-        hatch = np.where(locked, "/", np.where(forbidden, ".", " "))
+        hatch = np.where(locked, "/", ".")
         self.units.data.update({
             "students": frame["students"].to_numpy(),
             "current": frame["current"].tolist(),
@@ -334,18 +346,20 @@ class MapView(pn.viewable.Viewer):
             "distance": frame["distance_km"].to_numpy(),
             "locked": [f"{names.get(s, s)} ({s})" if s else "" for s in frame["locked"]],
             "forbidden": frame["forbidden"].tolist(),
-            "hatch": hatch.tolist(),
             "color": [colors.get(s, NO_ZONE_COLOR) for s in frame["proposed"]],
-            "line_color": np.where(locked, "#000000", "#ffffff").tolist(),
-            "line_width": np.where(locked, 2.5, 0.4),
         })
+        xs, ys = unit_shapes(st.inputs)
+        idx = np.flatnonzero(locked | forbidden)
+        self.marked.data = {
+            "xs": [xs[i] for i in idx], "ys": [ys[i] for i in idx],
+            "unit_id": frame["unit_id"].to_numpy()[idx].tolist(),
+            "hatch": hatch[idx].tolist(), "line_width": np.where(locked[idx], 2.5, 1.0)}
         ref = self.state.reference_outcome
         if out is ref:
             changed = np.zeros(len(frame), bool)
         else:
             changed = (frame["proposed"].to_numpy() != st.units_frame(ref)["proposed"]
                        .to_numpy())
-        xs, ys = unit_shapes(st.inputs)
         idx = np.flatnonzero(changed)
         self.changed.data = {"xs": [xs[i] for i in idx], "ys": [ys[i] for i in idx]}
         self._refresh_sites(colors)
