@@ -342,8 +342,6 @@ def reassign_empty(
     b = a.copy()
     b[free] = -1
     nbrs = graph.lists
-    bl = b.tolist()
-    att = attached.tolist()
     # pieces with students that are cut off: join each through released units
     pieces_lab = zone_components(graph, np.where(attached, -1, b))
     cut_units = np.flatnonzero(pieces_lab >= 0)
@@ -351,8 +349,31 @@ def reassign_empty(
     cut_units = cut_units[order]
     split = np.split(cut_units, np.flatnonzero(np.diff(pieces_lab[cut_units])) + 1)
     pieces = [p for p in split if len(p)]
-    # pieces of one zone join in any order; larger pieces first
+    # larger pieces first; pieces that failed go first in the next try (paths compete)
     pieces.sort(key=lambda p: -float(problem.demand[:, p].sum()))
+    best = None
+    for _ in range(4):
+        bl, att, failed = _hand_out(b, attached, pieces, nbrs, allowed)
+        if best is None or len(failed) < best[2]:
+            best = (bl, att, len(failed))
+        if not failed:
+            break
+        first = {id(p) for p in failed}
+        pieces = failed + [p for p in pieces if id(p) not in first]
+    bl, att, _ = best
+    b = np.array(bl, dtype=np.int64)
+    still = b < 0
+    b[still] = a[still]
+    detached = ~np.array(att, bool)
+    return b, detached
+
+
+def _hand_out(b, attached, pieces, nbrs, allowed):
+    """Join ``pieces`` in order, then fill the released units; returns lists and failures."""
+    bl = b.tolist()
+    att = attached.tolist()
+    n = len(bl)
+    failed = []
     for _ in range(2):
         left = []
         for piece in pieces:
@@ -361,6 +382,7 @@ def reassign_empty(
                 continue
             if not _join(piece, j, bl, att, nbrs, allowed[:, j]):
                 left.append(piece)
+        failed = left
         if len(left) == len(pieces):
             break
         pieces = left
@@ -374,11 +396,11 @@ def reassign_empty(
                 bl[w] = j
                 att[w] = True
                 queue.append(w)
-    b = np.array(bl, dtype=np.int64)
-    still = b < 0
-    b[still] = a[still]
-    detached = ~np.array(att, bool)
-    return b, detached
+    if all(att):
+        failed = []
+    elif not failed:
+        failed = [p for p in pieces if not att[int(p[0])]]
+    return bl, att, failed
 
 
 def _join(piece, j, bl, att, nbrs, ok_j) -> bool:

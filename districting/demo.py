@@ -68,7 +68,7 @@ __all__ = [
 TOWN_NAME = "Brindlemoor"
 DISTRICT_NAME = "Brindlemoor Unified School District (invented demo)"
 #: WGS 84 / UTM zone 26N. The town is placed in the open North Atlantic (about 41.5 N,
-#: 27 W), far from any land, so its map can never be mistaken for a real place.
+#: 27 W, open ocean well away from any land), so its map cannot be mistaken for a real place.
 CRS = "EPSG:32626"
 CENTRE = (500_000.0, 4_600_000.0)
 CURRENT_YEAR = 2026
@@ -88,6 +88,7 @@ UNDER_UTIL = (0.55, 0.65)
 #: Plan-year capacity of the open and new sites over the largest projected enrolment.
 CAPACITY_RATIO = 1.14
 SEAT_STEP = 25  # capacities are whole multiples of this many seats
+MIN_SEATS = {"elementary": 300, "middle": 500, "high": 1200}  # no smaller school
 
 RIVER, HIGHWAY, RAIL = "river", "highway", "rail"
 BARRIER_NAMES = {
@@ -195,7 +196,7 @@ def _lines(rng: np.random.Generator, outline: shapely.Polygon, radius: float):
             xy = p + t[:, None] * along + damp * offset[:, None] * normal
             xy[0], xy[-1] = p, q  # exactly on the outline vertices
             lines[kind] = shapely.LineString(xy)
-        if not all(shapely.contains(outline, g) for g in lines.values()):
+        if not shapely.contains(outline, np.array(list(lines.values()))).all():
             continue
         pieces = _pieces(outline, list(lines.values()))
         if shapely.area(pieces).min() >= 5e4:
@@ -401,7 +402,7 @@ def generate(seed: int = 2027, n_units: int = 1500, radius: float = 6800.0) -> D
         raise ValueError(f"n_units={n_units}: the demo town needs at least 200 units")
     rng = np.random.default_rng(seed)
     outline = _outline(rng, radius)
-    inside, pieces = _lines(rng, outline, radius)
+    lines, pieces = _lines(rng, outline, radius)
     kinds = [RIVER, HIGHWAY, RAIL]
 
     # neighbourhood centres: the old town at the middle, the subdivision near the edge, the
@@ -433,7 +434,7 @@ def generate(seed: int = 2027, n_units: int = 1500, radius: float = 6800.0) -> D
     i, j, border, blen = _rook_pairs(geoms)
     across = piece[i] != piece[j]
     mid = shapely.point_on_surface(border)
-    line_arr = np.array([inside[k] for k in kinds], dtype=object)
+    line_arr = np.array([lines[k] for k in kinds], dtype=object)
     kind_of = np.argmin(np.column_stack([shapely.distance(mid, g) for g in line_arr]), axis=1)
     hood = np.argmin(((xy[:, None] - centres[None]) ** 2).sum(-1), axis=1)
     # zones grow over pairs with a clear shared border (>= 5 m), so they stay connected in
@@ -448,7 +449,7 @@ def generate(seed: int = 2027, n_units: int = 1500, radius: float = 6800.0) -> D
     if connected_components(_csr(n, gi, gj, gw), directed=False)[0] != 1:
         raise ValueError(f"seed {seed}: the unit graph is not connected after bridges")
 
-    land_use = _land_use(rng, n, gi, gj, i, j, across, kind_of, blen, hood, xy, inside, kinds)
+    land_use = _land_use(rng, n, gi, gj, i, j, across, kind_of, blen, hood, xy, lines, kinds)
     counts = _counts(rng, n, land_use, hood, n_hood + 1)
     sites, zones = _sites_and_zones(
         rng, n, gi, gj, gw, xy, point, land_use, hood, hood_names, centres, counts
@@ -488,7 +489,7 @@ def _bridges(n, i, j, base, across, kind_of, border, blen, lines, kinds, hood_of
         pos = shapely.line_locate_point(line, shapely.point_on_surface(border[on]), normalized=True)
         for target in per_kind[kind]:
             kept[on[np.argmin(np.abs(pos - target))]] = True
-    # more crossings (never on the river) until one connected piece
+    # more crossings until one connected piece (the river only when nothing else will do)
     while True:
         edge = base | kept
         ncomp, lab = connected_components(
@@ -505,12 +506,7 @@ def _bridges(n, i, j, base, across, kind_of, border, blen, lines, kinds, hood_of
     e = np.flatnonzero(kept)
     on_line = shapely.line_interpolate_point(border[e], 0.5, normalized=True)
     kind = np.array(kinds)[kind_of[e]]
-    pos = np.array(
-        [
-            shapely.line_locate_point(lines[kind_of[x]], p, normalized=True)
-            for x, p in zip(e, on_line, strict=True)
-        ]
-    )
+    pos = shapely.line_locate_point(lines[kind_of[e]], on_line, normalized=True)
     order = np.lexsort((pos, kind_of[e]))
     e, on_line, kind = e[order], on_line[order], kind[order]
     names, used, river_no = [], set(), 0
@@ -538,7 +534,7 @@ def _bridges(n, i, j, base, across, kind_of, border, blen, lines, kinds, hood_of
 
 def _land_use(rng, n, gi, gj, i, j, across, kind_of, blen, hood, xy, lines, kinds):
     """Non-residential units: parks (small blobs), floodplain along the river, industry
-    along a stretch of the rail line, commerce along the highway near the old town."""
+    along a stretch of the rail line, commerce along a mid-town stretch of the highway."""
     use = np.full(n, "residential", dtype=object)
 
     def along(k):  # units with a border on barrier k, and their position along it
@@ -552,7 +548,8 @@ def _land_use(rng, n, gi, gj, i, j, across, kind_of, blen, hood, xy, lines, kind
     u, pos = along(2)
     start = rng.uniform(0.5, 0.6)
     yard = u[(pos > start) & (pos < start + 0.2)]
-    use[_grow(n, gi, gj, yard, int(0.035 * n))] = "industrial"  # the yards and around them
+    if len(yard):  # the yards and the blocks around them
+        use[_grow(n, gi, gj, yard, int(0.035 * n))] = "industrial"
     u, pos = along(1)
     start = rng.uniform(0.35, 0.45)
     use[u[(pos > start) & (pos < start + 0.15)]] = "commercial"
@@ -616,7 +613,7 @@ def _sites_and_zones(rng, n, gi, gj, gw, xy, point, land_use, hood, hood_names, 
         w = np.where(res, 0.5 * now + 0.5 * late + 0.5, 0.0)
         k = N_SITES[level]
         c = _kmeans(rng, xy, w, k)
-        allowed = res & (hood != 1) if level == "elementary" else res.copy()
+        allowed = res & (hood != 1)  # today's schools stand in the built town
         roots = _snap(c, xy, allowed)
         roots = roots[_reading_order(shapely.points(xy[roots]), band=1500.0)]
         spacing = np.sqrt(((xy[roots][:, None] - xy[roots][None]) ** 2).sum(-1))
@@ -628,10 +625,11 @@ def _sites_and_zones(rng, n, gi, gj, gw, xy, point, land_use, hood, hood_names, 
         zone_now = np.bincount(zone, weights=now, minlength=k)
         new_root = relief = closing = None
         if level == "elementary":
-            # the school nearest the subdivision is crowded today; of the others, the one
-            # with the fewest students times the distance to its nearest neighbour (small
-            # and close to another school) is the under-used school that closes
-            relief = int(np.argmin(np.hypot(*(xy[roots] - centres[1]).T)))
+            # the largest of the three schools nearest the subdivision is crowded today; of
+            # the others, the one with the fewest students times the distance to its
+            # nearest neighbour (small, close to another school) is under-used and closes
+            near_sub = np.argsort(np.hypot(*(xy[roots] - centres[1]).T))[:3]
+            relief = int(near_sub[np.argmax(zone_now[near_sub])])
             score = zone_now * nearest
             score[relief] = np.inf
             closing = int(np.argmin(score))
@@ -695,7 +693,7 @@ def _capacities(rng, level, zone_now, relief, closing, plan_open, demand, new_ro
     elif under:  # no school in between: the under-used ones take what is left
         cap[under] = (left + cap[under].sum()) * zone_now[under] / zone_now[under].sum()
     cap = np.r_[cap, [new_cap] if new_root is not None else []]
-    return np.maximum(SEAT_STEP, np.round(cap / SEAT_STEP) * SEAT_STEP)
+    return np.maximum(MIN_SEATS[level], np.round(cap / SEAT_STEP) * SEAT_STEP)
 
 
 def _school_names(level, roots, hood, hood_names, xy, centres, taken) -> list[str]:

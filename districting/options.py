@@ -235,9 +235,9 @@ def _edit(store: str | os.PathLike, then: Callable[[Path], None] | None = None
     """
     store = Path(store)
     with _writer_lock(store):
-        # Copies left by a writer that was killed mid-save (names from io.atomic_path);
+        # Copies (and their -journal files) left by a writer killed mid-save (io.atomic_path names);
         # safe to remove while we hold the lock, since only a lock holder writes them.
-        for stale in store.parent.glob(f".tmp-{store.stem}-{'?' * 8}{store.suffix}"):
+        for stale in store.parent.glob(f".tmp-{store.stem}-{'?' * 8}{store.suffix}*"):
             stale.unlink(missing_ok=True)
         fresh = not store.exists()
         if not fresh:

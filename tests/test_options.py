@@ -263,9 +263,11 @@ WRITER = textwrap.dedent(
     sys.path.insert(0, sys.argv[1])
     from exports_town import make_outcome, make_town
     from districting.options import save_option, save_state
-    town = make_town(Path(sys.argv[2]), nx=120, ny=100)
+    town = make_town(Path(sys.argv[2]), nx=40, ny=30)
     out = make_outcome(town)
     k = int(sys.argv[3])
+    if k == 0:  # ballast: every later save copies, writes and fsyncs a store of ~30 MB
+        save_state(town.settings.store, "ballast", {"rows": ["x" * 1000] * 30_000})
     while True:
         save_option(town, out, f"run {k}")
         save_state(town.settings.store, "workbench", {"last": k})
@@ -273,6 +275,7 @@ WRITER = textwrap.dedent(
         k += 1
     """
 )
+N_KILL_UNITS = 40 * 30
 
 
 def _integrity(store: Path) -> str:
@@ -302,7 +305,7 @@ def test_sigkill_mid_save_keeps_previous_options(tmp_path):
                 line = proc.stdout.readline()
                 assert line, "the writer stopped before saving twice"
                 done.append(int(line))
-            time.sleep(float(rng.uniform(0.0, 0.08)))
+            time.sleep(float(rng.uniform(0.0, 0.3)))
         finally:
             proc.send_signal(signal.SIGKILL)
             proc.wait()
@@ -320,14 +323,19 @@ def test_sigkill_mid_save_keeps_previous_options(tmp_path):
         con = sqlite3.connect(store)
         per_option = dict(con.execute(
             f"SELECT option, count(*) FROM {ASSIGNMENTS_TABLE} GROUP BY option").fetchall())
+        zones = dict(con.execute(
+            f"SELECT option, count(*) FROM {ZONES_LAYER} GROUP BY option").fetchall())
         con.close()
-        assert per_option == {n: 12_000 for n in names}  # no option half-written
+        # no option half-written: every listed option has all its units and all its zones
+        assert per_option == {n: N_KILL_UNITS for n in names}
+        assert zones == {n: 4 for n in names}
         start = len(names)
         if hit_mid_save and _attempt >= 1:
             break
     assert hit_mid_save, "no kill landed inside a save; the test did not exercise it"
     # the next save clears the stray copies and works
-    town = make_town(tmp_path, nx=120, ny=100)
+    town = make_town(tmp_path, nx=40, ny=30)
     save_option(town, make_outcome(town), "after")
     assert not list(tmp_path.glob(".tmp-options-*"))
-    assert load_option(town, "run 0").assignment.shape == (12_000,)
+    assert load_option(town, "run 0").assignment.shape == (N_KILL_UNITS,)
+    assert len(load_state(tmp_path / "options.gpkg", "ballast")["rows"]) == 30_000

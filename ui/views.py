@@ -200,7 +200,7 @@ class MapView(pn.viewable.Viewer):
         bounds = inputs.units.total_bounds
         pad = 0.03 * max(bounds[2] - bounds[0], bounds[3] - bounds[1])
         fig = figure(
-            name="zone-map", match_aspect=True, sizing_mode="stretch_both", min_height=520,
+            name="zone-map", css_classes=["zone-map"], match_aspect=True, sizing_mode="stretch_both", min_height=520,
             x_range=(bounds[0] - pad, bounds[2] + pad), y_range=(bounds[1] - pad,
                                                                   bounds[3] + pad),
             tools="pan,wheel_zoom,reset,save", active_scroll="wheel_zoom",

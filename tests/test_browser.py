@@ -1,0 +1,239 @@
+"""The whole planner's job in a real browser: Debian's headless Chromium via Playwright.
+
+``districting serve`` runs on a working copy of the demo town; the page is driven like a
+planner would: select units (a click on the map, then typing ids), lock one to the
+neighbouring school, rerun, find its school changed in the map's data and in the change
+table, cut a capacity in the schools table, rerun, save an option, reload and find it all
+restored, then download the GeoPackage and read it with geopandas. Requests off this
+machine are refused, so the page must work offline. Screenshots go to test-artifacts/.
+"""
+
+from __future__ import annotations
+
+import time
+from pathlib import Path
+
+import geopandas as gpd
+import numpy as np
+import pyogrio
+import pytest
+import shapely
+
+from browser_support import (
+    CHROMIUM,
+    chromium_page,
+    running_server,
+    shot,
+    source_columns,
+    wait_for,
+)
+
+pytestmark = [
+    pytest.mark.browser,
+    pytest.mark.skipif(not Path(CHROMIUM).exists(), reason="needs Debian's chromium "
+                       "(bash dev.sh test installs it)"),
+]
+
+LEVEL = "elementary"
+
+
+def lockable_pair(town: Path, proposed: list[str], unit_ids: list[str]) -> tuple[str, str]:
+    """A unit with students on a zone border and the school across that border.
+
+    Touching units from the polygons (STRtree over the whole array), keeping borders longer
+    than 80 m that do not run along a barrier line, so the lock keeps both zones connected.
+    """
+    units = gpd.read_file(town, layer="units").set_index("unit_id").loc[unit_ids]
+    bars = gpd.read_file(town, layer="barriers")
+    geoms = units.geometry.to_numpy()
+    i, j = shapely.STRtree(geoms).query(geoms, predicate="touches")
+    keep = i < j
+    i, j = i[keep], j[keep]
+    prop = np.asarray(proposed)
+    differ = prop[i] != prop[j]
+    i, j = i[differ], j[differ]
+    border = shapely.intersection(geoms[i], geoms[j])
+    length = shapely.length(border)
+    near = shapely.dwithin(border, shapely.union_all(bars.geometry.to_numpy()), 30.0)
+    students = units[f"{LEVEL}_2027"].to_numpy()
+    ok = (length > 80) & ~near & (students[i] > 0)
+    assert ok.any(), "no lockable border unit in the demo plan"
+    k = np.flatnonzero(ok)[np.argmax(length[ok])]
+    return unit_ids[i[k]], prop[j[k]]
+
+
+def wait_run_done(page, timeout: float = 150.0) -> str:
+    """Wait for the Rerun to finish; returns the run status line."""
+    page.wait_for_selector(".run-status [data-running='1']", timeout=10_000)
+    page.wait_for_selector(".run-status [data-running='0']", timeout=timeout * 1000)
+    return page.inner_text(".run-status")
+
+
+def message(page) -> str:
+    return page.inner_text(".message") if page.is_visible(".message") else ""
+
+
+def open_tab(page, title: str) -> None:
+    page.click(f".result-tabs .bk-tab:has-text('{title}')")
+    time.sleep(0.3)
+
+
+def table_text(page, css: str) -> str:
+    page.wait_for_selector(f".{css} .tabulator-row", timeout=20_000)
+    return page.inner_text(f".{css} .tabulator-tableholder")
+
+
+def test_planner_job_in_the_browser(tmp_path):
+    from districting.demo import copy_demo
+
+    project = copy_demo(tmp_path / "demo")
+    town = project.parent / "town.gpkg"
+    with running_server(project, tmp_path) as url, chromium_page() as page:
+        errors: list[str] = []
+        page.on("pageerror", lambda e: errors.append(str(e)))
+        page.goto(url)
+        page.wait_for_selector(".rerun-button button", timeout=60_000)
+        page.wait_for_function("() => window.Bokeh && Bokeh.documents.length && "
+                               "Bokeh.documents[0].get_model_by_name('units-source')",
+                               timeout=60_000)
+        shot(page, "01-opened")
+        data = source_columns(page, "units-source", ("unit_id", "proposed", "current"))
+        unit_ids = data["unit_id"]
+        assert len(unit_ids) > 1000 and data["proposed"] == data["current"]  # today's zones
+
+        # A click on the map selects the unit under the pointer.
+        canvas = page.locator(".zone-map .bk-Canvas").first
+        box = canvas.bounding_box()
+        page.mouse.click(box["x"] + box["width"] * 0.5, box["y"] + box["height"] * 0.55)
+        clicked = wait_for(lambda: page.input_value(".selected-units input"), 15,
+                           what="a unit selected by the click")
+        assert clicked in unit_ids
+
+        # Settings: a time limit for the run, typed like a planner would.
+        page.fill(".setting-time-limit input", "40")
+        page.press(".setting-time-limit input", "Enter")
+        page.click(".rerun-button button")
+        status = wait_run_done(page)
+        assert "Done in" in status, status
+        shot(page, "02-first-run")
+        first = source_columns(page, "units-source", ("proposed",))["proposed"]
+
+        # Lock a border unit to the school across the border, then rerun.
+        unit, target = lockable_pair(town, first, unit_ids)
+        assert first[unit_ids.index(unit)] != target
+        page.fill(".selected-units input", unit)
+        page.press(".selected-units input", "Enter")
+        wait_for(lambda: "1 unit(s)" in page.inner_text(".selection-info"), 15,
+                 what="the typed unit to be selected")
+        page.select_option(".target-school select", value=_option_value(page, target))
+        page.click(".lock-button button")
+        wait_for(lambda: "Locked 1 unit" in message(page), 15, what="the lock message")
+        hatched = source_columns(page, "locked-source", ("unit_id",))["unit_id"]
+        assert hatched == [unit]
+        shot(page, "03-locked")
+        page.click(".rerun-button button")
+        wait_run_done(page)
+        second = source_columns(page, "units-source", ("proposed",))["proposed"]
+        assert second[unit_ids.index(unit)] == target
+        open_tab(page, "Changes")
+        page.click(".reference-choice button:has-text('previous result')")
+        wait_for(lambda: unit in table_text(page, "changes-table"), 15,
+                 what="the locked unit in the change table")
+        row = page.locator(".changes-table .tabulator-row", has_text=unit).inner_text()
+        assert target in row
+        shot(page, "04-changes")
+
+        # Cap the busiest school below its students, rerun, and see it inside the band.
+        open_tab(page, "Schools")
+        table_text(page, "sites-table")
+        site, cap = _cut_busiest(page)
+        wait_for(lambda: f"{site} changed" in message(page), 15, what="the capacity message")
+        page.click(".rerun-button button")
+        status = wait_run_done(page)
+        assert "Done in" in status, status
+        row = _site_row(page, site)
+        assert float(row["capacity"].replace(",", "")) == cap
+        assert float(row["use 2027 %"].replace(",", "")) <= 100.0 + 1e-6
+        shot(page, "05-capped")
+
+        # Save an option.
+        open_tab(page, "Options")
+        page.fill(".option-name input", "Hearing option A")
+        page.press(".option-name input", "Enter")
+        page.click(".save-option button")
+        wait_for(lambda: "Saved option" in message(page), 20, what="the save message")
+        assert "Hearing option A" in table_text(page, "options-table")
+        saved = source_columns(page, "units-source", ("proposed",))["proposed"]
+
+        # Reload: a new session restores the option, the lock and the capacity.
+        page.reload()
+        page.wait_for_selector(".rerun-button button", timeout=60_000)
+        page.wait_for_function("() => window.Bokeh && Bokeh.documents.length && "
+                               "Bokeh.documents[0].get_model_by_name('units-source')",
+                               timeout=60_000)
+        restored = source_columns(page, "units-source", ("proposed", "locked"))
+        assert restored["proposed"] == saved
+        assert target in restored["locked"][unit_ids.index(unit)]
+        assert float(_site_row(page, site)["capacity"].replace(",", "")) == cap
+        open_tab(page, "Options")
+        assert "Hearing option A" in table_text(page, "options-table")
+        open_tab(page, "Locks")
+        assert unit in table_text(page, "locks-table")
+        shot(page, "06-restored")
+
+        # Download the GeoPackage and read it.
+        open_tab(page, "Downloads")
+        with page.expect_download(timeout=60_000) as dl:
+            page.click(".download-gpkg button")
+        path = tmp_path / "download.gpkg"
+        dl.value.save_as(path)
+        layers = {name for name, _ in pyogrio.list_layers(path)}
+        assert {"zones", "units"} <= layers
+        units = gpd.read_file(path, layer="units").set_index("unit_id")
+        assert units.loc[unit, "proposed"] == target
+        assert units["proposed"].reindex(unit_ids).tolist() == saved
+        shot(page, "07-downloads")
+        assert not page.outside_requests, page.outside_requests  # works offline
+        assert not errors, errors
+
+
+def _option_value(page, site: str) -> str:
+    """The <option> value of a school in the lock selector (its label ends '(site)')."""
+    values = page.eval_on_selector_all(
+        ".target-school select option", "os => os.map(o => [o.value, o.textContent])")
+    for value, label in values:
+        if label.endswith(f"({site})"):
+            return value
+    raise AssertionError(f"{site} is not in the school list: {values}")
+
+
+def _site_row(page, site: str) -> dict[str, str]:
+    open_tab(page, "Schools")
+    table_text(page, "sites-table")
+    row = page.locator(".sites-table .tabulator-row", has_text=site).first
+    cells = row.locator(".tabulator-cell")
+    fields = cells.evaluate_all("cs => cs.map(c => [c.getAttribute('tabulator-field'), "
+                                "c.textContent])")
+    return dict(fields)
+
+
+def _cut_busiest(page) -> tuple[str, float]:
+    """Type a capacity 10% below the plan-year students of the fullest school."""
+    rows = page.locator(".sites-table .tabulator-row")
+    best = None
+    for k in range(rows.count()):
+        fields = dict(rows.nth(k).locator(".tabulator-cell").evaluate_all(
+            "cs => cs.map(c => [c.getAttribute('tabulator-field'), c.textContent])"))
+        if fields.get("status") not in ("open", "new"):
+            continue
+        use = float(fields["use 2027 %"].replace(",", "") or 0)
+        if best is None or use > best[0]:
+            best = (use, k, fields)
+    _use, k, fields = best
+    cap = float(round(float(fields["students 2027"].replace(",", "")) * 0.9))
+    cell = rows.nth(k).locator(".tabulator-cell[tabulator-field='capacity']")
+    cell.click()
+    editor = cell.locator("input")
+    editor.fill(str(int(cap)))
+    editor.press("Enter")
+    return fields["site_id"], cap

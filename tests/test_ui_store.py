@@ -1,0 +1,227 @@
+"""The workbench's store and session state without a browser.
+
+A small invented town from the demo generator (300 units, seeded) is solved for real by the
+engine; every check reads back what the store computed (locks honoured by the plan, figures
+recomputed after an edit, the state file read by a fresh store).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+
+import numpy as np
+import pytest
+
+from districting.demo import write_demo
+from districting.project import load_project
+from ui.state import SessionState
+from ui.store import TODAY, LockRow, Store, StoreError
+
+LEVEL = "middle"  # four schools: real solves that take well under a second
+
+
+@pytest.fixture(scope="module")
+def town(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("town")
+    return load_project(write_demo(folder, n_units=300))
+
+
+@pytest.fixture
+def inputs(town, tmp_path):
+    """The town with a store GeoPackage of this test's own."""
+    settings = dataclasses.replace(town.settings, store=tmp_path / "store.gpkg")
+    return dataclasses.replace(town, settings=settings)
+
+
+def new_store(inputs) -> Store:
+    st = Store(inputs)
+    st.set_level(LEVEL)
+    st.update_settings(time_limit=30)
+    return st
+
+
+def boundary_pair(out, inputs) -> tuple[str, str]:
+    """A unit on a zone border and the school of a neighbouring zone (a lock that can hold)."""
+    a = out.assignment
+    e = inputs.adjacency.edges
+    students = out.problem.demand[0]
+    k = np.flatnonzero((a[e[:, 0]] != a[e[:, 1]]) & (students[e[:, 0]] > 0))
+    assert len(k), "the plan has no zone border"
+    i, j = e[k[0]]
+    return out.unit_ids[i], out.site_ids[a[j]]
+
+
+def test_locks_and_forbids_are_kept_and_listed(inputs):
+    st = new_store(inputs)
+    u1, u2 = st.unit_ids[:2]
+    site, other = st.site_ids[:2]
+    st.lock([u1, u2], site)
+    st.forbid([u1], other)
+    rows = st.lock_rows()
+    assert LockRow(u1, site, "lock", "workbench") in rows
+    assert LockRow(u2, site, "lock", "workbench") in rows
+    assert LockRow(u1, other, "forbid", "workbench") in rows
+    st.forbid([u2], site)  # forbidding the locked pair drops that lock
+    assert u2 not in st.settings.locks and site in st.settings.forbids[u2]
+    st.lock([u2], site)  # and locking it again drops the forbid
+    assert st.settings.locks[u2] == site and u2 not in st.settings.forbids
+    st.remove([LockRow(u1, site, "lock", "workbench")])
+    assert u1 not in st.settings.locks
+    st.allow([u1])
+    assert st.settings.forbids == {}
+    st.unlock([u2])
+    assert st.settings.locks == {}
+
+
+def test_bad_edits_say_what_to_change(inputs):
+    st = new_store(inputs)
+    with pytest.raises(StoreError, match="unknown planning unit"):
+        st.lock(["NOT-A-UNIT"], st.site_ids[0])
+    with pytest.raises(StoreError, match="pick a middle school"):
+        st.lock([st.unit_ids[0]], "E01")  # an elementary school
+    with pytest.raises(StoreError, match="select one or more"):
+        st.lock([], st.site_ids[0])
+    with pytest.raises(StoreError, match="capacity of"):
+        st.edit_site(st.site_ids[0], capacity=-5)
+    with pytest.raises(StoreError, match="status of"):
+        st.edit_site(st.site_ids[0], status="demolished")
+    with pytest.raises(StoreError, match="plan year"):
+        st.update_settings(plan_year=1999)
+    with pytest.raises(StoreError, match="minimum utilization"):
+        st.update_settings(min_utilization=1.5)
+    st.edit_site(st.site_ids[0], status="closing")
+    with pytest.raises(StoreError, match="closing"):
+        st.lock([st.unit_ids[0]], st.site_ids[0])
+
+
+def test_rerun_honours_a_lock_and_keeps_the_previous_plan(inputs):
+    st = new_store(inputs)
+    first = st.rerun()
+    assert first.plan.feasible and first.level == LEVEL
+    unit, site = boundary_pair(first, inputs)
+    assert st.units_frame().set_index("unit_id").loc[unit, "proposed"] != site
+    st.lock([unit], site)
+    assert st.pending_edits
+    # before the rerun the map already shows the lock (the plan is re-evaluated, not solved)
+    assert st.units_frame().set_index("unit_id").loc[unit, "locked"] == site
+    second = st.rerun()
+    assert second.site_id_of(second.assignment)[second.unit_ids.index(unit)] == site
+    assert st.previous[LEVEL] is first and st.outcome is second
+    assert not st.pending_edits
+    change = st.changes_frame(second, first)
+    assert unit in set(change["unit_id"])
+
+
+def test_capacity_edit_is_evaluated_before_and_solved_after_rerun(inputs):
+    st = new_store(inputs)
+    st.rerun()
+    sites = st.sites_frame()
+    busiest = sites.sort_values("students_" + str(st.effective.plan_year)).iloc[-1]
+    sid = busiest["site_id"]
+    year = st.effective.plan_year
+    cap = float(busiest[f"students_{year}"]) * 0.8  # below what it has now
+    st.edit_site(sid, capacity=cap)
+    after_edit = st.sites_frame().set_index("site_id").loc[sid]
+    assert after_edit["capacity"] == pytest.approx(cap)
+    assert after_edit[f"util_{year}"] == pytest.approx(busiest[f"students_{year}"] / cap)
+    assert "over" in after_edit["flag"]  # flagged out of band until the rerun
+    st.rerun()
+    solved = st.sites_frame().set_index("site_id").loc[sid]
+    load = st.outcome.metrics.load
+    j = st.outcome.site_ids.index(sid)
+    assert (load[:, j] <= cap * st.effective.max_utilization + 1e-6).all()
+    assert solved["flag"] == ""
+
+
+def test_flows_add_up_to_the_students_moved(inputs):
+    st = new_store(inputs)
+    out = st.rerun()
+    flows = st.flows_frame()
+    assert flows["students"].sum() == pytest.approx(out.metrics.students_moved)
+    assert st.summary()["students_moved"] == pytest.approx(out.metrics.students_moved)
+
+
+def test_cancel_keeps_the_best_plan_found(inputs):
+    st = new_store(inputs)
+    st.update_settings(gap=0.0)
+    rounds = []
+
+    def progress(rnd):
+        rounds.append(rnd)
+
+    out = st.rerun(progress=progress, cancel=lambda: len(rounds) >= 1)
+    assert out.plan.feasible  # a valid plan, not nothing
+    assert out.plan.status in ("cancelled", "optimal")  # optimal when round 1 proved it
+    assert (out.assignment >= 0).all()
+    assert st.outcome is out
+
+
+def test_infeasible_rerun_keeps_the_plan_on_screen(inputs):
+    st = new_store(inputs)
+    first = st.rerun()
+    for sid in st.site_ids:
+        st.edit_site(sid, capacity=10)  # nowhere near the students
+    with pytest.raises(StoreError, match="No plan fits"):
+        st.rerun()
+    assert st.outcome is first
+
+
+def test_state_is_restored_by_a_new_store(inputs):
+    st = new_store(inputs)
+    out = st.rerun()
+    unit, site = boundary_pair(out, inputs)
+    st.lock([unit], site)
+    st.edit_site(st.site_ids[1], capacity=987, max_util=0.95)
+    st.update_settings(stability_weight=250)
+    out = st.rerun()
+    st.save_option("Plan with lock")
+    again = Store(inputs)
+    assert again.level == LEVEL
+    assert again.settings == st.settings
+    assert again.outcome.name == "Plan with lock"
+    assert np.array_equal(again.outcome.assignment, out.assignment)
+    assert again.summary() == st.summary()
+    assert "Plan with lock" in again.option_names()
+    opened = again.load_option("Plan with lock")
+    assert np.array_equal(opened.assignment, out.assignment)
+
+
+def test_two_stores_do_not_share_unsaved_state(inputs):
+    a = new_store(inputs)
+    b = Store(inputs)
+    assert b.level == LEVEL
+    a.lock([a.unit_ids[5]], a.site_ids[0])
+    a.rerun()
+    assert b.settings.locks == {} and b.outcome is None
+    assert b.on_screen().name == TODAY
+    b.edit_site(b.site_ids[2], capacity=1234)
+    assert a.settings.capacity == {}
+    # a store opened now starts from the last change written (b's)
+    c = Store(inputs)
+    assert c.settings.capacity == {b.site_ids[2]: 1234.0}
+
+
+def test_session_state_reruns_off_thread_and_reports(inputs):
+    st = new_store(inputs)
+    state = SessionState(st)  # no event loop: results are applied where they arrive
+    assert state.level == LEVEL
+    state.max_util_pct = 95.0
+    assert st.settings.max_utilization == pytest.approx(0.95)
+    state.rerun()
+    state.wait(120)
+    assert not state.running
+    assert state.plan_version == 1
+    assert state.message_kind in ("success", "warning") and state.message
+    assert st.outcome is not None
+    state.select([st.unit_ids[0]])
+    state.target_site = st.site_ids[0]
+    state.lock_selection()
+    assert st.settings.locks == {st.unit_ids[0]: st.site_ids[0]}
+    state.select(["nope"])
+    state.lock_selection()
+    assert state.message_kind == "danger" and "unknown planning unit" in state.message
+    for sid in st.site_ids:
+        st.edit_site(sid, capacity=10)
+    state.rerun()
+    state.wait(120)
+    assert state.message_kind == "danger" and "No plan fits" in state.message
