@@ -309,7 +309,8 @@ def plan_checks(problem: Problem, assignment: np.ndarray, graph: UnitGraph | Non
 
 def _loads(problem: Problem, a: np.ndarray) -> np.ndarray:
     m = problem.n_sites
-    return np.stack([np.bincount(a, weights=row, minlength=m) for row in problem.demand])
+    ok = a >= 0
+    return np.stack([np.bincount(a[ok], weights=row[ok], minlength=m) for row in problem.demand])
 
 
 def _moved(problem: Problem, a: np.ndarray) -> float:

@@ -106,14 +106,25 @@ def chromium_page(width: int = 1500, height: int = 1000) -> Iterator:
 
 
 # ---------------------------------------------------------------------- page scripts
-JS_SOURCE = """(name) => {
-  for (const doc of window.Bokeh.documents) {
-    const m = doc.get_model_by_name(name);
-    if (m) { const out = {}; for (const [k, v] of m.data.entries ? m.data.entries()
-             : Object.entries(m.data)) { out[k] = Array.from(v); } return out; }
-  }
-  return null;
+DEEP_TEXT = """(el) => {
+  const parts = [];
+  const walk = (node) => {
+    if (node.nodeType === 3) { parts.push(node.textContent); return; }
+    if (node.nodeType !== 1 || node.tagName === 'STYLE' || node.tagName === 'SCRIPT') return;
+    if (node.shadowRoot) for (const c of node.shadowRoot.childNodes) walk(c);
+    for (const c of node.childNodes) walk(c);
+  };
+  walk(el);
+  return parts.join(' ').replace(/\\s+/g, ' ').trim();
 }"""
+
+
+def deep_text(page, css: str) -> str:
+    """Visible text of the first element matching ``css``, shadow roots included ('' if none)."""
+    loc = page.locator(css)
+    if not loc.count():
+        return ""
+    return loc.first.evaluate(DEEP_TEXT)
 
 
 def source_columns(page, name: str, columns: tuple[str, ...]) -> dict:

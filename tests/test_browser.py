@@ -18,10 +18,10 @@ import numpy as np
 import pyogrio
 import pytest
 import shapely
-
 from browser_support import (
     CHROMIUM,
     chromium_page,
+    deep_text,
     running_server,
     shot,
     source_columns,
@@ -64,13 +64,14 @@ def lockable_pair(town: Path, proposed: list[str], unit_ids: list[str]) -> tuple
 
 def wait_run_done(page, timeout: float = 150.0) -> str:
     """Wait for the Rerun to finish; returns the run status line."""
-    page.wait_for_selector(".run-status [data-running='1']", timeout=10_000)
-    page.wait_for_selector(".run-status [data-running='0']", timeout=timeout * 1000)
-    return page.inner_text(".run-status")
+    page.wait_for_selector(".run-status [data-running='1']", timeout=10_000, state="attached")
+    page.wait_for_selector(".run-status [data-running='0']", timeout=timeout * 1000,
+                           state="attached")
+    return f"{deep_text(page, '.run-status')} {message(page)}"
 
 
 def message(page) -> str:
-    return page.inner_text(".message") if page.is_visible(".message") else ""
+    return deep_text(page, ".message") if page.is_visible(".message") else ""
 
 
 def open_tab(page, title: str) -> None:
@@ -80,7 +81,7 @@ def open_tab(page, title: str) -> None:
 
 def table_text(page, css: str) -> str:
     page.wait_for_selector(f".{css} .tabulator-row", timeout=20_000)
-    return page.inner_text(f".{css} .tabulator-tableholder")
+    return deep_text(page, f".{css} .tabulator-tableholder")
 
 
 def test_planner_job_in_the_browser(tmp_path):
@@ -123,7 +124,7 @@ def test_planner_job_in_the_browser(tmp_path):
         assert first[unit_ids.index(unit)] != target
         page.fill(".selected-units input", unit)
         page.press(".selected-units input", "Enter")
-        wait_for(lambda: "1 unit(s)" in page.inner_text(".selection-info"), 15,
+        wait_for(lambda: "1 unit(s)" in deep_text(page, ".selection-info"), 15,
                  what="the typed unit to be selected")
         page.select_option(".target-school select", value=_option_value(page, target))
         page.click(".lock-button button")

@@ -73,7 +73,7 @@ def create_app(project: str | Path, *, persist: bool = True):
         SitesTable,
     )
 
-    shell = pn.Column(sizing_mode="stretch_both", css_classes=["districting-app"])
+    shell = pn.Column(sizing_mode="stretch_width", css_classes=["districting-app"])
     opener = _project_opener(shell, persist)
 
     try:
@@ -115,8 +115,8 @@ def create_app(project: str | Path, *, persist: bool = True):
         ("Project", pn.Column(_project_info(inputs, project), opener)),
         dynamic=True, sizing_mode="stretch_width", css_classes=["result-tabs"],
     )
-    main = pn.Column(MessageArea(state), mapview, tabs, sizing_mode="stretch_both")
-    shell.objects = [header, guide, pn.Row(sidebar, main, sizing_mode="stretch_both")]
+    main = pn.Column(MessageArea(state), mapview, tabs, sizing_mode="stretch_width")
+    shell.objects = [header, guide, pn.Row(sidebar, main, sizing_mode="stretch_width")]
     shell.state = state  # for scripts and tests driving the page from Python
     return shell
 

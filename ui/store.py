@@ -376,12 +376,22 @@ class Store:
         try:
             out = run(self.inputs, rs, name=name, progress=progress, cancel=cancel,
                       previous=start)
-        except ValueError as exc:  # a lock or forbid the problem cannot take
-            raise StoreError(str(exc)) from exc
+        except ValueError as exc:  # a lock or forbid the problem cannot take, or a solver fault
+            raise StoreError(f"This run could not be done: {exc}. Your edits are kept; undo "
+                             "the last edit or press Rerun again.") from exc
         if not out.plan.feasible:
-            msg = out.plan.message or "no plan satisfies the settings"
+            plan = out.plan
+            if plan.status in ("time_limit", "cancelled"):
+                why = ("the time limit" if plan.status == "time_limit" else "the cancel")
+                msg = (f"No valid plan was found before {why} "
+                       f"({out.settings.time_limit:g} s). Raise the time limit in Settings, "
+                       "or remove locks and relax the utilization band, then press Rerun.")
+            else:
+                msg = ("No plan fits these settings. " + (
+                    plan.message or "Relax the utilization band, remove locks or forbids, "
+                    "or raise capacities, then press Rerun."))
             self.last_message = msg
-            raise StoreError(f"No plan fits these settings. {msg}")
+            raise StoreError(msg)
         self.previous[level] = before
         self.outcomes[level] = out
         self.last_message = ""

@@ -200,7 +200,8 @@ class MapView(pn.viewable.Viewer):
         bounds = inputs.units.total_bounds
         pad = 0.03 * max(bounds[2] - bounds[0], bounds[3] - bounds[1])
         fig = figure(
-            name="zone-map", css_classes=["zone-map"], match_aspect=True, sizing_mode="stretch_both", min_height=520,
+            name="zone-map", css_classes=["zone-map"], match_aspect=True,
+            sizing_mode="stretch_width", height=560,
             x_range=(bounds[0] - pad, bounds[2] + pad), y_range=(bounds[1] - pad,
                                                                   bounds[3] + pad),
             tools="pan,wheel_zoom,reset,save", active_scroll="wheel_zoom",
@@ -258,14 +259,14 @@ class MapView(pn.viewable.Viewer):
             BoxSelectTool(renderers=[self.unit_glyphs]),
             LassoSelectTool(renderers=[self.unit_glyphs]),
         )
-        fig.legend.location = "top_left"
+        legend = fig.legend[0]
+        fig.add_layout(legend, "right")  # beside the map, never over the town
         fig.legend.click_policy = "hide"
         fig.legend.background_fill_alpha = 0.8
         fig.legend.label_text_font_size = "11px"
         self.figure = fig
         self.units.selected.on_change("indices", self._on_select)
-        self.pane = pn.pane.Bokeh(fig, sizing_mode="stretch_both", min_height=520,
-                                  css_classes=["zone-map"])
+        self.pane = pn.pane.Bokeh(fig, sizing_mode="stretch_width", height=560)
         self._refresh_today()
         self.refresh()
         state.param.watch(lambda e: self.refresh(), ["plan_version", "edits_version"])
@@ -396,7 +397,7 @@ class MapView(pn.viewable.Viewer):
                 "or lasso tool (toolbar) to select several; shift-click adds. Hatched with a "
                 "black outline = locked; dotted = a school is forbidden.</span>"),
         )
-        return pn.Column(toggles, self.pane, sizing_mode="stretch_both", min_height=560)
+        return pn.Column(toggles, self.pane, sizing_mode="stretch_width")
 
 
 # ---------------------------------------------------------------------- side panels
@@ -611,16 +612,16 @@ class SitesTable(pn.viewable.Viewer):
             "site_id": df["site_id"], "school": df["name"], "status": df["status"],
             "capacity": df["capacity"],
             "max_pct": df["max_util"].map(_pct), "min_pct": df["min_util"].map(_pct),
-            "today": df["today"],
         })
         for y in years:
-            out[f"students {y}"] = df[f"students_{y}"]
-        for y in years:
             out[f"use {y} %"] = df[f"util_{y}"].map(_pct)
+        out["flag"] = df["flag"]
+        out["today"] = df["today"]
+        for y in years:
+            out[f"students {y}"] = df[f"students_{y}"]
         out["moved in"] = df["moved_in"]
         out["moved out"] = df["moved_out"]
         out["mean km"] = df["mean_km"]
-        out["flag"] = df["flag"]
         return out
 
     def _update(self, *events) -> None:
