@@ -64,8 +64,11 @@ class Progress:
 
 def plan_summary(outcome) -> str:
     """A few lines on a plan: status, travel, moves, schools out of band."""
-    plan, m = outcome.plan, outcome.metrics
-    prob = outcome.problem
+    plan, prob = outcome.plan, outcome.problem
+    if not plan.feasible:
+        return f"  {outcome.level}: {plan.status}, no plan\n    " + plan.message.replace(
+            "\n", "\n    ")
+    m = outcome.metrics
     total = prob.demand[0].sum()
     oob = [outcome.site_ids[j] for j in range(prob.n_sites) if m.out_of_band[j]]
     opened = int(plan.open_sites.sum())
@@ -164,8 +167,10 @@ def cmd_packet(args) -> int:
     inputs = _load(args.project)
     names = [n.strip() for n in args.options.split(",") if n.strip()]
     outcomes = [load_option(inputs, n) for n in names]
-    pages = write_packet(outcomes, Path(args.out))
-    print(f"wrote {args.out} ({len(pages)} pages) for options {', '.join(names)}")
+    pdf = Path(args.out)
+    written = write_packet(outcomes, pdf, png_folder=pdf.parent / f"{pdf.stem}-pages")
+    print(f"wrote {pdf} ({len(written) - 1} pages, PNG copies in {pdf.stem}-pages/) "
+          f"for options {', '.join(names)}")
     return 0
 
 
@@ -206,8 +211,8 @@ def cmd_demo(args) -> int:
             export_all(outcome, out / name)
             outcomes.append(outcome)
         pdf = out / f"packet-{level}.pdf"
-        pages = write_packet(outcomes, pdf, png_folder=out / f"packet-{level}")
-        print(f"  hearing packet: {pdf} ({len(pages)} pages)")
+        written = write_packet(outcomes, pdf, png_folder=out / f"packet-{level}-pages")
+        print(f"  hearing packet: {pdf} ({len(written) - 1} pages)")
     print(f"\nAll outputs in {out} ({time.perf_counter() - started:.1f} s).")
     print(DRAFT_NOTICE)
     return 0

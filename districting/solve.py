@@ -211,7 +211,9 @@ class _HighsBackend:
         lp.integrality_ = [highspy.HighsVarType.kInteger] * ncol
         self.ncol = ncol
         self.lower0 = lower
-        self.upper0 = upper
+        self.upper = upper.copy()  # permanent bounds (reduced-cost fixing lowers them)
+        self._temp: np.ndarray | None = None  # columns a heuristic turned off for a while
+        self._lp: tuple[float, np.ndarray, np.ndarray] | None = None
         h = highspy.Highs()
         h.setOptionValue("output_flag", False)
         h.setOptionValue("threads", int(threads))
@@ -343,34 +345,78 @@ class _HighsBackend:
         msg = "" if status != "error" else f"HiGHS stopped: {h.modelStatusToString(st)}"
         return _Answer(status, a, obj, bound if np.isfinite(bound) else -np.inf, msg)
 
-    def fix_by_reduced_cost(self, ub: float) -> int:
-        """Reduced-cost fixing against a valid plan of cost ``ub``; returns columns fixed.
+    def relaxation(self) -> tuple[float, np.ndarray, np.ndarray] | None:
+        """The LP relaxation of the model as built (no integrality): (z_LP, x, rc).
 
-        Solves the LP relaxation (current rows, no integrality) and sets x[i,j] <= 0 where
-        z_LP + rc[i,j] > ub: any solution using that pair costs more than the known plan.
+        Solved once and kept: rows added later (cuts) only cut the LP's feasible set, so
+        z_LP stays a lower bound and the reduced-cost test below stays valid.
         """
+        if self._lp is not None or self.infeasible_reason:
+            return self._lp
         hs, h = self._hs, self.h
-        k = len(self.xi)
         allc = np.arange(self.ncol, dtype=np.int32)
         h.changeColsIntegrality(self.ncol, allc,
                                 np.full(self.ncol, hs.HighsVarType.kContinuous))
         h.setOptionValue("time_limit", np.inf)
         h.run()
-        ok = h.getModelStatus() == hs.HighsModelStatus.kOptimal
-        fixed = 0
-        if ok:
-            z = float(h.getInfo().objective_function_value)
-            rc = np.asarray(h.getSolution().col_dual)[:k]
-            lower = np.asarray(h.getLp().col_lower_)[:k]
-            slack = max(abs(ub), 1.0) * 1e-9
-            drop = np.flatnonzero((z + rc > ub + slack) & (lower < 0.5))
-            if len(drop):
-                h.changeColsBounds(len(drop), drop.astype(np.int32), np.zeros(len(drop)),
-                                   np.zeros(len(drop)))
-            fixed = len(drop)
+        if h.getModelStatus() == hs.HighsModelStatus.kOptimal:
+            sol = h.getSolution()
+            k = len(self.xi)
+            self._lp = (float(h.getInfo().objective_function_value),
+                        np.asarray(sol.col_value)[:k].copy(),
+                        np.asarray(sol.col_dual)[:k].copy())
         h.changeColsIntegrality(self.ncol, allc, np.full(self.ncol, hs.HighsVarType.kInteger))
-        self.fixed += fixed
-        return fixed
+        return self._lp
+
+    def fix_by_reduced_cost(self, ub: float) -> int:
+        """Reduced-cost fixing against a valid plan of cost ``ub``; returns columns fixed.
+
+        For the LP relaxation min c x with optimum z_LP and reduced costs rc, every feasible
+        x satisfies c x >= z_LP + sum_k rc_k x_k over the columns nonbasic at their lower
+        bound 0 (rc_k >= 0). A plan using pair k therefore costs at least z_LP + rc_k; when
+        that exceeds ``ub`` (the cost of a valid plan in hand) no better plan uses k, and
+        x_k <= 0 is fixed for good. Columns at their upper bound have rc <= 0 and are never
+        fixed. Redone (with the same LP) whenever a better plan lowers ``ub``.
+        """
+        lp = self.relaxation()
+        if lp is None or not np.isfinite(ub):
+            return 0
+        z, xv, rc = lp
+        slack = max(abs(ub), 1.0) * 1e-9
+        k = len(self.xi)
+        drop = np.flatnonzero((z + rc > ub + slack) & (self.lower0[:k] < 0.5)
+                              & (self.upper[:k] > 0.5) & (xv < 0.5))
+        if len(drop):
+            self.upper[drop] = 0.0
+            if self._temp is None or not len(self._temp):
+                self.h.changeColsBounds(len(drop), drop.astype(np.int32), self.lower0[drop],
+                                        self.upper[drop])
+            else:
+                self._temp = np.union1d(self._temp, drop)
+                self._apply(self._temp, np.zeros(len(self._temp)))
+        self.fixed += len(drop)
+        return len(drop)
+
+    def _apply(self, cols: np.ndarray, upper: np.ndarray) -> None:
+        if len(cols):
+            self.h.changeColsBounds(len(cols), cols.astype(np.int32), self.lower0[cols], upper)
+
+    def restrict(self, off: np.ndarray) -> None:
+        """Heuristic only: columns ``off`` get upper bound 0 until :meth:`unrestrict`."""
+        self.unrestrict()
+        off = np.asarray(off, np.int64)
+        off = off[self.lower0[off] < 0.5]
+        self._temp = off
+        self._apply(off, np.zeros(len(off)))
+
+    def unrestrict(self) -> None:
+        if self._temp is not None:
+            self._apply(self._temp, self.upper[self._temp])
+            self._temp = None
+
+    def column(self, units: np.ndarray, sites: np.ndarray) -> np.ndarray:
+        """Column index per (unit, site) pair (-1: no column)."""
+        return self.colmap[units, sites]
 
 
 def _undominated(d: np.ndarray, larger: bool) -> list[int]:
@@ -482,6 +528,74 @@ def _prepare_start(problem: Problem, graph: cg.UnitGraph | None, start) -> np.nd
     return a
 
 
+class _Run:
+    """Book-keeping of one solve: best valid plan, bound, rounds, history."""
+
+    def __init__(self, problem: Problem, graph: cg.UnitGraph | None, t0: float,
+                 time_limit: float | None, progress) -> None:
+        self.problem, self.graph, self.t0 = problem, graph, t0
+        self.time_limit = time_limit
+        self.progress = progress
+        self.best: np.ndarray | None = None
+        self.best_obj = np.inf
+        self.bound = -np.inf
+        self.history: list[Round] = []
+        self.rounds = 0
+        self.build = 0.0
+
+    def elapsed(self) -> float:
+        return time.monotonic() - self.t0
+
+    def left(self) -> float | None:
+        return None if self.time_limit is None else self.time_limit - self.elapsed()
+
+    def consider(self, a: np.ndarray | None) -> bool:
+        """Keep ``a`` when it is a valid plan (independent check) cheaper than the best."""
+        if a is None:
+            return False
+        a = np.asarray(a, np.int64)
+        obj = _objective(self.problem, a)
+        if obj >= self.best_obj - _TOL * max(1.0, abs(obj)):
+            return False
+        if cg.plan_checks(self.problem, a, self.graph):
+            return False
+        self.best, self.best_obj = a.copy(), obj
+        return True
+
+    def gap(self) -> float:
+        return relative_gap(self.best_obj, min(self.bound, self.best_obj))
+
+    def record(self, added: int, n_frag: int, heuristic: bool = False) -> None:
+        self.rounds += 1
+        r = Round(self.rounds, self.best_obj, min(self.bound, self.best_obj), self.gap(),
+                  added, n_frag, self.elapsed())
+        self.history.append(r)
+        if self.progress is not None:
+            self.progress(r)
+
+    def plan(self, status: str, message: str, route: str, n_cuts: int, gap: float) -> Plan:
+        problem = self.problem
+        bound = min(self.bound, self.best_obj)
+        if self.best is None:
+            msg = message or (
+                "no plan that meets every constraint was found within the time limit"
+                if status == "time_limit" else "no plan that meets every constraint was found")
+            st = status if status in ("time_limit", "cancelled") else "infeasible"
+            return Plan(st, np.inf, bound, np.inf, np.full(problem.n_units, -1, np.int64),
+                        np.zeros(problem.n_sites, bool), message=msg, rounds=self.rounds,
+                        cuts=n_cuts, build_seconds=self.build, solve_seconds=self.elapsed(),
+                        history=tuple(self.history), route=route)
+        opened = cg.open_from_assignment(problem, self.best)
+        g = relative_gap(self.best_obj, bound)
+        if status == "feasible" and g <= gap + 1e-12:
+            status = "optimal"
+        return Plan(status=status, objective=self.best_obj, bound=float(bound), gap=g,
+                    assignment=self.best, open_sites=opened, message=message,
+                    rounds=self.rounds, cuts=n_cuts, build_seconds=self.build,
+                    solve_seconds=self.elapsed(), history=tuple(self.history),
+                    metrics=plan_metrics(problem, self.best, opened), route=route)
+
+
 class Session:
     """A solver that keeps its built model, cuts and best plan between re-solves.
 
@@ -535,7 +649,14 @@ class Session:
         start=None,
         max_rounds: int = 200,
     ) -> Plan:
-        """Solve the current problem; ``start`` defaults to the last plan of this session."""
+        """Solve the current problem; ``start`` defaults to the last plan of this session.
+
+        Stage 1 (highs route): the LP relaxation gives a first lower bound, and the
+        fix-and-resolve heuristic (:meth:`_fix_and_resolve`) a first valid plan, which
+        reduced-cost fixing then uses to shrink the model. Stage 2: exact rounds on the
+        model without any heuristic restriction (separator cuts only), each warm-started
+        from the best valid plan, until the gap is within ``gap``.
+        """
         t0 = time.monotonic()
         problem = self.problem
         route = self.solver
@@ -553,62 +674,67 @@ class Session:
             backend = self._ensure_backend(passable if relaxed else None)
         except (ImportError, RuntimeError, ValueError) as exc:
             return self._finish(_failed(problem, f"could not build the model: {exc}", route))
-        build = self.build_seconds
+        run = _Run(problem, graph, t0, time_limit, progress)
+        run.build = self.build_seconds
         self.build_seconds = 0.0
-        best: np.ndarray | None = None
-        best_obj = np.inf
         cand = _prepare_start(problem, graph, start)
-        if cand is not None and not cg.plan_checks(problem, cand, graph):
-            best, best_obj = cand, _objective(problem, cand)
-        hint = best if best is not None else cand
+        if cand is not None:
+            run.consider(cand)
+        hint = run.best if run.best is not None else cand
         if hint is not None and cg.plan_checks(problem, hint, graph, contiguity=False):
             hint = None
-        bound = -np.inf
-        history: list[Round] = []
         status = "feasible"
         message = ""
-        rounds = 0
-        fixed_once = False
-        for rnd in range(1, max_rounds + 1):
+        # ---- stage 1: LP bound, heuristic plan, reduced-cost fixing
+        lp = backend.relaxation()
+        if lp is not None:
+            run.bound = max(run.bound, lp[0])
+            self._fix_and_resolve(backend, run, gap, cancel, relaxed, passable)
+            if run.best is not None:
+                backend.fix_by_reduced_cost(run.best_obj)
+        fixed_at = run.best_obj
+        # ---- stage 2: exact rounds
+        for _ in range(max_rounds):
+            if run.best is not None and run.gap() <= gap + 1e-12:
+                status = "optimal"
+                break
             if cancel is not None and cancel():
                 status = "cancelled"
                 break
-            left = None if time_limit is None else time_limit - (time.monotonic() - t0)
+            left = run.left()
             if left is not None and left <= 0:
                 status = "time_limit"
                 break
-            rounds = rnd
-            if (best is not None and not fixed_once and problem.contiguous and rnd > 1):
-                backend.fix_by_reduced_cost(best_obj)  # cuts will follow: shrink the MIP once
-                fixed_once = True
-            ans = backend.solve(gap, left, best if best is not None else hint, cancel)
+            if run.best_obj < fixed_at:
+                backend.fix_by_reduced_cost(run.best_obj)
+                fixed_at = run.best_obj
+            backend.unrestrict()
+            ans = backend.solve(gap, left, run.best if run.best is not None else hint, cancel)
             if ans.status == "infeasible":
-                if best is None:
+                if run.best is None:
                     message = _explain(problem) or ans.message
-                    return self._finish(_infeasible(problem, message, route, rounds, history,
-                                                    build, time.monotonic() - t0))
-                bound = best_obj  # every cut is valid: nothing beats the plan in hand
+                    return self._finish(_infeasible(problem, message, route, run.rounds,
+                                                    run.history, run.build, run.elapsed()))
+                run.bound = run.best_obj  # every cut and fix is valid: nothing beats the plan
                 status = "optimal"
                 break
             if ans.status == "error":
                 message = ans.message
-                if best is None:
+                if run.best is None:
                     return self._finish(_failed(problem, message, route))
-                status = "feasible"
                 break
-            bound = max(bound, ans.bound)
+            if ans.status in ("optimal", "time_limit", "cancelled", "feasible"):
+                run.bound = max(run.bound, ans.bound)
             n_frag, added = 0, 0
             if ans.assignment is not None:
                 a = ans.assignment
                 if graph is None:
-                    if ans.objective < best_obj:
-                        best, best_obj = a, ans.objective
+                    run.consider(a)
                 else:
                     n_frag = len(cg.fragments(problem, graph, a))
                     b, detached = cg.reassign_empty(problem, graph, a)
-                    if not detached.any() and not cg.plan_checks(problem, b, graph):
-                        if ans.objective < best_obj - _TOL or best is None:
-                            best, best_obj = b, _objective(problem, b)
+                    if not detached.any() and run.consider(b):
+                        pass
                     else:
                         cuts = cg.separator_cuts(problem, graph, a, only=detached,
                                                  passable=passable, strict=relaxed)
@@ -618,72 +744,112 @@ class Session:
                             # empty units must join the MIP: only cuts through them are left
                             relaxed, self._full, self._backend = False, True, None
                             backend = self._ensure_backend(None)
-                            build += self.build_seconds
+                            run.build += self.build_seconds
+                            if backend.relaxation() is not None and run.best is not None:
+                                backend.fix_by_reduced_cost(run.best_obj)
                             added = -1
                         fixed = cg.repair(problem, graph, a)
                         if fixed is not None:
-                            fixed = cg.improve(problem, graph, fixed)
-                            if not cg.plan_checks(problem, fixed, graph):
-                                obj = _objective(problem, fixed)
-                                if obj < best_obj:
-                                    best, best_obj = fixed, obj
-            bound = min(bound, best_obj) if best is not None else bound
-            g = relative_gap(best_obj, bound)
-            elapsed = time.monotonic() - t0
-            history.append(Round(rnd, best_obj, bound, g, max(added, 0), n_frag, elapsed))
-            if progress is not None:
-                progress(history[-1])
-            if best is not None and g <= gap + 1e-12:
+                            run.consider(cg.improve(problem, graph, fixed))
+                        if run.best is None and backend.relaxation() is not None:
+                            self._fix_and_resolve(backend, run, gap, cancel, relaxed, passable)
+            run.record(max(added, 0), n_frag)
+            if run.best is not None and run.gap() <= gap + 1e-12:
                 status = "optimal"
                 break
             if ans.status == "cancelled":
                 status = "cancelled"
                 break
-            if ans.status == "time_limit" and (
-                time_limit is not None and time.monotonic() - t0 >= time_limit - 1e-3
-            ):
+            if ans.status == "time_limit" and run.left() is not None and run.left() <= 1e-3:
                 status = "time_limit"
                 break
             if added == 0 and ans.assignment is not None and graph is not None:
                 # the MIP answer is contiguous after re-handing empty units, yet the gap
                 # is open: only the MIP's own gap is left; solving again cannot add cuts
-                status = "feasible" if ans.status == "optimal" else status
                 if ans.status == "optimal":
                     break
             if graph is None and ans.status == "optimal":
                 break
-        solve_s = time.monotonic() - t0
-        if best is None:
-            msg = message or (
-                "no plan that meets every constraint was found within the time limit"
-                if status == "time_limit" else "no plan that meets every constraint was found")
-            st = status if status in ("time_limit", "cancelled") else "infeasible"
-            plan = Plan(st, np.inf, bound, np.inf, np.full(problem.n_units, -1, np.int64),
-                        np.zeros(problem.n_sites, bool), message=msg, rounds=rounds,
-                        cuts=len(self.cuts), build_seconds=build, solve_seconds=solve_s,
-                        history=tuple(history), route=route)
-            return self._finish(plan)
-        opened = cg.open_from_assignment(problem, best)
-        g = relative_gap(best_obj, bound)
-        if status == "feasible" and g <= gap + 1e-12:
-            status = "optimal"
-        plan = Plan(
-            status=status,
-            objective=best_obj,
-            bound=float(bound),
-            gap=g,
-            assignment=best,
-            open_sites=opened,
-            message=message,
-            rounds=rounds,
-            cuts=len(self.cuts),
-            build_seconds=build,
-            solve_seconds=solve_s,
-            history=tuple(history),
-            metrics=plan_metrics(problem, best, opened),
-            route=route,
-        )
-        return self._finish(plan)
+        else:
+            status = "feasible"
+        backend.unrestrict()
+        return self._finish(run.plan(status, message, route, len(self.cuts), gap))
+
+    def _fix_and_resolve(self, backend, run: _Run, gap: float, cancel, relaxed: bool,
+                         passable: np.ndarray | None, max_rounds: int = 60) -> None:
+        """Heuristic: a valid plan from MIP answers on a restricted copy of the model.
+
+        The model is restricted (temporary column bounds, undone at the end) to the pairs
+        whose LP reduced cost is small (plus the pairs the LP or the best plan uses). After
+        each answer the empty units are handed out again; every unit still cut from its
+        zone's root loses that pair (its column is turned off) and the separator cuts of
+        the answer are added (they are valid for the exact model too), then the MIP is
+        solved again, warm-started. Each round removes pairs, so the loop ends; when the
+        restriction makes the MIP infeasible the reduced-cost threshold widens, and at the
+        widest the last batch of removals is halved (the units farthest from their site
+        stay removed). Any contiguous answer is checked and becomes a candidate plan.
+        """
+        problem, graph = self.problem, self._graph
+        lp = backend.relaxation()
+        if lp is None:
+            return
+        z, xv, rc = lp
+        k = len(xv)
+        scale = max(abs(z), 1.0)
+        levels = (2e-4, 2e-3, 2e-2, np.inf)
+        level = 0
+        must = (xv > 1e-6)
+        if run.best is not None:
+            c = backend.column(np.arange(problem.n_units), run.best)
+            must[c[c >= 0]] = True
+        forbid = np.zeros(k, bool)
+        batch = np.zeros(0, np.int64)
+        hgap = max(gap, 5e-4)
+        wc = problem.weighted_cost
+        for _ in range(max_rounds):
+            if cancel is not None and cancel():
+                break
+            left = run.left()
+            if left is not None and left <= 0:
+                break
+            keep = must | (rc <= levels[level] * scale)
+            backend.restrict(np.flatnonzero(~keep | forbid))
+            ans = backend.solve(hgap, left, run.best, cancel)
+            if ans.assignment is None:
+                if ans.status != "infeasible":
+                    break  # out of time, cancelled or an error: the exact side reports it
+                if level < len(levels) - 1:
+                    level += 1
+                elif len(batch) > 1:
+                    forbid[batch] = False
+                    far = np.argsort(-wc[backend.xi[batch], backend.xj[batch]], kind="stable")
+                    batch = batch[far[: len(batch) // 2]]
+                    forbid[batch] = True
+                else:
+                    break
+                continue
+            a = ans.assignment
+            if graph is None:
+                run.consider(a)
+                break
+            b, detached = cg.reassign_empty(problem, graph, a)
+            if not detached.any():
+                if run.consider(b):
+                    run.consider(cg.improve(problem, graph, b))
+                break
+            n_frag = len(cg.fragments(problem, graph, a))
+            cuts = cg.separator_cuts(problem, graph, a, only=detached, passable=passable,
+                                     strict=relaxed)
+            added = backend.add_cuts(cuts)
+            self.cuts.extend(cuts)
+            units = np.flatnonzero(detached)
+            cols = backend.column(units, a[units])
+            batch = cols[(cols >= 0) & ~forbid[np.maximum(cols, 0)]]
+            forbid[batch] = True
+            run.record(added, n_frag, heuristic=True)
+            if not len(batch) and not added:
+                break
+        backend.unrestrict()
 
     def _finish(self, plan: Plan) -> Plan:
         self.last = plan

@@ -92,6 +92,7 @@ class Store:
         self._evaluated: tuple = (None, None)
         self.last_message = ""
         self._export_dir: Path | None = None
+        self._exports: tuple = (None, {})
         self.restore()
 
     # ------------------------------------------------------------------ basics
@@ -382,10 +383,11 @@ class Store:
         if not out.plan.feasible:
             plan = out.plan
             if plan.status in ("time_limit", "cancelled"):
-                why = ("the time limit" if plan.status == "time_limit" else "the cancel")
-                msg = (f"No valid plan was found before {why} "
-                       f"({out.settings.time_limit:g} s). Raise the time limit in Settings, "
-                       "or remove locks and relax the utilization band, then press Rerun.")
+                why = (f"the time limit ({out.settings.time_limit:g} s)"
+                       if plan.status == "time_limit" else "you cancelled")
+                msg = (f"No valid plan was found before {why}; the plan on screen is "
+                       "unchanged. Raise the time limit in Settings, or remove locks and relax "
+                       "the utilization band, then press Rerun.")
             else:
                 msg = ("No plan fits these settings. " + (
                     plan.message or "Relax the utilization band, remove locks or forbids, "
@@ -620,7 +622,7 @@ class Store:
     def export(self, kind: str) -> Path:
         """Write one export of the plan on screen and return its path.
 
-        ``kind``: gpkg, geojson, shapefile, units_csv, summary_csv (via
+        ``kind``: gpkg, geojson, shapefile, units_csv, schools_csv (via
         :func:`districting.exports.export_all`) or packet (the PDF packet).
         """
         out = self.outcome
@@ -636,7 +638,9 @@ class Store:
             return pdf
         from districting.exports import export_all
 
-        files = export_all(out, folder)
+        if self._exports[0] is not out:  # one export_all per plan, however many buttons
+            self._exports = (out, export_all(out, folder))
+        files = self._exports[1]
         if kind not in files:
             raise StoreError(f"unknown export {kind!r} (exports: {', '.join(files)})")
         return Path(files[kind])

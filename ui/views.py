@@ -840,7 +840,7 @@ class DownloadsPanel(pn.viewable.Viewer):
         ("geojson", "GeoJSON zones (lon/lat)", "geojson"),
         ("shapefile", "Shapefile zones (.zip)", "zip"),
         ("units_csv", "CSV: unit -> school", "csv"),
-        ("summary_csv", "CSV: per-school summary", "csv"),
+        ("schools_csv", "CSV: per-school summary", "csv"),
         ("packet", "Hearing packet (PDF)", "pdf"),
     )
 
@@ -863,7 +863,7 @@ class DownloadsPanel(pn.viewable.Viewer):
         base = "no-plan" if out is None else (
             f"{_file_label(out.name or 'unsaved-result')}-{out.level}")
         for (kind, _label, ext), b in zip(self.KINDS, self.buttons, strict=True):
-            suffix = {"units_csv": "-units", "summary_csv": "-schools",
+            suffix = {"units_csv": "-units", "schools_csv": "-schools",
                       "packet": "-packet"}.get(kind, "")
             b.filename = f"{base}{suffix}.{ext}"
             b.disabled = out is None
