@@ -47,6 +47,7 @@ __all__ = [
     "improve",
     "plan_checks",
     "open_from_assignment",
+    "site_trees",
 ]
 
 _TOL = 1e-6
@@ -248,6 +249,39 @@ def free_units(problem: Problem) -> np.ndarray:
         r = problem.roots[(problem.roots >= 0) & ~problem.closed_sites]
         free[r] = False
     return free
+
+
+def site_trees(problem: Problem, graph: UnitGraph) -> np.ndarray:
+    """(m, n) parent of each unit in a shortest-path tree grown from each site's root.
+
+    Edge u-v weighs ``|t[u,j] - t[v,j]| + delta_j`` (t the travel to site j, delta_j a tenth
+    of the median such difference): paths run outwards from the site, so a zone that holds,
+    with each unit, its parent is connected, holds the root and is roughly star-shaped
+    around the site. Used only to steer the heuristic; -1 marks the root, a unit the tree
+    does not reach, and every unit of a site without a root.
+    """
+    from scipy.sparse.csgraph import dijkstra
+
+    n, m = problem.n_units, problem.n_sites
+    parent = np.full((m, n), -1, np.int64)
+    if problem.roots is None:
+        return parent
+    t = np.asarray(problem.travel, float)
+    u, v = graph.u, graph.v
+    for j in np.flatnonzero((problem.roots >= 0) & ~problem.closed_sites).tolist():
+        tj = t[:, j]
+        ok = np.isfinite(tj)
+        if not ok.any():
+            continue
+        tj = np.where(ok, tj, np.nanmax(np.where(ok, tj, np.nan)) * 2 + 1)
+        diff = np.abs(tj[u] - tj[v])
+        delta = 0.1 * float(np.median(diff)) if len(diff) else 1.0
+        w = diff + max(delta, 1e-9)
+        g = sp.csr_matrix((w, (u, v)), shape=(n, n))
+        _, pred = dijkstra(g, directed=True, indices=int(problem.roots[j]),
+                           return_predecessors=True)
+        parent[j] = np.where(pred >= 0, pred, -1)
+    return parent
 
 
 # ---------------------------------------------------------------------- feasibility checks

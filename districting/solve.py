@@ -214,6 +214,8 @@ class _HighsBackend:
         self.upper = upper.copy()  # permanent bounds (reduced-cost fixing lowers them)
         self._temp: np.ndarray | None = None  # columns a heuristic turned off for a while
         self._lp: tuple[float, np.ndarray, np.ndarray] | None = None
+        self._tree: np.ndarray | None = None  # rows of the heuristic's site trees
+        self._tree_off = np.zeros(0, np.int64)
         h = highspy.Highs()
         h.setOptionValue("output_flag", False)
         h.setOptionValue("threads", int(threads))
@@ -414,6 +416,46 @@ class _HighsBackend:
             self._apply(self._temp, self.upper[self._temp])
             self._temp = None
 
+    def tree_rows(self, parent: np.ndarray) -> np.ndarray:
+        """Add the rows x[i,j] <= x[q,j] (q: i's nearest ancestor with a column in site j's
+        tree, :func:`districting.contiguity.site_trees`), inactive until :meth:`trees` turns
+        them on. Returns the pair columns a tree-shaped zone cannot use (ancestor without a
+        column, unit not reached). Heuristic only: a tree restricts the plans.
+        """
+        p = self.problem
+        xi, xj = self.xi, self.xj
+        k = len(xi)
+        q = parent[xj, xi].copy()
+        for _ in range(p.n_units):  # climb over units left out of the model
+            up = (q >= 0) & self.drop[np.maximum(q, 0)]
+            if not up.any():
+                break
+            q[up] = parent[xj[up], q[up]]
+        roots = p.roots if p.roots is not None else np.full(p.n_sites, -1)
+        free_site = roots[xj] < 0
+        is_root = xi == roots[xj]
+        qc = np.where(q >= 0, self.colmap[np.maximum(q, 0), xj], -1)
+        off = ~free_site & ~is_root & (qc < 0)
+        rows = np.flatnonzero(~free_site & ~is_root & (qc >= 0))
+        nr = len(rows)
+        r0 = self.h.getNumRow()
+        if nr:
+            starts = np.arange(0, 2 * nr, 2, dtype=np.int32)
+            idx = np.column_stack([rows, qc[rows]]).ravel().astype(np.int32)
+            val = np.tile([1.0, -1.0], nr)
+            self.h.addRows(nr, np.full(nr, -np.inf), np.full(nr, np.inf), 2 * nr, starts,
+                           idx, val)
+        self._tree = np.arange(r0, r0 + nr, dtype=np.int32)
+        self._tree_off = np.flatnonzero(off[:k])
+        return self._tree_off
+
+    def trees(self, on: bool) -> None:
+        """Turn the tree rows on (upper bound 0) or off (free rows)."""
+        t = self._tree
+        if t is not None and len(t):
+            self.h.changeRowsBounds(len(t), t, np.full(len(t), -np.inf),
+                                    np.full(len(t), 0.0 if on else np.inf))
+
     def column(self, units: np.ndarray, sites: np.ndarray) -> np.ndarray:
         """Column index per (unit, site) pair (-1: no column)."""
         return self.colmap[units, sites]
@@ -611,6 +653,7 @@ class Session:
         self.last: Plan | None = None
         self._backend = None
         self._full = False  # True once empty units had to join the MIP
+        self._parents: np.ndarray | None = None
         self._graph = cg.UnitGraph.of(problem) if problem.contiguous else None
         self.build_seconds = 0.0
 
@@ -802,9 +845,18 @@ class Session:
         if run.best is not None:
             c = backend.column(np.arange(problem.n_units), run.best)
             must[c[c >= 0]] = True
+        tree_off = None
+        if graph is not None and problem.roots is not None:
+            if backend._tree is None:
+                self._parents = cg.site_trees(problem, graph)
+                backend.tree_rows(self._parents)
+            parents = self._parents
+            tree_off = np.zeros(k, bool)
+            tree_off[backend._tree_off] = True
+        backend.trees(tree_off is not None)
         forbid = np.zeros(k, bool)
         batch = np.zeros(0, np.int64)
-        hgap = max(gap, 5e-4)
+        hgap = max(gap, 2e-3)
         wc = problem.weighted_cost
         for _ in range(max_rounds):
             if cancel is not None and cancel():
@@ -813,13 +865,22 @@ class Session:
             if left is not None and left <= 0:
                 break
             keep = must | (rc <= levels[level] * scale)
-            backend.restrict(np.flatnonzero(~keep | forbid))
-            ans = backend.solve(hgap, left, run.best, cancel)
+            off = ~keep | forbid
+            if tree_off is not None:
+                off |= tree_off & ~must
+            backend.restrict(np.flatnonzero(off))
+            cap_s = None if left is None else max(0.05, 0.3 * left)
+            ans = backend.solve(hgap, cap_s, run.best, cancel)
             if ans.assignment is None:
-                if ans.status != "infeasible":
-                    break  # out of time, cancelled or an error: the exact side reports it
+                if ans.status not in ("infeasible", "time_limit"):
+                    break  # cancelled or an error: the exact side reports it
+                if ans.status == "time_limit" and tree_off is None:
+                    break  # the exact rounds get the time that is left
                 if level < len(levels) - 1:
                     level += 1
+                elif tree_off is not None:
+                    tree_off, level = None, 0  # zones need not follow the trees
+                    backend.trees(False)
                 elif len(batch) > 1:
                     forbid[batch] = False
                     far = np.argsort(-wc[backend.xi[batch], backend.xj[batch]], kind="stable")
@@ -832,10 +893,15 @@ class Session:
             if graph is None:
                 run.consider(a)
                 break
+            a = _claim_tree_paths(a, backend.drop, parents) if tree_off is not None else a
             b, detached = cg.reassign_empty(problem, graph, a)
             if not detached.any():
                 if run.consider(b):
                     run.consider(cg.improve(problem, graph, b))
+                break
+            fixed = cg.repair(problem, graph, a)
+            if fixed is not None and run.consider(fixed):
+                run.consider(cg.improve(problem, graph, run.best))
                 break
             n_frag = len(cg.fragments(problem, graph, a))
             cuts = cg.separator_cuts(problem, graph, a, only=detached, passable=passable,
@@ -849,11 +915,94 @@ class Session:
             run.record(added, n_frag, heuristic=True)
             if not len(batch) and not added:
                 break
+        backend.trees(False)
+        backend.unrestrict()
+        if graph is not None and run.best is not None:
+            self._polish(backend, run, min(gap, 1e-4), cancel, relaxed, passable)
+
+    def _polish(self, backend, run: _Run, hgap: float, cancel, relaxed: bool,
+                passable: np.ndarray | None, max_rounds: int = 40) -> None:
+        """Improve the best plan by MIPs over its neighbourhood (heuristic).
+
+        Columns are restricted to each unit's own zone and the zones of its neighbours in
+        the best plan; units left cut off lose that pair and the MIP is solved again
+        (fix-and-resolve); each better contiguous plan recentres the neighbourhood.
+        """
+        problem, graph = self.problem, self._graph
+        n = problem.n_units
+        k = len(backend.xi)
+        forbid = np.zeros(k, bool)
+        centre = None
+        for _ in range(max_rounds):
+            if cancel is not None and cancel():
+                break
+            left = run.left()
+            if left is not None and left <= 0.5:
+                break
+            if centre is None or not np.array_equal(centre, run.best):
+                centre = run.best.copy()
+                forbid[:] = False
+                nb = np.zeros(k, bool)
+                c = backend.column(np.arange(n), centre)
+                nb[c[c >= 0]] = True
+                c = backend.column(graph.u, centre[graph.v])
+                nb[c[c >= 0]] = True
+            backend.restrict(np.flatnonzero(~nb | forbid))
+            cap_s = None if left is None else max(0.05, 0.3 * left)
+            before = run.best_obj
+            ans = backend.solve(hgap, cap_s, run.best, cancel)
+            if ans.assignment is None or ans.objective >= before - _TOL * max(1.0, before):
+                break
+            a = ans.assignment
+            b, detached = cg.reassign_empty(problem, graph, a)
+            if not detached.any():
+                if run.consider(b):
+                    run.consider(cg.improve(problem, graph, run.best))
+                    continue
+                break
+            fixed = cg.repair(problem, graph, a)
+            if fixed is not None:
+                run.consider(cg.improve(problem, graph, fixed))
+            cuts = cg.separator_cuts(problem, graph, a, only=detached, passable=passable,
+                                     strict=relaxed)
+            added = backend.add_cuts(cuts)
+            self.cuts.extend(cuts)
+            units = np.flatnonzero(detached)
+            cols = backend.column(units, a[units])
+            cols = cols[(cols >= 0) & ~forbid[np.maximum(cols, 0)]]
+            forbid[cols] = True
+            run.record(added, len(cg.fragments(problem, graph, a)), heuristic=True)
+            if not len(cols):
+                break
         backend.unrestrict()
 
     def _finish(self, plan: Plan) -> Plan:
         self.last = plan
         return plan
+
+
+def _claim_tree_paths(a: np.ndarray, drop: np.ndarray, parents: np.ndarray) -> np.ndarray:
+    """Units left out of the MIP (``drop``) on the tree path from a zone's units to its root
+    join that zone (when one zone alone claims them), so tree-shaped zones stay connected."""
+    a = np.asarray(a, np.int64).copy()
+    m = parents.shape[0]
+    claims = np.zeros(len(a), np.int64)
+    owner = np.full(len(a), -1, np.int64)
+    for j in range(m):
+        par = parents[j]
+        cur = np.flatnonzero((a == j) & ~drop)
+        need = np.zeros(len(a), bool)
+        while len(cur):
+            q = par[cur]
+            q = q[(q >= 0)]
+            q = q[drop[q] & ~need[q]]
+            need[q] = True
+            cur = q
+        claims += need
+        owner[need] = j
+    one = drop & (claims == 1)
+    a[one] = owner[one]
+    return a
 
 
 def _same(a, b) -> bool:
