@@ -15,8 +15,14 @@ setup_venv() {
   fi
   stamp="$venv/.installed-$(sha256sum pyproject.toml | cut -c1-16)"
   if [ ! -f "$stamp" ]; then
-    "$venv/bin/python" -m pip install --quiet --upgrade pip
-    "$venv/bin/python" -m pip install --quiet -e ".[test]"
+    echo "setting up $venv (a few minutes on a new machine)..." >&2
+    log="$venv/install.log"
+    if ! { "$venv/bin/python" -m pip install --upgrade pip &&
+           "$venv/bin/python" -m pip install -e ".[test]"; } >"$log" 2>&1; then
+      tail -30 "$log" >&2
+      echo "installing the project failed; the whole log is in $log" >&2
+      exit 1
+    fi
     rm -f "$venv"/.installed-*
     touch "$stamp"
   fi

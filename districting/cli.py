@@ -200,7 +200,8 @@ def cmd_demo(args) -> int:
         for suffix, extra in variants:
             name = f"{level}-{suffix}"
             progress = Progress(name)
-            outcome = run(inputs, RunSettings(level=level, **extra), name=name, progress=progress)
+            rs = RunSettings(level=level, time_limit=args.time_limit, **extra)
+            outcome = run(inputs, rs, name=name, progress=progress)
             progress.done()
             print(f"option {name}:")
             print(plan_summary(outcome))
@@ -268,6 +269,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--out", default="out/demo", help="output folder (default out/demo)")
     p.add_argument("--stability-weight", type=float, default=3000.0,
                    help="weight of the 'fewer-moves' option (metres per student moved)")
+    p.add_argument("--time-limit", type=float, default=60.0,
+                   help="seconds per solve; the best plan found is kept, with its gap")
     p.set_defaults(func=cmd_demo)
 
     for ep in entry_points(group="districting.commands"):

@@ -47,6 +47,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from . import contiguity as cg
+from . import localsearch
 from .plan import Plan, Round, plan_metrics, relative_gap
 from .problem import Problem
 
@@ -216,8 +217,7 @@ class _HighsBackend:
         self._lp: tuple[float, np.ndarray, np.ndarray] | None = None
         self._tree: np.ndarray | None = None  # rows of the heuristic's site trees
         self._tree_off = np.zeros(0, np.int64)
-        h = highspy.Highs()
-        h.setOptionValue("output_flag", False)
+        h = _quiet_highs()
         h.setOptionValue("threads", int(threads))
         h.setOptionValue("presolve", "on")
         h.passModel(lp)
@@ -461,6 +461,27 @@ class _HighsBackend:
         return self.colmap[units, sites]
 
 
+def _quiet_highs():
+    """A Highs object with no output: its constructor prints a banner on the C stdout,
+    which would break the CLI's tables and pipes, so file descriptor 1 is muted meanwhile."""
+    import os
+    import sys
+
+    import highspy
+
+    sys.stdout.flush()
+    saved = os.dup(1)
+    try:
+        with open(os.devnull, "wb") as null:
+            os.dup2(null.fileno(), 1)
+            h = highspy.Highs()
+            h.setOptionValue("output_flag", False)
+    finally:
+        os.dup2(saved, 1)
+        os.close(saved)
+    return h
+
+
 def _undominated(d: np.ndarray, larger: bool) -> list[int]:
     """Demand rows not implied by another row (for capacity: rows no other row covers)."""
     keep: list[int] = []
@@ -521,6 +542,13 @@ class _PyomoBackend:
         bound = float(r.bound) if r.bound is not None and np.isfinite(r.bound) else -np.inf
         msg = getattr(r, "message", "") or ("" if status != "error" else f"{self.name}: error")
         return _Answer(status, a, obj, bound, msg)
+
+    def relaxation(self) -> None:
+        """No LP pass on this route: its bound comes from the solver's own answers."""
+        return None
+
+    def unrestrict(self) -> None:
+        """Nothing to undo: this route never restricts columns for the heuristic."""
 
     def fix_by_reduced_cost(self, ub: float) -> int:
         return 0
@@ -732,9 +760,10 @@ class Session:
         lp = backend.relaxation()
         if lp is not None:
             run.bound = max(run.bound, lp[0])
-            self._fix_and_resolve(backend, run, gap, cancel, relaxed, passable)
             if run.best is not None:
                 backend.fix_by_reduced_cost(run.best_obj)
+        # the heuristic (fix-and-resolve) runs after the first exact round only when the
+        # repair of that round's answer (localsearch.make_valid) found no valid plan
         fixed_at = run.best_obj
         # ---- stage 2: exact rounds
         for _ in range(max_rounds):
@@ -752,7 +781,10 @@ class Session:
                 backend.fix_by_reduced_cost(run.best_obj)
                 fixed_at = run.best_obj
             backend.unrestrict()
-            ans = backend.solve(gap, left, run.best if run.best is not None else hint, cancel)
+            # until a valid plan exists, cap each round so the repair and the heuristic get
+            # their turn well before the time limit (the MIP's incumbent is good enough)
+            budget = left if run.best is not None or left is None else max(2.0, 0.25 * left)
+            ans = backend.solve(gap, budget, run.best if run.best is not None else hint, cancel)
             if ans.status == "infeasible":
                 if run.best is None:
                     message = _explain(problem) or ans.message
@@ -794,6 +826,7 @@ class Session:
                         fixed = cg.repair(problem, graph, a)
                         if fixed is not None:
                             run.consider(cg.improve(problem, graph, fixed))
+                        run.consider(localsearch.make_valid(problem, graph, a))
                         if run.best is None and backend.relaxation() is not None:
                             self._fix_and_resolve(backend, run, gap, cancel, relaxed, passable)
             run.record(max(added, 0), n_frag)

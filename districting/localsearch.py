@@ -1,0 +1,411 @@
+"""Local search over contiguous plans: absorb fragments, rebalance loads, improve by swaps.
+
+The exact rounds in :mod:`districting.solve` hand back MIP answers that are nearly optimal
+but break contiguity in a few dozen small pieces (when capacity binds, the MIP fills a
+school with a scatter of small boundary units). These functions turn such an answer into a
+valid plan that stays close to it, so each round yields an upper bound near the MIP bound:
+
+1. :func:`absorb` -- every piece cut from its root joins the neighbouring zone it costs
+   least to join (capacity ignored for now), until every zone is connected;
+2. :func:`rebalance` -- boundary moves that keep every zone connected bring capacity and
+   floors back in band in every year; when no single move lowers the total excess, a move
+   that keeps it equal is taken towards the nearest zone with room (an ejection chain along
+   the zone graph, as in the ejection-chain methods of Glover, "Ejection chains, reference
+   structures and alternating path methods for traveling salesman problems", Discrete
+   Applied Mathematics 65, 1996);
+3. :func:`improve` -- cost-lowering single moves and pair swaps across zone borders that
+   keep every constraint and contiguity (the classic relocate / exchange neighbourhoods of
+   local search for the generalized assignment problem).
+
+All loads are kept for every demand row, so capacity and floors hold in every projected
+year. Locked units and sites' root units never move. Pure numpy plus breadth-first searches.
+"""
+
+from __future__ import annotations
+
+from collections import deque
+
+import numpy as np
+
+from .contiguity import UnitGraph, reassign_empty, zone_components
+from .problem import Problem
+
+__all__ = ["absorb", "rebalance", "improve", "make_valid"]
+
+_TOL = 1e-6
+
+
+def _fixed_units(problem: Problem) -> np.ndarray:
+    """Units that never move: locked units and the root unit of every site."""
+    fixed = problem.locks >= 0
+    if problem.roots is not None:
+        r = problem.roots[problem.roots >= 0]
+        fixed[r] = True
+    return fixed
+
+
+def _bands(problem: Problem, a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(m,) upper and lower load limits; sites that take nobody have no floor."""
+    m = problem.n_sites
+    if problem.capacity is None:
+        return np.full(m, np.inf), np.zeros(m)
+    used = np.zeros(m, bool)
+    used[a[a >= 0]] = True
+    used |= problem.always_open
+    hi = problem.max_util * problem.capacity
+    lo = np.where(used, problem.min_util * problem.capacity, 0.0)
+    return hi, lo
+
+
+def _loads(problem: Problem, a: np.ndarray) -> np.ndarray:
+    m = problem.n_sites
+    return np.stack([np.bincount(a, weights=row, minlength=m) for row in problem.demand])
+
+
+def _excess(load: np.ndarray, hi: np.ndarray, lo: np.ndarray) -> np.ndarray:
+    """Students above the cap plus students missing below the floor, per column."""
+    return (np.maximum(load - hi, 0.0) + np.maximum(lo - load, 0.0)).sum(axis=0)
+
+
+def _zone_connected_without(i: int, j: int, al: list[int], nbrs: list[list[int]]) -> bool:
+    """True when zone j stays connected after unit i leaves it (breadth-first search)."""
+    same = [w for w in nbrs[i] if al[w] == j]
+    if len(same) <= 1:
+        return True
+    targets = set(same[1:])
+    seen = {i, same[0]}
+    queue = deque([same[0]])
+    while queue:
+        u = queue.popleft()
+        for w in nbrs[u]:
+            if w not in seen and al[w] == j:
+                targets.discard(w)
+                if not targets:
+                    return True
+                seen.add(w)
+                queue.append(w)
+    return not targets
+
+
+def _zone_connected(j: int, al: list[int], nbrs: list[list[int]], start: int) -> bool:
+    """True when every unit of zone j is reachable from ``start`` inside zone j."""
+    size = sum(1 for x in al if x == j)
+    seen = {start}
+    queue = deque([start])
+    while queue:
+        u = queue.popleft()
+        for w in nbrs[u]:
+            if w not in seen and al[w] == j:
+                seen.add(w)
+                queue.append(w)
+    return len(seen) == size
+
+
+def _bridge(problem: Problem, graph: UnitGraph, b: np.ndarray, piece: np.ndarray, j: int,
+            target: np.ndarray, movable: np.ndarray) -> tuple[float, np.ndarray] | None:
+    """Cheapest chain of units that joins ``piece`` to ``target`` (zone j's root piece).
+
+    Dijkstra over the unit graph where entering unit w costs what moving w to j adds to the
+    objective (at least a tiny amount, so shorter chains win ties); units that may not move
+    or may not join j are closed. Returns (cost, chain units) or None.
+    """
+    from scipy.sparse import csr_matrix
+    from scipy.sparse.csgraph import dijkstra
+
+    n = graph.n
+    wc = problem.weighted_cost
+    step = wc[:, j] - wc[np.arange(n), b]
+    step = np.where(b == j, 0.0, np.maximum(step, 0.0)) + 1e-6
+    open_ = (movable | (b == j)) & problem.allowed[:, j]
+    head = graph.indices
+    keep = open_[head]
+    rows = np.repeat(np.arange(n), np.diff(graph.indptr))[keep]
+    g = csr_matrix((step[head[keep]], (rows, head[keep])), shape=(n, n))
+    dist, pred, _ = dijkstra(g, directed=True, indices=piece, min_only=True,
+                             return_predecessors=True)
+    reach = np.flatnonzero(target & np.isfinite(dist))
+    if not len(reach):
+        return None
+    end = int(reach[np.argmin(dist[reach])])
+    chain = []
+    inside = set(piece.tolist())
+    k = int(pred[end])
+    while k >= 0 and k not in inside:
+        chain.append(k)
+        k = int(pred[k])
+    return float(dist[end] - step[end]), np.array(chain, dtype=np.int64)
+
+
+def absorb(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
+           max_iter: int = 30) -> np.ndarray | None:
+    """Connect every zone, piece by piece, whichever way costs less.
+
+    Units with no students are handed out first (:func:`reassign_empty`). Each piece cut
+    from its root either joins the cheapest touching zone, or stays and pulls in the
+    cheapest chain of units that links it to its own root piece (:func:`_bridge`). A piece
+    holding a locked unit or a root can only be bridged. Zones split by a chain are mended
+    in the next pass; a unit taken into a chain is never taken again, so the passes end
+    (moving a whole piece never cuts another zone). Capacity is left to :func:`rebalance`.
+    """
+    a = np.asarray(assignment, dtype=np.int64).copy()
+    wc = problem.weighted_cost
+    allowed = problem.allowed
+    fixed = _fixed_units(problem)
+    settled = np.zeros(graph.n, bool)  # chain units: taken once, never taken again
+    for _ in range(max_iter):
+        b, detached = reassign_empty(problem, graph, a)
+        if not detached.any():
+            return b
+        labels = zone_components(graph, np.where(detached, b, -1))
+        pieces = [np.flatnonzero(labels == lab) for lab in np.unique(labels[detached])]
+        pieces.sort(key=len)
+        moved = False
+
+        for piece in pieces:
+            if not detached[piece[0]]:
+                continue
+            j = int(b[piece[0]])
+            mask = np.zeros(graph.n, bool)
+            mask[piece] = True
+            options: list[tuple[float, int, np.ndarray]] = []
+            if not fixed[piece].any():
+                touch = graph.touching(mask) & ~detached
+                for k in np.unique(b[touch]).tolist():
+                    if k >= 0 and k != j and allowed[piece, k].all():
+                        delta = float(wc[piece, k].sum() - wc[piece, j].sum())
+                        options.append((delta, k, piece))
+            target = (b == j) & ~detached
+            link = _bridge(problem, graph, b, piece, j, target, ~fixed & ~detached & ~settled)
+            if link is not None:
+                options.append((link[0], j, link[1]))
+            if not options:
+                continue
+            _, k, units = min(options, key=lambda o: o[0])
+            if k == j:
+                settled[units] = True
+            b[units] = k
+            detached[piece] = False
+            moved = True
+        if not moved:
+            return None
+        a = b
+    return None
+
+
+def _zone_distances(a: np.ndarray, graph: UnitGraph, m: int, sources: np.ndarray) -> np.ndarray:
+    """Hops in the zone graph from each site to the nearest site in ``sources``."""
+    u, v = graph.u, graph.v
+    diff = a[u] != a[v]
+    pairs = {(int(x), int(y)) for x, y in zip(a[u][diff], a[v][diff], strict=True)}
+    nb: list[list[int]] = [[] for _ in range(m)]
+    for x, y in pairs:
+        nb[x].append(y)
+    dist = np.full(m, np.inf)
+    queue = deque(int(s) for s in np.flatnonzero(sources))
+    for s in queue:
+        dist[s] = 0
+    while queue:
+        x = queue.popleft()
+        for y in nb[x]:
+            if dist[y] == np.inf:
+                dist[y] = dist[x] + 1
+                queue.append(y)
+    return dist
+
+
+def _moved_delta(problem: Problem, units: np.ndarray, frm: np.ndarray, to: np.ndarray):
+    cur = problem.current[units]
+    d0 = problem.demand[0, units]
+    before = (cur >= 0) & (cur != frm)
+    after = (cur >= 0) & (cur != to)
+    return d0 * after - d0 * before
+
+
+def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
+              max_steps: int | None = None) -> np.ndarray | None:
+    """Bring every school inside its band in every year by moves that keep zones connected.
+
+    Each step looks at every unit with students on a zone border and its move to the
+    neighbouring zone: the move that lowers the total excess (students over caps plus
+    students missing below floors, summed over years) the most, cheapest first, is made. When
+    no move lowers it, a move out of an over-full zone that keeps the excess equal is made
+    towards a zone nearer (in zone-graph hops) to one with room, cheapest first -- the
+    excess travels along the chain until a zone can take it. A unit moves at most three
+    times per call, which ends the search. Returns None when the excess cannot be cleared.
+    """
+    a = np.asarray(assignment, dtype=np.int64).copy()
+    if problem.capacity is None and problem.max_moved is None:
+        return a
+    n, m = problem.n_units, problem.n_sites
+    hi, lo = _bands(problem, a)
+    load = _loads(problem, a)
+    dem = problem.demand
+    wc = problem.weighted_cost
+    allowed = problem.allowed
+    can = ~_fixed_units(problem)  # empty units move too: they open a border to a zone
+    moved_units = np.zeros(n, np.int64)  # moves per unit: a few, so chains cannot cycle
+    moved = float(dem[0][(problem.current >= 0) & (a != problem.current)].sum())
+    cap_moved = np.inf if problem.max_moved is None else problem.max_moved
+    nbrs = graph.lists
+    al = a.tolist()
+    steps = max_steps or 4 * n
+    for _ in range(steps):
+        exc = _excess(load, hi, lo)
+        if exc.sum() <= _TOL:
+            return np.array(al, dtype=np.int64)
+        av = np.array(al, dtype=np.int64)
+        u, v = graph.u, graph.v
+        sel = (av[u] != av[v]) & can[u] & (moved_units[u] < 3)
+        cu, cj, ck = u[sel], av[u[sel]], av[v[sel]]
+        ok = allowed[cu, ck]
+        cu, cj, ck = cu[ok], cj[ok], ck[ok]
+        if not len(cu):
+            return None
+        d = dem[:, cu]
+        lj, lk = load[:, cj] - d, load[:, ck] + d
+        new = _excess(lj, hi[cj], lo[cj]) + _excess(lk, hi[ck], lo[ck])
+        dv = new - exc[cj] - exc[ck]
+        dc = wc[cu, ck] - wc[cu, cj]
+        dm = _moved_delta(problem, cu, cj, ck)
+        fine = moved + dm <= cap_moved + _TOL
+        better = fine & (dv < -_TOL)
+        if better.any():
+            idx = np.flatnonzero(better)
+            order = idx[np.argsort(dc[idx] / -dv[idx], kind="stable")]  # cost per student
+        else:
+            over = (load > hi + _TOL).any(axis=0)
+            room = (load < hi - _TOL).all(axis=0)
+            dist = _zone_distances(av, graph, m, room & ~over)
+            side = fine & (dv <= _TOL) & over[cj] & (dist[ck] < dist[cj])
+            idx = np.flatnonzero(side)
+            if not len(idx):
+                return None
+            order = idx[np.lexsort((dc[idx], dist[ck[idx]]))]
+        for c in order[:2000].tolist():
+            i, j, k = int(cu[c]), int(cj[c]), int(ck[c])
+            if _zone_connected_without(i, j, al, nbrs):
+                al[i] = k
+                load[:, j] -= dem[:, i]
+                load[:, k] += dem[:, i]
+                moved += float(dm[c])
+                moved_units[i] += 1
+                break
+        else:
+            return None
+    return None
+
+
+def _feasible_loads(lj, lk, hj, hk, loj, lok) -> bool:
+    return bool((lj <= hj + _TOL).all() and (lk <= hk + _TOL).all()
+                and (lj >= loj - _TOL).all() and (lk >= lok - _TOL).all())
+
+
+def improve(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
+            passes: int = 6, top: int = 6) -> np.ndarray:
+    """Lower the cost of a valid plan by relocate and exchange moves that keep it valid.
+
+    Relocate: a border unit moves to the neighbouring zone when that is cheaper and every
+    constraint holds. Exchange: for each pair of touching zones, the ``top`` most promising
+    border units of each side are tried in pairs; a swap is made when it is cheaper, both
+    zones stay in band in every year and both stay connected. Repeats up to ``passes``
+    times or until nothing improves.
+    """
+    a = np.asarray(assignment, dtype=np.int64).copy()
+    hi, lo = _bands(problem, a)
+    load = _loads(problem, a)
+    dem = problem.demand
+    wc = problem.weighted_cost
+    allowed = problem.allowed
+    can = ~_fixed_units(problem)
+    nbrs = graph.lists
+    cap_moved = np.inf if problem.max_moved is None else problem.max_moved
+    moved = float(dem[0][(problem.current >= 0) & (a != problem.current)].sum())
+    roots = problem.roots
+    for _ in range(passes):
+        improved = False
+        av = a
+        u, v = graph.u, graph.v
+        sel = (av[u] != av[v]) & can[u]
+        cu, cj, ck = u[sel], av[u[sel]], av[v[sel]]
+        ok = allowed[cu, ck]
+        cu, cj, ck = cu[ok], cj[ok], ck[ok]
+        gain = wc[cu, cj] - wc[cu, ck]
+        al = a.tolist()
+        # relocate
+        for c in np.argsort(-gain, kind="stable").tolist():
+            if gain[c] <= _TOL:
+                break
+            i, j, k = int(cu[c]), int(cj[c]), int(ck[c])
+            if al[i] != j or not any(al[w] == k for w in nbrs[i]):
+                continue
+            d = dem[:, i]
+            dm = float(_moved_delta(problem, np.array([i]), np.array([j]), np.array([k]))[0])
+            if moved + dm > cap_moved + _TOL:
+                continue
+            if not _feasible_loads(load[:, j] - d, load[:, k] + d, hi[j], hi[k], lo[j], lo[k]):
+                continue
+            if not _zone_connected_without(i, j, al, nbrs):
+                continue
+            al[i] = k
+            load[:, j] -= d
+            load[:, k] += d
+            moved += dm
+            improved = True
+        # exchange between touching zones
+        a = np.array(al, dtype=np.int64)
+        cand: dict[tuple[int, int], list[tuple[float, int]]] = {}
+        for c in range(len(cu)):
+            i, j, k = int(cu[c]), int(cj[c]), int(ck[c])
+            if al[i] == j:
+                cand.setdefault((j, k), []).append((float(gain[c]), i))
+        for (j, k), side_a in cand.items():
+            if j > k or (k, j) not in cand:
+                continue
+            side_a = sorted(set(side_a), reverse=True)[:top]
+            side_b = sorted(set(cand[(k, j)]), reverse=True)[:top]
+            best = None
+            for ga, i in side_a:
+                for gb, w in side_b:
+                    g = ga + gb
+                    if g <= _TOL or (best is not None and g <= best[0]):
+                        continue
+                    if al[i] != j or al[w] != k:
+                        continue
+                    dd = dem[:, w] - dem[:, i]
+                    if not _feasible_loads(load[:, j] + dd, load[:, k] - dd,
+                                           hi[j], hi[k], lo[j], lo[k]):
+                        continue
+                    units = np.array([i, w])
+                    dm = float(_moved_delta(problem, units, np.array([j, k]),
+                                            np.array([k, j])).sum())
+                    if moved + dm > cap_moved + _TOL:
+                        continue
+                    best = (g, i, w, dd, dm)
+            if best is None:
+                continue
+            _, i, w, dd, dm = best
+            al[i], al[w] = k, j
+            rj = int(roots[j]) if roots is not None and roots[j] >= 0 else w
+            rk = int(roots[k]) if roots is not None and roots[k] >= 0 else i
+            if _zone_connected(j, al, nbrs, rj) and _zone_connected(k, al, nbrs, rk):
+                load[:, j] += dd
+                load[:, k] -= dd
+                moved += dm
+                improved = True
+            else:
+                al[i], al[w] = j, k
+        a = np.array(al, dtype=np.int64)
+        if not improved:
+            break
+    return a
+
+
+def make_valid(problem: Problem, graph: UnitGraph, assignment: np.ndarray) -> np.ndarray | None:
+    """absorb -> rebalance -> improve: a valid contiguous plan near ``assignment``, or None."""
+    a = absorb(problem, graph, assignment)
+    if a is None:
+        return None
+    a = rebalance(problem, graph, a)
+    if a is None:
+        return None
+    return improve(problem, graph, a)
