@@ -40,6 +40,7 @@ __all__ = [
     "fragments",
     "is_contiguous",
     "separator",
+    "min_separator",
     "separator_cuts",
     "free_units",
     "reassign_empty",
@@ -187,6 +188,47 @@ def separator(graph: UnitGraph, piece: np.ndarray, other: int) -> np.ndarray:
     return np.flatnonzero(s1 & graph.touching(side2))
 
 
+def min_separator(graph: UnitGraph, piece: np.ndarray, other: int,
+                  avoid: np.ndarray | None = None) -> np.ndarray | None:
+    """A minimum-size vertex separator between ``piece`` and unit ``other`` (max-flow).
+
+    Each unit is split into an in- and an out-node joined by an arc of capacity 1 (the
+    piece, ``other`` and the ``avoid`` units get a capacity too large to cut); graph edges
+    get that large capacity too. By Menger's theorem the minimum cut of this network is a
+    smallest vertex set whose removal separates the piece from ``other`` (Even, "Graph
+    Algorithms", 1979, ch. 6). Where a river crossing or a narrow neck separates a fragment
+    from its school this is the crossing itself, so its cut is far stronger than the
+    fragment's neighbourhood. None when every separator would need an ``avoid`` unit.
+    """
+    from scipy.sparse.csgraph import breadth_first_order, maximum_flow
+
+    n = graph.n
+    big = n + 1
+    node_cap = np.ones(n, np.int32)
+    node_cap[piece] = big
+    node_cap[other] = big
+    if avoid is not None:
+        node_cap[avoid] = big
+    src = 2 * n
+    rows = np.concatenate([np.arange(n), graph.u + n, np.full(len(piece), src)])
+    cols = np.concatenate([np.arange(n) + n, graph.v, piece])
+    caps = np.concatenate([node_cap, np.full(len(graph.u) + len(piece), big, np.int32)])
+    net = sp.csr_matrix((caps, (rows, cols)), shape=(2 * n + 1,) * 2)
+    res = maximum_flow(net, src, other + n)
+    if res.flow_value >= big:
+        return None
+    flow = res.flow.tocsr()
+    residual = net - flow
+    residual.data = (residual.data > 0).astype(np.int8)
+    back = flow.T.tocsr()
+    back.data = (back.data > 0).astype(np.int8)
+    reach = breadth_first_order((residual + back).tocsr(), src, directed=True,
+                                return_predecessors=False)
+    seen = np.zeros(2 * n + 1, bool)
+    seen[reach] = True
+    return np.flatnonzero(seen[:n] & ~seen[n:2 * n])
+
+
 def separator_cuts(
     problem: Problem,
     graph: UnitGraph,
@@ -238,6 +280,11 @@ def separator_cuts(
         if sep is None:
             sep = separator(graph, piece, other)
         cuts.append(Cut(site=j, units=units, separator=sep, anchor=anchor))
+        if anchor < 0:
+            # also the smallest separator (a bridge, a neck): it lifts the bound far faster
+            narrow = min_separator(graph, units, other, avoid=passable)
+            if narrow is not None and 0 < len(narrow) < len(sep):
+                cuts.append(Cut(site=j, units=units, separator=narrow))
     return cuts
 
 

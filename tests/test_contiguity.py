@@ -145,16 +145,23 @@ def test_separator_separates_fragment_from_root():
     frags = cg.fragments(problem, graph, a)
     assert [sorted(f.tolist()) for f in frags] == [[18, 19]]
     cuts = cg.separator_cuts(problem, graph, a)
-    assert len(cuts) == 1
+    # the fragment's own separator, then the smallest one (here the root's two neighbours)
+    assert len(cuts) == 2
+    for cut in cuts:
+        g = nx_graph(n, edges)
+        g.remove_nodes_from(cut.separator.tolist())
+        assert not nx.has_path(g, 18, 0)
     sep = set(cuts[0].separator.tolist())
-    g = nx_graph(n, edges)
-    g.remove_nodes_from(sep)
-    assert not nx.has_path(g, 18, 0)
     # minimal: putting any one unit back reconnects
     for s in sep:
         h = nx_graph(n, edges)
         h.remove_nodes_from(sep - {s})
         assert nx.has_path(h, 18, 0)
+    # minimum: as small as networkx's minimum node cut (independent library; Menger)
+    g = nx_graph(n, edges)
+    g.add_edges_from([("piece", 18), ("piece", 19)])
+    assert len(cuts[1].separator) == len(nx.minimum_node_cut(g, "piece", 0))
+    assert sorted(cuts[1].separator.tolist()) == [1, 5]
 
 
 def test_reassign_empty_keeps_student_units_and_connects():

@@ -792,7 +792,7 @@ class OptionsPanel(pn.viewable.Viewer):
             "mean km": [round(o.mean_distance / 1000.0, 2) for o in infos],
             "out of band": [o.out_of_band for o in infos],
             "saved": [o.saved.replace("T", " ")[:16] for o in infos],
-        })
+        }).astype({"option": object, "status": object, "saved": object})
         names = [o.name for o in infos]
         self.choice.options = names
         if names and self.choice.value not in names:
