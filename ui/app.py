@@ -13,6 +13,7 @@ imported only when the server starts.
 from __future__ import annotations
 
 import argparse
+import os
 import socket
 import sys
 import threading
@@ -226,6 +227,8 @@ def serve_command(args: argparse.Namespace) -> int:
         print(f"No project given: opening the invented demo town (working copy in "
               f"{project.parent})", flush=True)
     port = args.port or _default_port(args.address)
+    # Every script and stylesheet from this server, never a CDN: the page works offline.
+    os.environ["BOKEH_RESOURCES"] = "server"
     import panel as pn
 
     pn.extension("tabulator", notifications=False, sizing_mode="stretch_width")
@@ -236,7 +239,10 @@ def serve_command(args: argparse.Namespace) -> int:
     else:
         # One page built and dropped: imports, map shapes and today's outlines are then
         # ready, so the first planner's page opens as fast as the next.
-        create_app(project, persist=False).get_root()
+        from panel.io.resources import set_resource_mode
+
+        with set_resource_mode("server"):  # as in a served page: no CDN links get cached
+            create_app(project, persist=False).get_root()
     origins = [f"{args.address}:{port}", f"localhost:{port}", f"127.0.0.1:{port}"]
     url = f"http://{args.address}:{port}/"
     server = pn.serve({"/": lambda: create_app(project)}, port=port, address=args.address,

@@ -61,6 +61,7 @@ class SessionState(param.Parameterized):
     reference = param.Selector(objects=list(REFERENCES), default="today")
 
     running = param.Boolean(False)
+    runs_finished = param.Integer(0, doc="reruns ended (with or without a plan)")
     elapsed = param.Number(0.0)
     progress = param.String("")
     message = param.String("")
@@ -244,7 +245,8 @@ class SessionState(param.Parameterized):
             self.param.update(progress=text, elapsed=max(self.elapsed, seconds))
 
     def _finish(self, out, error: str) -> None:
-        self.param.update(running=False, elapsed=_now() - self._started)
+        self.param.update(running=False, elapsed=_now() - self._started,
+                          runs_finished=self.runs_finished + 1)
         if out is None:
             self.param.update(progress="")
             self.notify(error, "danger")

@@ -458,7 +458,8 @@ class RunPanel(pn.viewable.Viewer):
         self.cancel.disabled = not s.running
         self.spinner.value = s.running
         head = f"Solving... {s.elapsed:.1f} s<br>" if s.running else ""
-        self.status.object = (f"<div style='font-size:12px' data-running='{int(s.running)}'>"
+        self.status.object = (f"<div style='font-size:12px' data-running='{int(s.running)}' "
+                              f"data-runs='{s.runs_finished}'>"
                               f"{head}{_esc(s.progress)}</div>")
 
     def __panel__(self):
