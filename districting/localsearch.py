@@ -27,7 +27,7 @@ from collections import deque
 
 import numpy as np
 
-from .contiguity import UnitGraph, reassign_empty, zone_components
+from .contiguity import UnitGraph, _stays_connected, reassign_empty, zone_components
 from .problem import Problem
 
 __all__ = ["absorb", "rebalance", "improve", "make_valid"]
@@ -65,26 +65,6 @@ def _loads(problem: Problem, a: np.ndarray) -> np.ndarray:
 def _excess(load: np.ndarray, hi: np.ndarray, lo: np.ndarray) -> np.ndarray:
     """Students above the cap plus students missing below the floor, per column."""
     return (np.maximum(load - hi, 0.0) + np.maximum(lo - load, 0.0)).sum(axis=0)
-
-
-def _zone_connected_without(i: int, j: int, al: list[int], nbrs: list[list[int]]) -> bool:
-    """True when zone j stays connected after unit i leaves it (breadth-first search)."""
-    same = [w for w in nbrs[i] if al[w] == j]
-    if len(same) <= 1:
-        return True
-    targets = set(same[1:])
-    seen = {i, same[0]}
-    queue = deque([same[0]])
-    while queue:
-        u = queue.popleft()
-        for w in nbrs[u]:
-            if w not in seen and al[w] == j:
-                targets.discard(w)
-                if not targets:
-                    return True
-                seen.add(w)
-                queue.append(w)
-    return not targets
 
 
 def _zone_connected(j: int, al: list[int], nbrs: list[list[int]], start: int) -> bool:
@@ -283,7 +263,7 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
             order = idx[np.lexsort((dc[idx], dist[ck[idx]]))]
         for c in order[:2000].tolist():
             i, j, k = int(cu[c]), int(cj[c]), int(ck[c])
-            if _zone_connected_without(i, j, al, nbrs):
+            if _stays_connected(i, j, al, nbrs):
                 al[i] = k
                 load[:, j] -= dem[:, i]
                 load[:, k] += dem[:, i]
@@ -344,7 +324,7 @@ def improve(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
                 continue
             if not _feasible_loads(load[:, j] - d, load[:, k] + d, hi[j], hi[k], lo[j], lo[k]):
                 continue
-            if not _zone_connected_without(i, j, al, nbrs):
+            if not _stays_connected(i, j, al, nbrs):
                 continue
             al[i] = k
             load[:, j] -= d

@@ -1,0 +1,112 @@
+"""Local search over contiguous plans, checked with networkx (an independent library).
+
+Hand-made grids: a plan with fragments and an over-full school goes in, a valid plan comes
+out (every zone connected and holding its root, every school inside its band in every
+year), and the relocate / exchange moves never raise the cost.
+"""
+
+from __future__ import annotations
+
+import networkx as nx
+import numpy as np
+
+from districting import Problem
+from districting import localsearch as ls
+from districting.contiguity import UnitGraph, plan_checks
+
+
+def grid(w: int, h: int):
+    xy = np.array([(x, y) for y in range(h) for x in range(w)], float)
+    edges = [(y * w + x, y * w + x + 1) for y in range(h) for x in range(w - 1)]
+    edges += [(y * w + x, (y + 1) * w + x) for y in range(h - 1) for x in range(w)]
+    return xy, edges
+
+
+def zones_connected(a, problem, edges) -> bool:
+    g = nx.Graph(edges)
+    g.add_nodes_from(range(problem.n_units))
+    for j in range(problem.n_sites):
+        members = np.flatnonzero(a == j).tolist()
+        if members and (not nx.is_connected(g.subgraph(members))
+                        or int(problem.roots[j]) not in members):
+            return False
+    return True
+
+
+def make(capacity, seed=0, years=2):
+    xy, edges = grid(8, 6)
+    sites = np.array([0, 7, 44])
+    cost = np.hypot(xy[:, None, 0] - xy[sites][None, :, 0], xy[:, None, 1] - xy[sites][None, :, 1])
+    rng = np.random.default_rng(seed)
+    d = rng.integers(1, 6, size=(years, len(xy))).astype(float)
+    d[:, [20, 21, 28]] = 0  # empty units (a park)
+    prob = Problem.from_arrays(cost, d, capacity=capacity, edges=edges, roots=sites,
+                               max_util=1.0, min_util=0.3)
+    return prob, edges
+
+
+def objective(problem, a) -> float:
+    return float(problem.weighted_cost[np.arange(problem.n_units), a].sum())
+
+
+def test_make_valid_turns_fragments_and_overload_into_a_valid_plan():
+    prob, edges = make(capacity=[60, 60, 60])
+    g = UnitGraph.of(prob)
+    # nearest school, then a scatter of units handed to the far school: fragments appear
+    a = np.argmin(prob.cost, axis=1)
+    a[[10, 13, 30]] = 2
+    a[prob.roots] = np.arange(3)
+    assert not zones_connected(a, prob, edges)
+    b = ls.make_valid(prob, g, a)
+    assert b is not None
+    assert zones_connected(b, prob, edges)
+    assert plan_checks(prob, b, g) == []
+    load = loads(prob, b)
+    assert (load <= 60 + 1e-9).all() and (load >= 0.3 * 60 - 1e-9).all()
+
+
+def loads(problem, a):
+    return np.stack([np.bincount(a, weights=row, minlength=problem.n_sites)
+                     for row in problem.demand])
+
+
+def test_rebalance_clears_an_over_full_school_in_every_year():
+    # nearest-school zones put 47 and 46 students into school 0 (cap 40) in the two years
+    prob, edges = make(capacity=[40, 70, 120])
+    g = UnitGraph.of(prob)
+    a = ls.absorb(prob, g, np.argmin(prob.cost, axis=1))
+    assert a is not None and zones_connected(a, prob, edges)
+    assert (loads(prob, a)[:, 0] > 40).all()
+    b = ls.rebalance(prob, g, a)
+    assert b is not None
+    assert (loads(prob, b)[:, 0] <= 40).all()
+    assert plan_checks(prob, b, g) == []
+    assert zones_connected(b, prob, edges)
+
+
+def test_improve_never_raises_the_cost_and_keeps_the_plan_valid():
+    for seed in range(4):
+        prob, edges = make(capacity=[70, 70, 70], seed=seed)
+        g = UnitGraph.of(prob)
+        a = ls.make_valid(prob, g, np.argmin(prob.cost, axis=1))
+        assert a is not None
+        b = ls.improve(prob, g, a)
+        assert objective(prob, b) <= objective(prob, a) + 1e-9
+        assert plan_checks(prob, b, g) == []
+        assert zones_connected(b, prob, edges)
+
+
+def test_locked_units_and_roots_never_move():
+    xy, edges = grid(8, 6)
+    sites = np.array([0, 7, 44])
+    cost = np.hypot(xy[:, None, 0] - xy[sites][None, :, 0], xy[:, None, 1] - xy[sites][None, :, 1])
+    d = np.ones((1, len(xy)))
+    prob = Problem.from_arrays(cost, d, capacity=[20, 20, 20], edges=edges, roots=sites,
+                               locks={9: 0})
+    g = UnitGraph.of(prob)
+    a = np.argmin(prob.cost, axis=1)
+    a[9] = 0
+    b = ls.make_valid(prob, g, a)
+    assert b is not None
+    assert b[9] == 0 and list(b[sites]) == [0, 1, 2]
+    assert plan_checks(prob, b, g) == []
