@@ -937,14 +937,7 @@ class Session:
                 run.consider(cg.improve(problem, graph, run.best))
                 break
             n_frag = len(cg.fragments(problem, graph, a))
-            cuts = cg.separator_cuts(problem, graph, a, only=detached, passable=passable,
-                                     strict=relaxed)
-            added = backend.add_cuts(cuts)
-            self.cuts.extend(cuts)
-            units = np.flatnonzero(detached)
-            cols = backend.column(units, a[units])
-            batch = cols[(cols >= 0) & ~forbid[np.maximum(cols, 0)]]
-            forbid[batch] = True
+            added, batch = self._cut_and_forbid(backend, a, detached, passable, relaxed, forbid)
             run.record(added, n_frag, heuristic=True)
             if not len(batch) and not added:
                 break
@@ -996,18 +989,25 @@ class Session:
             fixed = cg.repair(problem, graph, a)
             if fixed is not None:
                 run.consider(cg.improve(problem, graph, fixed))
-            cuts = cg.separator_cuts(problem, graph, a, only=detached, passable=passable,
-                                     strict=relaxed)
-            added = backend.add_cuts(cuts)
-            self.cuts.extend(cuts)
-            units = np.flatnonzero(detached)
-            cols = backend.column(units, a[units])
-            cols = cols[(cols >= 0) & ~forbid[np.maximum(cols, 0)]]
-            forbid[cols] = True
+            added, cols = self._cut_and_forbid(backend, a, detached, passable, relaxed, forbid)
             run.record(added, len(cg.fragments(problem, graph, a)), heuristic=True)
             if not len(cols):
                 break
         backend.unrestrict()
+
+    def _cut_and_forbid(self, backend, a: np.ndarray, detached: np.ndarray, passable,
+                        relaxed: bool, forbid: np.ndarray) -> tuple[int, np.ndarray]:
+        """Heuristic step: add the answer's separator cuts (valid for the exact model too)
+        and mark the columns of units still cut off; returns (cuts added, newly forbidden)."""
+        cuts = cg.separator_cuts(self.problem, self._graph, a, only=detached,
+                                 passable=passable, strict=relaxed)
+        added = backend.add_cuts(cuts)
+        self.cuts.extend(cuts)
+        units = np.flatnonzero(detached)
+        cols = backend.column(units, a[units])
+        batch = cols[(cols >= 0) & ~forbid[np.maximum(cols, 0)]]
+        forbid[batch] = True
+        return added, batch
 
     def _finish(self, plan: Plan) -> Plan:
         self.last = plan
