@@ -140,8 +140,8 @@ def test_planner_job_in_the_browser(tmp_path):
         page.select_option(".target-school select", value=_option_value(page, target))
         page.click(".lock-button button")
         wait_for(lambda: "Locked 1 unit" in message(page), 15, what="the lock message")
-        hatched = source_columns(page, "locked-source", ("unit_id",))["unit_id"]
-        assert hatched == [unit]
+        wait_for(lambda: source_columns(page, "locked-source", ("unit_id",))["unit_id"]
+                 == [unit], 15, what="the locked unit hatched on the map")
         shot(page, "03-locked")
         rerun(page)
         second = source_columns(page, "units-source", ("proposed",))["proposed"]

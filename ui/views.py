@@ -376,8 +376,19 @@ class MapView(pn.viewable.Viewer):
     def _on_state_selection(self, event) -> None:
         pos = {u: i for i, u in enumerate(self.units.data["unit_id"])}
         idx = sorted(pos[u] for u in event.new if u in pos)
-        if list(self.units.selected.indices) != idx:
+        if list(self.units.selected.indices) == idx:
+            return
+
+        def apply() -> None:
             self.units.selected.indices = idx
+
+        # A widget callback may run outside the document's write lock; changing a Bokeh
+        # model there breaks the session, so the change waits for the next locked tick.
+        doc = self.units.document
+        if doc is not None and doc.session_context is not None:
+            doc.add_next_tick_callback(apply)
+        else:
+            apply()
 
     def _on_toggle(self, *events) -> None:
         self.today_glyphs.visible = self.show_today
