@@ -109,6 +109,9 @@ class Round:
     cuts_added: int
     fragments: int  # disconnected zone pieces in the solver's answer before repair
     seconds: float  # elapsed since the solve started
+    #: the best valid plan so far (site index per unit), given to progress callbacks so a
+    #: caller can show it while the solve goes on; None in ``Plan.history``
+    best: np.ndarray | None = field(default=None, compare=False, repr=False)
 
 
 @dataclass(frozen=True)

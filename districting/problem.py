@@ -35,6 +35,13 @@ def _as_float_array(name: str, value, shape: tuple[int, ...]) -> np.ndarray:
     return arr
 
 
+def _same_array(a, b) -> bool:
+    """Equal arrays (both None counts as equal)."""
+    if a is None or b is None:
+        return a is None and b is None
+    return a.shape == b.shape and bool(np.array_equal(a, b))
+
+
 @dataclass(frozen=True, eq=False)
 class Problem:
     """A capacitated, optionally contiguous, whole-unit assignment problem.
@@ -244,6 +251,39 @@ class Problem:
             )
             w = w + self.stability_weight * d0 * moved
         return w
+
+    def is_restriction_of(self, other: Problem) -> bool:
+        """True when every plan valid here is valid for ``other`` at the same cost.
+
+        Then a lower bound proven for ``other`` (and every cut found for it) holds here
+        too: a lock, a forbid, a closure, a lower cap or a higher floor only remove plans.
+        The check is conservative: any difference it does not recognise returns False.
+        """
+        if (self.cost.shape != other.cost.shape or self.demand.shape != other.demand.shape
+                or self.p != other.p or self.contiguous != other.contiguous):
+            return False
+        if not (_same_array(self.demand, other.demand) and _same_array(self.edges, other.edges)
+                and _same_array(self.roots, other.roots)
+                and _same_array(self.weighted_cost, other.weighted_cost)):
+            return False
+        if (self.allowed & ~other.allowed).any() or (other.open_sites & ~self.open_sites).any():
+            return False
+        if other.capacity is not None:
+            if self.capacity is None:
+                return False
+            tol = 1e-9
+            if (self.max_util * self.capacity > other.max_util * other.capacity + tol).any():
+                return False
+            if (self.min_util * self.capacity < other.min_util * other.capacity - tol).any():
+                return False
+        elif self.capacity is not None and (self.min_util > 0).any():
+            return False  # floors without a cap on the other side: compare nothing loosely
+        if other.max_moved is not None:
+            if self.max_moved is None or self.max_moved > other.max_moved:
+                return False
+            if not _same_array(self.current, other.current):
+                return False
+        return True
 
     def unit_label(self, i: int) -> str:
         return str(self.unit_names[i]) if self.unit_names else f"unit {i}"

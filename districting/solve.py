@@ -39,6 +39,7 @@ sum_k rc_k x_k over columns at their lower bound).
 
 from __future__ import annotations
 
+import dataclasses
 import time
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
@@ -49,7 +50,7 @@ import scipy.sparse as sp
 from . import contiguity as cg
 from . import localsearch
 from .plan import Plan, Round, plan_metrics, relative_gap
-from .problem import Problem
+from .problem import Problem, _same_array
 
 __all__ = ["solve", "Session"]
 
@@ -211,6 +212,7 @@ class _HighsBackend:
         lp.a_matrix_.value_ = a.data
         lp.integrality_ = [highspy.HighsVarType.kInteger] * ncol
         self.ncol = ncol
+        self._cost = cost
         self.lower0 = lower
         self.upper = upper.copy()  # permanent bounds (reduced-cost fixing lowers them)
         self._temp: np.ndarray | None = None  # columns a heuristic turned off for a while
@@ -320,6 +322,18 @@ class _HighsBackend:
         info = h.getInfo()
         ms = hs.HighsModelStatus
         has = info.primal_solution_status == 2
+        if has:
+            col = np.asarray(h.getSolution().col_value)
+            got = float(np.dot(self._cost, col))
+            want = float(info.objective_function_value)
+            if abs(got - want) > 1e-7 * max(1.0, abs(want)):
+                # seen after rows were added: HiGHS reported a stale objective with the
+                # start as its solution; solving again from scratch gives a true answer
+                h.clearSolver()
+                h.run()
+                st = h.getModelStatus()
+                info = h.getInfo()
+                has = info.primal_solution_status == 2
         a = None
         if has:
             col = np.asarray(h.getSolution().col_value)
@@ -595,6 +609,10 @@ def _prepare_start(problem: Problem, graph: cg.UnitGraph | None, start) -> np.nd
         fixed = cg.repair(problem, graph, a)
         if fixed is not None:
             a = fixed
+        if cg.plan_checks(problem, a, graph):  # e.g. a lock pushed a school over its cap
+            valid = localsearch.make_valid(problem, graph, a)
+            if valid is not None:
+                a = valid
     return a
 
 
@@ -630,6 +648,8 @@ class _Run:
         if cg.plan_checks(self.problem, a, self.graph):
             return False
         self.best, self.best_obj = a.copy(), obj
+        if self.progress is not None:  # a better plan is worth showing at once
+            self._emit(0, 0)
         return True
 
     def gap(self) -> float:
@@ -637,11 +657,15 @@ class _Run:
 
     def record(self, added: int, n_frag: int, heuristic: bool = False) -> None:
         self.rounds += 1
+        self.history.append(self._emit(added, n_frag))
+
+    def _emit(self, added: int, n_frag: int) -> Round:
+        """The current state as a Round; progress gets it with the best plan attached."""
         r = Round(self.rounds, self.best_obj, min(self.bound, self.best_obj), self.gap(),
                   added, n_frag, self.elapsed())
-        self.history.append(r)
         if self.progress is not None:
-            self.progress(r)
+            self.progress(dataclasses.replace(r, best=self.best))
+        return r
 
     def plan(self, status: str, message: str, route: str, n_cuts: int, gap: float) -> Plan:
         problem = self.problem
@@ -683,16 +707,26 @@ class Session:
         self._full = False  # True once empty units had to join the MIP
         self._parents: np.ndarray | None = None
         self._graph = cg.UnitGraph.of(problem) if problem.contiguous else None
+        self._carried_bound = -np.inf  # a bound proven for a problem this one restricts
         self.build_seconds = 0.0
 
     def update(self, problem: Problem) -> None:
-        """Switch to a changed problem; keeps the cuts when graph and roots are unchanged."""
+        """Switch to a changed problem; keeps the cuts when graph and roots are unchanged.
+
+        When the new problem only removes plans (a lock, a forbid, a closure, a lower cap:
+        :meth:`Problem.is_restriction_of`), the last plan's proven bound stays a valid
+        lower bound and starts the next solve.
+        """
         old = self.problem
+        last = self.last
+        carry = (last is not None and last.feasible and np.isfinite(last.bound)
+                 and problem.is_restriction_of(old))
+        self._carried_bound = max(last.bound, self._carried_bound) if carry else -np.inf
         same_graph = (
             problem.n_units == old.n_units
             and problem.n_sites == old.n_sites
-            and _same(problem.edges, old.edges)
-            and _same(problem.roots, old.roots)
+            and _same_array(problem.edges, old.edges)
+            and _same_array(problem.roots, old.roots)
         )
         if not same_graph:
             self.cuts = []
@@ -741,16 +775,22 @@ class Session:
         # units without students stay out of the MIP (highs route) until a round needs them
         relaxed = bool(route == "highs" and passable is not None and passable.any()
                        and not self._full)
+        run = _Run(problem, graph, t0, time_limit, progress)
+        run.bound = self._carried_bound
+        cand = _prepare_start(problem, graph, start)
+        if cand is not None:
+            run.consider(cand)
+        if run.best is not None and run.gap() <= gap + 1e-12:
+            # the adapted start is within the gap of a bound carried from a problem this
+            # one restricts (see update): proven without building a model
+            run.record(0, 0)
+            return self._finish(run.plan("optimal", "", route, len(self.cuts), gap))
         try:
             backend = self._ensure_backend(passable if relaxed else None)
         except (ImportError, RuntimeError, ValueError) as exc:
             return self._finish(_failed(problem, f"could not build the model: {exc}", route))
-        run = _Run(problem, graph, t0, time_limit, progress)
         run.build = self.build_seconds
         self.build_seconds = 0.0
-        cand = _prepare_start(problem, graph, start)
-        if cand is not None:
-            run.consider(cand)
         hint = run.best if run.best is not None else cand
         if hint is not None and cg.plan_checks(problem, hint, graph, contiguity=False):
             hint = None
@@ -765,6 +805,7 @@ class Session:
         # the heuristic (fix-and-resolve) runs after the first exact round only when the
         # repair of that round's answer (localsearch.make_valid) found no valid plan
         fixed_at = run.best_obj
+        heuristic_done = False
         # ---- stage 2: exact rounds
         for _ in range(max_rounds):
             if run.best is not None and run.gap() <= gap + 1e-12:
@@ -827,7 +868,12 @@ class Session:
                         if fixed is not None:
                             run.consider(cg.improve(problem, graph, fixed))
                         run.consider(localsearch.make_valid(problem, graph, a))
-                        if run.best is None and backend.relaxation() is not None:
+                        # the heuristic runs when the repair found no plan, or (once) when
+                        # the repaired plan is far above the bound
+                        far = run.best is None or (not heuristic_done
+                                                   and run.gap() > max(10 * gap, 1e-3))
+                        if far and backend.relaxation() is not None:
+                            heuristic_done = True
                             self._fix_and_resolve(backend, run, gap, cancel, relaxed, passable)
             run.record(max(added, 0), n_frag)
             if run.best is not None and run.gap() <= gap + 1e-12:
@@ -958,7 +1004,7 @@ class Session:
         n = problem.n_units
         k = len(backend.xi)
         forbid = np.zeros(k, bool)
-        centre = None
+        centre = seen = None
         for _ in range(max_rounds):
             if cancel is not None and cancel():
                 break
@@ -977,9 +1023,13 @@ class Session:
             cap_s = None if left is None else max(0.05, 0.3 * left)
             before = run.best_obj
             ans = backend.solve(hgap, cap_s, run.best, cancel)
-            if ans.assignment is None or ans.objective >= before - _TOL * max(1.0, before):
-                break
-            a = ans.assignment
+            if ans.assignment is None and ans.status == "infeasible" and forbid.any():
+                forbid[:] = False  # the removals went too far; the cuts found stay
+                continue
+            if (ans.assignment is None or ans.objective >= before - _TOL * max(1.0, before)
+                    or (seen is not None and np.array_equal(ans.assignment, seen))):
+                break  # no better answer, or the same one again (its cuts cannot bite)
+            a = seen = ans.assignment
             b, detached = cg.reassign_empty(problem, graph, a)
             if not detached.any():
                 if run.consider(b):
@@ -989,6 +1039,8 @@ class Session:
             fixed = cg.repair(problem, graph, a)
             if fixed is not None:
                 run.consider(cg.improve(problem, graph, fixed))
+            if run.consider(localsearch.make_valid(problem, graph, a)):
+                continue  # a better plan: recentre on it
             added, cols = self._cut_and_forbid(backend, a, detached, passable, relaxed, forbid)
             run.record(added, len(cg.fragments(problem, graph, a)), heuristic=True)
             if not len(cols):
@@ -1036,12 +1088,6 @@ def _claim_tree_paths(a: np.ndarray, drop: np.ndarray, parents: np.ndarray) -> n
     one = drop & (claims == 1)
     a[one] = owner[one]
     return a
-
-
-def _same(a, b) -> bool:
-    if a is None or b is None:
-        return a is None and b is None
-    return a.shape == b.shape and bool(np.array_equal(a, b))
 
 
 def _precheck(problem: Problem) -> list[str]:

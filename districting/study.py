@@ -288,18 +288,53 @@ def run(
     progress: Callable | None = None,
     cancel: Callable[[], bool] | None = None,
     previous: Plan | None = None,
+    sessions: dict | None = None,
+    on_plan: Callable[[Outcome], None] | None = None,
 ) -> Outcome:
-    """Solve one level; ``progress`` gets each :class:`~districting.plan.Round`."""
-    from .solve import solve  # late import keeps study importable while solve builds
+    """Solve one level; ``progress`` gets each :class:`~districting.plan.Round`.
+
+    ``sessions`` is a dict the caller keeps between runs (the workbench keeps one per
+    planner): it holds a :class:`~districting.solve.Session` per level and solver, so a
+    rerun after a lock or a cap reuses the cuts found so far and, when the change only
+    removes plans, the bound already proven. ``on_plan`` gets an interim Outcome (status
+    ``feasible``, its gap so far) each time the solver finds a better valid plan, so a
+    caller can show it while the solve goes on.
+    """
+    from .solve import Session  # late import keeps study importable while solve builds
 
     full = resolved(inputs, rs)
     problem, rows = build_problem(inputs, full)
-    plan = solve(
-        problem,
-        gap=float(full.gap),
-        time_limit=full.time_limit,
-        solver=full.solver,
-        progress=progress,
+    solver = full.solver or "highs"
+    key = (full.level, solver)
+    session = None if sessions is None else sessions.get(key)
+    if session is None:
+        session = Session(problem, solver=solver)
+        if sessions is not None:
+            sessions[key] = session
+    else:
+        session.update(problem)
+    relay = progress
+    if on_plan is not None:
+        shown: list = [None]
+
+        def relay(rnd) -> None:
+            if progress is not None:
+                progress(rnd)
+            if rnd.best is not None and rnd.best is not shown[0]:
+                shown[0] = rnd.best
+                a = np.asarray(rnd.best, np.int64)
+                opened = _open_of(problem, a)
+                interim = Plan("feasible", float(rnd.objective), float(rnd.bound),
+                               float(rnd.gap), a, opened, rounds=rnd.number,
+                               solve_seconds=rnd.seconds, route=solver,
+                               metrics=plan_metrics(problem, a, opened))
+                on_plan(Outcome(inputs, full, rows, problem, interim, name=name,
+                                created=now_iso()))
+
+    plan = session.solve(
+        float(full.gap),
+        full.time_limit,
+        progress=relay,
         cancel=cancel,
         start=None if previous is None else previous.assignment,
     )
@@ -314,9 +349,7 @@ def outcome_from_assignment(
     full = resolved(inputs, rs)
     problem, rows = build_problem(inputs, full)
     a = np.asarray(assignment, dtype=np.int64)
-    opened = np.zeros(problem.n_sites, bool)
-    opened[a[a >= 0]] = True
-    opened |= problem.always_open
+    opened = _open_of(problem, a)
     fields = dict(plan_fields or {})
     plan = Plan(
         status=fields.pop("status", "feasible"),
@@ -331,3 +364,10 @@ def outcome_from_assignment(
                                                     "build_seconds", "solve_seconds"}},
     )
     return Outcome(inputs, full, rows, problem, plan, name=name, created=created or now_iso())
+
+
+def _open_of(problem: Problem, a: np.ndarray) -> np.ndarray:
+    """Sites open under assignment ``a``: those that take a unit, and those always open."""
+    opened = np.zeros(problem.n_sites, bool)
+    opened[a[a >= 0]] = True
+    return opened | problem.always_open
