@@ -783,7 +783,6 @@ class Session:
         if run.best is not None and run.gap() <= gap + 1e-12:
             # the adapted start is within the gap of a bound carried from a problem this
             # one restricts (see update): proven without building a model
-            run.record(0, 0)
             return self._finish(run.plan("optimal", "", route, len(self.cuts), gap))
         try:
             backend = self._ensure_backend(passable if relaxed else None)

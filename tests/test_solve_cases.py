@@ -144,3 +144,44 @@ def test_session_resolve_honours_new_locks_and_reuses_plan():
     assert second.objective >= first.objective - 1e-9
     # the same answer from scratch
     assert solve(p2, gap=1e-6).objective == pytest.approx(second.objective, rel=1e-6)
+
+
+def test_restriction_is_recognised_only_when_it_removes_plans():
+    # a lock, a forbid, a closure and a lower cap only remove plans; an unlock, a higher
+    # cap or a new stability weight may add plans or change costs
+    base = Problem.from_arrays(line_cost([0, 3]), np.ones(4), capacity=[3, 3],
+                               locks={1: 0})
+    assert base.replace(locks=np.array([-1, 0, 1, -1])).is_restriction_of(base)
+    assert base.replace(capacity=np.array([3.0, 2.0])).is_restriction_of(base)
+    forbidden = np.zeros((4, 2), bool)
+    forbidden[2, 0] = True
+    assert base.replace(forbidden=forbidden).is_restriction_of(base)
+    assert base.replace(closed_sites=np.array([False, True])).is_restriction_of(base)
+    assert not base.replace(locks=np.full(4, -1)).is_restriction_of(base)
+    assert not base.replace(capacity=np.array([3.0, 4.0])).is_restriction_of(base)
+    today = base.replace(current=np.array([0, 0, 1, 1]))
+    assert not today.replace(stability_weight=1.0).is_restriction_of(today)
+    assert base.replace(min_util=np.array([0.5, 0.0])).is_restriction_of(base)
+
+
+def test_resolve_after_a_lock_on_the_same_side_is_proven_at_once():
+    # line of four units, sites at x=0 and x=3, optimum 0,0,1,1 (cost 2). Locking unit 0
+    # to site 0 (where it is) removes plans but not the optimum: the carried bound 2 and
+    # the adapted start (cost 2) prove it without a new model. Locking unit 1 to site 1
+    # costs 3 (hand-worked in test_lock_forces_unit_away_from_nearest): the carried bound
+    # stays a valid lower bound and the re-solve proves 3.
+    p = Problem.from_arrays(line_cost([0, 3]), np.ones(4))
+    s = Session(p)
+    first = s.solve()
+    assert first.objective == pytest.approx(2.0) and first.bound == pytest.approx(2.0)
+    s.update(p.replace(locks=np.array([0, -1, -1, -1])))
+    second = s.solve()
+    assert second.status == "optimal" and second.objective == pytest.approx(2.0)
+    assert second.rounds == 0  # proven before any integer round
+    s.update(p.replace(locks=np.array([0, 1, -1, -1])))
+    third = s.solve()
+    assert third.status == "optimal" and third.objective == pytest.approx(3.0)
+    assert third.bound <= 3.0 + 1e-9
+    s.update(p)  # unlocking may make plans cheaper: the bound must not carry over
+    fourth = s.solve()
+    assert fourth.objective == pytest.approx(2.0) and fourth.bound <= 2.0 + 1e-9

@@ -80,6 +80,8 @@ class SessionState(param.Parameterized):
         self.schedule = schedule or (lambda fn: fn())
         self._cancel = threading.Event()
         self._worker: threading.Thread | None = None
+        self._interim_guard = threading.Lock()
+        self._interim_pending = False
         self._started = 0.0
         self._syncing = False
         self.param.level.objects = list(store.runs)
@@ -225,7 +227,8 @@ class SessionState(param.Parameterized):
 
     def _work(self) -> None:
         try:
-            out = self.store.rerun(progress=self._on_round, cancel=self._cancel.is_set)
+            out = self.store.rerun(progress=self._on_round, cancel=self._cancel.is_set,
+                                   on_plan=self._on_plan)
         except StoreError as exc:
             text = str(exc)
             self.schedule(lambda: self._finish(None, text))
@@ -239,6 +242,21 @@ class SessionState(param.Parameterized):
     def _on_round(self, rnd) -> None:
         text = round_text(rnd)
         self.schedule(lambda: self._show_progress(text, rnd.seconds))
+
+    def _on_plan(self, out) -> None:
+        """A better valid plan while the solve goes on: the store already holds it; the
+        page redraws once per batch (several plans may arrive before the redraw runs)."""
+        with self._interim_guard:
+            if self._interim_pending:
+                return
+            self._interim_pending = True
+        self.schedule(self._show_interim)
+
+    def _show_interim(self) -> None:
+        with self._interim_guard:
+            self._interim_pending = False
+        if self.running:
+            self.plan_version += 1
 
     def _show_progress(self, text: str, seconds: float) -> None:
         if self.running:
@@ -310,7 +328,7 @@ class SessionState(param.Parameterized):
 
 def round_text(rnd) -> str:
     """One line of progress for a solve round."""
-    best = (f"best plan {rnd.objective / 1000.0:,.0f} student-km"
+    best = (f"best plan so far on the map ({rnd.objective / 1000.0:,.0f} student-km)"
             if rnd.objective < float("inf") else "no valid plan yet")
     gap = f"gap {rnd.gap:.2%}" if rnd.gap < float("inf") else "gap not known yet"
-    return f"Round {rnd.number}: {rnd.seconds:.1f} s, {best}, {gap}"
+    return f"Round {rnd.number}: {rnd.seconds:.1f} s, {best}, {gap}; still solving"

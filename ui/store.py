@@ -93,6 +93,7 @@ class Store:
         self.last_message = ""
         self._export_dir: Path | None = None
         self._exports: tuple = (None, {})
+        self._sessions: dict = {}  # engine sessions per level: cuts and bounds carry over
         self.restore()
 
     # ------------------------------------------------------------------ basics
@@ -364,23 +365,37 @@ class Store:
         progress: Callable | None = None,
         cancel: Callable[[], bool] | None = None,
         name: str = "",
+        on_plan: Callable[[Outcome], None] | None = None,
     ) -> Outcome:
         """Solve the current level with the current edits; the new plan goes on screen.
 
-        The plan on screen is the warm start. An infeasible run leaves the plan on screen
-        as it was and raises :class:`StoreError` with the engine's explanation.
+        The plan on screen is the warm start. Each better valid plan the solver finds goes
+        on screen at once (``on_plan`` is told), so the planner sees the result of an edit
+        while the solver still works on the gap. A run that fails puts the plan on screen
+        back as it was and raises :class:`StoreError` with the engine's explanation.
         """
         level = self.level
         rs = self.settings
         before = self.outcomes[level]
         start = before.plan if before is not None and before.name != TODAY else None
+
+        def interim(out: Outcome) -> None:
+            self.outcomes[level] = out
+            if on_plan is not None:
+                on_plan(out)
+
         try:
             out = run(self.inputs, rs, name=name, progress=progress, cancel=cancel,
-                      previous=start)
+                      previous=start, sessions=self._sessions, on_plan=interim)
         except ValueError as exc:  # a lock or forbid the problem cannot take, or a solver fault
+            self.outcomes[level] = before
             raise StoreError(f"This run could not be done: {exc}. Your edits are kept; undo "
                              "the last edit or press Rerun again.") from exc
+        except BaseException:
+            self.outcomes[level] = before
+            raise
         if not out.plan.feasible:
+            self.outcomes[level] = before
             plan = out.plan
             if plan.status in ("time_limit", "cancelled"):
                 why = (f"the time limit ({out.settings.time_limit:g} s)"
