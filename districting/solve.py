@@ -756,11 +756,15 @@ class Session:
     ) -> Plan:
         """Solve the current problem; ``start`` defaults to the last plan of this session.
 
-        Stage 1 (highs route): the LP relaxation gives a first lower bound, and the
-        fix-and-resolve heuristic (:meth:`_fix_and_resolve`) a first valid plan, which
-        reduced-cost fixing then uses to shrink the model. Stage 2: exact rounds on the
-        model without any heuristic restriction (separator cuts only), each warm-started
-        from the best valid plan, until the gap is within ``gap``.
+        Stage 0: the start, adapted to this problem (locks applied, repaired), is the first
+        valid plan when it passes the checks; with a bound carried over by :meth:`update`
+        it may already be proven. Stage 1 (highs route): the LP relaxation gives a lower
+        bound and, when no valid start exists, the fix-and-resolve heuristic
+        (:meth:`_fix_and_resolve`) a first valid plan, which reduced-cost fixing then uses
+        to shrink the model. Stage 2: exact rounds on the model without any heuristic
+        restriction (separator cuts only), each warm-started from the best valid plan,
+        until the gap is within ``gap``; the heuristic runs once more when the repaired
+        answer of a round is still far above the bound.
         """
         t0 = time.monotonic()
         problem = self.problem
@@ -801,10 +805,14 @@ class Session:
             run.bound = max(run.bound, lp[0])
             if run.best is not None:
                 backend.fix_by_reduced_cost(run.best_obj)
-        # the heuristic (fix-and-resolve) runs after the first exact round only when the
-        # repair of that round's answer (localsearch.make_valid) found no valid plan
+        # without a valid start, the heuristic (fix-and-resolve) gives the first plan: on
+        # capacity-bound towns it is far better than repairing the first exact answer
+        heuristic_done = graph is not None and run.best is None and lp is not None
+        if heuristic_done:
+            self._fix_and_resolve(backend, run, gap, cancel, relaxed, passable)
+            if run.best is not None:
+                backend.fix_by_reduced_cost(run.best_obj)
         fixed_at = run.best_obj
-        heuristic_done = False
         # ---- stage 2: exact rounds
         for _ in range(max_rounds):
             if run.best is not None and run.gap() <= gap + 1e-12:
