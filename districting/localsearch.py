@@ -33,6 +33,7 @@ from .problem import Problem
 __all__ = ["absorb", "rebalance", "improve", "make_valid"]
 
 _TOL = 1e-6
+_MAX_MOVES = 6  # per unit and call of rebalance: chains of moves cannot cycle for ever
 
 
 def _fixed_units(problem: Problem) -> np.ndarray:
@@ -210,8 +211,10 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
     students missing below floors, summed over years) the most, cheapest first, is made. When
     no move lowers it, a move out of an over-full zone that keeps the excess equal is made
     towards a zone nearer (in zone-graph hops) to one with room, cheapest first -- the
-    excess travels along the chain until a zone can take it. A unit moves at most three
-    times per call, which ends the search. Returns None when the excess cannot be cleared.
+    excess travels along the chain until a zone can take it. When every such move would
+    cut its zone, the unit moves together with the branch it would cut off. A unit moves at
+    most ``_MAX_MOVES`` times per call, which ends the search. Returns None when the excess
+    cannot be cleared.
     """
     a = np.asarray(assignment, dtype=np.int64).copy()
     if problem.capacity is None and problem.max_moved is None:
@@ -235,7 +238,7 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
             return np.array(al, dtype=np.int64)
         av = np.array(al, dtype=np.int64)
         u, v = graph.u, graph.v
-        sel = (av[u] != av[v]) & can[u] & (moved_units[u] < 3)
+        sel = (av[u] != av[v]) & can[u] & (moved_units[u] < _MAX_MOVES)
         cu, cj, ck = u[sel], av[u[sel]], av[v[sel]]
         ok = allowed[cu, ck]
         cu, cj, ck = cu[ok], cj[ok], ck[ok]
@@ -249,19 +252,18 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
         dm = _moved_delta(problem, cu, cj, ck)
         fine = moved + dm <= cap_moved + _TOL
         better = fine & (dv < -_TOL)
-        if better.any():
-            idx = np.flatnonzero(better)
-            order = idx[np.argsort(dc[idx] / -dv[idx], kind="stable")]  # cost per student
-        else:
-            over = (load > hi + _TOL).any(axis=0)
-            room = (load < hi - _TOL).all(axis=0)
-            dist = _zone_distances(av, graph, m, room & ~over)
-            side = fine & (dv <= _TOL) & over[cj] & (dist[ck] < dist[cj])
-            idx = np.flatnonzero(side)
-            if not len(idx):
-                return None
-            order = idx[np.lexsort((dc[idx], dist[ck[idx]]))]
-        for c in order[:2000].tolist():
+        idx = np.flatnonzero(better)
+        order = idx[np.argsort(dc[idx] / -dv[idx], kind="stable")][:2000]  # cost per student
+        # sideways moves come after (and serve when every lowering move would cut a zone)
+        over = (load > hi + _TOL).any(axis=0)
+        room = (load < hi - _TOL).all(axis=0)
+        dist = _zone_distances(av, graph, m, room & ~over)
+        side = fine & ~better & (dv <= _TOL) & over[cj] & (dist[ck] < dist[cj])
+        idx = np.flatnonzero(side)
+        order = np.concatenate([order, idx[np.lexsort((dc[idx], dist[ck[idx]]))][:2000]])
+        if not len(order):
+            return None
+        for c in order.tolist():
             i, j, k = int(cu[c]), int(cj[c]), int(ck[c])
             if _stays_connected(i, j, al, nbrs):
                 al[i] = k
@@ -271,8 +273,48 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
                 moved_units[i] += 1
                 break
         else:
-            return None
+            # every move would cut its zone: move a unit with the branch it would cut off,
+            # first where that lowers the excess, then sideways towards room
+            tries = order[:300].tolist()
+            for c, sideways in [(c, False) for c in tries] + [(c, True) for c in tries]:
+                i, j, k = int(cu[c]), int(cj[c]), int(ck[c])
+                if sideways and not (over[j] and dist[k] < dist[j]):
+                    continue
+                if problem.roots is None or problem.roots[j] < 0:
+                    continue
+                br = _branch(i, j, al, nbrs, int(problem.roots[j]))
+                if (~can[br]).any() or not allowed[br, k].all():
+                    continue
+                d = dem[:, br].sum(axis=1)
+                drop = _excess((load[:, j] - d)[:, None], hi[[j]], lo[[j]])[0] + _excess(
+                    (load[:, k] + d)[:, None], hi[[k]], lo[[k]])[0] - exc[j] - exc[k]
+                dmb = float(_moved_delta(problem, br, np.full(len(br), j),
+                                         np.full(len(br), k)).sum())
+                if drop < (_TOL if sideways else -_TOL) and moved + dmb <= cap_moved + _TOL:
+                    for x in br.tolist():
+                        al[x] = k
+                    load[:, j] -= d
+                    load[:, k] += d
+                    moved += dmb
+                    moved_units[br] += 1
+                    break
+            else:
+                return None
     return None
+
+
+def _branch(i: int, j: int, al: list[int], nbrs: list[list[int]], root: int) -> np.ndarray:
+    """Unit i and the units of zone j that lose their path to ``root`` when i leaves."""
+    seen = {root, i}
+    queue = deque([root])
+    while queue:
+        u = queue.popleft()
+        for w in nbrs[u]:
+            if w not in seen and al[w] == j:
+                seen.add(w)
+                queue.append(w)
+    cut = [x for x, z in enumerate(al) if z == j and x not in seen]
+    return np.array([i, *cut], dtype=np.int64)
 
 
 def _feasible_loads(lj, lk, hj, hk, loj, lok) -> bool:

@@ -56,6 +56,7 @@ __all__ = ["solve", "Session"]
 
 _TOL = 1e-6
 _LINK_LIMIT = 300_000  # disaggregated x <= y rows up to this many pairs
+_PROBE_LIMIT = 20_000  # columns above which HiGHS's presolve skips probing
 
 
 @dataclass
@@ -222,6 +223,10 @@ class _HighsBackend:
         h = _quiet_highs()
         h.setOptionValue("threads", int(threads))
         h.setOptionValue("presolve", "on")
+        if ncol > _PROBE_LIMIT:
+            # probing in presolve grows with the binaries and overruns the time limit on
+            # large models (seen: 90 s expected for 5,000 units x 25 schools)
+            h.setOptionValue("presolve_rule_off", 32768)
         h.passModel(lp)
         self.h = h
         self._cancel: Callable[[], bool] | None = None
@@ -616,6 +621,16 @@ def _prepare_start(problem: Problem, graph: cg.UnitGraph | None, start) -> np.nd
     return a
 
 
+def _constructive(problem: Problem) -> np.ndarray:
+    """Today's site for every unit that has a usable one, else the nearest usable site."""
+    allowed = problem.allowed & ~problem.closed_sites[None, :]
+    near = np.argmin(np.where(allowed, problem.travel, np.inf), axis=1)
+    cur = problem.current
+    ok = cur >= 0
+    ok[ok] = allowed[np.flatnonzero(ok), cur[ok]]
+    return np.where(ok, cur, near)
+
+
 class _Run:
     """Book-keeping of one solve: best valid plan, bound, rounds, history."""
 
@@ -781,9 +796,14 @@ class Session:
                        and not self._full)
         run = _Run(problem, graph, t0, time_limit, progress)
         run.bound = self._carried_bound
+        given = start is not None
         cand = _prepare_start(problem, graph, start)
         if cand is not None:
             run.consider(cand)
+        if run.best is None and graph is not None:
+            # insurance for the time limit: today's zones (or nearest schools) made valid
+            # by local search, when that succeeds; the heuristic below still runs
+            run.consider(_prepare_start(problem, graph, _constructive(problem)))
         if run.best is not None and run.gap() <= gap + 1e-12:
             # the adapted start is within the gap of a bound carried from a problem this
             # one restricts (see update): proven without building a model
@@ -807,7 +827,7 @@ class Session:
                 backend.fix_by_reduced_cost(run.best_obj)
         # without a valid start, the heuristic (fix-and-resolve) gives the first plan: on
         # capacity-bound towns it is far better than repairing the first exact answer
-        heuristic_done = graph is not None and run.best is None and lp is not None
+        heuristic_done = graph is not None and not given and lp is not None
         if heuristic_done:
             self._fix_and_resolve(backend, run, gap, cancel, relaxed, passable)
             if run.best is not None:
