@@ -56,7 +56,7 @@ __all__ = ["solve", "Session"]
 
 _TOL = 1e-6
 _LINK_LIMIT = 300_000  # disaggregated x <= y rows up to this many pairs
-_PROBE_LIMIT = 20_000  # columns above which HiGHS's presolve skips probing
+_PROBE_LIMIT = 60_000  # columns above which HiGHS's presolve skips probing
 
 
 @dataclass
