@@ -309,6 +309,8 @@ def test_sigkill_mid_save_keeps_previous_options(tmp_path):
         finally:
             proc.send_signal(signal.SIGKILL)
             proc.wait()
+            # saves reported while the test slept count too (their lines are still unread)
+            done += [int(x) for x in proc.stdout.read().split()]
             proc.stdout.close()
         store = tmp_path / "options.gpkg"
         leftovers = list(tmp_path.glob(".tmp-options-*"))
