@@ -68,10 +68,10 @@ def _excess(load: np.ndarray, hi: np.ndarray, lo: np.ndarray) -> np.ndarray:
     return (np.maximum(load - hi, 0.0) + np.maximum(lo - load, 0.0)).sum(axis=0)
 
 
-def _zone_connected(j: int, al: list[int], nbrs: list[list[int]], start: int) -> bool:
-    """True when every unit of zone j is reachable from ``start`` inside zone j."""
-    size = sum(1 for x in al if x == j)
-    seen = {start}
+def _reach(j: int, al: list[int], nbrs: list[list[int]], start: int,
+           avoid: int = -1) -> set[int]:
+    """Units of zone j reachable from ``start`` inside zone j (never through ``avoid``)."""
+    seen = {start, avoid}
     queue = deque([start])
     while queue:
         u = queue.popleft()
@@ -79,7 +79,13 @@ def _zone_connected(j: int, al: list[int], nbrs: list[list[int]], start: int) ->
             if w not in seen and al[w] == j:
                 seen.add(w)
                 queue.append(w)
-    return len(seen) == size
+    seen.discard(avoid)
+    return seen
+
+
+def _zone_connected(j: int, al: list[int], nbrs: list[list[int]], start: int) -> bool:
+    """True when every unit of zone j is reachable from ``start`` inside zone j."""
+    return len(_reach(j, al, nbrs, start)) == sum(1 for x in al if x == j)
 
 
 def _bridge(problem: Problem, graph: UnitGraph, b: np.ndarray, piece: np.ndarray, j: int,
@@ -305,15 +311,8 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
 
 def _branch(i: int, j: int, al: list[int], nbrs: list[list[int]], root: int) -> np.ndarray:
     """Unit i and the units of zone j that lose their path to ``root`` when i leaves."""
-    seen = {root, i}
-    queue = deque([root])
-    while queue:
-        u = queue.popleft()
-        for w in nbrs[u]:
-            if w not in seen and al[w] == j:
-                seen.add(w)
-                queue.append(w)
-    cut = [x for x, z in enumerate(al) if z == j and x not in seen]
+    seen = _reach(j, al, nbrs, root, avoid=i)
+    cut = [x for x, z in enumerate(al) if z == j and x != i and x not in seen]
     return np.array([i, *cut], dtype=np.int64)
 
 
