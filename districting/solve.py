@@ -723,6 +723,7 @@ class Session:
         self._parents: np.ndarray | None = None
         self._graph = cg.UnitGraph.of(problem) if problem.contiguous else None
         self._carried_bound = -np.inf  # a bound proven for a problem this one restricts
+        self._solved: Problem | None = None  # the problem self.last was solved for
         self.build_seconds = 0.0
 
     def update(self, problem: Problem) -> None:
@@ -733,10 +734,10 @@ class Session:
         lower bound and starts the next solve.
         """
         old = self.problem
-        last = self.last
-        carry = (last is not None and last.feasible and np.isfinite(last.bound)
-                 and problem.is_restriction_of(old))
-        self._carried_bound = max(last.bound, self._carried_bound) if carry else -np.inf
+        last, base = self.last, self._solved
+        carry = (last is not None and base is not None and last.feasible
+                 and np.isfinite(last.bound) and problem.is_restriction_of(base))
+        self._carried_bound = last.bound if carry else -np.inf
         same_graph = (
             problem.n_units == old.n_units
             and problem.n_sites == old.n_sites
@@ -1089,7 +1090,7 @@ class Session:
         return added, batch
 
     def _finish(self, plan: Plan) -> Plan:
-        self.last = plan
+        self.last, self._solved = plan, self.problem
         return plan
 
 

@@ -185,3 +185,13 @@ def test_resolve_after_a_lock_on_the_same_side_is_proven_at_once():
     s.update(p)  # unlocking may make plans cheaper: the bound must not carry over
     fourth = s.solve()
     assert fourth.objective == pytest.approx(2.0) and fourth.bound <= 2.0 + 1e-9
+    # two updates without a solve between: solved with unit 1 locked to site 1 (cost 3),
+    # then unlocked, then unit 0 locked to site 0. The last problem restricts the one before
+    # it, not the one solved, so the bound 3 must not carry: the optimum is 2 (0,0,1,1),
+    # although the previous plan (0,1,1,1) is valid and costs 3.
+    s.update(p.replace(locks=np.array([-1, 1, -1, -1])))
+    assert s.solve().objective == pytest.approx(3.0)
+    s.update(p)
+    s.update(p.replace(locks=np.array([0, -1, -1, -1])))
+    fifth = s.solve()
+    assert fifth.objective == pytest.approx(2.0)
