@@ -260,24 +260,28 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
         better = fine & (dv < -_TOL)
         idx = np.flatnonzero(better)
         order = idx[np.argsort(dc[idx] / -dv[idx], kind="stable")][:2000]  # cost per student
-        # sideways moves come after (and serve when every lowering move would cut a zone)
-        over = (load > hi + _TOL).any(axis=0)
-        room = (load < hi - _TOL).all(axis=0)
-        dist = _zone_distances(av, graph, m, room & ~over)
-        side = fine & ~better & (dv <= _TOL) & over[cj] & (dist[ck] < dist[cj])
-        idx = np.flatnonzero(side)
-        order = np.concatenate([order, idx[np.lexsort((dc[idx], dist[ck[idx]]))][:2000]])
-        if not len(order):
-            return None
-        for c in order.tolist():
+        c = next((c for c in order.tolist()
+                  if _stays_connected(int(cu[c]), int(cj[c]), al, nbrs)), None)
+        if c is None:
+            # sideways moves (when no move lowers the excess, or each would cut a zone)
+            over = (load > hi + _TOL).any(axis=0)
+            room = (load < hi - _TOL).all(axis=0)
+            dist = _zone_distances(av, graph, m, room & ~over)
+            side = fine & ~better & (dv <= _TOL) & over[cj] & (dist[ck] < dist[cj])
+            idx = np.flatnonzero(side)
+            side_order = idx[np.lexsort((dc[idx], dist[ck[idx]]))][:2000]
+            order = np.concatenate([order, side_order])
+            if not len(order):
+                return None
+            c = next((c for c in side_order.tolist()
+                      if _stays_connected(int(cu[c]), int(cj[c]), al, nbrs)), None)
+        if c is not None:
             i, j, k = int(cu[c]), int(cj[c]), int(ck[c])
-            if _stays_connected(i, j, al, nbrs):
-                al[i] = k
-                load[:, j] -= dem[:, i]
-                load[:, k] += dem[:, i]
-                moved += float(dm[c])
-                moved_units[i] += 1
-                break
+            al[i] = k
+            load[:, j] -= dem[:, i]
+            load[:, k] += dem[:, i]
+            moved += float(dm[c])
+            moved_units[i] += 1
         else:
             # every move would cut its zone: move a unit with the branch it would cut off,
             # first where that lowers the excess, then sideways towards room

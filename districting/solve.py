@@ -623,7 +623,7 @@ def _prepare_start(problem: Problem, graph: cg.UnitGraph | None, start) -> np.nd
 
 def _constructive(problem: Problem) -> np.ndarray:
     """Today's site for every unit that has a usable one, else the nearest usable site."""
-    allowed = problem.allowed & ~problem.closed_sites[None, :]
+    allowed = problem.allowed  # closed sites are not allowed
     near = np.argmin(np.where(allowed, problem.travel, np.inf), axis=1)
     cur = problem.current
     ok = cur >= 0
