@@ -660,21 +660,50 @@ def improve(
 
 
 def _stays_connected(i: int, j: int, al: list[int], nbrs: list[list[int]]) -> bool:
-    """True when zone j stays connected after unit i leaves it."""
+    """True when zone j stays connected after unit i leaves it.
+
+    One breadth-first search grows from each of i's neighbours in j, taking turns, and
+    searches that meet merge. The answer is known as soon as one search has merged them
+    all (connected) or one runs out of units unmet (cut off), so a unit whose move would
+    cut off a small branch costs the size of the branch, not of the zone.
+    """
     same = [w for w in nbrs[i] if al[w] == j]
-    if len(same) <= 1:
+    k = len(same)
+    if k <= 1:
         return True
-    targets = set(same[1:])
-    seen = {i, same[0]}
-    queue = deque([same[0]])
-    while queue:
-        u = queue.popleft()
-        for w in nbrs[u]:
-            if w not in seen and al[w] == j:
-                if w in targets:
-                    targets.discard(w)
-                    if not targets:
-                        return True
-                seen.add(w)
-                queue.append(w)
-    return not targets
+    owner = {w: s for s, w in enumerate(same)}
+    owner[i] = -1
+    parent = list(range(k))
+
+    def find(x: int) -> int:
+        while parent[x] != x:
+            parent[x] = parent[parent[x]]
+            x = parent[x]
+        return x
+
+    queues = {s: deque([w]) for s, w in enumerate(same)}
+    groups = k
+    while True:
+        for r in list(queues):
+            q = queues.get(r)
+            if q is None:
+                continue  # merged into another search during this turn
+            if not q:
+                return False
+            x = q.popleft()
+            for y in nbrs[x]:
+                if al[y] != j:
+                    continue
+                o = owner.get(y)
+                if o is None:
+                    owner[y] = r
+                    q.append(y)
+                elif o >= 0:
+                    a, b = find(o), find(r)
+                    if a != b:
+                        parent[b] = a
+                        queues[a].extend(queues.pop(b))
+                        groups -= 1
+                        if groups == 1:
+                            return True
+                        r, q = a, queues[a]

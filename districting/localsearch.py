@@ -183,20 +183,16 @@ def _zone_distances(a: np.ndarray, graph: UnitGraph, m: int, sources: np.ndarray
     """Hops in the zone graph from each site to the nearest site in ``sources``."""
     u, v = graph.u, graph.v
     diff = a[u] != a[v]
-    pairs = {(int(x), int(y)) for x, y in zip(a[u][diff], a[v][diff], strict=True)}
-    nb: list[list[int]] = [[] for _ in range(m)]
-    for x, y in pairs:
-        nb[x].append(y)
+    codes = np.unique(a[u][diff] * m + a[v][diff])
+    touch = np.zeros((m, m), bool)
+    touch[codes // m, codes % m] = True
     dist = np.full(m, np.inf)
-    queue = deque(int(s) for s in np.flatnonzero(sources))
-    for s in queue:
-        dist[s] = 0
-    while queue:
-        x = queue.popleft()
-        for y in nb[x]:
-            if dist[y] == np.inf:
-                dist[y] = dist[x] + 1
-                queue.append(y)
+    frontier = np.asarray(sources, bool).copy()
+    hops = 0
+    while frontier.any():
+        dist[frontier] = hops
+        hops += 1
+        frontier = touch[frontier].any(axis=0) & ~np.isfinite(dist)
     return dist
 
 
@@ -249,7 +245,11 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
         ok = allowed[cu, ck]
         cu, cj, ck = cu[ok], cj[ok], ck[ok]
         if not len(cu):
-            return None
+            dm_chain = _relieve(problem, graph, al, load, hi, lo, can, exc, cap_moved - moved)
+            if dm_chain is None:
+                return None
+            moved += dm_chain
+            continue
         d = dem[:, cu]
         lj, lk = load[:, cj] - d, load[:, ck] + d
         new = _excess(lj, hi[cj], lo[cj]) + _excess(lk, hi[ck], lo[ck])
@@ -271,8 +271,6 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
             idx = np.flatnonzero(side)
             side_order = idx[np.lexsort((dc[idx], dist[ck[idx]]))][:2000]
             order = np.concatenate([order, side_order])
-            if not len(order):
-                return None
             c = next((c for c in side_order.tolist()
                       if _stays_connected(int(cu[c]), int(cj[c]), al, nbrs)), None)
         if c is not None:
@@ -309,7 +307,120 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
                     moved_units[br] += 1
                     break
             else:
-                return None
+                # no single move or branch works: an ejection chain through zones in band
+                dm_chain = _relieve(problem, graph, al, load, hi, lo, can, exc,
+                                    cap_moved - moved)
+                if dm_chain is None:
+                    return None
+                moved += dm_chain
+    return None
+
+
+def _relieve(problem: Problem, graph: UnitGraph, al: list[int], load: np.ndarray,
+             hi: np.ndarray, lo: np.ndarray, can: np.ndarray, exc: np.ndarray,
+             spare_moved: float) -> float | None:
+    """Apply the cheapest ejection chain (:func:`_eject`) for the zone with the largest
+    excess that has one, in place on ``al`` and ``load``; the change in students moved, or
+    None when no zone out of band has a chain."""
+    dem = problem.demand
+    for z in np.argsort(-exc, kind="stable").tolist():
+        if exc[z] <= _TOL:
+            break
+        push = bool((load[:, z] > hi[z] + _TOL).any())
+        chain = _eject(problem, graph, al, load, hi, lo, can, z, push, spare_moved)
+        if chain is None:
+            continue
+        units = np.array([c[0] for c in chain])
+        frm = np.array([c[1] for c in chain])
+        to = np.array([c[2] for c in chain])
+        for i, _, t in chain:
+            al[i] = t
+        np.add.at(load.T, to, dem[:, units].T)
+        np.subtract.at(load.T, frm, dem[:, units].T)
+        return float(_moved_delta(problem, units, frm, to).sum())
+    return None
+
+
+def _eject(problem: Problem, graph: UnitGraph, al: list[int], load: np.ndarray,
+           hi: np.ndarray, lo: np.ndarray, can: np.ndarray, z0: int, push: bool,
+           spare_moved: float, depth: int = 8, beam: int = 24,
+           branch: int = 3) -> list[tuple[int, int, int]] | None:
+    """A chain of single-unit moves that lowers zone z0's excess and leaves every other
+    zone it passes through inside its band (an ejection chain, Glover 1996).
+
+    ``push`` (z0 over a cap): z0 hands a border unit to a neighbour, which, when that puts
+    it out of band, hands on a unit of its own, and so on until a zone can take what it
+    receives. Otherwise (z0 under a floor) the chain pulls units towards z0 the same way.
+    Every move keeps both zones connected (checked with the earlier moves of the chain in
+    place) and never uses a unit twice. Breadth-first by chain length, keeping the
+    ``beam`` cheapest partial chains per length and ``branch`` cheapest moves per zone and
+    partial chain. Returns [(unit, from, to), ...] or None.
+    """
+    dem, wc, allowed = problem.demand, problem.weighted_cost, problem.allowed
+    nbrs = graph.lists
+    av = np.array(al, dtype=np.int64)
+    u, v = graph.u, graph.v
+    sel = (av[u] != av[v]) & can[u] & allowed[u, av[v]] & (dem[:, u].sum(axis=0) > 0)
+    cu, cf, ct = u[sel], av[u[sel]], av[v[sel]]
+    key = cf if push else ct  # the chain's current zone: the one a unit leaves (push)
+    order = np.argsort(key, kind="stable")
+    cu, cf, ct, key = cu[order], cf[order], ct[order], key[order]
+    starts = np.searchsorted(key, np.arange(problem.n_sites + 1))
+    dc_all = wc[cu, ct] - wc[cu, cf]
+
+    def in_band(x: np.ndarray, z: int) -> bool:
+        return bool((x <= hi[z] + _TOL).all() and (x >= lo[z] - _TOL).all())
+
+    # state: (cost, moves, zone, change of the zone's load by the chain so far)
+    states = [(0.0, [], z0, np.zeros(dem.shape[0]))]
+    for _ in range(depth):
+        found: list[tuple[float, list]] = []
+        nxt = []
+        for cost, moves, z, carry in states:
+            for i, _, t, _ in moves:
+                al[i] = t
+            used = {m_[0] for m_ in moves}
+            zones = {m_[1] for m_ in moves} | {m_[2] for m_ in moves} | {z0}
+            lo_r, hi_r = starts[z], starts[z + 1]
+            rows = np.arange(lo_r, hi_r)
+            other = ct[rows] if push else cf[rows]
+            d = dem[:, cu[rows]]
+            new_z = (load[:, [z]] + carry[:, None]) + (-d if push else d)
+            if z == z0:
+                ok = _excess(new_z, hi[[z]], lo[[z]]) < _excess(
+                    (load[:, [z]] + carry[:, None]), hi[[z]], lo[[z]]) - _TOL
+            else:
+                ok = ((new_z <= hi[z] + _TOL) & (new_z >= lo[z] - _TOL)).all(axis=0)
+            rows = rows[ok & ~np.isin(other, list(zones))]
+            rows = rows[np.argsort(dc_all[rows], kind="stable")]
+            per: dict[int, int] = {}
+            for r in rows.tolist():
+                i, f, t = int(cu[r]), int(cf[r]), int(ct[r])
+                w = t if push else f
+                if per.get(w, 0) >= branch or i in used or al[i] != f:
+                    continue
+                if not any(al[x] == t for x in nbrs[i]) or not _stays_connected(i, f, al, nbrs):
+                    continue
+                dm = float(_moved_delta(problem, np.array([i]), np.array([f]),
+                                        np.array([t]))[0])
+                if sum(m_[3] for m_ in moves) + dm > spare_moved + _TOL:
+                    continue
+                per[w] = per.get(w, 0) + 1
+                chain = [*moves, (i, f, t, dm)]
+                dw = dem[:, i] if push else -dem[:, i]
+                if in_band(load[:, w] + dw, w):
+                    found.append((cost + float(dc_all[r]), chain))
+                else:
+                    nxt.append((cost + float(dc_all[r]), chain, w, dw))
+            for i, f, _, _ in moves[::-1]:
+                al[i] = f
+        if found:
+            best = min(found, key=lambda x: x[0])[1]
+            return [(i, f, t) for i, f, t, _ in best]
+        if not nxt:
+            return None
+        nxt.sort(key=lambda x: x[0])
+        states = nxt[:beam]
     return None
 
 

@@ -48,7 +48,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from . import contiguity as cg
-from . import localsearch
+from . import localsearch, neighbourhood
 from .plan import Plan, Round, plan_metrics, relative_gap
 from .problem import Problem, _same_array
 
@@ -57,6 +57,10 @@ __all__ = ["solve", "Session"]
 _TOL = 1e-6
 _LINK_LIMIT = 300_000  # disaggregated x <= y rows up to this many pairs
 _PROBE_LIMIT = 60_000  # columns above which HiGHS's presolve skips probing
+_LNS_MIN_SITES = 8  # fewer sites: the exact rounds alone (neighbourhoods of 3-8 zones)
+_LNS_SHARE = 0.35  # of the time left, at most, for the large-neighbourhood search
+_LNS_BIG = 150_000  # columns above which one exact round takes most of a minute (HiGHS
+_LNS_SHARE_BIG = 0.9  # presolve alone: 45 s at 350,000 columns), so the search gets more
 
 
 @dataclass
@@ -278,11 +282,20 @@ class _HighsBackend:
         return x
 
     def add_cuts(self, cuts: Sequence[cg.Cut]) -> int:
-        """Add x[i,j] (+ x[a,j] - 1) - sum_S x[s,j] <= 0 rows; returns the number added."""
+        """Add x[i,j] (+ x[a,j] - 1) - sum_S x[s,j] <= 0 rows; returns the number added.
+
+        A separator pair without a column is left out of its row only when the pair is not
+        allowed (x[s,j] = 0 in every plan); a cut through a unit the model leaves out is
+        not added at all (cuts found on the full model, reused by a relaxed rebuild).
+        """
         starts, idx, val, ub = [], [], [], []
         nnz = 0
         for cut in cuts:
             j = cut.site
+            if self.drop[cut.separator].any() or (cut.anchor >= 0 and self.drop[cut.anchor]):
+                # a unit the model leaves out (no students) would be dropped from the row,
+                # which would make the cut too strong: it may be handed any zone later
+                continue
             sc = self.colmap[cut.separator, j]
             sc = sc[sc >= 0]
             ac = self.colmap[cut.anchor, j] if cut.anchor >= 0 else -1
@@ -621,6 +634,23 @@ def _prepare_start(problem: Problem, graph: cg.UnitGraph | None, start) -> np.nd
     return a
 
 
+def backend_columns(backend) -> int:
+    """Columns of the model (0 when the backend does not say)."""
+    return int(getattr(backend, "ncol", 0))
+
+
+def _rounded(problem: Problem, backend) -> np.ndarray:
+    """Each unit to the site its LP value is largest on; units the model leaves out (those
+    without students) and units without a column keep the constructive site."""
+    a = _constructive(problem)
+    lp = backend.relaxation()
+    if lp is None:
+        return a
+    order = np.argsort(lp[1], kind="stable")  # the largest value is written last
+    a[backend.xi[order]] = backend.xj[order]
+    return a
+
+
 def _constructive(problem: Problem) -> np.ndarray:
     """Today's site for every unit that has a usable one, else the nearest usable site."""
     allowed = problem.allowed  # closed sites are not allowed
@@ -724,6 +754,9 @@ class Session:
         self._graph = cg.UnitGraph.of(problem) if problem.contiguous else None
         self._carried_bound = -np.inf  # a bound proven for a problem this one restricts
         self._solved: Problem | None = None  # the problem self.last was solved for
+        # heuristics besides the exact rounds and their repair: LP rounding, the
+        # large-neighbourhood search, fix-and-resolve (off inside a neighbourhood's solve)
+        self.heuristics = True
         self.build_seconds = 0.0
 
     def update(self, problem: Problem) -> None:
@@ -775,12 +808,16 @@ class Session:
         Stage 0: the start, adapted to this problem (locks applied, repaired), is the first
         valid plan when it passes the checks; with a bound carried over by :meth:`update`
         it may already be proven. Stage 1 (highs route): the LP relaxation gives a lower
-        bound and, when no valid start exists, the fix-and-resolve heuristic
-        (:meth:`_fix_and_resolve`) a first valid plan, which reduced-cost fixing then uses
-        to shrink the model. Stage 2: exact rounds on the model without any heuristic
-        restriction (separator cuts only), each warm-started from the best valid plan,
-        until the gap is within ``gap``; the heuristic runs once more when the repaired
-        answer of a round is still far above the bound.
+        bound, and its own choice per unit made valid a candidate plan; on a model above
+        ``_LNS_BIG`` columns the large-neighbourhood search (:mod:`.neighbourhood`) runs
+        at once; when no valid start was given, the fix-and-resolve heuristic
+        (:meth:`_fix_and_resolve`) runs too (on a model above ``_PROBE_LIMIT`` columns only
+        when nothing else found a plan: its restricted MIPs can stall HiGHS there).
+        Reduced-cost fixing uses each better plan to shrink the model. Stage 2: exact
+        rounds on the model without any heuristic restriction (separator cuts only), each
+        warm-started from the best valid plan, until the gap is within ``gap``;
+        fix-and-resolve and the large-neighbourhood search run (once each) when the
+        repaired answer of a round is still far above the bound.
         """
         t0 = time.monotonic()
         problem = self.problem
@@ -826,10 +863,26 @@ class Session:
             run.bound = max(run.bound, lp[0])
             if run.best is not None:
                 backend.fix_by_reduced_cost(run.best_obj)
+        if lp is not None and graph is not None and self.heuristics:
+            # the LP's own choice per unit, made valid: often far better than today's zones
+            if run.consider(localsearch.make_valid(problem, graph, _rounded(problem, backend))):
+                backend.fix_by_reduced_cost(run.best_obj)
+        # large-neighbourhood search: at once on a model too large for quick exact rounds,
+        # else after a round that leaves the gap wide
+        big = backend_columns(backend) > _LNS_BIG
+        lns_done = not (graph is not None and self.heuristics
+                        and problem.n_sites > _LNS_MIN_SITES)
+        if not lns_done and big and run.best is not None:
+            lns_done = True
+            self._neighbourhoods(run, cancel, big)
+            backend.fix_by_reduced_cost(run.best_obj)
         # without a valid start, the heuristic (fix-and-resolve) gives the first plan: on
-        # capacity-bound towns it is far better than repairing the first exact answer
-        heuristic_done = graph is not None and not given and lp is not None
-        if heuristic_done:
+        # capacity-bound towns it is far better than repairing the first exact answer (on
+        # large models, whose restricted MIPs can stall HiGHS, only when nothing else did)
+        heuristic_done = not self.heuristics or (
+            run.best is not None and backend_columns(backend) > _PROBE_LIMIT)
+        if not heuristic_done and graph is not None and not given and lp is not None:
+            heuristic_done = True
             self._fix_and_resolve(backend, run, gap, cancel, relaxed, passable)
             if run.best is not None:
                 backend.fix_by_reduced_cost(run.best_obj)
@@ -903,6 +956,9 @@ class Session:
                         if far and backend.relaxation() is not None:
                             heuristic_done = True
                             self._fix_and_resolve(backend, run, gap, cancel, relaxed, passable)
+                if not lns_done and run.best is not None and run.gap() > max(10 * gap, 1e-3):
+                    lns_done = True
+                    self._neighbourhoods(run, cancel, big)
             run.record(max(added, 0), n_frag)
             if run.best is not None and run.gap() <= gap + 1e-12:
                 status = "optimal"
@@ -924,6 +980,16 @@ class Session:
             status = "feasible"
         backend.unrestrict()
         return self._finish(run.plan(status, message, route, len(self.cuts), gap))
+
+    def _neighbourhoods(self, run: _Run, cancel, big: bool) -> None:
+        """Large-neighbourhood search from the best plan (:mod:`districting.neighbourhood`)
+        for at most a share of the time left (most of it on a model so large that one exact
+        round cannot finish); every better plan is kept at once."""
+        left = run.left()
+        share = _LNS_SHARE_BIG if big else _LNS_SHARE
+        deadline = None if left is None else time.monotonic() + share * left
+        neighbourhood.reoptimise(self.problem, self._graph, run.best, deadline,
+                                 on_better=run.consider, cancel=cancel)
 
     def _fix_and_resolve(self, backend, run: _Run, gap: float, cancel, relaxed: bool,
                          passable: np.ndarray | None, max_rounds: int = 60) -> None:

@@ -100,18 +100,24 @@ def brute_force(problem, edges):
     return best
 
 
-@pytest.mark.parametrize("seed", range(4))
-def test_contiguous_optimum_equals_brute_force(seed):
-    # 3x4 grid, 3 sites: every one of 3^12 assignments is checked
+def tiny_town(seed: int):
+    """3x4 grid, 3 sites, costs unrelated to geometry (they force fragments), capacity
+    1.3 x the mean load: small enough for :func:`brute_force`. Returns (problem, edges, xy)."""
     rng = np.random.default_rng(100 + seed)
     xy, edges = grid(4, 3)
     n = len(xy)
     roots = rng.choice(n, 3, replace=False)
-    cost = rng.uniform(1, 10, (n, 3))  # costs unrelated to geometry force fragments
+    cost = rng.uniform(1, 10, (n, 3))
     d = rng.integers(0, 4, n).astype(float)
     d[roots] = 1
     cap = np.full(3, d.sum() / 3 * 1.3)
-    problem = Problem.from_arrays(cost, d, capacity=cap, edges=edges, roots=roots)
+    return Problem.from_arrays(cost, d, capacity=cap, edges=edges, roots=roots), edges, xy
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_contiguous_optimum_equals_brute_force(seed):
+    # every one of 3^12 assignments is checked
+    problem, edges, _ = tiny_town(seed)
     plan = solve(problem, gap=0.0)
     expected = brute_force(problem, edges)
     assert plan.status == "optimal"

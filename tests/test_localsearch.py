@@ -110,3 +110,41 @@ def test_locked_units_and_roots_never_move():
     assert b is not None
     assert b[9] == 0 and list(b[sites]) == [0, 1, 2]
     assert plan_checks(prob, b, g) == []
+
+
+def test_rebalance_passes_the_excess_along_a_chain_of_zones():
+    # Hand-worked: path 0-1-2-3-4-5, zones A={0,1} (root 0), B={2,3} (root 2), C={4,5}
+    # (root 5); students 5,3,5,3,1,1; caps A 6, B 8, C 6. A holds 8 (2 over), B is full,
+    # C has room for 4. Handing unit 1 (3 students) to B clears A but puts B 3 over, so no
+    # single move lowers the excess and none keeps it equal; the chain 1: A->B, 3: B->C
+    # ends with loads 5, 8, 5: every school in band.
+    edges = [(k, k + 1) for k in range(5)]
+    cost = np.abs(np.arange(6)[:, None] - np.array([0, 2, 5])[None, :]).astype(float) + 1
+    d = np.array([5, 3, 5, 3, 1, 1], float)
+    prob = Problem.from_arrays(cost, d, capacity=[6, 8, 6], edges=edges, roots=[0, 2, 5])
+    g = UnitGraph.of(prob)
+    a = np.array([0, 0, 1, 1, 2, 2])
+    b = ls.rebalance(prob, g, a)
+    assert b is not None
+    assert list(b) == [0, 1, 1, 2, 2, 2]
+    assert list(loads(prob, b)[0]) == [5, 8, 5]
+    assert zones_connected(b, prob, edges)
+
+
+def test_leaving_unit_connectivity_agrees_with_networkx():
+    # _stays_connected (interleaved searches from the leaving unit's neighbours) against
+    # networkx.has_path on random graphs with two zones
+    from districting.contiguity import _stays_connected
+
+    rng = np.random.default_rng(0)
+    for t in range(400):
+        n = int(rng.integers(5, 30))
+        gr = nx.gnm_random_graph(n, int(rng.integers(n, 3 * n)), seed=t)
+        nbrs = [list(gr[x]) for x in range(n)]
+        al = [int(z) for z in rng.integers(0, 2, n)]
+        i = int(rng.integers(n))
+        j = al[i]
+        rest = gr.subgraph([x for x in range(n) if al[x] == j and x != i])
+        same = [w for w in nbrs[i] if al[w] == j]
+        expected = all(nx.has_path(rest, same[0], w) for w in same[1:])
+        assert _stays_connected(i, j, al, nbrs) == expected

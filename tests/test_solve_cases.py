@@ -195,3 +195,26 @@ def test_resolve_after_a_lock_on_the_same_side_is_proven_at_once():
     s.update(p.replace(locks=np.array([0, -1, -1, -1])))
     fifth = s.solve()
     assert fifth.objective == pytest.approx(2.0)
+
+
+def test_a_cut_through_a_unit_left_out_of_the_model_is_not_added():
+    # Path 0-1-2-3-4, sites at units 0 and 4, unit 2 has no students. The separator cut
+    # "unit 3 in zone 0 needs unit 2 in zone 0" is valid on the full model. A rebuilt
+    # model that leaves unit 2 out (it is handed a zone after the solve) must not add it:
+    # without unit 2's column the row would read x[3,0] <= 0, and that cuts off the
+    # optimum, which (hand-worked) puts units 0-3 in zone 0 and unit 4 in zone 1 at cost
+    # 1+1+0+1+1 = 4, against 1+1+0+5+1 = 8 with unit 3 in zone 1.
+    from districting.contiguity import Cut
+    from districting.solve import _HighsBackend
+
+    cost = np.array([[1, 9], [1, 9], [1, 9], [1, 5], [9, 1]], float)
+    d = np.array([1, 1, 0, 1, 1], float)
+    p = Problem.from_arrays(cost, d, edges=[(0, 1), (1, 2), (2, 3), (3, 4)], roots=[0, 4])
+    cut = Cut(site=0, units=np.array([3]), separator=np.array([2]))
+    full = _HighsBackend(p)
+    assert full.add_cuts([cut]) == 1
+    relaxed = _HighsBackend(p, drop=np.array([False, False, True, False, False]))
+    assert relaxed.add_cuts([cut]) == 0
+    z, _, _ = relaxed.relaxation()
+    assert z <= 4 + 1e-9
+    assert solve(p, gap=0.0).objective == pytest.approx(4.0)
