@@ -659,6 +659,14 @@ def improve(
     return a
 
 
+def zone_touch(graph: UnitGraph, assignment: np.ndarray, m: int) -> np.ndarray:
+    """(m, m) number of unit-graph edges between each pair of zones of a plan."""
+    a = np.asarray(assignment, np.int64)
+    u, v = graph.u, graph.v
+    diff = a[u] != a[v]
+    return np.bincount(a[u][diff] * m + a[v][diff], minlength=m * m).reshape(m, m)
+
+
 def _stays_connected(i: int, j: int, al: list[int], nbrs: list[list[int]]) -> bool:
     """True when zone j stays connected after unit i leaves it.
 

@@ -27,7 +27,13 @@ from collections import deque
 
 import numpy as np
 
-from .contiguity import UnitGraph, _stays_connected, reassign_empty, zone_components
+from .contiguity import (
+    UnitGraph,
+    _stays_connected,
+    reassign_empty,
+    zone_components,
+    zone_touch,
+)
 from .problem import Problem
 
 __all__ = ["absorb", "rebalance", "improve", "make_valid"]
@@ -181,11 +187,7 @@ def absorb(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
 
 def _zone_distances(a: np.ndarray, graph: UnitGraph, m: int, sources: np.ndarray) -> np.ndarray:
     """Hops in the zone graph from each site to the nearest site in ``sources``."""
-    u, v = graph.u, graph.v
-    diff = a[u] != a[v]
-    codes = np.unique(a[u][diff] * m + a[v][diff])
-    touch = np.zeros((m, m), bool)
-    touch[codes // m, codes % m] = True
+    touch = zone_touch(graph, a, m) > 0
     dist = np.full(m, np.inf)
     frontier = np.asarray(sources, bool).copy()
     hops = 0

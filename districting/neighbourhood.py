@@ -24,7 +24,7 @@ from collections.abc import Callable
 
 import numpy as np
 
-from .contiguity import UnitGraph
+from .contiguity import UnitGraph, zone_touch
 from .problem import Problem
 
 __all__ = ["subproblem", "reoptimise"]
@@ -82,13 +82,6 @@ def subproblem(problem: Problem, assignment: np.ndarray,
     return sub, units
 
 
-def _zone_touch(graph: UnitGraph, a: np.ndarray, m: int) -> np.ndarray:
-    """(m, m) number of unit-graph edges between each pair of zones."""
-    u, v = graph.u, graph.v
-    diff = a[u] != a[v]
-    return np.bincount(a[u][diff] * m + a[v][diff], minlength=m * m).reshape(m, m)
-
-
 def reoptimise(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
                deadline: float | None = None, *, sizes: tuple[int, ...] = (3, 5, 8),
                gap: float = 1e-4, on_better: Callable[[np.ndarray], None] | None = None,
@@ -119,7 +112,7 @@ def reoptimise(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
         improved = True
         while improved:
             improved = False
-            touch = _zone_touch(graph, best, m)
+            touch = zone_touch(graph, best, m)
             used = np.flatnonzero(np.bincount(best, minlength=m) > 0)
             for z in used.tolist():
                 if left() <= 0 or (cancel is not None and cancel()):
@@ -147,7 +140,7 @@ def reoptimise(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
                 if new_cost < cost - _TOL * abs(cost):
                     best, cost, improved = new, new_cost, True
                     clean = {k for k in clean if not (k & key) or k == key}
-                    touch = _zone_touch(graph, best, m)
+                    touch = zone_touch(graph, best, m)
                     if on_better is not None:
                         on_better(best)
     return best

@@ -634,7 +634,7 @@ def _prepare_start(problem: Problem, graph: cg.UnitGraph | None, start) -> np.nd
     return a
 
 
-def backend_columns(backend) -> int:
+def _columns(backend) -> int:
     """Columns of the model (0 when the backend does not say)."""
     return int(getattr(backend, "ncol", 0))
 
@@ -869,7 +869,7 @@ class Session:
                 backend.fix_by_reduced_cost(run.best_obj)
         # large-neighbourhood search: at once on a model too large for quick exact rounds,
         # else after a round that leaves the gap wide
-        big = backend_columns(backend) > _LNS_BIG
+        big = _columns(backend) > _LNS_BIG
         lns_done = not (graph is not None and self.heuristics
                         and problem.n_sites > _LNS_MIN_SITES)
         if not lns_done and big and run.best is not None:
@@ -880,7 +880,7 @@ class Session:
         # capacity-bound towns it is far better than repairing the first exact answer (on
         # large models, whose restricted MIPs can stall HiGHS, only when nothing else did)
         heuristic_done = not self.heuristics or (
-            run.best is not None and backend_columns(backend) > _PROBE_LIMIT)
+            run.best is not None and _columns(backend) > _PROBE_LIMIT)
         if not heuristic_done and graph is not None and not given and lp is not None:
             heuristic_done = True
             self._fix_and_resolve(backend, run, gap, cancel, relaxed, passable)
