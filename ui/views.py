@@ -267,12 +267,15 @@ class MapView(pn.viewable.Viewer):
         self.figure = fig
         self.units.selected.on_change("indices", self._on_select)
         self.pane = pn.pane.Bokeh(fig, sizing_mode="stretch_width", height=560)
+        self._pending: set[str] = set()
         self._refresh_today()
         self.refresh()
-        state.param.watch(lambda e: self.refresh(), ["plan_version", "edits_version"])
+        state.param.watch(lambda e: self._in_document(self.refresh),
+                          ["plan_version", "edits_version"])
         state.param.watch(self._on_state_selection, "selection")
-        self.param.watch(self._on_toggle, ["show_today", "show_changes", "show_labels"])
-        state.param.watch(lambda e: (self._refresh_today(), self._refresh_sites()), "level")
+        self.param.watch(lambda *e: self._in_document(self._on_toggle),
+                         ["show_today", "show_changes", "show_labels"])
+        state.param.watch(lambda e: self._in_document(self._refresh_level), "level")
         self._last_level = st.level
 
     # ---------------------------------------------------------- data
@@ -322,6 +325,33 @@ class MapView(pn.viewable.Viewer):
         if colors:
             data["fill"] = [colors.get(s, "#ffffff") for s in data["site_id"]]
         self.sites.data = data
+
+    def _in_document(self, fn) -> None:
+        """Run ``fn`` (which changes Bokeh models) where the page's document allows it.
+
+        A widget callback may run outside the document's write lock, and changing a Bokeh
+        model there breaks the session; in a live session the change therefore waits for
+        the document's next tick, which runs under the lock. Pending calls of the same
+        method are coalesced: each reads the state afresh when it runs.
+        """
+        doc = self.units.document
+        if doc is None or doc.session_context is None:
+            fn()
+            return
+        key = fn.__name__
+        if key in self._pending:
+            return
+        self._pending.add(key)
+
+        def run() -> None:
+            self._pending.discard(key)
+            fn()
+
+        doc.add_next_tick_callback(run)
+
+    def _refresh_level(self) -> None:
+        self._refresh_today()
+        self._refresh_sites()
 
     def _refresh_today(self) -> None:
         st = self.state.store
@@ -374,23 +404,15 @@ class MapView(pn.viewable.Viewer):
             self.state.select(chosen)
 
     def _on_state_selection(self, event) -> None:
-        pos = {u: i for i, u in enumerate(self.units.data["unit_id"])}
-        idx = sorted(pos[u] for u in event.new if u in pos)
-        if list(self.units.selected.indices) == idx:
-            return
+        self._in_document(self._show_selection)
 
-        def apply() -> None:
+    def _show_selection(self) -> None:
+        pos = {u: i for i, u in enumerate(self.units.data["unit_id"])}
+        idx = sorted(pos[u] for u in self.state.selection if u in pos)
+        if list(self.units.selected.indices) != idx:
             self.units.selected.indices = idx
 
-        # A widget callback may run outside the document's write lock; changing a Bokeh
-        # model there breaks the session, so the change waits for the next locked tick.
-        doc = self.units.document
-        if doc is not None and doc.session_context is not None:
-            doc.add_next_tick_callback(apply)
-        else:
-            apply()
-
-    def _on_toggle(self, *events) -> None:
+    def _on_toggle(self) -> None:
         self.today_glyphs.visible = self.show_today
         self.change_glyphs.visible = self.show_changes
         self.labels.visible = self.show_labels
