@@ -42,6 +42,7 @@ __all__ = [
     "separator",
     "min_separator",
     "separator_cuts",
+    "fractional_cuts",
     "free_units",
     "reassign_empty",
     "repair",
@@ -200,8 +201,6 @@ def min_separator(graph: UnitGraph, piece: np.ndarray, other: int,
     from its school this is the crossing itself, so its cut is far stronger than the
     fragment's neighbourhood. None when every separator would need an ``avoid`` unit.
     """
-    from scipy.sparse.csgraph import breadth_first_order, maximum_flow
-
     n = graph.n
     big = n + 1
     node_cap = np.ones(n, np.int32)
@@ -209,24 +208,36 @@ def min_separator(graph: UnitGraph, piece: np.ndarray, other: int,
     node_cap[other] = big
     if avoid is not None:
         node_cap[avoid] = big
+    value, sep = _vertex_cut(graph, node_cap, piece, other, big)
+    return None if value >= big else sep
+
+
+def _vertex_cut(graph: UnitGraph, node_cap: np.ndarray, piece: np.ndarray, other: int,
+                big: int) -> tuple[int, np.ndarray]:
+    """Minimum vertex cut between the units ``piece`` and unit ``other`` (max-flow).
+
+    Unit v becomes an arc in(v) -> out(v) of capacity ``node_cap[v]``; each edge u-v
+    becomes out(u) -> in(v) and out(v) -> in(u) of capacity ``big``; a super source feeds
+    the piece. Returns the flow value and the units whose in-node the source still reaches
+    in the residual network but whose out-node it does not (the cut's units).
+    """
+    from scipy.sparse.csgraph import breadth_first_order, maximum_flow
+
+    n = graph.n
     src = 2 * n
     rows = np.concatenate([np.arange(n), graph.u + n, np.full(len(piece), src)])
     cols = np.concatenate([np.arange(n) + n, graph.v, piece])
-    caps = np.concatenate([node_cap, np.full(len(graph.u) + len(piece), big, np.int32)])
+    caps = np.concatenate([np.asarray(node_cap, np.int32),
+                           np.full(len(graph.u) + len(piece), big, np.int32)])
     net = sp.csr_matrix((caps, (rows, cols)), shape=(2 * n + 1,) * 2)
     res = maximum_flow(net, src, other + n)
-    if res.flow_value >= big:
-        return None
-    flow = res.flow.tocsr()
-    residual = net - flow
+    residual = (net - res.flow).tocsr()  # the flow is antisymmetric: back arcs included
     residual.data = (residual.data > 0).astype(np.int8)
-    back = flow.T.tocsr()
-    back.data = (back.data > 0).astype(np.int8)
-    reach = breadth_first_order((residual + back).tocsr(), src, directed=True,
-                                return_predecessors=False)
+    residual.eliminate_zeros()
+    reach = breadth_first_order(residual, src, directed=True, return_predecessors=False)
     seen = np.zeros(2 * n + 1, bool)
     seen[reach] = True
-    return np.flatnonzero(seen[:n] & ~seen[n:2 * n])
+    return int(res.flow_value), np.flatnonzero(seen[:n] & ~seen[n:2 * n])
 
 
 def separator_cuts(
@@ -285,6 +296,65 @@ def separator_cuts(
             narrow = min_separator(graph, units, other, avoid=passable)
             if narrow is not None and 0 < len(narrow) < len(sep):
                 cuts.append(Cut(site=j, units=units, separator=narrow))
+    return cuts
+
+
+_FLOW_SCALE = 10_000  # LP values to integer capacities for scipy's max-flow
+_FLOW_BIG = 1 << 30  # a capacity no cut can afford (above n x _FLOW_SCALE for n < 100,000)
+
+
+def fractional_cuts(problem: Problem, graph: UnitGraph, values: np.ndarray,
+                    passable: np.ndarray | None = None, violation: float = 0.01) -> list[Cut]:
+    """Separator cuts violated by a fractional point, such as an LP solution.
+
+    ``values`` is (n, m): x*[i, j]. For a site j with root r the inequality
+    ``x[i, j] <= sum_{s in S} x[s, j]`` holds for every vertex set S separating i from r, so
+    it is violated exactly when the minimum weight of such a separator, with weight
+    x*[s, j] on each unit (and none on ``passable`` units, which any zone may cross and
+    which therefore never belong to S), is below x*[i, j]. That minimum is a maximum flow
+    on the graph with every unit split into an in- and an out-node joined by an arc of its
+    weight (vertex cuts by Menger's theorem; the separation of a-b separator inequalities
+    for fractional points in Validi, Buchanan & Lykhovyd, Operations Research 70(2), 2022).
+
+    One flow serves many units: for a level theta, the units with x*[., j] >= theta (and
+    the passable ones) split into pieces; a unit of value theta in the root's piece reaches
+    the root through units of value at least theta, so no cut can be violated for it.
+    Any violated cut for a unit i of another piece avoids that piece's units (each costs
+    at least theta), so one flow from the whole piece to the root finds it, and the same
+    S serves every unit of the piece whose value exceeds the separator's weight.
+    Returns one :class:`Cut` per piece found violated (by more than ``violation``).
+    """
+    x = np.asarray(values, float)
+    n, m = x.shape
+    cuts: list[Cut] = []
+    if problem.roots is None:
+        return cuts
+    pas = np.zeros(n, bool) if passable is None else np.asarray(passable, bool)
+    for j in np.flatnonzero((problem.roots >= 0) & ~problem.closed_sites).tolist():
+        r = int(problem.roots[j])
+        w = x[:, j]
+        cand = (w > violation) & ~pas
+        cand[r] = False
+        if not cand.any():
+            continue
+        base_cap = np.round(np.where(pas, 0.0, w) * _FLOW_SCALE).astype(np.int64)
+        base_cap[pas] = _FLOW_BIG
+        base_cap[r] = _FLOW_BIG
+        done = np.zeros(n, bool)
+        for theta in np.unique(np.round(w[cand], 3))[::-1].tolist():
+            keep = (w >= theta - 1e-9) | pas
+            keep[r] = True
+            lab = graph.components(keep)
+            out = cand & ~done & keep & (lab != lab[r])
+            for piece_label in np.unique(lab[out]).tolist():
+                piece = np.flatnonzero(lab == piece_label)
+                done[piece] = True
+                node_cap = base_cap.copy()
+                node_cap[piece] = _FLOW_BIG
+                value, sep = _vertex_cut(graph, node_cap, piece, r, _FLOW_BIG)
+                units = piece[cand[piece] & (w[piece] > value / _FLOW_SCALE + violation)]
+                if value < _FLOW_BIG and len(units):
+                    cuts.append(Cut(site=j, units=units, separator=sep))
     return cuts
 
 

@@ -61,6 +61,8 @@ _LNS_MIN_SITES = 8  # fewer sites: the exact rounds alone (neighbourhoods of 3-8
 _LNS_SHARE = 0.35  # of the time left, at most, for the large-neighbourhood search
 _LNS_BIG = 150_000  # columns above which one exact round takes most of a minute (HiGHS
 _LNS_SHARE_BIG = 0.9  # presolve alone: 45 s at 350,000 columns), so the search gets more
+_ROOT_SHARE = 0.15  # of the time left, at most, for root cutting planes on the LP
+_ROOT_MAX = 10.0  # seconds, at most, for them
 
 
 @dataclass
@@ -222,6 +224,7 @@ class _HighsBackend:
         self.upper = upper.copy()  # permanent bounds (reduced-cost fixing lowers them)
         self._temp: np.ndarray | None = None  # columns a heuristic turned off for a while
         self._lp: tuple[float, np.ndarray, np.ndarray] | None = None
+        self._cut_lp: tuple[float, np.ndarray, np.ndarray] | None = None  # after strengthen
         self._tree: np.ndarray | None = None  # rows of the heuristic's site trees
         self._tree_off = np.zeros(0, np.int64)
         h = _quiet_highs()
@@ -402,6 +405,77 @@ class _HighsBackend:
         h.changeColsIntegrality(self.ncol, allc, np.full(self.ncol, hs.HighsVarType.kInteger))
         return self._lp
 
+    def strongest(self) -> tuple[float, np.ndarray, np.ndarray] | None:
+        """The LP with the root cutting planes when :meth:`strengthen` ran, else the plain
+        one: the best lower bound (z_LP, x, rc) for the bound and reduced-cost fixing."""
+        return self._cut_lp if self._cut_lp is not None else self.relaxation()
+
+    def strengthen(self, graph: cg.UnitGraph, passable: np.ndarray | None, deadline: float,
+                   ub: float = np.inf, max_rounds: int = 200, min_gain: float = 0.005,
+                   keep_share: float = 0.1) -> list[cg.Cut]:
+        """Root cutting planes: separator cuts violated by the LP point, in rounds.
+
+        Solves the LP relaxation with every row so far, adds the separator cuts its point
+        violates (:func:`districting.contiguity.fractional_cuts`) and solves again (the
+        dual simplex restarts from the last basis), until no cut is violated, the clock
+        reaches ``deadline``, or three rounds running each close less than ``min_gain``
+        of the gap to ``ub`` (the cost of a valid plan; without one, of a thousandth of
+        the bound): on some towns the cuts lift the bound a long way at once, on others
+        they creep, and creeping rows only slow the integer rounds down. The cuts are
+        valid for every plan, so the last LP stays a relaxation (:meth:`strongest`): it
+        lifts the bound and lets reduced-cost fixing drop more pairs. The heuristics keep
+        the plain LP (:meth:`relaxation`): its point, less fractional, guides them better
+        (measured on the demo town's elementary level). When all the rounds together
+        close less than ``keep_share`` of the gap to ``ub``, the rows are taken out of the
+        model again (the bound they gave is kept): there they slowed the integer rounds
+        more than they helped (measured on the same level). Returns the cuts kept.
+        """
+        lp = self.relaxation()
+        if lp is None or self.problem.roots is None:
+            return []
+        hs, h = self._hs, self.h
+        n, m = self.problem.n_units, self.problem.n_sites
+        k = len(self.xi)
+        allc = np.arange(self.ncol, dtype=np.int32)
+        h.changeColsIntegrality(self.ncol, allc,
+                                np.full(self.ncol, hs.HighsVarType.kContinuous))
+        found: list[cg.Cut] = []
+        z, xv = lp[0], lp[1]
+        first_row = h.getNumRow()
+        stalls = 0
+        try:
+            for _ in range(max_rounds):
+                if time.monotonic() >= deadline:
+                    break
+                point = np.zeros((n, m))
+                point[self.xi, self.xj] = xv
+                cuts = cg.fractional_cuts(self.problem, graph, point, passable)
+                if not cuts or not self.add_cuts(cuts):
+                    break
+                found.extend(cuts)
+                h.setOptionValue("time_limit", max(deadline - time.monotonic(), 0.01))
+                h.run()
+                if h.getModelStatus() != hs.HighsModelStatus.kOptimal:
+                    break
+                sol = h.getSolution()
+                z_new = float(h.getInfo().objective_function_value)
+                xv = np.asarray(sol.col_value)[:k].copy()
+                self._cut_lp = (z_new, xv, np.asarray(sol.col_dual)[:k].copy())
+                room = ub - z if np.isfinite(ub) and ub > z else 1e-3 * max(abs(z), 1.0)
+                stalls = stalls + 1 if z_new - z < min_gain * room else 0
+                z = z_new
+                if stalls >= 3:
+                    break
+        finally:
+            h.changeColsIntegrality(self.ncol, allc,
+                                    np.full(self.ncol, hs.HighsVarType.kInteger))
+        closed = (z - lp[0]) / (ub - lp[0]) if np.isfinite(ub) and ub > lp[0] else 1.0
+        if found and closed < keep_share:
+            rows = np.arange(first_row, h.getNumRow(), dtype=np.int32)
+            h.deleteRows(len(rows), rows)
+            return []
+        return found
+
     def fix_by_reduced_cost(self, ub: float) -> int:
         """Reduced-cost fixing against a valid plan of cost ``ub``; returns columns fixed.
 
@@ -412,7 +486,7 @@ class _HighsBackend:
         x_k <= 0 is fixed for good. Columns at their upper bound have rc <= 0 and are never
         fixed. Redone (with the same LP) whenever a better plan lowers ``ub``.
         """
-        lp = self.relaxation()
+        lp = self.strongest()
         if lp is None or not np.isfinite(ub):
             return 0
         z, xv, rc = lp
@@ -578,6 +652,10 @@ class _PyomoBackend:
     def relaxation(self) -> None:
         """No LP pass on this route: its bound comes from the solver's own answers."""
         return None
+
+    def strengthen(self, graph, passable, deadline) -> list:
+        """No root cutting planes on this route (no LP pass)."""
+        return []
 
     def unrestrict(self) -> None:
         """Nothing to undo: this route never restricts columns for the heuristic."""
@@ -859,13 +937,20 @@ class Session:
         message = ""
         # ---- stage 1: LP bound, heuristic plan, reduced-cost fixing
         lp = backend.relaxation()
+        if lp is not None and graph is not None and self.heuristics:
+            # the LP's own choice per unit, made valid: often far better than today's zones
+            run.consider(localsearch.make_valid(problem, graph, _rounded(problem, backend)))
+        if lp is not None and graph is not None and self.heuristics:
+            # root cutting planes: separator cuts the LP point violates, while they pay
+            # (not inside a neighbourhood's small solve, where they cost more than they give)
+            left = run.left()
+            budget = _ROOT_MAX if left is None else min(_ROOT_MAX, _ROOT_SHARE * left)
+            self.cuts.extend(backend.strengthen(graph, passable if relaxed else None,
+                                                time.monotonic() + budget, run.best_obj))
+            lp = backend.strongest()
         if lp is not None:
             run.bound = max(run.bound, lp[0])
             if run.best is not None:
-                backend.fix_by_reduced_cost(run.best_obj)
-        if lp is not None and graph is not None and self.heuristics:
-            # the LP's own choice per unit, made valid: often far better than today's zones
-            if run.consider(localsearch.make_valid(problem, graph, _rounded(problem, backend))):
                 backend.fix_by_reduced_cost(run.best_obj)
         # large-neighbourhood search: at once on a model too large for quick exact rounds,
         # else after a round that leaves the gap wide
