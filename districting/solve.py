@@ -966,7 +966,7 @@ class Session:
         # large models, whose restricted MIPs can stall HiGHS, only when nothing else did)
         heuristic_done = not self.heuristics or (
             run.best is not None and _columns(backend) > _PROBE_LIMIT)
-        if not heuristic_done and graph is not None and not given and lp is not None:
+        if not heuristic_done and not given and lp is not None:
             heuristic_done = True
             self._fix_and_resolve(backend, run, gap, cancel, relaxed, passable)
             if run.best is not None:
@@ -1114,7 +1114,9 @@ class Session:
         backend.trees(tree_off is not None)
         forbid = np.zeros(k, bool)
         batch = np.zeros(0, np.int64)
-        hgap = max(gap, 2e-3)
+        # without contiguity one answer ends the heuristic: a loose gap gets it quickly,
+        # and the exact rounds prove the rest from it
+        hgap = max(gap, 2e-3 if graph is not None else 1e-2)
         wc = problem.weighted_cost
         for _ in range(max_rounds):
             if cancel is not None and cancel():
