@@ -886,11 +886,13 @@ class Session:
         Stage 0: the start, adapted to this problem (locks applied, repaired), is the first
         valid plan when it passes the checks; with a bound carried over by :meth:`update`
         it may already be proven. Stage 1 (highs route): the LP relaxation gives a lower
-        bound, and its own choice per unit made valid a candidate plan; on a model above
+        bound, and its own choice per unit made valid a candidate plan; root cutting
+        planes (:meth:`_HighsBackend.strengthen`) lift that bound; on a model above
         ``_LNS_BIG`` columns the large-neighbourhood search (:mod:`.neighbourhood`) runs
         at once; when no valid start was given, the fix-and-resolve heuristic
-        (:meth:`_fix_and_resolve`) runs too (on a model above ``_PROBE_LIMIT`` columns only
-        when nothing else found a plan: its restricted MIPs can stall HiGHS there).
+        (:meth:`_fix_and_resolve`) runs too, with or without contiguity (on a model
+        above ``_PROBE_LIMIT`` columns only when nothing else found a plan: its restricted
+        MIPs can stall HiGHS there).
         Reduced-cost fixing uses each better plan to shrink the model. Stage 2: exact
         rounds on the model without any heuristic restriction (separator cuts only), each
         warm-started from the best valid plan, until the gap is within ``gap``;
@@ -940,7 +942,6 @@ class Session:
         if lp is not None and graph is not None and self.heuristics:
             # the LP's own choice per unit, made valid: often far better than today's zones
             run.consider(localsearch.make_valid(problem, graph, _rounded(problem, backend)))
-        if lp is not None and graph is not None and self.heuristics:
             # root cutting planes: separator cuts the LP point violates, while they pay
             # (not inside a neighbourhood's small solve, where they cost more than they give)
             left = run.left()
