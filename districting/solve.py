@@ -42,6 +42,7 @@ from __future__ import annotations
 import dataclasses
 import time
 from collections.abc import Callable, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass
 
 import numpy as np
@@ -390,20 +391,34 @@ class _HighsBackend:
         """
         if self._lp is not None or self.infeasible_reason:
             return self._lp
+        with self._continuous():
+            self._lp = self._run_lp(np.inf)
+        return self._lp
+
+    @contextmanager
+    def _continuous(self):
+        """Every column continuous inside the block (the LP relaxation), integer after."""
         hs, h = self._hs, self.h
         allc = np.arange(self.ncol, dtype=np.int32)
-        h.changeColsIntegrality(self.ncol, allc,
-                                np.full(self.ncol, hs.HighsVarType.kContinuous))
-        h.setOptionValue("time_limit", np.inf)
+        h.changeColsIntegrality(self.ncol, allc, np.full(self.ncol, hs.HighsVarType.kContinuous))
+        try:
+            yield
+        finally:
+            h.changeColsIntegrality(self.ncol, allc,
+                                    np.full(self.ncol, hs.HighsVarType.kInteger))
+
+    def _run_lp(self, time_limit: float) -> tuple[float, np.ndarray, np.ndarray] | None:
+        """Solve the model as it stands (inside :meth:`_continuous`): (z, x, rc) of the
+        pair columns, or None when the LP did not finish optimal."""
+        hs, h = self._hs, self.h
+        h.setOptionValue("time_limit", float(time_limit))
         h.run()
-        if h.getModelStatus() == hs.HighsModelStatus.kOptimal:
-            sol = h.getSolution()
-            k = len(self.xi)
-            self._lp = (float(h.getInfo().objective_function_value),
-                        np.asarray(sol.col_value)[:k].copy(),
-                        np.asarray(sol.col_dual)[:k].copy())
-        h.changeColsIntegrality(self.ncol, allc, np.full(self.ncol, hs.HighsVarType.kInteger))
-        return self._lp
+        if h.getModelStatus() != hs.HighsModelStatus.kOptimal:
+            return None
+        sol = h.getSolution()
+        k = len(self.xi)
+        return (float(h.getInfo().objective_function_value),
+                np.asarray(sol.col_value)[:k].copy(), np.asarray(sol.col_dual)[:k].copy())
 
     def strongest(self) -> tuple[float, np.ndarray, np.ndarray] | None:
         """The LP with the root cutting planes when :meth:`strengthen` ran, else the plain
@@ -433,17 +448,13 @@ class _HighsBackend:
         lp = self.relaxation()
         if lp is None or self.problem.roots is None:
             return []
-        hs, h = self._hs, self.h
+        h = self.h
         n, m = self.problem.n_units, self.problem.n_sites
-        k = len(self.xi)
-        allc = np.arange(self.ncol, dtype=np.int32)
-        h.changeColsIntegrality(self.ncol, allc,
-                                np.full(self.ncol, hs.HighsVarType.kContinuous))
         found: list[cg.Cut] = []
         z, xv = lp[0], lp[1]
         first_row = h.getNumRow()
         stalls = 0
-        try:
+        with self._continuous():
             for _ in range(max_rounds):
                 if time.monotonic() >= deadline:
                     break
@@ -453,22 +464,16 @@ class _HighsBackend:
                 if not cuts or not self.add_cuts(cuts):
                     break
                 found.extend(cuts)
-                h.setOptionValue("time_limit", max(deadline - time.monotonic(), 0.01))
-                h.run()
-                if h.getModelStatus() != hs.HighsModelStatus.kOptimal:
+                answer = self._run_lp(max(deadline - time.monotonic(), 0.01))
+                if answer is None:
                     break
-                sol = h.getSolution()
-                z_new = float(h.getInfo().objective_function_value)
-                xv = np.asarray(sol.col_value)[:k].copy()
-                self._cut_lp = (z_new, xv, np.asarray(sol.col_dual)[:k].copy())
+                self._cut_lp = answer
+                z_new, xv = answer[0], answer[1]
                 room = ub - z if np.isfinite(ub) and ub > z else 1e-3 * max(abs(z), 1.0)
                 stalls = stalls + 1 if z_new - z < min_gain * room else 0
                 z = z_new
                 if stalls >= 3:
                     break
-        finally:
-            h.changeColsIntegrality(self.ncol, allc,
-                                    np.full(self.ncol, hs.HighsVarType.kInteger))
         closed = (z - lp[0]) / (ub - lp[0]) if np.isfinite(ub) and ub > lp[0] else 1.0
         if found and closed < keep_share:
             rows = np.arange(first_row, h.getNumRow(), dtype=np.int32)
@@ -652,10 +657,6 @@ class _PyomoBackend:
     def relaxation(self) -> None:
         """No LP pass on this route: its bound comes from the solver's own answers."""
         return None
-
-    def strengthen(self, graph, passable, deadline) -> list:
-        """No root cutting planes on this route (no LP pass)."""
-        return []
 
     def unrestrict(self) -> None:
         """Nothing to undo: this route never restricts columns for the heuristic."""
