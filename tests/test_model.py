@@ -156,10 +156,7 @@ def test_pyomo_route_matches_highs_array_route():
     import districting
 
     problem = rich_problem(6)
-    try:
-        fast = districting.solve(problem, gap=1e-9)
-    except NotImplementedError:
-        pytest.skip("the highspy route is not written yet")
+    fast = districting.solve(problem, gap=1e-9)
     slow = districting.solve(problem, gap=1e-9, solver="appsi_highs")
     ref = solve_model(build_model(problem, "none"), gap=1e-9)
     assert fast.objective == pytest.approx(ref.objective, rel=1e-7)
@@ -253,7 +250,7 @@ def test_flow_with_candidate_sites_and_warm_start():
 
 def test_flow_equals_cut_loop_on_georgia_counties():
     # libpysal example data: Georgia's 159 counties (G_utm.shp, projected metres, TotPop90).
-    gpd = pytest.importorskip("geopandas")
+    import geopandas as gpd
     from libpysal.examples import get_path
     from libpysal.graph import Graph
 
