@@ -9,6 +9,7 @@ import numpy as np
 import pytest
 import scipy.optimize as so
 import scipy.sparse as sp
+from plan_check import assert_plan_valid
 
 from districting import Problem
 from districting.model import add_separator_cut, build_model, solve_model
@@ -149,6 +150,7 @@ def test_pyomo_model_matches_independent_scipy_milp():
         assert res.bound == pytest.approx(res.objective, rel=1e-6)
         assert res.assignment[5] == 3  # the lock holds
         assert res.open_sites[0] and res.open_sites.sum() == 3
+        assert_plan_valid(problem, res.assignment)  # every rule, by the independent checker
 
 
 def test_pyomo_route_matches_highs_array_route():
@@ -228,6 +230,8 @@ def test_flow_equals_cut_loop_on_random_grids(seed, n_sites):
     assert flow.objective == pytest.approx(cuts.objective, rel=1e-7, abs=1e-7)
     assert connected_zones(problem, flow.assignment)
     assert connected_zones(problem, cuts.assignment)
+    assert_plan_valid(problem, flow.assignment)  # every rule, by the independent checker
+    assert_plan_valid(problem, cuts.assignment)
 
 
 def test_flow_with_candidate_sites_and_warm_start():
