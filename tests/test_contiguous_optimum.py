@@ -148,7 +148,7 @@ def brute_force(problem: Problem) -> float:
 
 @settings(max_examples=15, deadline=None, derandomize=True,
           suppress_health_check=[HealthCheck.too_slow])
-@given(towns(max_units=7))
+@given(towns(max_units=8))
 def test_tiny_towns_engine_equals_brute_force(problem):
     want = brute_force(problem)
     plan = solve(problem, gap=0.0)
