@@ -16,6 +16,7 @@ A survivor is a change no test noticed: either a missing test or an equivalent m
 from __future__ import annotations
 
 import argparse
+import ast
 import json
 import os
 import shutil
@@ -27,14 +28,23 @@ from pathlib import Path
 
 ROOT = Path(__file__).resolve().parent.parent
 
-#: module -> the tests that guard it (kept fast: each mutant runs them once)
+#: name -> (module, the tests that guard it, the functions mutated: () for the whole module).
+#: Tests are kept fast: each mutant runs them once.
 MODULES = {
-    "verify": ("districting/verify.py", "tests/test_verify.py -k 'not command'"),
-    "diagnose": ("districting/diagnose.py", "tests/test_diagnose.py tests/test_years.py"),
-    "contiguity": ("districting/contiguity.py", "tests/test_contiguity.py"),
-    "plan": ("districting/plan.py", "tests/test_years.py tests/test_solve_cases.py"),
-    "problem": ("districting/problem.py", "tests/test_solve_cases.py tests/test_years.py"),
-    "options-names": ("districting/options.py", "tests/test_options.py"),
+    "verify": ("districting/verify.py", "tests/test_verify.py -k 'not command'", ()),
+    "precheck": ("districting/diagnose.py",
+                 "tests/test_diagnose.py tests/test_years.py -k 'not explain'",
+                 ("reachable", "unbuildable", "precheck", "_count_issues", "_lock_pair_issues",
+                  "_no_school_issues", "_root_pair_issues", "_must_move",
+                  "_forced_move_issues", "_seats", "_year_capacity_issues",
+                  "_shared_root_issues", "_floor_issues", "_lock_reach_issues",
+                  "_island_issues")),
+    "bands": ("districting/plan.py", "tests/test_years.py -k 'flag'", ("plan_metrics",)),
+    "connectivity": ("districting/contiguity.py", "tests/test_contiguity.py",
+                     ("zone_components", "_main_labels", "_attached", "fragments",
+                      "is_contiguous", "separator", "min_separator", "_vertex_cut",
+                      "separator_cuts", "fractional_cuts", "plan_checks")),
+    "options-names": ("districting/options.py", "tests/test_options.py", ("_clean_name",)),
 }
 TIMEOUT = 120.0  # seconds per mutant's test run (a mutant that loops forever is killed)
 
@@ -49,8 +59,19 @@ def copy_project(dest: Path) -> None:
             shutil.copy2(src, dest / rel)
 
 
+def line_ranges(source: Path, functions: tuple[str, ...]) -> list[str]:
+    """'first-last' line ranges of the named top-level functions of ``source``."""
+    tree = ast.parse(source.read_text())
+    found = {node.name: f"{node.lineno}-{node.end_lineno}" for node in tree.body
+             if isinstance(node, ast.FunctionDef)}
+    missing = [f for f in functions if f not in found]
+    if missing:
+        raise SystemExit(f"{source}: no top-level function(s) {missing}")
+    return [found[f] for f in functions]
+
+
 def run_module(name: str, keep: bool = False) -> dict:
-    path, tests = MODULES[name]
+    path, tests, functions = MODULES[name]
     work = Path(tempfile.mkdtemp(prefix=f"mutation-{name}-"))
     copy_project(work)
     py = sys.executable
@@ -65,6 +86,10 @@ def run_module(name: str, keep: bool = False) -> dict:
         "[cosmic-ray.distributor]\n"
         'name = "local"\n'
     )
+    if functions:
+        ranges = ", ".join(f'"{r}"' for r in line_ranges(work / path, functions))
+        with config.open("a") as fh:
+            fh.write(f'[cosmic-ray.filters.line-filter]\nlines = {{ "{path}" = [{ranges}] }}\n')
     env = {**os.environ, "PYTHONPATH": str(work)}
     bin_dir = Path(py).parent
     cr = [str(bin_dir / "cosmic-ray")]
@@ -74,6 +99,9 @@ def run_module(name: str, keep: bool = False) -> dict:
     # lines marked "# pragma: no mutate" are left alone
     subprocess.run([str(bin_dir / "cr-filter-pragma"), str(session)],
                    cwd=work, env=env, check=True)
+    if functions:  # only the named functions
+        subprocess.run([str(bin_dir / "cr-filter-lines"), "--config", str(config), str(session)],
+                       cwd=work, env=env, check=True)
     base = subprocess.run(cr + ["baseline", str(config)], cwd=work, env=env)
     if base.returncode != 0:
         raise SystemExit(f"{name}: the tests fail without any mutant; fix them first")
@@ -108,8 +136,9 @@ def main(argv=None) -> int:
     ap.add_argument("--json", help="also write the results to this file")
     args = ap.parse_args(argv)
     if args.list:
-        for name, (path, tests) in MODULES.items():
-            print(f"{name:14} {path:28} {tests}")
+        for name, (path, tests, functions) in MODULES.items():
+            scope = ", ".join(functions) if functions else "whole module"
+            print(f"{name:14} {path:28} {tests}\n{'':14} mutated: {scope}")
         return 0
     names = args.modules or list(MODULES)
     unknown = [n for n in names if n not in MODULES]

@@ -112,17 +112,24 @@ def test_pmed1_duplicate_edges_last_line_wins():
     assert len(pairs) == 198
 
 
-@pytest.mark.parametrize("k", range(1, 11))
-def test_osman_christofides_optimum(k):
-    # Osman & Christofides (1994) instances 1-10: published optimum and assignment
+def osman_instance(k: int):
+    """Instance k with its published optimal assignment, which must re-cost to the optimum
+    and fit capacity with p medians."""
     dist, dem, p, q, opt = read_osman(DATA / "orlib_pmedcap" / f"pmedcap1_{k:02d}.txt")
     lit = next((DATA / "orlib_pmedcap" / "solutions_lit").glob(f"solOPT.cpmp{k:02d}_*.json"))
     pub = published_assignment(lit)
     n = len(dem)
-    # the published assignment, re-costed, gives the published optimum and fits capacity
     assert dist[np.arange(n), pub].sum() == pytest.approx(opt)
     assert np.bincount(pub, weights=dem, minlength=n).max() <= q
     assert len(np.unique(pub)) == p
+    return dist, dem, p, q, opt
+
+
+@pytest.mark.parametrize("k", range(1, 11))
+def test_osman_christofides_optimum(k):
+    # Osman & Christofides (1994) instances 1-10: published optimum and assignment
+    dist, dem, p, q, opt = osman_instance(k)
+    n = len(dem)
     plan = solve(capacitated(dist, dem, p, q), gap=1e-6)
     assert plan.status == "optimal"
     got = dist[np.arange(n), plan.assignment].sum()
@@ -167,11 +174,8 @@ def against_published(plan, cost: float, optimum: float, tol: float) -> None:
 @pytest.mark.parametrize("k", range(11, 21))
 def test_osman_christofides_11_to_20(k):
     # Osman & Christofides (1994) instances 11-20 (n=100, p=10): published optima
-    dist, dem, p, q, opt = read_osman(DATA / "orlib_pmedcap" / f"pmedcap1_{k:02d}.txt")
-    lit = next((DATA / "orlib_pmedcap" / "solutions_lit").glob(f"solOPT.cpmp{k:02d}_*.json"))
-    pub = published_assignment(lit)
+    dist, dem, p, q, opt = osman_instance(k)
     n = len(dem)
-    assert dist[np.arange(n), pub].sum() == pytest.approx(opt)
     plan = solve(capacitated(dist, dem, p, q), gap=1e-6, time_limit=SLOW_LIMIT)
     against_published(plan, float(dist[np.arange(n), plan.assignment].sum()), opt, 1e-6)
 

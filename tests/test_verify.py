@@ -8,11 +8,10 @@ saved option of the demo town.
 from __future__ import annotations
 
 import dataclasses
-import io
-from contextlib import redirect_stderr, redirect_stdout
 
 import numpy as np
 import pytest
+from test_cli import run_cli
 
 from districting import Problem
 from districting.verify import PlanFacts, check_plan, facts_of_problem
@@ -155,15 +154,6 @@ def test_facts_of_problem_reads_forbids_from_cost_and_locks():
 
 
 # ------------------------------------------------------------------------ the CLI verb
-def run_cli(*argv: str) -> tuple[int, str, str]:
-    from districting.cli import main
-
-    out, err = io.StringIO(), io.StringIO()
-    with redirect_stdout(out), redirect_stderr(err):
-        code = main(list(argv))
-    return code, out.getvalue(), err.getvalue()
-
-
 @pytest.fixture(scope="module")
 def demo(tmp_path_factory):
     from districting.demo import copy_demo
