@@ -14,7 +14,7 @@ import pytest
 from test_cli import run_cli
 
 from districting import Problem
-from districting.verify import PlanFacts, check_plan, facts_of_problem
+from districting.verify import PlanFacts, check_plan, facts_of_problem, report
 
 # A 2 x 3 grid of units, numbered
 #   0 1 2
@@ -58,6 +58,22 @@ def test_a_zone_in_two_pieces_is_refused():
     found = check_plan(facts(min_util=np.zeros(2)), [0, 1, 1, 0, 1, 0])
     assert rules(found) == [("connected", 0, None, 5)]
     assert found[0].message == "the zone of A is in 2 pieces: U5 cut off from the rest"
+
+
+def test_the_piece_holding_the_school_is_the_zone_others_are_cut_off():
+    # A 1 x 7 path; A stands in unit 0 and takes 0 and 2-6; unit 1 is B's (B stands in 1).
+    # A's piece {0} is the smaller one, yet it holds the school: the five units 2-6 are the
+    # ones cut off, named three at a time.
+    f = PlanFacts(demand=np.ones((1, 7)), capacity=None, max_util=np.ones(2),
+                  min_util=np.zeros(2), must_open=np.ones(2, bool), closed=np.zeros(2, bool),
+                  edges=np.array([(k, k + 1) for k in range(6)]), roots=np.array([0, 1]))
+    found = check_plan(f, [0, 1, 0, 0, 0, 0, 0])
+    assert rules(found) == [("connected", 0, None, 2)]
+    assert found[0].message == ("the zone of school 0 is in 2 pieces: unit 2, unit 3, unit 4 "
+                                "and 2 more cut off from the rest")
+    # without roots the largest piece is the zone: unit 0 is the one cut off
+    found = check_plan(dataclasses.replace(f, roots=None), [0, 1, 0, 0, 0, 0, 0])
+    assert rules(found) == [("connected", 0, None, 0)]
 
 
 def test_a_zone_without_its_school_unit_is_refused():
@@ -125,6 +141,16 @@ def test_max_distance_spares_school_units_and_locks():
         ("distance", 1, None, 5)]
 
 
+def test_max_distance_applies_to_schools_without_a_unit():
+    # A school's own unit may stand far from its point (a large unit): it is never a
+    # finding. A school with no unit of its own (-1) spares nobody, the last unit included.
+    dist = np.array([[5.0, 1.0], [1.0, 1.0], [1.0, 5.0]])
+    f = PlanFacts(demand=np.ones((1, 3)), capacity=None, max_util=np.ones(2),
+                  min_util=np.zeros(2), must_open=np.ones(2, bool), closed=np.zeros(2, bool),
+                  roots=np.array([0, -1]), distance=dist, max_distance=2.0)
+    assert rules(check_plan(f, [0, 0, 1])) == [("distance", 1, None, 2)]
+
+
 def test_students_moved_over_the_limit_is_refused():
     # today everyone is at A; GOOD moves units 2, 4, 5 = 30 students in the plan year
     f = facts(current=np.zeros(6, np.int64), max_moved=29.0)
@@ -132,6 +158,22 @@ def test_students_moved_over_the_limit_is_refused():
     assert rules(found) == [("moved", None, 0, None)]
     assert "30 students" in found[0].message
     assert check_plan(facts(current=np.zeros(6, np.int64), max_moved=30.0), GOOD) == []
+    # a unit with no school today (-1, new housing) is not a student moved
+    today = np.array([0, 0, -1, 0, -1, -1])
+    assert check_plan(facts(current=today, max_moved=0.0), GOOD) == []
+
+
+def test_report_lists_findings_or_what_was_checked():
+    f = facts(current=np.zeros(6, np.int64), max_moved=29.0, distance=np.zeros((6, 2)),
+              max_distance=9.0)
+    text = report(check_plan(f, GOOD), f, label="option X")
+    assert text == ("option X breaks 1 rule(s):\n"
+                    "  - 30 students change school in 2027, above the limit of 29")
+    ok = report([], dataclasses.replace(f, max_moved=30.0), label="option X")
+    assert ok == ("option X is valid: every unit has an allowed school; closed schools take "
+                  "nobody; locks are kept; every zone is connected and holds its school's "
+                  "unit; every open school is inside its band in 2027, 2028, 2029; no trip "
+                  "is longer than 9; the limit on students moved holds.")
 
 
 def test_an_unassigned_unit_is_refused():
