@@ -71,6 +71,9 @@ def test_the_piece_holding_the_school_is_the_zone_others_are_cut_off():
     assert rules(found) == [("connected", 0, None, 2)]
     assert found[0].message == ("the zone of school 0 is in 2 pieces: unit 2, unit 3, unit 4 "
                                 "and 2 more cut off from the rest")
+    # the same with the school at the other end (unit 6, B in unit 5)
+    g = dataclasses.replace(f, roots=np.array([6, 5]))
+    assert rules(check_plan(g, [0, 0, 0, 0, 0, 1, 0])) == [("connected", 0, None, 0)]
     # without roots the largest piece is the zone: unit 0 is the one cut off
     found = check_plan(dataclasses.replace(f, roots=None), [0, 1, 0, 0, 0, 0, 0])
     assert rules(found) == [("connected", 0, None, 0)]
@@ -196,6 +199,27 @@ def test_facts_of_problem_reads_forbids_from_cost_and_locks():
 
 
 # ------------------------------------------------------------------------ the CLI verb
+def test_facts_of_an_option_keep_forbids_and_the_maximum_distance(tmp_path):
+    # the invented grid town of tests/ui_town.py (200 m cells, schools M1-M4 in units 30,
+    # 39, 100, 109); a forbid of G000 at M1 and a 1,000 m limit from the run's settings
+    from ui_town import grid_inputs
+
+    from districting.study import RunSettings, outcome_from_assignment
+    from districting.verify import facts_of_outcome
+
+    inputs = grid_inputs(tmp_path)
+    rs = RunSettings(level="middle", forbids={"G000": ["M1"]}, max_distance=1000.0)
+    today = inputs.current["middle"]
+    f = facts_of_outcome(outcome_from_assignment(inputs, rs, today))
+    assert f.max_distance == 1000.0 and f.forbidden[0, 0] and f.forbidden.sum() == 1
+    found = check_plan(f, today)
+    assert ("forbid", 0, None, 0) in rules(found)
+    # G000 is 2 cells across and 2 up from M1's point (566 m), within the limit; today's
+    # zones are vertical bands 3-4 cells wide and 10 tall, so some units lie farther
+    assert ("distance", 0, None, 0) not in rules(found)
+    assert any(r[0] == "distance" for r in rules(found))
+
+
 @pytest.fixture(scope="module")
 def demo(tmp_path_factory):
     from districting.demo import copy_demo
