@@ -196,6 +196,9 @@ def test_facts_of_problem_reads_forbids_from_cost_and_locks():
     f = facts_of_problem(p)
     assert check_plan(f, [0, 0, 1]) == []
     assert rules(check_plan(f, [1, 1, 1])) == [("forbid", 1, None, 0), ("root", 0, None, 0)]
+    # the capacities come along: A seating 1 with 2 students is a finding
+    small = facts_of_problem(p.replace(capacity=np.array([1.0, 3.0])))
+    assert rules(check_plan(small, [0, 0, 1])) == [("capacity", 0, 0, None)]
 
 
 # ------------------------------------------------------------------------ the CLI verb
