@@ -39,7 +39,7 @@ MODULES = {
                   "_forced_move_issues", "_seats", "_year_capacity_issues",
                   "_shared_root_issues", "_floor_issues", "_lock_reach_issues",
                   "_island_issues")),
-    "bands": ("districting/plan.py", "tests/test_years.py -k 'flag'", ("plan_metrics",)),
+    "bands": ("districting/plan.py", "tests/test_years.py -k 'flag'", ("out_of_band",)),
     "connectivity": ("districting/contiguity.py", "tests/test_contiguity.py",
                      ("zone_components", "_main_labels", "_attached", "fragments",
                       "is_contiguous", "separator", "min_separator", "_vertex_cut",
