@@ -132,6 +132,12 @@ def test_open_count_is_checked():
               capacity=np.array([80.0, 40.0]))
     assert rules(check_plan(f, GOOD)) == [("open_count", None, None, None)]
     assert check_plan(f, [0] * 6) == []  # one school open, its zone the whole grid
+    # fewer open than asked is a finding too
+    assert rules(check_plan(dataclasses.replace(f, open_count=2), [0] * 6)) == [
+        ("open_count", None, None, None)]
+    # a school with no unit of its own (-1) needs none in its zone
+    g = dataclasses.replace(f, open_count=None, roots=np.array([0, -1]))
+    assert check_plan(g, [0, 0, 0, 1, 1, 0]) == []
 
 
 def test_a_broken_lock_is_refused():
@@ -180,6 +186,11 @@ def test_students_moved_over_the_limit_is_refused():
     # today unit 0 is at B and unit 2 at A: GOOD moves both (20 students)
     f = facts(current=np.array([1, 0, 0, 0, 1, 1]), max_moved=15.0)
     assert "20 students" in check_plan(f, GOOD)[0].message
+    # students moved are counted in the plan year: later years' counts do not matter
+    d = facts().demand.copy()
+    d[1:, [2, 4, 5]] = 50.0
+    assert check_plan(facts(demand=d, capacity=None, current=np.zeros(6, np.int64),
+                            max_moved=30.0), GOOD) == []
     # a unit with no school today (-1, new housing) is not a student moved
     today = np.array([0, 0, -1, 0, -1, -1])
     assert check_plan(facts(current=today, max_moved=0.0), GOOD) == []
