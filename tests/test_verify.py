@@ -218,6 +218,17 @@ def test_an_unassigned_unit_is_refused():
 
 def test_a_plan_of_the_wrong_length_is_refused():
     assert rules(check_plan(facts(), [0, 0, 1])) == [("assigned", None, None, None)]
+    assert rules(check_plan(facts(), [0] * 7)) == [("assigned", None, None, None)]
+
+
+def test_a_zone_in_three_pieces_is_refused():
+    # path 0-1-2-3-4: A takes 0, 2 and 4, B takes 1 and 3 (B is in two pieces as well)
+    f = PlanFacts(demand=np.ones((1, 5)), capacity=None, max_util=np.ones(2),
+                  min_util=np.zeros(2), must_open=np.ones(2, bool), closed=np.zeros(2, bool),
+                  edges=np.array([(k, k + 1) for k in range(4)]), roots=np.array([0, 1]))
+    found = check_plan(f, [0, 1, 0, 1, 0])
+    assert rules(found) == [("connected", 0, None, 2), ("connected", 1, None, 3)]
+    assert found[0].message.startswith("the zone of school 0 is in 3 pieces: unit 2, unit 4")
 
 
 def test_facts_of_problem_reads_forbids_from_cost_and_locks():
@@ -230,6 +241,8 @@ def test_facts_of_problem_reads_forbids_from_cost_and_locks():
     f = facts_of_problem(p)
     assert check_plan(f, [0, 0, 1]) == []
     assert rules(check_plan(f, [1, 1, 1])) == [("forbid", 1, None, 0), ("root", 0, None, 0)]
+    # locks are read to any school, not only the first
+    assert facts_of_problem(p.replace(locks=np.array([1, -1, -1]))).locks == {0: 1}
     # a lock allows its own pair though the cost table lacks it (the board decided)
     locked = facts_of_problem(p.replace(locks=np.array([-1, -1, 0])))
     assert rules(check_plan(locked, [0, 0, 0])) == [("root", 1, None, 2)]
