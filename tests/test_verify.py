@@ -174,6 +174,8 @@ def test_max_distance_applies_to_schools_without_a_unit():
                   min_util=np.zeros(2), must_open=np.ones(2, bool), closed=np.zeros(2, bool),
                   roots=np.array([0, -1]), distance=dist, max_distance=2.0)
     assert rules(check_plan(f, [0, 0, 1])) == [("distance", 1, None, 2)]
+    # the same with school 1 standing in unit 2: its own unit is spared
+    assert check_plan(dataclasses.replace(f, roots=np.array([0, 2])), [0, 0, 1]) == []
 
 
 def test_students_moved_over_the_limit_is_refused():
@@ -214,6 +216,7 @@ def test_an_unassigned_unit_is_refused():
     assert rules(found) == [("assigned", None, None, 3)]
     # a school number the problem does not have
     assert rules(check_plan(facts(), [0, 0, 1, 2, 1, 1])) == [("assigned", None, None, 3)]
+    assert rules(check_plan(facts(), [0, 0, 1, 5, 1, 1])) == [("assigned", None, None, 3)]
 
 
 def test_a_plan_of_the_wrong_length_is_refused():
