@@ -68,6 +68,7 @@ __all__ = [
     "save_state",
     "load_state",
     "state_record",
+    "state_keys",
     "StateConflict",
     "StoreDamaged",
     "check_option_name",
@@ -770,6 +771,14 @@ def state_record(store_path: str | os.PathLike, key: str) -> tuple[dict | None, 
             f"SELECT state_json, {rev} FROM {STATE_TABLE} WHERE key = ?", (key,)
         ).fetchone()
     return (None, 0) if row is None else (json.loads(row[0]), int(row[1]))
+
+
+def state_keys(store_path: str | os.PathLike) -> list[str]:
+    """Keys of the stored workbench records, oldest first."""
+    with _read(store_path) as con:
+        if con is None or not _has_table(con, STATE_TABLE):
+            return []
+        return [r[0] for r in con.execute(f"SELECT key FROM {STATE_TABLE} ORDER BY fid")]
 
 
 def load_state(store_path: str | os.PathLike, key: str) -> dict | None:
