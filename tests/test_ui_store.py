@@ -302,3 +302,24 @@ def test_session_state_reruns_off_thread_and_reports(inputs):
     state.wait(120)
     assert state.message_kind == "danger"
     assert "No plan fits" in state.message or "No valid plan" in state.message
+
+
+def test_a_damaged_store_gives_a_message_and_a_way_out(inputs):
+    st = new_store(inputs)
+    st.rerun()
+    st.save_option("Kept")
+    store = st.store_path
+    data = store.read_bytes()
+    store.write_bytes(data[: len(data) // 3])  # cut short
+    stale = store.parent / f".tmp-{store.stem}-k1ll3d00{store.suffix}"
+    stale.write_bytes(b"")  # what a writer killed mid-save leaves
+    state = SessionState(Store(inputs))  # a page opening: no traceback
+    assert not stale.exists()  # stray copies go when a page starts
+    assert str(store) in state.store_problem and "damaged" in state.store_problem
+    assert state.store.list_options() == []
+    state.max_util_pct = 90.0  # edits go on in the page, nothing is written
+    assert store.read_bytes() == data[: len(data) // 3]
+    assert state.repair_store()
+    assert state.store_problem == "" and "kept as" in state.message
+    assert len(list(store.parent.glob(f"{store.stem}.damaged-*{store.suffix}"))) == 1
+    assert Store(inputs).settings.max_utilization == pytest.approx(0.90)  # written now
