@@ -1,0 +1,121 @@
+"""Text from people and data files is shown as text in a real browser, never run as markup.
+
+``districting serve`` runs on a copy of the demo town whose project name and one school's
+name carry a script-bearing payload, and whose store holds an option with such a name (as
+a store written before the name rule could: the rule now refuses ``<`` and ``>``, so it is
+put there with plain SQL). The page is opened in Debian's headless Chromium; the payloads
+would set ``window.__xss`` if any were read as HTML. The test picks the hostile option in
+the compare chooser (where it used to run) and checks the flag stays unset while every
+name shows literally.
+"""
+
+from __future__ import annotations
+
+import sqlite3
+from pathlib import Path
+
+import geopandas as gpd
+import pyogrio
+import pytest
+from browser_support import CHROMIUM, chromium_page, deep_text, running_server, shot, wait_for
+
+pytestmark = [
+    pytest.mark.browser,
+    pytest.mark.skipif(not Path(CHROMIUM).exists(), reason="needs Debian's chromium "
+                       "(bash dev.sh test installs it)"),
+]
+
+PAYLOAD = '<img src=x onerror="window.__xss=(window.__xss||0)+1">'
+OPTION = f"Plan {PAYLOAD}"
+SCHOOL = f"School {PAYLOAD}"
+PROJECT = f"Town {PAYLOAD}"
+
+# every element in the page (open shadow roots included) that the payload would create
+FOUND_IMGS = """() => {
+  let n = 0;
+  const walk = (root) => {
+    for (const el of root.querySelectorAll('*')) {
+      if (el.tagName === 'IMG' && el.getAttribute('src') === 'x') n++;
+      if (el.shadowRoot) walk(el.shadowRoot);
+    }
+  };
+  walk(document);
+  return n;
+}"""
+
+
+def hostile_project(folder: Path) -> Path:
+    """The demo town with the payload in the project name, a school name and an option."""
+    from districting.demo import copy_demo
+    from districting.options import ASSIGNMENTS_TABLE, OPTIONS_TABLE, ZONES_LAYER, save_option
+    from districting.project import load_project
+    from districting.study import RunSettings, build_problem, outcome_from_assignment, resolved
+
+    project = copy_demo(folder)
+    text = project.read_text()
+    name_line = next(ln for ln in text.splitlines() if ln.startswith("name = "))
+    project.write_text(text.replace(name_line, f"name = '{PROJECT}'", 1))
+    town = project.parent / "town.gpkg"
+    sites = gpd.read_file(town, layer="sites")
+    first = sites.index[sites["level"] == "elementary"][0]
+    sites.loc[first, "name"] = SCHOOL
+    pyogrio.write_dataframe(sites, town, layer="sites", driver="GPKG")
+    assert {"units", "sites"} <= {n for n, _ in pyogrio.list_layers(town)}
+
+    inputs = load_project(project)
+    assert inputs.settings.name == PROJECT
+    rs = RunSettings(level="elementary")
+    problem, _ = build_problem(inputs, resolved(inputs, rs))
+    today = outcome_from_assignment(inputs, rs, problem.current, {"status": "feasible"},
+                                    name="Plan today")
+    save_option(inputs, today, "Plan today")
+    con = sqlite3.connect(inputs.settings.store)  # an option named before the rule existed
+    with con:
+        con.execute(f"UPDATE {OPTIONS_TABLE} SET name = ? WHERE name = ?", (OPTION, "Plan today"))
+        for table in (ASSIGNMENTS_TABLE, ZONES_LAYER):
+            con.execute(f"UPDATE {table} SET option = ? WHERE option = ?", (OPTION, "Plan today"))
+    con.close()
+    return project
+
+
+def test_names_from_people_and_files_show_as_text(tmp_path):
+    project = hostile_project(tmp_path / "demo")
+    with running_server(project, tmp_path) as url, chromium_page() as page:
+        page.goto(url)
+        page.wait_for_selector(".rerun-button button", timeout=60_000)
+        page.wait_for_function("() => window.Bokeh && Bokeh.documents.length && "
+                               "Bokeh.documents[0].get_model_by_name('units-source')",
+                               timeout=60_000)
+        assert PROJECT in deep_text(page, ".app-header")
+
+        page.click(".result-tabs .bk-tab:has-text('Schools')")
+        wait_for(lambda: SCHOOL in deep_text(page, ".sites-table"), 20,
+                 what="the school's name in the schools table")
+        options = page.eval_on_selector_all(".target-school select option",
+                                            "os => os.map(o => o.textContent)")
+        assert any(SCHOOL in o for o in options)
+
+        page.click(".result-tabs .bk-tab:has-text('Options')")
+        wait_for(lambda: OPTION in deep_text(page, ".options-table"), 20,
+                 what="the option's name in the options table")
+        # the compare chooser: open it, pick the hostile option by its shown label
+        page.click(".compare-choice .choices")
+        page.wait_for_timeout(1000)  # an image error handler would have run by now
+        assert page.evaluate("() => window.__xss") is None  # the chooser drew no markup
+        assert page.evaluate(FOUND_IMGS) == 0
+        item = page.locator(".compare-choice .choices__item--choice", has_text="Plan <img")
+        wait_for(lambda: item.count(), 10, what="the option in the compare chooser")
+        assert item.first.inner_text().strip() == OPTION
+        item.first.click()
+        page.click(".compare-choice .choices")
+        page.locator(".compare-choice .choices__item--choice", has_text="today").first.click()
+        wait_for(lambda: OPTION in deep_text(page, ".compare-table"), 30,
+                 what="the option's name as a column of the comparison")
+        assert OPTION in deep_text(page, ".compare-choice")  # the chosen item, literally
+        page.click(".result-tabs .bk-tab:has-text('Project')")
+        wait_for(lambda: PROJECT in deep_text(page, ".result-tabs"), 10,
+                 what="the project's name in the Project tab")
+        page.wait_for_timeout(1000)  # an image error handler would have run by now
+        shot(page, "trust-hostile-names")
+        assert page.evaluate("() => window.__xss") is None
+        assert page.evaluate(FOUND_IMGS) == 0
