@@ -119,3 +119,61 @@ def test_names_from_people_and_files_show_as_text(tmp_path):
         shot(page, "trust-hostile-names")
         assert page.evaluate("() => window.__xss") is None
         assert page.evaluate(FOUND_IMGS) == 0
+
+
+def _ready(page, url: str) -> None:
+    page.goto(url)
+    page.wait_for_selector(".rerun-button button", timeout=60_000)
+    page.wait_for_function("() => window.Bokeh && Bokeh.documents.length && "
+                           "Bokeh.documents[0].get_model_by_name('units-source')",
+                           timeout=60_000)
+
+
+def _set_time_limit(page, seconds: int) -> None:
+    box = page.locator(".setting-time-limit input")
+    box.fill(str(seconds))
+    box.press("Enter")
+
+
+def _problem(page) -> str:
+    return deep_text(page, ".store-problem") if page.is_visible(".store-problem") else ""
+
+
+def test_two_pages_on_one_project_never_overwrite_each_other(tmp_path):
+    from districting.demo import copy_demo
+    from districting.options import state_record
+
+    project = copy_demo(tmp_path / "demo")
+    store = project.parent / "options.gpkg"
+
+    def saved(key: str = "workbench"):
+        data = state_record(store, key)[0] if store.exists() else None
+        return None if data is None else data["runs"]["elementary"].get("time_limit")
+
+    with running_server(project, tmp_path) as url, chromium_page() as a:
+        b = a.context.new_page()  # a second session, as a colleague's browser would open
+        _ready(a, url)
+        _ready(b, url)
+        assert not _problem(a) and not _problem(b)
+        _set_time_limit(a, 45)
+        wait_for(lambda: saved() == 45, 20, what="page A's edit in the store")
+        _set_time_limit(b, 30)  # B started before A's edit: refused, and B is told
+        wait_for(lambda: "Another session saved" in _problem(b), 20, what="B's conflict note")
+        assert b.is_visible(".reload-record button") and b.is_visible(".keep-draft button")
+        shot(b, "trust-conflict")
+        assert saved() == 45  # A's work is kept
+        b.click(".reload-record button")
+        wait_for(lambda: not _problem(b), 20, what="the note to go after the reload")
+        assert b.locator(".setting-time-limit input").input_value() == "45"
+        _set_time_limit(b, 30)
+        wait_for(lambda: saved() == 30, 20, what="B's edit after the reload")
+        _set_time_limit(a, 50)  # now A is behind: A is told, and keeps its edit as a draft
+        wait_for(lambda: "Another session saved" in _problem(a), 20, what="A's conflict note")
+        a.fill(".draft-name input", "Anna east side")
+        a.press(".draft-name input", "Enter")
+        a.click(".keep-draft button")
+        wait_for(lambda: saved("workbench:Anna east side") == 50, 20, what="A's draft")
+        wait_for(lambda: not _problem(a), 10, what="A's note to go")
+        assert "Anna east side" in deep_text(a, ".message")
+        assert saved() == 30  # B's work is kept too
+        shot(a, "trust-two-pages")

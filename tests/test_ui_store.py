@@ -226,11 +226,11 @@ def test_two_sessions_never_overwrite_each_other(inputs):
     assert b.on_screen().name == TODAY
     # b's record is stale (a saved after b loaded it): b's edit is kept in b, not written
     b.edit_site(b.site_ids[2], capacity=1234)
+    c = Store(inputs)  # the stored record still holds a's work
+    assert c.settings.locks == {u: site} and c.outcome is not None
     assert b.conflict and "Another session saved" in b.problem
     assert b.settings.capacity == {b.site_ids[2]: 1234.0}
     assert a.settings.capacity == {} and not a.conflict
-    c = Store(inputs)  # the stored record still holds a's work
-    assert c.settings.locks == {u: site} and c.outcome is not None
     # b keeps its edits as a draft of its own; a's record stays a's
     assert b.keep_as_draft("  Capacity test  ") == "Capacity test"
     assert not b.conflict and b.drafts() == ["Capacity test"]
