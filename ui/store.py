@@ -27,7 +27,7 @@ import numpy as np
 import pandas as pd
 
 from districting import options as _options
-from districting.names import BadName, check_name, slug
+from districting.names import BadName, check_name, path_inside, slug
 from districting.project import SITE_STATUSES, Inputs
 from districting.study import (
     Outcome,
@@ -434,9 +434,10 @@ class Store:
     # ------------------------------------------------------------------ options
     def save_option(self, name: str, overwrite: bool = False) -> None:
         """Save the plan on screen as a named option in the project's store."""
-        name = name.strip()
-        if not name:
-            raise StoreError("type a name for the option first")
+        try:
+            name = check_name(name)
+        except BadName as exc:
+            raise StoreError(str(exc)) from None
         out = self.outcome
         if out is None:
             raise StoreError("run a plan first (press Rerun); today's zones are not an option")
@@ -664,12 +665,12 @@ class Store:
         out = self.outcome
         if out is None:
             raise StoreError("run a plan first (press Rerun); there is no option to export yet")
-        label = slug(out.name or "unsaved-result")
-        folder = self.export_folder() / f"{label}-{out.level}"
+        label = slug(f"{out.name or 'unsaved-result'}-{out.level}")
+        folder = path_inside(self.export_folder(), label)
         if kind == "packet":
             from districting.packet import write_packet
 
-            pdf = folder / f"{label}-{out.level}-packet.pdf"
+            pdf = folder / f"{label}-packet.pdf"
             write_packet([out], pdf)
             return pdf
         from districting.exports import export_all

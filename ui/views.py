@@ -915,8 +915,8 @@ class DownloadsPanel(pn.viewable.Viewer):
 
     def _update(self, *events) -> None:
         out = self.state.store.outcome
-        base = "no-plan" if out is None else (
-            f"{_file_label(out.name or 'unsaved-result')}-{out.level}")
+        base = "no-plan" if out is None else _file_label(
+            f"{out.name or 'unsaved-result'}-{out.level}")
         for (kind, _label, ext), b in zip(self.KINDS, self.buttons, strict=True):
             suffix = {"units_csv": "-units", "schools_csv": "-schools",
                       "packet": "-packet"}.get(kind, "")
