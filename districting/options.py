@@ -33,6 +33,7 @@ parameterised.
 from __future__ import annotations
 
 import contextlib
+import glob
 import json
 import math
 import os
@@ -275,7 +276,8 @@ def _writer_lock(store: Path, wait: bool = True) -> Iterator[bool]:
 def _remove_stale(store: Path) -> None:
     """Remove copies (and their -journal files) left by a writer killed mid-save
     (io.atomic_path names); call only while holding the writer lock."""
-    for stale in store.parent.glob(f".tmp-{store.stem}-{'?' * 8}{store.suffix}*"):
+    pattern = f".tmp-{glob.escape(store.stem)}-{'?' * 8}{glob.escape(store.suffix)}*"
+    for stale in store.parent.glob(pattern):
         stale.unlink(missing_ok=True)
 
 
