@@ -112,37 +112,73 @@ def _run_settings(args, level: str):
     )
 
 
+def _solve_targets(args, inputs) -> dict[str, tuple[str, Path]]:
+    """Level -> (option name, export folder), every check done before any solve or write.
+
+    Refuses a second level under one option name, a name the store already has (without
+    --overwrite), a damaged store, and an export folder that already holds files (without
+    --overwrite). The folder is a slug of the name, checked to lie inside the output folder.
+    """
+    from .names import path_inside, slug
+    from .options import check_option_name
+
+    levels = list(inputs.settings.levels) if args.level == "all" else [args.level]
+    out = Path(args.out) if args.out else inputs.settings.path.parent / "out"
+    if not args.save:
+        return {lv: (f"{lv}-latest", path_inside(out, slug(f"{lv}-latest"))) for lv in levels}
+    if len(levels) > 1:
+        raise ValueError(f"--save names one option, and this project has {len(levels)} "
+                         f"levels; add --level ({', '.join(levels)})")
+    name = check_option_name(inputs.settings.store, args.save, overwrite=args.overwrite)
+    folder = path_inside(out, slug(name))
+    if not args.overwrite and folder.exists() and any(folder.iterdir()):
+        raise ValueError(f"{folder} already holds exports; choose another option name, or "
+                         "add --overwrite to replace them")
+    return {levels[0]: (name, folder)}
+
+
 def cmd_solve(args) -> int:
     from .exports import export_all
-    from .options import save_option
+    from .names import check_name
+    from .options import save_option, tidy_store
     from .study import run
 
+    if args.save:
+        check_name(args.save)  # before the project is read: the rule needs no data
     inputs = _load(args.project)
-    levels = inputs.settings.levels if args.level == "all" else [args.level]
+    tidy_store(inputs.settings.store)
+    targets = _solve_targets(args, inputs)
     status = 0
-    for level in levels:
+    for level, (name, folder) in targets.items():
         progress = Progress(level)
-        outcome = run(inputs, _run_settings(args, level), name=args.save or "", progress=progress)
+        outcome = run(inputs, _run_settings(args, level), name=name if args.save else "",
+                      progress=progress)
         progress.done()
         print(plan_summary(outcome))
         if not outcome.plan.feasible:
             status = 1
             continue
-        out = Path(args.out) if args.out else inputs.settings.path.parent / "out"
-        name = args.save or f"{level}-latest"
-        files = export_all(outcome.renamed(name), out / name)
-        print(f"    wrote {len(files)} files to {out / name}")
-        if args.save:
-            save_option(inputs, outcome, args.save, overwrite=args.overwrite)
-            print(f"    saved as option {args.save!r} in {inputs.settings.store}")
+        if args.save:  # the store first: a name taken meanwhile leaves no exports behind
+            save_option(inputs, outcome, name, overwrite=args.overwrite)
+            print(f"    saved as option {name!r} in {inputs.settings.store}")
+        files = export_all(outcome.renamed(name), folder)
+        print(f"    wrote {len(files)} files to {folder}")
     return status
 
 
 def cmd_options(args) -> int:
-    from .options import delete_option, list_options, rename_option
+    from .options import delete_option, list_options, rename_option, repair_store, tidy_store
 
     inputs = _load(args.project)
     store = inputs.settings.store
+    tidy_store(store)
+    if args.repair:
+        aside = repair_store(store)
+        if aside is None:
+            print(f"{store}: the option store is whole; nothing to repair")
+        else:
+            print(f"{store}: the damaged store is kept as {aside}; a new, empty store "
+                  "is in its place (solve and save the options again)")
     if args.delete:
         delete_option(store, args.delete)
         print(f"deleted option {args.delete!r}")
@@ -253,10 +289,12 @@ def build_parser() -> argparse.ArgumentParser:
     _add_solve_options(p)
     p.set_defaults(func=cmd_solve)
 
-    p = sub.add_parser("options", help="list, delete or rename saved options")
+    p = sub.add_parser("options", help="list, delete, rename saved options; repair the store")
     p.add_argument("project")
     p.add_argument("--delete", metavar="NAME")
     p.add_argument("--rename", nargs=2, metavar=("OLD", "NEW"))
+    p.add_argument("--repair", action="store_true",
+                   help="set a damaged option store aside and start a new, empty one")
     p.set_defaults(func=cmd_options)
 
     p = sub.add_parser("packet", help="write the hearing packet (PDF + PNG pages)")

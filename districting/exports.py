@@ -28,9 +28,7 @@ from __future__ import annotations
 
 import csv
 import os
-import re
 import tempfile
-import unicodedata
 import zipfile
 from pathlib import Path
 
@@ -41,6 +39,7 @@ import pyogrio
 
 from . import DRAFT_NOTICE
 from .io import atomic_path, atomic_write_text
+from .names import slug
 from .study import Outcome, now_iso
 from .zones import changed_areas, dissolve_zones
 
@@ -58,13 +57,6 @@ __all__ = [
 ]
 
 _TOL = 1e-6  # students: a load within this of a band edge is on the edge
-
-
-def slug(text: str, fallback: str = "option") -> str:
-    """A file-name-safe form of an option name (ASCII letters, digits, '-' and '_')."""
-    ascii_text = unicodedata.normalize("NFKD", text).encode("ascii", "ignore").decode()
-    s = re.sub(r"[^A-Za-z0-9_-]+", "-", ascii_text).strip("-_").lower()
-    return s[:80] or fallback
 
 
 def require_plan(outcome: Outcome, what: str) -> None:

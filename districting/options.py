@@ -11,7 +11,9 @@ project's layers:
   JSON columns: the run settings (:meth:`~districting.study.RunSettings.to_dict`), the plan
   (status, objective, bound, gap, rounds, open sites...) and the metrics;
 - ``districting_assignments``: (option, unit_id, site_id), one row per unit;
-- ``districting_state``: (key, updated, state_json) for the workbench;
+- ``districting_state``: (key, updated, state_json, revision) for the workbench; the
+  revision rises by one per save, so a session that saves over a record another session
+  changed since it read it is told (:class:`StateConflict`) instead of overwriting it;
 - ``districting_zones``: a features layer (written by GDAL through pyogrio) with the
   dissolved zones of every option (option, level, site_id, name, n_units, students,
   n_parts), so a GIS user can map any saved option straight from the store.
@@ -20,13 +22,18 @@ Every change is atomic: the store is copied to a temporary file beside it, the c
 edited and fsynced, and only then renamed over the original
 (:func:`districting.io.atomic_copy_edit`); a crash or a kill mid-save leaves the previous
 file as it was. A lock file beside the store serialises writers (the workbench and the
-command line may save at the same time), so no save is lost to another's rename.
-Names are any text a planner types; every statement is parameterised.
+command line may save at the same time), so no save is lost to another's rename; its
+holder removes it when done, and copies a killed writer left are removed at the next
+start or save (:func:`tidy_store`). A store SQLite cannot read raises
+:class:`StoreDamaged` naming the file; :func:`repair_store` sets it aside and starts anew.
+New option names follow :func:`districting.names.check_name`; every statement is
+parameterised.
 """
 
 from __future__ import annotations
 
 import contextlib
+import glob
 import json
 import math
 import os
@@ -40,6 +47,7 @@ import numpy as np
 import pyogrio
 
 from .io import atomic_copy_edit
+from .names import BadName, check_name, normalise
 from .plan import PlanMetrics
 from .project import Inputs
 from .study import Outcome, RunSettings, level_sites, now_iso, outcome_from_assignment
@@ -60,6 +68,14 @@ __all__ = [
     "option_settings",
     "save_state",
     "load_state",
+    "state_record",
+    "state_keys",
+    "StateConflict",
+    "StoreDamaged",
+    "check_option_name",
+    "store_problem",
+    "repair_store",
+    "tidy_store",
     "metrics_to_dict",
     "OPTIONS_TABLE",
     "ASSIGNMENTS_TABLE",
@@ -156,7 +172,8 @@ _TABLES = {
     STATE_TABLE: (
         """CREATE TABLE IF NOT EXISTS districting_state (
             fid INTEGER PRIMARY KEY AUTOINCREMENT, key TEXT NOT NULL UNIQUE,
-            updated TEXT NOT NULL, state_json TEXT NOT NULL)""",
+            updated TEXT NOT NULL, state_json TEXT NOT NULL,
+            revision INTEGER NOT NULL DEFAULT 1)""",
         "Workbench state (last settings, locks and site edits), per key",
     ),
 }
@@ -181,6 +198,9 @@ def _init_store(con: sqlite3.Connection, fresh: bool) -> None:
             "description) VALUES (?, 'attributes', ?, ?)",
             (table, table, description),
         )
+    columns = {r[1] for r in con.execute(f"PRAGMA table_info({STATE_TABLE})")}
+    if "revision" not in columns:  # a store written before records had revisions
+        con.execute(f"ALTER TABLE {STATE_TABLE} ADD COLUMN revision INTEGER NOT NULL DEFAULT 1")
 
 
 def _touch(con: sqlite3.Connection, *tables: str) -> None:
@@ -191,29 +211,84 @@ def _touch(con: sqlite3.Connection, *tables: str) -> None:
     )
 
 
+class StoreDamaged(OptionError):
+    """The option store cannot be read or written as SQLite: the message names the file and
+    the way out (:func:`repair_store`)."""
+
+    def __init__(self, store: Path, detail: str):
+        self.store = Path(store)
+        super().__init__(
+            f"{self.store}: the option store is damaged or is not a GeoPackage ({detail}). "
+            "The project's other files are untouched. To go on, set it aside and start a new, "
+            "empty store: `districting options PROJECT --repair` (it is kept as "
+            f"{self.store.stem}.damaged-<time>{self.store.suffix}, so its options can still be "
+            "recovered with a GIS or SQLite tool), or point [project] store at another file."
+        )
+
+
 def _check_sqlite(path: Path) -> None:
     with open(path, "rb") as fh:
         head = fh.read(16)
     if head and head != b"SQLite format 3\x00":
-        raise OptionError(
-            f"{path}: the option store is not a GeoPackage (SQLite) file; point [project] "
-            "store at a .gpkg file (a new name is created on the first save)"
-        )
+        raise StoreDamaged(path, "it does not start as an SQLite file")
+
+
+def _lock_path(store: Path) -> Path:
+    return store.parent / f".{store.name}.lock"
 
 
 @contextlib.contextmanager
-def _writer_lock(store: Path) -> Iterator[None]:
-    """Hold an exclusive advisory lock on ``.<store>.lock`` while a save runs."""
+def _writer_lock(store: Path, wait: bool = True) -> Iterator[bool]:
+    """Hold an exclusive advisory lock on ``.<store>.lock`` while a save runs.
+
+    Yields False (holding nothing) when ``wait`` is false and another writer holds it.
+    The lock file is removed by its holder before release; a writer that locked a file
+    someone removed meanwhile locks the new one instead, so two writers never both hold it.
+    """
     store.parent.mkdir(parents=True, exist_ok=True)
     if fcntl is None:  # pragma: no cover
-        yield
+        yield True
         return
-    with open(store.parent / f".{store.name}.lock", "a") as fh:
-        fcntl.flock(fh.fileno(), fcntl.LOCK_EX)
+    path = _lock_path(store)
+    while True:
+        fd = os.open(path, os.O_RDWR | os.O_CREAT, 0o644)
         try:
-            yield
-        finally:
-            fcntl.flock(fh.fileno(), fcntl.LOCK_UN)
+            fcntl.flock(fd, fcntl.LOCK_EX | (0 if wait else fcntl.LOCK_NB))
+        except BlockingIOError:
+            os.close(fd)
+            yield False
+            return
+        try:
+            same = os.stat(path).st_ino == os.fstat(fd).st_ino
+        except FileNotFoundError:
+            same = False
+        if same:
+            break
+        os.close(fd)
+    try:
+        yield True
+    finally:
+        path.unlink(missing_ok=True)
+        fcntl.flock(fd, fcntl.LOCK_UN)
+        os.close(fd)
+
+
+def _remove_stale(store: Path) -> None:
+    """Remove copies (and their -journal files) left by a writer killed mid-save
+    (io.atomic_path names); call only while holding the writer lock."""
+    pattern = f".tmp-{glob.escape(store.stem)}-{'?' * 8}{glob.escape(store.suffix)}*"
+    for stale in store.parent.glob(pattern):
+        stale.unlink(missing_ok=True)
+
+
+def tidy_store(store: str | os.PathLike) -> None:
+    """Remove what a killed writer left beside the store, unless a writer is at work now."""
+    store = Path(store)
+    if not store.parent.is_dir():
+        return
+    with _writer_lock(store, wait=False) as held:
+        if held:
+            _remove_stale(store)
 
 
 def _checkpoint(store: Path) -> None:
@@ -232,32 +307,36 @@ def _edit(store: str | os.PathLike, then: Callable[[Path], None] | None = None
     """A connection to a temporary copy of ``store``; committed and swapped in on success.
 
     ``then(path)`` runs on the committed copy before the swap (e.g. GDAL adding a layer).
+    A store SQLite cannot read or write raises :class:`StoreDamaged`; the store is left
+    as it was.
     """
     store = Path(store)
     with _writer_lock(store):
-        # Copies (and their -journal files) left by a writer killed mid-save (io.atomic_path names);
-        # safe to remove while we hold the lock, since only a lock holder writes them.
-        for stale in store.parent.glob(f".tmp-{store.stem}-{'?' * 8}{store.suffix}*"):
-            stale.unlink(missing_ok=True)
+        _remove_stale(store)
         fresh = not store.exists()
-        if not fresh:
-            _check_sqlite(store)
-            _checkpoint(store)
-        with atomic_copy_edit(store) as tmp:
-            con = sqlite3.connect(tmp, isolation_level=None)
-            try:
-                # The copy is scratch until renamed: no journal or syncs are needed inside it;
-                # atomic_copy_edit fsyncs the finished file before the rename.
-                con.execute("PRAGMA journal_mode = OFF")
-                con.execute("PRAGMA synchronous = OFF")
-                con.execute("BEGIN")
-                _init_store(con, fresh)
-                yield con
-                con.execute("COMMIT")
-            finally:
-                con.close()
-            if then is not None:
-                then(tmp)
+        try:
+            if not fresh:
+                _check_sqlite(store)
+                _checkpoint(store)
+            with atomic_copy_edit(store) as tmp:
+                con = sqlite3.connect(tmp, isolation_level=None)
+                try:
+                    # The copy is scratch until renamed: no journal or syncs are needed inside
+                    # it; atomic_copy_edit fsyncs the finished file before the rename.
+                    con.execute("PRAGMA journal_mode = OFF")
+                    con.execute("PRAGMA synchronous = OFF")
+                    con.execute("BEGIN")
+                    _init_store(con, fresh)
+                    yield con
+                    con.execute("COMMIT")
+                finally:
+                    con.close()
+                if then is not None:
+                    then(tmp)
+        except (sqlite3.IntegrityError, sqlite3.ProgrammingError):
+            raise  # a statement's fault, not the file's
+        except sqlite3.DatabaseError as exc:
+            raise StoreDamaged(store, str(exc)) from None
 
 
 @contextlib.contextmanager
@@ -268,14 +347,54 @@ def _read(store: str | os.PathLike) -> Iterator[sqlite3.Connection | None]:
         yield None
         return
     _check_sqlite(store)
-    con = sqlite3.connect(f"{store.resolve().as_uri()}?mode=ro", uri=True)
+    try:
+        con = sqlite3.connect(f"{store.resolve().as_uri()}?mode=ro", uri=True)
+    except sqlite3.DatabaseError as exc:
+        raise StoreDamaged(store, str(exc)) from None
     try:
         have = {r[0] for r in con.execute("SELECT name FROM sqlite_master WHERE type='table'")}
         yield con if OPTIONS_TABLE in have else None
     except sqlite3.DatabaseError as exc:
-        raise OptionError(f"{store}: cannot read the option store ({exc})") from exc
+        raise StoreDamaged(store, str(exc)) from None
     finally:
         con.close()
+
+
+def store_problem(store: str | os.PathLike) -> str:
+    """'' when the store is absent or whole, else what SQLite's integrity check reports."""
+    store = Path(store)
+    if not store.exists():
+        return ""
+    try:
+        _check_sqlite(store)
+        with _read(store) as con:
+            if con is None:
+                return ""
+            rows = [r[0] for r in con.execute("PRAGMA quick_check").fetchall()]
+    except StoreDamaged as exc:
+        return str(exc)
+    except sqlite3.DatabaseError as exc:
+        return str(exc)
+    return "" if rows == ["ok"] else "; ".join(rows[:3])
+
+
+def repair_store(store: str | os.PathLike) -> Path | None:
+    """Set a damaged store aside (renamed ``<name>.damaged-<UTC time><suffix>``) and start
+    a new, empty one; returns the damaged copy's path, or None when the store is whole."""
+    store = Path(store)
+    if not store_problem(store):
+        return None
+    stamp = now_iso().replace(":", "").replace("-", "")[:15]
+    aside = store.with_name(f"{store.stem}.damaged-{stamp}{store.suffix}")
+    with _writer_lock(store):
+        os.replace(store, aside)
+        for side in ("-wal", "-shm", "-journal"):
+            extra = Path(str(store) + side)
+            if extra.exists():
+                os.replace(extra, Path(str(aside) + side))
+    with _edit(store):
+        pass  # a new store holding our empty tables
+    return aside
 
 
 # ---------------------------------------------------------------------------- JSON helpers
@@ -331,10 +450,29 @@ def _same_metrics(a: dict, b: dict, rtol: float = 1e-9) -> bool:
 
 
 # ---------------------------------------------------------------------------- options
-def _clean_name(name: str) -> str:
-    if not isinstance(name, str) or not name.strip():
-        raise OptionError("an option needs a name (any text, e.g. 'Option A - two moves')")
-    return name.strip()
+def _lookup_name(name: str) -> str:
+    """A name to look up (normalised, not checked: options saved before the rule stay
+    reachable, to open, rename or delete)."""
+    if not isinstance(name, str) or not normalise(name):
+        raise OptionError("give the name of a saved option (`districting options PROJECT` "
+                          "lists them)")
+    return normalise(name)
+
+
+def check_option_name(store: str | os.PathLike, name: str, overwrite: bool = False) -> str:
+    """The checked name of a new option (:func:`districting.names.check_name`), before any
+    work: :class:`OptionError` when it breaks the name rule, when the store is damaged, or
+    when the name is taken and ``overwrite`` is false."""
+    try:
+        name = check_name(name)
+    except BadName as exc:
+        raise OptionError(str(exc)) from None
+    with _read(store) as con:
+        taken = name in _names(con)
+    if taken and not overwrite:
+        raise OptionError(f"{store}: an option named {name!r} exists; choose another name, "
+                          "or replace it (--overwrite, or tick 'Replace' in the workbench)")
+    return name
 
 
 def _names(con: sqlite3.Connection | None) -> list[str]:
@@ -355,8 +493,8 @@ def save_option(inputs: Inputs, outcome: Outcome, name: str, overwrite: bool = F
     sites, status, objective, bound, gap, rounds) and its metrics. A name already in use
     raises :class:`OptionError` unless ``overwrite`` is true.
     """
-    name = _clean_name(name)
     store = Path(inputs.settings.store)
+    name = check_option_name(store, name, overwrite)
     if not outcome.plan.feasible:
         raise OptionError(
             f"option {name!r} has no valid plan (status {outcome.plan.status}"
@@ -484,7 +622,7 @@ def _fetch(store: Path, name: str) -> tuple[sqlite3.Row, dict[str, str]]:
 
 def option_settings(store_path: str | os.PathLike, name: str) -> RunSettings:
     """The run settings an option was made with (to re-run or edit it)."""
-    row, _ = _fetch(Path(store_path), _clean_name(name))
+    row, _ = _fetch(Path(store_path), _lookup_name(name))
     return RunSettings.from_dict(json.loads(row["settings_json"]))
 
 
@@ -495,7 +633,7 @@ def load_option(inputs: Inputs, name: str) -> Outcome:
     project's units or sites no longer match the option. Warns when the recomputed metrics
     differ from the saved ones (the project's counts or sites changed since it was saved).
     """
-    name = _clean_name(name)
+    name = _lookup_name(name)
     store = Path(inputs.settings.store)
     row, pairs = _fetch(store, name)
     rs = RunSettings.from_dict(json.loads(row["settings_json"]))
@@ -548,7 +686,7 @@ def _delete(con: sqlite3.Connection, name: str) -> None:
 
 def delete_option(store: str | os.PathLike, name: str) -> None:
     """Remove an option (atomically); unknown names raise :class:`OptionError`."""
-    name = _clean_name(name)
+    name = _lookup_name(name)
     store = Path(store)
     with _read(store) as con:  # fail before copying the store
         names = _names(con)
@@ -561,7 +699,11 @@ def delete_option(store: str | os.PathLike, name: str) -> None:
 
 def rename_option(store: str | os.PathLike, old: str, new: str) -> None:
     """Rename an option (atomically); the new name must be free."""
-    old, new = _clean_name(old), _clean_name(new)
+    old = _lookup_name(old)
+    try:
+        new = check_name(new)
+    except BadName as exc:
+        raise OptionError(str(exc)) from None
     store = Path(store)
     with _read(store) as con:
         names = _names(con)
@@ -580,8 +722,24 @@ def rename_option(store: str | os.PathLike, old: str, new: str) -> None:
 
 
 # ---------------------------------------------------------------------------- workbench state
-def save_state(store_path: str | os.PathLike, key: str, state: dict) -> None:
-    """Store ``state`` (JSON-ready: dicts, lists, str, numbers, bools, None) under ``key``."""
+class StateConflict(OptionError):
+    """The record changed since the caller read it (another session saved it meanwhile)."""
+
+    def __init__(self, store: Path, key: str, expected: int, found: int):
+        self.expected, self.found = expected, found
+        super().__init__(f"{store}: the workbench record {key!r} was saved by another session "
+                         f"(revision {found}; this session started from revision {expected})")
+
+
+def save_state(store_path: str | os.PathLike, key: str, state: dict,
+               expected: int | None = None) -> int:
+    """Store ``state`` (JSON-ready: dicts, lists, str, numbers, bools, None) under ``key``.
+
+    Each save raises the record's revision by one and returns the new revision. With
+    ``expected`` (the revision this writer last read or wrote; 0 = no record yet) the save
+    is refused with :class:`StateConflict` when someone else saved the record since, and
+    nothing is written.
+    """
     if not isinstance(key, str) or not key:
         raise ValueError("save_state needs a non-empty text key (e.g. 'workbench')")
     try:
@@ -589,23 +747,42 @@ def save_state(store_path: str | os.PathLike, key: str, state: dict) -> None:
     except TypeError as exc:
         raise ValueError(f"workbench state {key!r} is not JSON data: {exc}") from exc
     with _edit(store_path) as con:
+        row = con.execute(f"SELECT revision FROM {STATE_TABLE} WHERE key = ?",
+                          (key,)).fetchone()
+        found = 0 if row is None else int(row[0])
+        if expected is not None and found != expected:
+            raise StateConflict(Path(store_path), key, expected, found)
         con.execute(
-            f"INSERT INTO {STATE_TABLE} (key, updated, state_json) VALUES (?, ?, ?) "
-            "ON CONFLICT(key) DO UPDATE SET updated = excluded.updated, "
-            "state_json = excluded.state_json",
-            (key, now_iso(), text),
+            f"INSERT INTO {STATE_TABLE} (key, updated, state_json, revision) "
+            "VALUES (?, ?, ?, ?) ON CONFLICT(key) DO UPDATE SET updated = excluded.updated, "
+            "state_json = excluded.state_json, revision = excluded.revision",
+            (key, now_iso(), text, found + 1),
         )
         _touch(con, STATE_TABLE)
+    return found + 1
+
+
+def state_record(store_path: str | os.PathLike, key: str) -> tuple[dict | None, int]:
+    """The state last saved under ``key`` and its revision (``(None, 0)`` when none)."""
+    with _read(store_path) as con:
+        if con is None or not _has_table(con, STATE_TABLE):
+            return None, 0
+        columns = {r[1] for r in con.execute(f"PRAGMA table_info({STATE_TABLE})")}
+        rev = "revision" if "revision" in columns else "1"
+        row = con.execute(
+            f"SELECT state_json, {rev} FROM {STATE_TABLE} WHERE key = ?", (key,)
+        ).fetchone()
+    return (None, 0) if row is None else (json.loads(row[0]), int(row[1]))
+
+
+def state_keys(store_path: str | os.PathLike) -> list[str]:
+    """Keys of the stored workbench records, oldest first."""
+    with _read(store_path) as con:
+        if con is None or not _has_table(con, STATE_TABLE):
+            return []
+        return [r[0] for r in con.execute(f"SELECT key FROM {STATE_TABLE} ORDER BY fid")]
 
 
 def load_state(store_path: str | os.PathLike, key: str) -> dict | None:
     """The state last saved under ``key``, or ``None`` when there is none."""
-    with _read(store_path) as con:
-        if con is None:
-            return None
-        if not _has_table(con, STATE_TABLE):
-            return None
-        row = con.execute(
-            f"SELECT state_json FROM {STATE_TABLE} WHERE key = ?", (key,)
-        ).fetchone()
-    return None if row is None else json.loads(row[0])
+    return state_record(store_path, key)[0]

@@ -72,10 +72,10 @@ def test_round_trip_restores_every_option(town):
     second = outcome_from_assignment(town, RunSettings(level="elementary", max_utilization=0.95),
                                      a, {"status": "optimal", "bound": 1.0, "gap": 0.0})
     save_option(town, first, "Option A — keep Larkwhistle")
-    save_option(town, second, "Option B: 'quotes' \"and\" ; DROP TABLE x; --")
+    save_option(town, second, "Option B: 'quotes' & DROP TABLE x --")
     infos = list_options(town.settings.store)
     assert [i.name for i in infos] == ["Option A — keep Larkwhistle",
-                                       "Option B: 'quotes' \"and\" ; DROP TABLE x; --"]
+                                       "Option B: 'quotes' & DROP TABLE x --"]
     assert infos[0].level == "elementary" and infos[0].plan_year == 2027
     assert infos[0].students_moved == first.metrics.students_moved
     assert infos[1].status == "optimal"
@@ -166,7 +166,7 @@ def test_name_errors_list_the_options(town):
         rename_option(town.settings.store, "Alpha", "Beta")
     with pytest.raises(OptionError, match="no option named 'Zeta'"):
         delete_option(town.settings.store, "Zeta")
-    with pytest.raises(OptionError, match="needs a name"):
+    with pytest.raises(OptionError, match="name is empty"):
         save_option(town, out, "   ")
     assert list_options(town.settings.store)[0].name == "Alpha"
 
@@ -253,6 +253,7 @@ def test_failed_save_leaves_store_unchanged(town, monkeypatch):
         save_option(town, make_outcome(town), "B")
     assert town.settings.store.read_bytes() == before
     assert not list(town.settings.store.parent.glob(".tmp-*"))
+    assert not list(town.settings.store.parent.glob(".*.lock"))
 
 
 # ------------------------------------------------------------------ kill -9 during a save
@@ -341,3 +342,109 @@ def test_sigkill_mid_save_keeps_previous_options(tmp_path):
     assert not list(tmp_path.glob(".tmp-options-*"))
     assert load_option(town, "run 0").assignment.shape == (N_KILL_UNITS,)
     assert len(load_state(tmp_path / "options.gpkg", "ballast")["rows"]) == 30_000
+
+
+# ------------------------------------------------------------------ leftovers and damage
+def test_no_lock_file_is_left_beside_the_store(town):
+    store = town.settings.store
+    save_option(town, make_outcome(town), "A")
+    save_state(store, "workbench", {"x": 1})
+    rename_option(store, "A", "B")
+    delete_option(store, "B")
+    assert sorted(p.name for p in store.parent.iterdir() if p.name.startswith(".")) == []
+
+
+def test_stale_copies_go_at_start_unless_a_writer_is_at_work(town):
+    import fcntl
+
+    from districting.options import tidy_store
+
+    store = town.settings.store
+    save_option(town, make_outcome(town), "A")
+    # what a writer killed mid-save leaves: its copy, the copy's journal, its lock file
+    stale = [store.parent / ".tmp-options-k1ll3d00.gpkg",
+             store.parent / ".tmp-options-k1ll3d00.gpkg-journal",
+             store.parent / ".options.gpkg.lock"]
+    for p in stale:
+        p.write_bytes(b"")
+    mine = store.parent / ".tmp-other-k1ll3d00.gpkg"  # not the store's: left alone
+    mine.write_bytes(b"x")
+    with open(stale[2], "a") as fh:  # another process is saving right now
+        fcntl.flock(fh.fileno(), fcntl.LOCK_EX)
+        tidy_store(store)
+        assert all(p.exists() for p in stale)
+        fcntl.flock(fh.fileno(), fcntl.LOCK_UN)
+    tidy_store(store)  # e.g. `districting options` or a workbench page starting
+    assert not any(p.exists() for p in stale) and mine.exists()
+    assert [i.name for i in list_options(store)] == ["A"]
+
+
+def _damage(store: Path) -> bytes:
+    data = store.read_bytes()
+    store.write_bytes(data[: len(data) // 3])  # cut short, as a full disk or a bad copy leaves it
+    return store.read_bytes()
+
+
+def test_a_damaged_store_is_named_never_a_traceback(town):
+    from districting.options import StoreDamaged, repair_store, state_record, store_problem
+
+    store = town.settings.store
+    save_option(town, make_outcome(town), "A")
+    assert store_problem(store) == ""
+    cut = _damage(store)
+    for action in (lambda: save_state(store, "workbench", {"x": 1}),
+                   lambda: save_option(town, make_outcome(town), "B"),
+                   lambda: list_options(store), lambda: state_record(store, "workbench")):
+        with pytest.raises(StoreDamaged) as err:
+            action()
+        assert str(store) in str(err.value) and "--repair" in str(err.value)
+        assert store.read_bytes() == cut  # left as it was
+    assert store_problem(store)
+    aside = repair_store(store)
+    assert aside.parent == store.parent and aside.name.startswith("options.damaged-")
+    assert aside.read_bytes() == cut
+    assert list_options(store) == [] and store_problem(store) == ""
+    save_option(town, make_outcome(town), "A")  # the new store works
+    assert repair_store(store) is None  # a whole store is never moved
+
+
+def test_not_an_sqlite_file_is_named(town):
+    from districting.options import StoreDamaged
+
+    store = town.settings.store
+    store.write_text("name,level\nA,high\n")
+    with pytest.raises(StoreDamaged, match="does not start as an SQLite file"):
+        list_options(store)
+
+
+def test_state_revisions_refuse_a_stale_save(town):
+    from districting.options import StateConflict, state_record
+
+    store = town.settings.store
+    assert state_record(store, "w") == (None, 0)
+    assert save_state(store, "w", {"by": "a"}, expected=0) == 1
+    assert save_state(store, "w", {"by": "a"}, expected=1) == 2
+    with pytest.raises(StateConflict, match="another session"):
+        save_state(store, "w", {"by": "b"}, expected=1)
+    with pytest.raises(StateConflict):
+        save_state(store, "w", {"by": "b"}, expected=0)  # b thought there was no record
+    assert state_record(store, "w") == ({"by": "a"}, 2)
+    assert save_state(store, "w", {"by": "c"}) == 3  # no expectation: last writer wins
+
+
+def test_records_of_an_older_store_get_revisions(town):
+    from districting.options import state_record
+
+    store = town.settings.store
+    save_option(town, make_outcome(town), "A")
+    con = sqlite3.connect(store)  # the state table as stores had it before revisions
+    con.execute(f"DROP TABLE {STATE_TABLE}")
+    con.execute(f"CREATE TABLE {STATE_TABLE} (fid INTEGER PRIMARY KEY AUTOINCREMENT, "
+                "key TEXT NOT NULL UNIQUE, updated TEXT NOT NULL, state_json TEXT NOT NULL)")
+    con.execute(f"INSERT INTO {STATE_TABLE} (key, updated, state_json) VALUES "
+                "('workbench', 'x', '{\"old\": true}')")
+    con.commit()
+    con.close()
+    assert state_record(store, "workbench") == ({"old": True}, 1)
+    assert save_state(store, "workbench", {"new": True}, expected=1) == 2
+    assert [i.name for i in list_options(store)] == ["A"]

@@ -215,19 +215,66 @@ def test_state_is_restored_by_a_new_store(inputs):
     assert np.array_equal(opened.assignment, out.assignment)
 
 
-def test_two_stores_do_not_share_unsaved_state(inputs):
+def test_two_sessions_never_overwrite_each_other(inputs):
     a = new_store(inputs)
-    b = Store(inputs)
+    b = Store(inputs)  # a second browser session on the same project
     assert b.level == LEVEL
-    a.lock([a.unit_ids[5]], a.site_ids[0])
+    u, site = a.unit_ids[5], a.site_ids[0]
+    a.lock([u], site)
     a.rerun()
-    assert b.settings.locks == {} and b.outcome is None
+    assert b.settings.locks == {} and b.outcome is None  # nothing shared in memory
     assert b.on_screen().name == TODAY
+    # b's record is stale (a saved after b loaded it): b's edit is kept in b, not written
     b.edit_site(b.site_ids[2], capacity=1234)
-    assert a.settings.capacity == {}
-    # a store opened now starts from the last change written (b's)
-    c = Store(inputs)
-    assert c.settings.capacity == {b.site_ids[2]: 1234.0}
+    c = Store(inputs)  # the stored record still holds a's work
+    assert c.settings.locks == {u: site} and c.outcome is not None
+    assert b.conflict and "Another session saved" in b.problem
+    assert b.settings.capacity == {b.site_ids[2]: 1234.0}
+    assert a.settings.capacity == {} and not a.conflict
+    # b keeps its edits as a draft of its own; a's record stays a's
+    assert b.keep_as_draft("  Capacity test  ") == "Capacity test"
+    assert not b.conflict and b.drafts() == ["Capacity test"]
+    assert Store(inputs).settings.locks == {u: site}
+    assert Store(inputs, draft="Capacity test").settings.capacity == {b.site_ids[2]: 1234.0}
+    with pytest.raises(StoreError, match="exists"):
+        Store(inputs).keep_as_draft("Capacity test")
+    with pytest.raises(StoreError, match="letters and digits"):
+        Store(inputs).keep_as_draft("../other")
+    # both go on saving, each to its own record
+    a.unlock([u])
+    b.edit_site(b.site_ids[1], capacity=999)
+    assert not a.conflict and not b.conflict
+    assert Store(inputs).settings.locks == {}
+    # reload: a stale session takes the saved work and then saves normally
+    c.edit_site(c.site_ids[0], capacity=10)
+    assert c.conflict and c.settings.capacity == {c.site_ids[0]: 10.0}
+    c.reload()
+    assert not c.conflict and c.settings == a.settings
+    c.edit_site(c.site_ids[3], capacity=777)
+    assert not c.conflict and Store(inputs).settings.capacity == {c.site_ids[3]: 777.0}
+    a.edit_site(a.site_ids[0], capacity=20)  # now a is the stale one, and is told
+    assert a.conflict and Store(inputs).settings.capacity == {c.site_ids[3]: 777.0}
+
+
+def test_the_page_offers_reload_or_a_new_draft(inputs):
+    a = SessionState(new_store(inputs))
+    b = SessionState(Store(inputs))
+    assert a.store_problem == "" and b.store_problem == ""
+    a.max_util_pct = 95.0
+    b.max_util_pct = 90.0  # stale: refused, and the page says why
+    assert "Another session saved" in b.store_problem
+    assert b.store.settings.max_utilization == pytest.approx(0.90)
+    b.reload_record()
+    assert b.store_problem == "" and b.max_util_pct == pytest.approx(95.0)
+    a.min_util_pct = 10.0
+    b.min_util_pct = 20.0
+    assert b.store_problem
+    assert not b.keep_as_draft("")  # a name is needed: told, nothing written
+    assert b.message_kind == "danger" and "empty" in b.message
+    assert b.keep_as_draft("B's draft") and b.store_problem == ""
+    assert Store(inputs, draft="B's draft").settings.min_utilization == pytest.approx(0.20)
+    assert Store(inputs).settings.min_utilization == pytest.approx(0.10)
+    assert b.open_draft("") and b.min_util_pct == pytest.approx(10.0)
 
 
 def test_session_state_reruns_off_thread_and_reports(inputs):
@@ -255,3 +302,24 @@ def test_session_state_reruns_off_thread_and_reports(inputs):
     state.wait(120)
     assert state.message_kind == "danger"
     assert "No plan fits" in state.message or "No valid plan" in state.message
+
+
+def test_a_damaged_store_gives_a_message_and_a_way_out(inputs):
+    st = new_store(inputs)
+    st.rerun()
+    st.save_option("Kept")
+    store = st.store_path
+    data = store.read_bytes()
+    store.write_bytes(data[: len(data) // 3])  # cut short
+    stale = store.parent / f".tmp-{store.stem}-k1ll3d00{store.suffix}"
+    stale.write_bytes(b"")  # what a writer killed mid-save leaves
+    state = SessionState(Store(inputs))  # a page opening: no traceback
+    assert not stale.exists()  # stray copies go when a page starts
+    assert str(store) in state.store_problem and "damaged" in state.store_problem
+    assert state.store.list_options() == []
+    state.max_util_pct = 90.0  # edits go on in the page, nothing is written
+    assert store.read_bytes() == data[: len(data) // 3]
+    assert state.repair_store()
+    assert state.store_problem == "" and "kept as" in state.message
+    assert len(list(store.parent.glob(f"{store.stem}.damaged-*{store.suffix}"))) == 1
+    assert Store(inputs).settings.max_utilization == pytest.approx(0.90)  # written now

@@ -19,6 +19,9 @@ import sys
 import threading
 from pathlib import Path
 
+from .text import esc as _esc
+from .text import text_block
+
 __all__ = ["register_serve", "serve_command", "create_app", "load_inputs", "DEMO_FOLDER"]
 
 #: Where ``districting serve`` without a project puts its working copy of the demo town.
@@ -72,6 +75,7 @@ def create_app(project: str | Path, *, persist: bool = True):
         SelectionPanel,
         SettingsPanel,
         SitesTable,
+        StoreProblem,
     )
 
     shell = pn.Column(sizing_mode="stretch_width", css_classes=["districting-app"])
@@ -116,7 +120,8 @@ def create_app(project: str | Path, *, persist: bool = True):
         ("Project", pn.Column(_project_info(inputs, project), opener)),
         dynamic=True, sizing_mode="stretch_width", css_classes=["result-tabs"],
     )
-    main = pn.Column(MessageArea(state), mapview, tabs, sizing_mode="stretch_width")
+    main = pn.Column(MessageArea(state), StoreProblem(state), mapview, tabs,
+                     sizing_mode="stretch_width")
     shell.objects = [header, guide, pn.Row(sidebar, main, sizing_mode="stretch_width")]
     shell.state = state  # for scripts and tests driving the page from Python
     return shell
@@ -144,7 +149,7 @@ def _project_info(inputs, project) -> object:
     s = inputs.settings
     return pn.pane.HTML(
         f"<div style='font-size:13px'><b>{_esc(s.name)}</b><br>File: {_esc(str(project))}"
-        f"<br>Planning units: {len(inputs.units):,} &middot; levels: {', '.join(s.levels)}"
+        f"<br>Planning units: {len(inputs.units):,} &middot; levels: {_esc(', '.join(s.levels))}"
         f" &middot; years {s.current_year} (today) and {', '.join(map(str, s.years))}"
         f"<br>Options and the workbench state are kept in {_esc(str(s.store))}</div>")
 
@@ -153,7 +158,7 @@ def _error_page(text: str, opener):
     import panel as pn
 
     return pn.Column(
-        pn.pane.Alert(_esc(text).replace("\n", "<br>"), alert_type="danger",
+        pn.pane.Alert(text_block(text), alert_type="danger",
                       css_classes=["message", "project-error"], sizing_mode="stretch_width"),
         opener, sizing_mode="stretch_width")
 
@@ -170,14 +175,14 @@ def _project_opener(shell, persist: bool):
     def open_it(event):
         target = Path(path.value.strip()).expanduser()
         if not path.value.strip() or target.suffix.lower() != ".toml" or not target.is_file():
-            note.object = (f"{_esc(path.value)}: give the full path of an existing project "
-                           "file ending in .toml")
+            note.object = text_block(f"{path.value}: give the full path of an existing "
+                                     "project file ending in .toml")
             note.visible = True
             return
         try:
             load_inputs(target)
         except Exception as exc:  # noqa: BLE001 - shown as a report on the page
-            note.object = _esc(problem_text(exc, target)).replace("\n", "<br>")
+            note.object = text_block(problem_text(exc, target))
             note.visible = True
             return
         new = create_app(target, persist=persist)
@@ -187,12 +192,6 @@ def _project_opener(shell, persist: bool):
 
     button.on_click(open_it)
     return pn.Column(pn.Row(path, button), note)
-
-
-def _esc(text: str) -> str:
-    import html
-
-    return html.escape(str(text), quote=True)
 
 
 # ---------------------------------------------------------------------- the command

@@ -68,10 +68,15 @@ class SessionState(param.Parameterized):
     message_kind = param.Selector(objects=["info", "success", "warning", "danger"],
                                   default="info")
 
-    #: bumped whenever the plan on screen, the edits or the options change
+    #: why edits are not being written: another session saved the record, or the store
+    #: file is damaged ('' when all is well); the page offers the ways out
+    store_problem = param.String("")
+
+    #: bumped whenever the plan on screen, the edits, the options or the drafts change
     plan_version = param.Integer(0)
     edits_version = param.Integer(0)
     options_version = param.Integer(0)
+    drafts_version = param.Integer(0)
 
     def __init__(self, store: Store, schedule: Callable[[Callable], None] | None = None,
                  **params) -> None:
@@ -87,7 +92,8 @@ class SessionState(param.Parameterized):
         self.param.level.objects = list(store.runs)
         self.param.plan_year.objects = list(store.inputs.settings.years)
         self._sync_from_store()
-        if store.last_message:
+        self.store_problem = store.problem
+        if store.last_message and not store.problem:
             self.notify(store.last_message, "warning")
         self.param.watch(self._on_level, "level")
         self.param.watch(self._on_setting, list(_SETTING_PARAMS))
@@ -156,6 +162,8 @@ class SessionState(param.Parameterized):
         except StoreError as exc:
             self.notify(str(exc), "danger")
             return False
+        finally:
+            self.store_problem = self.store.problem
         return True
 
     # ------------------------------------------------------------------ locks and sites
@@ -264,7 +272,8 @@ class SessionState(param.Parameterized):
 
     def _finish(self, out, error: str) -> None:
         self.param.update(running=False, elapsed=_now() - self._started,
-                          runs_finished=self.runs_finished + 1)
+                          runs_finished=self.runs_finished + 1,
+                          store_problem=self.store.problem)
         if out is None:
             self.param.update(progress="")
             self.notify(error, "danger")
@@ -308,6 +317,58 @@ class SessionState(param.Parameterized):
         if ok:
             self.notify(f"Deleted option {name!r}.", "info")
             self.options_version += 1
+        return ok
+
+    # ------------------------------------------------------------------ drafts and the store
+    def _continue_from_store(self, done: str, notes: list[str]) -> None:
+        self._sync_from_store()
+        self._bump_all()
+        self.drafts_version += 1
+        self.store_problem = self.store.problem
+        self.notify(done + (" " + " ".join(notes) if notes else ""), "info")
+
+    def _idle(self) -> bool:
+        if self.running:
+            self.notify("Wait for the run to finish (or cancel it) first.", "warning")
+        return not self.running
+
+    def reload_record(self) -> None:
+        """Continue from the record as saved now (this page's unsaved edits are dropped)."""
+        if self._idle():
+            notes = self.store.reload()
+            self._continue_from_store("Reloaded the saved work.", notes)
+
+    def keep_as_draft(self, name: str) -> bool:
+        """Write this page's edits as a new draft and continue on it."""
+        if not self._idle():
+            return False
+        ok = self._guard(lambda: self.store.keep_as_draft(name))
+        if ok:
+            self.notify(f"Your edits are kept as draft {self.store.draft!r}; this page now "
+                        "saves to it (Options tab: Drafts).", "success")
+            self.drafts_version += 1
+        return ok
+
+    def open_draft(self, name: str) -> bool:
+        if not self._idle():
+            return False
+        notes: list[str] = []
+        ok = self._guard(lambda: notes.extend(self.store.open_draft(name)))
+        if ok:
+            label = f"draft {name!r}" if name else "the main workbench record"
+            self._continue_from_store(f"Continuing from {label}.", notes)
+        return ok
+
+    def repair_store(self) -> bool:
+        """Set a damaged store aside, start a new one and write this page's edits to it."""
+        box: list = []
+        ok = self._guard(lambda: box.append(self.store.repair()))
+        if ok:
+            where = f" The damaged file is kept as {box[0]}." if box[0] else ""
+            self.notify("A new, empty option store is in place and your edits are written "
+                        f"to it.{where}", "success")
+            self.options_version += 1
+            self.drafts_version += 1
         return ok
 
     @property

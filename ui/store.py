@@ -7,7 +7,11 @@ the plan on screen and the one before it, and talks to the engine
 Every edit is written as it happens to the project's store GeoPackage
 (:func:`districting.options.save_state`, atomic), so a new store on the same project starts
 from the last state. Two stores never share memory: unsaved work cannot leak between
-browser sessions. Tables come out as pandas DataFrames for any front end.
+browser sessions. Each store is a draft: it remembers the revision of the record it
+started from, and a save over a record another session changed since is refused and
+flagged (:attr:`Store.conflict`), keeping this session's edits in memory until the
+planner reloads the saved record or keeps the edits as a draft of a new name. Tables come
+out as pandas DataFrames for any front end.
 """
 
 from __future__ import annotations
@@ -23,6 +27,7 @@ import numpy as np
 import pandas as pd
 
 from districting import options as _options
+from districting.names import BadName, check_name, path_inside, slug
 from districting.project import SITE_STATUSES, Inputs
 from districting.study import (
     Outcome,
@@ -33,10 +38,11 @@ from districting.study import (
     run,
 )
 
-__all__ = ["Store", "StoreError", "LockRow", "STATE_KEY", "EDITABLE_SETTINGS"]
+__all__ = ["Store", "StoreError", "LockRow", "STATE_KEY", "DRAFT_PREFIX", "EDITABLE_SETTINGS"]
 
-#: Key of the workbench's row in the store's state table.
+#: Key of the workbench's row in the store's state table (drafts of other names: "workbench:NAME").
 STATE_KEY = "workbench"
+DRAFT_PREFIX = STATE_KEY + ":"
 STATE_VERSION = 1
 #: RunSettings fields the settings panel edits, with their allowed range.
 EDITABLE_SETTINGS = {
@@ -80,9 +86,20 @@ class Store:
     this store. ``persist=False`` keeps the store in memory (nothing is written).
     """
 
-    def __init__(self, inputs: Inputs, *, persist: bool = True) -> None:
+    def __init__(self, inputs: Inputs, *, persist: bool = True, draft: str = "") -> None:
         self.inputs = inputs
         self.persist = persist
+        self.draft = draft  # "" = the project's main workbench record
+        self.revision = 0  # of the record this store last read or wrote
+        self.conflict = False  # another session saved the record since: not written
+        self.damaged = ""  # the store file cannot be read or written: the message
+        self._reset()
+        if persist:
+            _options.tidy_store(self.store_path)
+        self.restore()
+
+    def _reset(self) -> None:
+        inputs = self.inputs
         levels = tuple(inputs.settings.levels)
         self.level: str = levels[0]
         self.runs: dict[str, RunSettings] = {lv: RunSettings(level=lv) for lv in levels}
@@ -94,7 +111,6 @@ class Store:
         self._export_dir: Path | None = None
         self._exports: tuple = (None, {})
         self._sessions: dict = {}  # engine sessions per level: cuts and bounds carry over
-        self.restore()
 
     # ------------------------------------------------------------------ basics
     @property
@@ -418,9 +434,10 @@ class Store:
     # ------------------------------------------------------------------ options
     def save_option(self, name: str, overwrite: bool = False) -> None:
         """Save the plan on screen as a named option in the project's store."""
-        name = name.strip()
-        if not name:
-            raise StoreError("type a name for the option first")
+        try:
+            name = check_name(name)
+        except BadName as exc:
+            raise StoreError(str(exc)) from None
         out = self.outcome
         if out is None:
             raise StoreError("run a plan first (press Rerun); today's zones are not an option")
@@ -435,10 +452,15 @@ class Store:
         self._save()
 
     def list_options(self) -> list:
-        """Saved options of the project (every level), as ``options.list_options`` gives."""
+        """Saved options of the project (every level), as ``options.list_options`` gives;
+        none when the store is damaged (:attr:`problem` says so)."""
         if not self.store_path.exists():
             return []
-        return list(_options.list_options(self.store_path))
+        try:
+            return list(_options.list_options(self.store_path))
+        except _options.StoreDamaged as exc:
+            self.damaged = str(exc)
+            return []
 
     def option_names(self, level: str | None = None) -> list[str]:
         level = self.level if level is None else level
@@ -643,12 +665,12 @@ class Store:
         out = self.outcome
         if out is None:
             raise StoreError("run a plan first (press Rerun); there is no option to export yet")
-        label = safe_name(out.name or "unsaved-result")
-        folder = self.export_folder() / f"{label}-{out.level}"
+        label = slug(f"{out.name or 'unsaved-result'}-{out.level}")
+        folder = path_inside(self.export_folder(), label)
         if kind == "packet":
             from districting.packet import write_packet
 
-            pdf = folder / f"{label}-{out.level}-packet.pdf"
+            pdf = folder / f"{label}-packet.pdf"
             write_packet([out], pdf)
             return pdf
         from districting.exports import export_all
@@ -685,18 +707,99 @@ class Store:
             "plans": plans,
         }
 
+    @property
+    def record_key(self) -> str:
+        """The store's key of this session's draft."""
+        return DRAFT_PREFIX + self.draft if self.draft else STATE_KEY
+
     def _save(self) -> None:
-        if not self.persist:
+        """Write the draft; a record changed by another session since is left alone and
+        :attr:`conflict` set (the edits stay here until :meth:`reload` or
+        :meth:`keep_as_draft`)."""
+        if not self.persist or self.conflict or self.damaged:
             return
-        with _write_lock(self.store_path):
-            _options.save_state(self.store_path, STATE_KEY, self.state())
+        try:
+            with _write_lock(self.store_path):
+                self.revision = _options.save_state(self.store_path, self.record_key,
+                                                    self.state(), expected=self.revision)
+        except _options.StateConflict:
+            self.conflict = True
+        except _options.StoreDamaged as exc:
+            self.damaged = str(exc)
+
+    @property
+    def problem(self) -> str:
+        """Words for the planner when edits are not being written ('' when all is well)."""
+        if self.damaged:
+            return (self.damaged + " Your edits in this page are kept while it stays open, "
+                    "but nothing is written until the store is repaired.")
+        if self.conflict:
+            where = f"draft {self.draft!r}" if self.draft else "the workbench record"
+            return (f"Another session saved {where} of this project after this page loaded it, "
+                    "so your latest edits were not written over theirs. Reload to continue "
+                    "from their saved work (your unsaved edits here are dropped), or keep your "
+                    "edits as a draft of a new name.")
+        return ""
+
+    def reload(self) -> list[str]:
+        """Drop this session's edits and continue from the record as saved now."""
+        self._reset()
+        self.conflict = False
+        self.revision = 0
+        return self.restore()
+
+    def keep_as_draft(self, name: str) -> str:
+        """Write this session's edits as a new draft ``name`` and continue on it."""
+        try:
+            name = check_name(name, "draft")
+        except BadName as exc:
+            raise StoreError(str(exc)) from None
+        if name in self.drafts():
+            raise StoreError(f"a draft named {name!r} exists; choose another name")
+        self.draft, self.revision, self.conflict = name, 0, False
+        self._save()
+        if self.damaged:
+            raise StoreError(self.problem)
+        return name
+
+    def drafts(self) -> list[str]:
+        """Names of the drafts kept in the store besides the main workbench record."""
+        try:
+            keys = _options.state_keys(self.store_path)
+        except _options.OptionError as exc:
+            self.damaged = str(exc)
+            return []
+        return [k[len(DRAFT_PREFIX):] for k in keys if k.startswith(DRAFT_PREFIX)]
+
+    def open_draft(self, name: str) -> list[str]:
+        """Continue on another draft ('' = the main record), dropping unsaved edits here."""
+        if name and name not in self.drafts():
+            raise StoreError(f"there is no draft named {name!r}")
+        self.draft = name
+        return self.reload()
+
+    def repair(self) -> Path | None:
+        """Set a damaged store aside and start a new one; this session's edits are written."""
+        try:
+            with _write_lock(self.store_path):
+                aside = _options.repair_store(self.store_path)
+        except _options.OptionError as exc:
+            raise StoreError(str(exc)) from exc
+        self.damaged, self.revision, self.conflict = "", 0, False
+        self._save()
+        return aside
 
     def restore(self) -> list[str]:
         """Read the last state from the store; returns notes on what could not be restored."""
         notes: list[str] = []
         if not self.persist or not self.store_path.exists():
             return notes
-        data = _options.load_state(self.store_path, STATE_KEY)
+        try:
+            data, self.revision = _options.state_record(self.store_path, self.record_key)
+        except _options.OptionError as exc:
+            self.damaged = str(exc)
+            self.last_message = self.problem
+            return [self.problem]
         if not data or data.get("version") != STATE_VERSION:
             return notes
         units = set(self.unit_ids)
@@ -767,9 +870,3 @@ def band_flags(load: np.ndarray, problem, years, open_sites) -> list[str]:
                 words.append(f"under {problem.min_util[j]:.0%} in {', '.join(sorted(under))}")
             flags.append("; ".join(words))
     return flags
-
-
-def safe_name(text: str) -> str:
-    """A file-name-safe version of an option name."""
-    keep = "".join(c if c.isalnum() or c in "-_" else "-" for c in text.strip())
-    return "-".join(p for p in keep.split("-") if p) or "option"

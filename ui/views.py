@@ -30,10 +30,13 @@ from districting import DRAFT_NOTICE
 from districting.project import SITE_STATUSES
 
 from .state import REFERENCES, SessionState
+from .text import esc as _esc
+from .text import text_block
 
 __all__ = [
     "MapView", "SettingsPanel", "RunPanel", "SelectionPanel", "LocksTable", "SitesTable",
-    "ResultsView", "OptionsPanel", "DownloadsPanel", "MessageArea", "polygon_paths",
+    "ResultsView", "OptionsPanel", "DownloadsPanel", "MessageArea", "StoreProblem",
+    "polygon_paths",
     "line_paths", "zone_colors",
 ]
 
@@ -756,9 +759,9 @@ class ResultsView(pn.viewable.Viewer):
         moved_vs_ref = ch["students"].sum()
         self.summary.object = (
             f"<div class='summary' data-students-moved='{s['students_moved']:.0f}' "
-            f"data-status='{s['status']}'>"
-            f"<b>On the map:</b> {shown} &middot; {s['level']} &middot; plan year "
-            f"{s['plan_year']} &middot; status <b>{s['status']}</b> (gap {gap})<br>"
+            f"data-status='{_esc(s['status'])}'>"
+            f"<b>On the map:</b> {shown} &middot; {_esc(s['level'])} &middot; plan year "
+            f"{s['plan_year']} &middot; status <b>{_esc(s['status'])}</b> (gap {gap})<br>"
             f"<b>{s['students_moved']:,.0f}</b> students ({s['units_moved']:,} units) change "
             f"school compared with today &middot; mean trip <b>{s['mean_km']:.2f} km</b>"
             f" &middot; longest {s['max_km']:.2f} km &middot; schools outside the band: "
@@ -809,8 +812,21 @@ class OptionsPanel(pn.viewable.Viewer):
                                             sizing_mode="stretch_width",
                                             css_classes=["compare-table"])
         self.compare_choice.param.watch(self._compare, "value")
+        self.draft_choice = pn.widgets.Select(name="Drafts (edits kept by name)", options={},
+                                              css_classes=["draft-choice"])
+        self.open_draft = pn.widgets.Button(name="Continue from this draft",
+                                            css_classes=["open-draft"])
+        self.open_draft.on_click(lambda e: state.open_draft(self.draft_choice.value or ""))
         state.param.watch(self._update, ["options_version", "level", "plan_version"])
+        state.param.watch(self._update_drafts, ["drafts_version"])
         self._update()
+        self._update_drafts()
+
+    def _update_drafts(self, *events) -> None:
+        st = self.state.store
+        self.draft_choice.options = {"main workbench record": "", **{d: d for d in st.drafts()}}
+        self.draft_choice.value = st.draft if st.draft in self.draft_choice.options.values() \
+            else ""
 
     def _save(self, event) -> None:
         if self.state.save_option(self.name_input.value, overwrite=self.overwrite.value):
@@ -831,8 +847,11 @@ class OptionsPanel(pn.viewable.Viewer):
         self.choice.options = names
         if names and self.choice.value not in names:
             self.choice.value = names[0]
-        self.compare_choice.options = ["today", "on screen", *names]
-        keep = [v for v in self.compare_choice.value if v in self.compare_choice.options]
+        # the chooser draws its labels as HTML: each name goes in escaped, shown as typed
+        self.compare_choice.options = {"today": "today", "on screen": "on screen",
+                                       **{_esc(n): n for n in names}}
+        keep = [v for v in self.compare_choice.value
+                if v in self.compare_choice.options.values()]
         if keep != self.compare_choice.value:
             self.compare_choice.value = keep
         else:
@@ -857,13 +876,15 @@ class OptionsPanel(pn.viewable.Viewer):
                     self.state.notify(str(exc), "danger")
         frame = st.compare_frame(outs)
         frame.index.name = "measure"
+        frame.columns = [_esc(c) for c in frame.columns]  # column titles are drawn as HTML
         self.compare.value = frame
 
     def __panel__(self):
         return pn.Column(
             pn.Row(self.name_input, self.save, self.overwrite),
             self.table, pn.Row(self.choice, self.show, self.delete),
-            self.compare_choice, self.compare, sizing_mode="stretch_width")
+            self.compare_choice, self.compare, pn.Row(self.draft_choice, self.open_draft),
+            sizing_mode="stretch_width")
 
 
 class DownloadsPanel(pn.viewable.Viewer):
@@ -894,8 +915,8 @@ class DownloadsPanel(pn.viewable.Viewer):
 
     def _update(self, *events) -> None:
         out = self.state.store.outcome
-        base = "no-plan" if out is None else (
-            f"{_file_label(out.name or 'unsaved-result')}-{out.level}")
+        base = "no-plan" if out is None else _file_label(
+            f"{out.name or 'unsaved-result'}-{out.level}")
         for (kind, _label, ext), b in zip(self.KINDS, self.buttons, strict=True):
             suffix = {"units_csv": "-units", "schools_csv": "-schools",
                       "packet": "-packet"}.get(kind, "")
@@ -904,7 +925,7 @@ class DownloadsPanel(pn.viewable.Viewer):
         self.note.object = (
             "<div style='font-size:12px'>Run a plan first (press Rerun).</div>" if out is None
             else f"<div style='font-size:12px'>Files of <b>{_esc(out.name or 'the unsaved result')}"
-                 f"</b> ({out.level}). Every file carries the draft notice: "
+                 f"</b> ({_esc(out.level)}). Every file carries the draft notice: "
                  f"<i>{_esc(DRAFT_NOTICE)}</i></div>")
 
     def _make(self, kind: str):
@@ -932,20 +953,57 @@ class MessageArea(pn.viewable.Viewer):
 
     def _update(self, *events) -> None:
         self.alert.alert_type = self.state.message_kind
-        self.alert.object = _esc(self.state.message).replace("\n", "<br>")
+        self.alert.object = text_block(self.state.message)
         self.alert.visible = bool(self.state.message)
 
     def __panel__(self):
         return self.alert
 
 
-def _esc(text: str) -> str:
-    import html
-
-    return html.escape(str(text), quote=True)
-
-
 def _file_label(name: str) -> str:
-    from .store import safe_name
+    from districting.names import slug
 
-    return safe_name(name)
+    return slug(name)
+
+
+class StoreProblem(pn.viewable.Viewer):
+    """Why edits are not being written, and the ways out: reload the saved work or keep
+    this page's edits as a new draft (another session saved meanwhile), or set a damaged
+    store aside."""
+
+    def __init__(self, state: SessionState, **params):
+        super().__init__(**params)
+        self.state = state
+        self.alert = pn.pane.Alert("", alert_type="danger", css_classes=["store-problem"],
+                                   sizing_mode="stretch_width", margin=(2, 5))
+        self.reload = pn.widgets.Button(name="Reload the saved work", button_type="primary",
+                                        css_classes=["reload-record"])
+        self.reload.on_click(lambda e: state.reload_record())
+        self.draft_name = pn.widgets.TextInput(name="Keep my edits as a draft named",
+                                               placeholder="e.g. Anna - east side",
+                                               css_classes=["draft-name"])
+        self.keep = pn.widgets.Button(name="Keep my edits as this draft", button_type="success",
+                                      css_classes=["keep-draft"])
+        self.keep.on_click(self._keep)
+        self.repair = pn.widgets.Button(name="Set the damaged store aside and start a new one",
+                                        button_type="warning", css_classes=["repair-store"])
+        self.repair.on_click(lambda e: state.repair_store())
+        self.conflict_row = pn.Row(self.reload, self.draft_name, self.keep)
+        self.box = pn.Column(self.alert, self.conflict_row, self.repair,
+                             sizing_mode="stretch_width", css_classes=["store-problem-box"])
+        state.param.watch(self._update, ["store_problem"])
+        self._update()
+
+    def _keep(self, event) -> None:
+        if self.state.keep_as_draft(self.draft_name.value):
+            self.draft_name.value = ""
+
+    def _update(self, *events) -> None:
+        st = self.state.store
+        self.alert.object = text_block(self.state.store_problem)
+        self.conflict_row.visible = st.conflict and not st.damaged
+        self.repair.visible = bool(st.damaged)
+        self.box.visible = bool(self.state.store_problem)
+
+    def __panel__(self):
+        return self.box
