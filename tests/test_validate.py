@@ -69,9 +69,9 @@ CASES = {
                    (W, "counts.csv", "U99", "not in the units layer are ignored")],
     "bad_toml": [(E, "project.toml", "", "not valid TOML")],
     "bad_settings": [(E, "project.toml", "plan_year", "2035 is not one of the projected years"),
-                     (E, "project.toml", "contiguity", "not 'hexagon'"),
-                     (E, "project.toml", "min_utilization", "above max_utilization"),
-                     (W, "project.toml", "[solve]", "unknown key gapp")],
+                     (E, "project.toml", "contiguity", "'hexagon' is not one of"),
+                     (E, "project.toml", "min_utilization", "out of range (from 0 to 1)"),
+                     (E, "project.toml", "[solve] gapp", "unknown key gapp")],
 }
 # problems that must not appear as consequences of another one
 NOT_EXPECTED = {

@@ -1,0 +1,110 @@
+"""Reading the project's TOML file, with syntax errors told in words that fit them.
+
+:func:`read_toml` returns the parsed file, or reports one error naming the line and column,
+quoting the line, and giving a fix chosen for the kind of mistake (an unclosed string, a
+missing ``=``, a key or table written twice, a Windows path with backslashes, text
+without quotes...). Python's :mod:`tomllib` finds the error; its message is kept in the
+report for the record.
+"""
+
+from __future__ import annotations
+
+import re
+import tomllib
+from pathlib import Path
+
+__all__ = ["read_toml", "syntax_fix"]
+
+_AT = re.compile(r"\s*\(at line (\d+), column (\d+)\)$|\s*\(at end of document\)$")
+
+# (pattern in tomllib's message, fix); the first match wins. The line's text refines a few.
+_FIXES: tuple[tuple[str, str], ...] = (
+    ("Unterminated string", 'close the text with the same quote it opens with, e.g. '
+     'name = "Hill Elementary" (a text on several lines uses triple quotes """...""")'),
+    ("Unescaped '\\' in a string", "a backslash starts an escape in double-quoted text: write "
+     "paths with forward slashes (\"data/town.gpkg\") or in single quotes ('C:\\data\\town."
+     "gpkg')"),
+    ("Invalid hex value", "a backslash starts an escape in double-quoted text: write paths "
+     "with forward slashes or in single quotes"),
+    ("Illegal character", "remove the control character (a tab or a stray byte pasted into "
+     "the text), or write it as an escape such as \\t"),
+    ("Cannot overwrite a value", "a key is written twice: keep one line per key in each "
+     "table"),
+    ("Duplicate inline table key", "a key is written twice inside { }: keep one"),
+    ("Cannot declare", "a table is written twice: merge the two [...] sections into one"),
+    ("Cannot redefine namespace", "a table is written twice: merge the two sections into one"),
+    ("Cannot mutate immutable namespace", "a table given inline with { } cannot get more "
+     "keys later: write all its keys inside the { }, or use a [table] section"),
+    ("Expected '=' after a key", "write each setting as key = value on its own line (text "
+     "in quotes)"),
+    ("Invalid initial character for a key part", "start the line with a key name (letters, "
+     "digits, _ or -), a [table] header, or # for a comment"),
+    ("Expected ']' at the end of a table declaration", "close the table header: [solve]"),
+    ("Expected ']]' at the end of an array declaration", "close the header: [[locks]]"),
+    ("Unclosed array", "close the list with ] and separate its items with commas, e.g. "
+     "years = [2027, 2028]"),
+    ("Unclosed inline table", "close the { } on the same line and separate its items with "
+     "commas, e.g. max_distance = { high = 15000 }"),
+    ("Invalid date or datetime", "write the value in quotes if it is text, or as a plain "
+     "number (2027, not 2027-01)"),
+    ("Expected newline or end of document after a statement", "put one setting per line; a "
+     "list of values goes in [ ] with commas, e.g. years = [2027, 2028]"),
+    ("Invalid value", "put text in double quotes (solver = \"highs\"), write numbers with a "
+     "dot for decimals (0.9, not 0,9) and true/false in lower case"),
+    ("Invalid statement", "start the line with a key name, a [table] header, or #"),
+)
+_GENERIC = "correct the syntax at the line and column named (see toml.io for the rules)"
+
+
+def syntax_fix(message: str, line: str = "") -> str:
+    """The fix for a tomllib error message, given the offending line's text."""
+    stripped = line.strip()
+    if "Invalid value" in message and re.search(r"=\s*\d+,\d+\s*$", stripped):
+        return "write decimals with a dot: 0.9, not 0,9"
+    if "Invalid value" in message and re.search(r"=\s*[A-Za-z]", stripped):
+        key = stripped.split("=", 1)[0].strip()
+        value = stripped.split("=", 1)[1].strip()
+        return f'put the text in double quotes: {key} = "{value}"'
+    if "Expected newline" in message and re.search(r"=\s*\S+\s+\S", stripped) and (
+            "[" not in stripped):
+        key = stripped.split("=", 1)[0].strip()
+        return (f"{key} holds several values: write them as a list in [ ] with commas "
+                f"(e.g. {key} = [2027, 2028]), or keep one value")
+    for pattern, fix in _FIXES:
+        if pattern in message:
+            return fix
+    return _GENERIC
+
+
+def read_toml(path: Path, report) -> dict | None:
+    """The parsed project file, or None after reporting why it cannot be read."""
+    if not path.is_file():
+        report.error(path, "", "the project file does not exist",
+                     "give the path of the project's .toml file")
+        return None
+    raw = path.read_bytes()
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as err:
+        line = raw[: err.start].count(b"\n") + 1
+        report.error(path, f"line {line}", "the project file is not UTF-8 text (a character "
+                     f"at byte {err.start} cannot be read)",
+                     "save the file as UTF-8 (in most editors: Save as > Encoding UTF-8)")
+        return None
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as err:
+        message = str(err)
+        found = _AT.search(message)
+        what = _AT.sub("", message)
+        if found and found.group(1):
+            number, column = int(found.group(1)), int(found.group(2))
+            lines = text.splitlines()
+            line = lines[number - 1] if number <= len(lines) else ""
+            where = f"line {number}, column {column}"
+            shown = f": {line.strip()!r}" if line.strip() else ""
+        else:
+            line, where, shown = "", "end of file", ""
+        report.error(path, where, f"the project file is not valid TOML ({what}){shown}",
+                     syntax_fix(what, line))
+        return None
