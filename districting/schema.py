@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import difflib
 import math
+import unicodedata
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 
@@ -199,9 +200,9 @@ def _convert(kind: str, v) -> tuple[bool, object]:
         return isinstance(v, str), v.strip() if isinstance(v, str) else v
     if kind == "choice":
         return isinstance(v, str), v.strip().lower() if isinstance(v, str) else v
-    if kind == "id":
+    if kind == "id":  # NFC, as ids read from the data (validate.text_values)
         ok = (isinstance(v, str) and v.strip() != "") or _is_int(v)
-        return ok, str(v).strip()
+        return ok, unicodedata.normalize("NFC", str(v).strip())
     if kind == "int":
         return _is_int(v), v
     if kind == "number":
