@@ -426,7 +426,7 @@ class Intake:
         if cols is None:
             return
         frame = frame.reset_index(drop=True)
-        self._site_degrees(frame, file)
+        misplaced = self._site_degrees(frame, file)
         frame = self.to_target(frame, "sites", file)
         n = len(frame)
         rows = np.array([f"feature {k + 1}" for k in range(n)], dtype=object)
@@ -476,17 +476,22 @@ class Intake:
             {"site_id": labels, "name": frame[cols["name"]].astype(str).str.strip().to_numpy()
              if "name" in cols else labels, "level": level, "capacity": capacity,
              "status": status, "min_util": utils["min_util"], "max_util": utils["max_util"],
-             "unit_index": self._site_units(points, labels, file)},
+             "unit_index": np.full(n, -1) if misplaced else self._site_units(points, labels,
+                                                                             file)},
             geometry=points, crs=self.crs,
         )[keep].reset_index(drop=True)
         self._shared_units(file)
 
-    def _site_degrees(self, frame, file) -> None:
-        """Site points in degrees under the label of a projected CRS the units really use."""
+    def _site_degrees(self, frame, file) -> bool:
+        """Site points in degrees under the label of a projected CRS the units really use.
+
+        Reported, and True when so (the sites are then not placed in units: every one would
+        be "outside", a consequence, not a second problem).
+        """
         crs, units = frame.crs, self.unit_frame
         if (crs is None or crs.is_geographic or crs != self.source_crs or units is None
                 or not len(units) or degree_like(units.total_bounds)):
-            return
+            return False
         points = frame.geometry[~(frame.geometry.isna() | frame.geometry.is_empty)]
         if len(points) and degree_like(points.total_bounds):
             x0, y0, x1, y1 = points.total_bounds
@@ -496,6 +501,8 @@ class Intake:
                          "coordinates are not degrees",
                          "assign EPSG:4326 (WGS 84) to the sites layer with 'Assign "
                          "projection' or 'Set CRS' in a GIS, not 'Reproject', and export again")
+            return True
+        return False
 
     def _capacity(self, values, column, labels, serving, file) -> np.ndarray:
         num, missing, bad = number_values(values)

@@ -13,6 +13,8 @@ import re
 import tomllib
 from pathlib import Path
 
+from .schema import KINDS, SCHEMA, table_of
+
 __all__ = ["read_toml", "syntax_fix"]
 
 _AT = re.compile(r"\s*\(at line (\d+), column (\d+)\)$|\s*\(at end of document\)$")
@@ -68,8 +70,14 @@ def syntax_fix(message: str, line: str = "") -> str:
     if "Expected newline" in message and re.search(r"=\s*\S+\s+\S", stripped) and (
             "[" not in stripped):
         key = stripped.split("=", 1)[0].strip()
-        return (f"{key} holds several values: write them as a list in [ ] with commas "
-                f"(e.g. {key} = [2027, 2028]), or keep one value")
+        owner = table_of(key)
+        kind = SCHEMA[owner].keys[key].kind if owner else ""
+        if kind in ("years", "names"):
+            return (f"{key} takes several values as a list in [ ] with commas, e.g. "
+                    f"{key} = {KINDS[kind][1]}")
+        example = f" (e.g. {key} = {KINDS[kind][1]})" if kind else ""
+        return (f"{key} takes one value{example}: keep one, and put text with spaces in "
+                "double quotes")
     for pattern, fix in _FIXES:
         if pattern in message:
             return fix
@@ -102,7 +110,7 @@ def read_toml(path: Path, report) -> dict | None:
             lines = text.splitlines()
             line = lines[number - 1] if number <= len(lines) else ""
             where = f"line {number}, column {column}"
-            shown = f": {line.strip()!r}" if line.strip() else ""
+            shown = f"; the line reads: {line.strip()}" if line.strip() else ""
         else:
             line, where, shown = "", "end of file", ""
         report.error(path, where, f"the project file is not valid TOML ({what}){shown}",
