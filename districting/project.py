@@ -16,7 +16,7 @@ from pathlib import Path
 import geopandas as gpd
 import numpy as np
 
-from .schema import KINDS, SCHEMA, check_value, default, suggest, table_of
+from .schema import SCHEMA, check_value, default, example, suggest, table_of
 from .tomlfile import read_toml
 from .validate import ProjectError, Report
 
@@ -145,8 +145,9 @@ def _checked(path: Path, data: dict, report) -> dict:
     out: dict = {}
     for name, value in data.items():
         if name not in SCHEMA:
+            near = suggest(name, SCHEMA)
             report.error(path, f"[{name}]", f"unknown table [{name}]", _unknown_fix(
-                name, [f"[{t}]" for t in SCHEMA], suggest(name, SCHEMA), table_of(name),
+                name, [_header(t) for t in SCHEMA], near and _header(near), table_of(name),
                 "table"))
             continue
         spec = SCHEMA[name]
@@ -169,6 +170,10 @@ def _checked(path: Path, data: dict, report) -> dict:
                          f"add a [{name}] table with {', '.join(_required(name)) or 'its keys'}"
                          " (see the project file schema in DEVELOPERS.md)")
     return out
+
+
+def _header(table: str) -> str:
+    return f"[[{table}]]" if SCHEMA[table].array else f"[{table}]"
 
 
 def _required(table: str) -> list[str]:
@@ -201,13 +206,13 @@ def _checked_table(path: Path, table: str, where: str, t: dict, report) -> dict:
             report.error(path, f"{where} {key}", problem, fix)
         elif spec.keys[key].required and v == "":
             report.error(path, f"{where} {key}", f"{key} is empty",
-                         f"write {key} = {KINDS[spec.keys[key].kind][1]}")
+                         f"write {key} = {example(spec.keys[key])}")
         else:
             out[key] = v
     for key in _required(table):
         if key not in t:
             report.error(path, f"{where} {key}", f"{key} is not given",
-                         f"write e.g. {key} = {KINDS[spec.keys[key].kind][1]}")
+                         f"write e.g. {key} = {example(spec.keys[key])}")
     return out
 
 

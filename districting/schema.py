@@ -19,8 +19,8 @@ import unicodedata
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 
-__all__ = ["Key", "Table", "SCHEMA", "check_value", "suggest", "reference_markdown",
-           "default"]
+__all__ = ["Key", "Table", "SCHEMA", "KINDS", "MAX_SHARE", "check_value", "suggest",
+           "table_of", "reference_markdown", "default", "example"]
 
 #: What each kind of value must be, in words, and an example of it.
 KINDS: dict[str, tuple[str, str]] = {
@@ -179,6 +179,16 @@ SCHEMA: dict[str, Table] = {
 }
 
 
+def example(spec: Key) -> str:
+    """A value to show in a fix: the key's default when it has a telling one."""
+    v = spec.default
+    if spec.kind in ("number", "int") and isinstance(v, int | float) and v:
+        return repr(v)
+    if spec.kind in ("text", "choice") and isinstance(v, str) and v:
+        return f'"{v}"'
+    return KINDS[spec.kind][1]
+
+
 def default(table: str, key: str):
     """The schema's default of ``table.key`` (a fresh copy of a list or table)."""
     value = SCHEMA[table].keys[key].default
@@ -236,10 +246,11 @@ def check_value(table: str, key: str, value) -> tuple[object, str | None, str | 
     each level's value; for year lists, to each year.
     """
     spec = SCHEMA[table].keys[key]
-    what, example = KINDS[spec.kind]
+    what = KINDS[spec.kind][0]
     ok, v = _convert(spec.kind, value)
     if not ok:
-        return value, f"{key} must be {what}, not {_shown(value)}", f"write e.g. {key} = {example}"
+        return value, f"{key} must be {what}, not {_shown(value)}", (
+            f"write e.g. {key} = {example(spec)}")
     if spec.choices and v not in spec.choices:
         near = suggest(str(v), spec.choices)
         return value, (f"{key} = {_shown(v)} is not one of {spec.allowed()}"), (

@@ -13,7 +13,7 @@ import re
 import tomllib
 from pathlib import Path
 
-from .schema import KINDS, SCHEMA, table_of
+from .schema import KINDS, SCHEMA, example, table_of
 
 __all__ = ["read_toml", "syntax_fix"]
 
@@ -58,14 +58,40 @@ _FIXES: tuple[tuple[str, str], ...] = (
 _GENERIC = "correct the syntax at the line and column named (see toml.io for the rules)"
 
 
-def syntax_fix(message: str, line: str = "") -> str:
-    """The fix for a tomllib error message, given the offending line's text."""
+def _open_list(before: list[str]) -> int | None:
+    """The line number (1-based) of a list left open above the error, if any."""
+    depth = 0
+    for number in range(len(before), 0, -1):
+        text = re.sub(r'"[^"]*"|\'[^\']*\'|#.*$', "", before[number - 1])
+        if text.strip().startswith("["):  # a table header: no list is open across it
+            return None
+        depth += text.count("[") - text.count("]")
+        if depth > 0:
+            return number
+        if "=" in text:
+            return None
+    return None
+
+
+def syntax_fix(message: str, line: str = "", before: list[str] | None = None) -> str:
+    """The fix for a tomllib error message, given the offending line and the lines above."""
     stripped = line.strip()
-    if "Invalid value" in message and re.search(r"=\s*\d+,\d+\s*$", stripped):
+    if re.search(r"=\s*-?\d+,\d+\s*$", stripped):
         return "write decimals with a dot: 0.9, not 0,9"
+    if message.startswith("Illegal character '\\n'"):
+        return _FIXES[0][1]  # the text's closing quote is missing on this line
+    opened = _open_list(before or [])
+    if opened is not None and "Invalid value" in message:
+        return (f"the list opened on line {opened} is not closed: end it with ] (items "
+                "separated by commas)")
     if "Invalid value" in message and re.search(r"=\s*[A-Za-z]", stripped):
-        key = stripped.split("=", 1)[0].strip()
-        value = stripped.split("=", 1)[1].strip()
+        key, value = (part.strip() for part in stripped.split("=", 1))
+        owner = table_of(key)
+        spec = SCHEMA[owner].keys[key] if owner else None
+        if spec is not None and spec.kind in ("number", "int"):
+            return f"{key} takes {KINDS[spec.kind][0]}, e.g. {key} = {example(spec)}"
+        if value.lower() in ("true", "false"):
+            return "write true or false in lower case"
         return f'put the text in double quotes: {key} = "{value}"'
     if "Expected newline" in message and re.search(r"=\s*\S+\s+\S", stripped) and (
             "[" not in stripped):
@@ -75,8 +101,8 @@ def syntax_fix(message: str, line: str = "") -> str:
         if kind in ("years", "names"):
             return (f"{key} takes several values as a list in [ ] with commas, e.g. "
                     f"{key} = {KINDS[kind][1]}")
-        example = f" (e.g. {key} = {KINDS[kind][1]})" if kind else ""
-        return (f"{key} takes one value{example}: keep one, and put text with spaces in "
+        shown = f" (e.g. {key} = {KINDS[kind][1]})" if kind else ""
+        return (f"{key} takes one value{shown}: keep one, and put text with spaces in "
                 "double quotes")
     for pattern, fix in _FIXES:
         if pattern in message:
@@ -112,7 +138,8 @@ def read_toml(path: Path, report) -> dict | None:
             where = f"line {number}, column {column}"
             shown = f"; the line reads: {line.strip()}" if line.strip() else ""
         else:
-            line, where, shown = "", "end of file", ""
+            lines, line, where, shown = [], "", "end of file", ""
+        before = lines[: number - 1] if found and found.group(1) else []
         report.error(path, where, f"the project file is not valid TOML ({what}){shown}",
-                     syntax_fix(what, line))
+                     syntax_fix(what, line, before))
         return None
