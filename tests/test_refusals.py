@@ -242,3 +242,19 @@ def test_broken_project_is_refused_by_solve_too(case, tmp_path):
 
 def test_the_corpus_is_large():
     assert len(SETTINGS) + len(SYNTAX) + 1 + len(_ERRORS) >= 50
+
+
+@pytest.mark.parametrize("argv,phrase", [
+    (["--max-util", "90"], "--max-util 0.9 for 90%"),
+    (["--min-util", "-0.2"], "--min-util -0.2"),
+    (["--gap", "1.5"], "below 1"),
+    (["--time-limit", "-1"], "--time-limit -1"),
+    (["--max-distance", "-100"], "0 or more"),
+])
+def test_command_line_settings_obey_the_schema(argv, phrase, tmp_path):
+    """`solve --max-util 90` is refused like max_utilization = 90 in the file."""
+    path = town.write_town(tmp_path)
+    before = _listing(tmp_path)
+    code, text = _run("solve", str(path), *argv)
+    assert code == 2 and phrase in text and "Traceback" not in text, text
+    assert _listing(tmp_path) == before
