@@ -121,6 +121,14 @@ def _unit(units: gpd.GeoDataFrame, uid: str) -> int:
     return int(np.flatnonzero(units["unit_id"].to_numpy() == uid)[0])
 
 
+def _write_ids(folder: Path, ids: dict) -> None:
+    """The town with some unit ids replaced (old id -> new id, None for none)."""
+    units = town_units()
+    for old, new in ids.items():
+        units.loc[_unit(units, old), "unit_id"] = new
+    write_town(folder, units=units)
+
+
 # ----------------------------------------------------------------------------- the cases
 def _cases() -> dict:
     """folder name -> function(folder) writing that broken project."""
@@ -186,15 +194,11 @@ def _cases() -> dict:
 
     @case
     def duplicate_id(d):
-        units = town_units()
-        units.loc[_unit(units, "U08"), "unit_id"] = "U07"
-        write_town(d, units=units)
+        _write_ids(d, {"U08": "U07"})
 
     @case
     def missing_id(d):
-        units = town_units()
-        units.loc[_unit(units, "U08"), "unit_id"] = None
-        write_town(d, units=units)
+        _write_ids(d, {"U08": None})
 
     @case
     def negative_count(d):
@@ -390,16 +394,11 @@ def _cases() -> dict:
 
     @case
     def unicode_twin_ids(d):  # "Ü05" composed and decomposed: they print the same
-        units = town_units()
-        units.loc[_unit(units, "U05"), "unit_id"] = "\u00dc05"
-        units.loc[_unit(units, "U06"), "unit_id"] = "U\u030805"
-        write_town(d, units=units)
+        _write_ids(d, {"U05": "\u00dc05", "U06": "U\u030805"})
 
     @case
     def case_twin_ids(d):
-        units = town_units()
-        units.loc[_unit(units, "U06"), "unit_id"] = "u05"
-        write_town(d, units=units)
+        _write_ids(d, {"U06": "u05"})
 
     @case
     def site_util_percent(d):
