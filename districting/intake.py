@@ -66,6 +66,15 @@ def _utm_for(geoms: gpd.GeoSeries):
     return geoms.estimate_utm_crs()
 
 
+def _id_fix(word: str, wanted: str, ids) -> str:
+    """"correct the unit id", naming the id that differs from ``wanted`` only in case."""
+    same = sorted({str(i) for i in ids if str(i).casefold() == wanted.casefold()})
+    if len(same) == 1:
+        return (f"correct the {word} id: ids are exact, upper/lower case included (did you "
+                f"mean {same[0]}?)")
+    return f"correct the {word} id"
+
+
 def _crs_name(crs) -> str:
     return f"{crs.to_string()} ({crs.name})"
 
@@ -774,11 +783,11 @@ class Intake:
                     continue
                 if positions(self.unit_ids, [lk.unit])[0] < 0:
                     self.r.error(file, where, f"unit {lk.unit!r} is not in the units layer",
-                                 "correct the unit id", [lk.unit])
+                                 _id_fix("unit", lk.unit, self.unit_ids), [lk.unit])
                 j = positions(site_ids, [lk.site])[0]
                 if j < 0:
                     self.r.error(file, where, f"site {lk.site!r} is not in the sites layer",
-                                 "correct the site id", [lk.site])
+                                 _id_fix("site", lk.site, site_ids), [lk.site])
                     continue
                 if levels[j] != lk.level:
                     self.r.error(file, where, f"site {lk.site} is {_a(levels[j])} site, not "

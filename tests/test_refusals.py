@@ -258,3 +258,25 @@ def test_command_line_settings_obey_the_schema(argv, phrase, tmp_path):
     code, text = _run("solve", str(path), *argv)
     assert code == 2 and phrase in text and "Traceback" not in text, text
     assert _listing(tmp_path) == before
+
+
+def test_a_lock_in_the_wrong_case_names_the_id_meant(tmp_path):
+    toml = town.project_dict()
+    toml["locks"] = [{"level": "elementary", "unit": "u02", "site": "e1"}]
+    path = town.write_town(tmp_path, toml=toml)
+    _refused(path, "unit 'u02' is not in the units layer", "did you mean U02?",
+             "did you mean E1?")
+
+
+def test_ids_typed_composed_match_data_stored_decomposed(tmp_path):
+    """A lock typed as 'Ü05' (one character) finds the unit stored as 'U' + combining mark."""
+    from districting.project import load_project
+
+    units = town.town_units()
+    units.loc[4, "unit_id"] = "U\u030805"
+    toml = town.project_dict()
+    toml["locks"] = [{"level": "elementary", "unit": "\u00dc05", "site": "E1"}]
+    inputs = load_project(town.write_town(tmp_path, units=units, toml=toml))
+    assert not inputs.report.has_errors
+    assert inputs.units["unit_id"][4] == "\u00dc05"
+    assert inputs.settings.locks[0].unit == "\u00dc05"
