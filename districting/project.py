@@ -3,9 +3,12 @@
 The TOML file names where each layer comes from and which column plays which role
 (see DEVELOPERS.md, "Project file"). :func:`load_project` reads it, validates everything
 before any solve, and returns :class:`Inputs`; every problem found is reported at once in a
-:class:`~districting.validate.Report` (errors stop the run, warnings do not). This module
-parses the TOML (:func:`read_settings`); :mod:`districting.intake` reads the layers and
-tables it names, and :mod:`districting.validate` holds the checks.
+:class:`~districting.validate.Report` (errors stop the run, warnings do not). Every command
+that loads a project goes through :func:`load_project` or :func:`validate_project`. This
+module turns the TOML into :class:`Settings` (:func:`read_settings`: every key checked
+against :data:`districting.schema.SCHEMA`, then the relations between keys);
+:mod:`districting.intake` reads the layers and tables it names, and
+:mod:`districting.validate` holds the checks.
 """
 
 from __future__ import annotations
