@@ -327,6 +327,10 @@ def _check_units_columns(path: Path, units: Source | None, levels, report) -> No
                      "set point_x and point_y, or leave both empty")
 
 
+#: A longest-travel limit under this many metres was surely meant in kilometres.
+_SHORTEST_TRIP = 100.0
+
+
 def _read_solve(values: _Values, levels: tuple[str, ...], report) -> SolveSettings:
     """[solve] with defaults; each value was range-checked against the schema."""
     path, w = values.path, "[solve]"
@@ -349,6 +353,11 @@ def _read_solve(values: _Values, levels: tuple[str, ...], report) -> SolveSettin
                             else ""))
             del table[level]
         per_level[key] = table
+    for level, metres in per_level["max_distance"].items():
+        if 0 < metres < _SHORTEST_TRIP:
+            report.warning(path, f"{w} max_distance", f"max_distance for {level} is "
+                           f"{metres:g} m, shorter than any trip to school",
+                           f"the value is in metres: write {metres * 1000:g} for {metres:g} km")
     return SolveSettings(
         max_utilization=max_u,
         min_utilization=min_u,

@@ -169,8 +169,8 @@ SCHEMA: dict[str, Table] = {
         "travel_matrix": Key("path", "CSV unit_id, site_id, cost (replaces distances)"),
         "max_moved": Key("number", "students allowed to change school; 0 = no limit", 0.0,
                          low=0.0),
-        "max_distance": Key("level_number", "level = longest travel in metres", {},
-                            low=0.0, low_open=True),
+        "max_distance": Key("level_number", "level = longest travel in metres; 0 = no "
+                            "limit", {}, low=0.0),
         "open_count": Key("level_int", "level = number of open sites when some are "
                           "candidates", {}, low=1),
     }),

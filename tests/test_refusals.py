@@ -115,7 +115,7 @@ SETTINGS = {
     "stability_negative": (_set("solve", "stability_weight", -100), ["stability_weight"]),
     "max_moved_negative": (_set("solve", "max_moved", -1), ["max_moved = -1"]),
     "distance_negative": (_set("solve", "max_distance", {"middle": -5}),
-                          ["max_distance holds -5", "above 0"]),
+                          ["max_distance holds -5", "at least 0"]),
     "distance_unknown_level": (_set("solve", "max_distance", {"midle": 4000}),
                                ["level 'midle' is not one of", "did you mean middle?"]),
     "distance_not_a_table": (_set("solve", "max_distance", 4000),
@@ -280,3 +280,13 @@ def test_ids_typed_composed_match_data_stored_decomposed(tmp_path):
     assert not inputs.report.has_errors
     assert inputs.units["unit_id"][4] == "\u00dc05"
     assert inputs.settings.locks[0].unit == "\u00dc05"
+
+
+def test_a_distance_in_kilometres_is_warned(tmp_path):
+    from districting.validate import validate_project
+
+    toml = town.project_dict()
+    toml["solve"]["max_distance"] = {"middle": 4}
+    _inputs, report = validate_project(town.write_town(tmp_path, toml=toml))
+    (item,) = [it for it in report.warnings if "max_distance" in it.where]
+    assert "4 m" in item.what and "write 4000 for 4 km" in item.fix
