@@ -435,7 +435,7 @@ class Intake:
         if cols is None:
             return
         frame = frame.reset_index(drop=True)
-        misplaced = self._site_degrees(frame, file)
+        misplaced = self._in_degrees(frame, "sites", file)
         frame = self.to_target(frame, "sites", file)
         n = len(frame)
         rows = np.array([f"feature {k + 1}" for k in range(n)], dtype=object)
@@ -491,27 +491,28 @@ class Intake:
         )[keep].reset_index(drop=True)
         self._shared_units(file)
 
-    def _site_degrees(self, frame, file) -> bool:
-        """Site points in degrees under the label of a projected CRS the units really use.
+    def _in_degrees(self, frame, key: str, file) -> bool:
+        """A layer's coordinates in degrees under the label of a projected CRS (reported).
 
-        Reported, and True when so (the sites are then not placed in units: every one would
-        be "outside", a consequence, not a second problem).
+        Only judged when the units are sound (their own degrees are reported with them).
+        True when so: the layer is then not used, since every site would lie "outside"
+        and no barrier would cut anything (consequences, not second problems).
         """
         crs, units = frame.crs, self.unit_frame
-        if (crs is None or crs.is_geographic or crs != self.source_crs or units is None
-                or not len(units) or degree_like(units.total_bounds)):
+        if (crs is None or crs.is_geographic or units is None or not len(units)
+                or self.source_crs is None or degree_like(units.total_bounds)):
             return False
-        points = frame.geometry[~(frame.geometry.isna() | frame.geometry.is_empty)]
-        if len(points) and degree_like(points.total_bounds):
-            x0, y0, x1, y1 = points.total_bounds
-            self.r.error(file, "[sites]", f"the site coordinates (x {x0:.4f} to {x1:.4f}, y "
-                         f"{y0:.4f} to {y1:.4f}) look like longitude/latitude degrees, but the "
-                         f"layer says its CRS is {_crs_name(crs)} like the units, whose "
-                         "coordinates are not degrees",
-                         "assign EPSG:4326 (WGS 84) to the sites layer with 'Assign "
-                         "projection' or 'Set CRS' in a GIS, not 'Reproject', and export again")
-            return True
-        return False
+        geoms = frame.geometry[~(frame.geometry.isna() | frame.geometry.is_empty)]
+        if not (len(geoms) and degree_like(geoms.total_bounds)):
+            return False
+        x0, y0, x1, y1 = geoms.total_bounds
+        self.r.error(file, f"[{key}]", f"the {key} coordinates (x {x0:.4f} to {x1:.4f}, y "
+                     f"{y0:.4f} to {y1:.4f}) look like longitude/latitude degrees, but the "
+                     f"layer says its CRS is {_crs_name(crs)}, and the units' coordinates "
+                     "are not degrees",
+                     f"assign EPSG:4326 (WGS 84) to the {key} layer with 'Assign projection' "
+                     "or 'Set CRS' in a GIS, not 'Reproject', and export again")
+        return True
 
     def _capacity(self, values, column, labels, serving, file) -> np.ndarray:
         num, missing, bad = number_values(values)
@@ -686,7 +687,7 @@ class Intake:
                 continue
             file = self.s.sources[key].path
             frame = self.layer(key)
-            if frame is None:
+            if frame is None or self._in_degrees(frame, key, file):
                 continue
             frame = self.to_target(frame, key, file)
             geoms = frame.geometry.reset_index(drop=True)

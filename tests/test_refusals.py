@@ -290,3 +290,19 @@ def test_a_distance_in_kilometres_is_warned(tmp_path):
     _inputs, report = validate_project(town.write_town(tmp_path, toml=toml))
     (item,) = [it for it in report.warnings if "max_distance" in it.where]
     assert "4 m" in item.what and "write 4000 for 4 km" in item.fix
+
+
+def test_barriers_in_degrees_under_a_metre_label_are_refused(tmp_path):
+    import geopandas as gpd
+    import shapely
+
+    x = town.X0 + 2000
+    river = gpd.GeoDataFrame(geometry=[shapely.LineString([(x, town.Y0 - 10),
+                                                           (x, town.Y0 + 3010)])], crs=town.CRS)
+    town.write_layer(river.to_crs(4326).set_crs(town.CRS, allow_override=True),
+                     tmp_path / "river.geojson")
+    toml = town.project_dict()
+    toml["barriers"] = {"source": "river.geojson"}
+    path = town.write_town(tmp_path, toml=toml)
+    _refused(path, "river.geojson", "[barriers]: the barriers coordinates",
+             "look like longitude/latitude degrees", "assign EPSG:4326")
