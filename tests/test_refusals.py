@@ -1,8 +1,9 @@
 """The fuzz corpus of refused inputs: every one is told, none is half-done.
 
 Three sets: broken settings (a mutation of the town's project file each), TOML syntax
-errors, and every broken project of tests/data/broken/. Each goes through the commands a
-planner runs (`districting check` and `districting solve`), and must end with a clear
+errors, and every broken project of tests/data/broken/. Each goes through every command
+that loads a project (`districting check`, `solve`, `options`, `packet`; `serve` and `demo`
+load through the same `load_project`), and must end with a clear
 message (the file, the table and key / row / unit, and the fix), exit 1, no traceback, and
 nothing written or changed in the project folder (names, sizes and modification times
 compared before and after).
@@ -41,11 +42,12 @@ def _run(*argv: str) -> tuple[int, str]:
 
 
 def _refused(path: Path, *needles: str) -> str:
-    """Run check and solve on ``path``; both refuse, say ``needles``, write nothing."""
+    """Every command that loads ``path`` refuses it, says ``needles``, writes nothing."""
     folder = path.parent
     before = _listing(folder)
-    for command in ("check", "solve"):
-        code, text = _run(command, str(path))
+    for command, *extra in (("check",), ("solve",), ("options",),
+                            ("packet", "--options", "a", "--out", str(folder / "p.pdf"))):
+        code, text = _run(command, str(path), *extra)
         assert code == 1, f"{command}: exit {code}\n{text}"
         assert "Traceback" not in text
         for needle in needles:
