@@ -137,6 +137,30 @@ def _solve_targets(args, inputs) -> dict[str, tuple[str, Path]]:
     return {levels[0]: (name, folder)}
 
 
+#: Command-line settings -> the [solve] keys whose schema they obey.
+_FLAGS = {"max_util": "max_utilization", "min_util": "min_utilization",
+          "stability_weight": "stability_weight", "gap": "gap", "time_limit": "time_limit"}
+
+
+def check_flags(args) -> None:
+    """Refuse a command-line setting the project file's schema would refuse (ValueError)."""
+    from .schema import check_value
+
+    for attr, key in _FLAGS.items():
+        value = getattr(args, attr, None)
+        if value is None:
+            continue
+        flag = "--" + attr.replace("_", "-")
+        _value, problem, fix = check_value("solve", key, value)
+        if problem is not None:
+            what = problem.split(", which is ", 1)[-1]  # "out of range (...)"
+            raise ValueError(f"{flag} {value:g} is {what}; fix: "
+                             f"{fix.replace(f'{key} = ', f'{flag} ')}")
+    if getattr(args, "max_distance", None) is not None and not args.max_distance >= 0:
+        raise ValueError(f"--max-distance {args.max_distance:g}: the longest travel is in "
+                         "metres, 0 or more (0 = no limit)")
+
+
 def cmd_solve(args) -> int:
     from .exports import export_all
     from .names import check_name
@@ -145,6 +169,7 @@ def cmd_solve(args) -> int:
 
     if args.save:
         check_name(args.save)  # before the project is read: the rule needs no data
+    check_flags(args)
     inputs = _load(args.project)
     tidy_store(inputs.settings.store)
     targets = _solve_targets(args, inputs)
@@ -220,6 +245,7 @@ def cmd_demo(args) -> int:
     from .study import RunSettings, run
     from .validate import check_summary
 
+    check_flags(args)
     out = Path(args.out).resolve()
     toml = copy_demo(out / "project")
     inputs = load_project(toml)

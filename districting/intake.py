@@ -21,6 +21,7 @@ import shapely
 from .adjacency import Adjacency
 from .io import ReadError, read_layer, read_table
 from .project import SITE_STATUSES, Inputs, Settings, Source
+from .schema import MAX_SHARE
 from .validate import (
     cell_text,
     check_counts,
@@ -29,6 +30,7 @@ from .validate import (
     check_overlaps,
     check_polygons,
     columns_text,
+    degree_like,
     find_column,
     ids_text,
     number_values,
@@ -64,6 +66,19 @@ def _utm_for(geoms: gpd.GeoSeries):
     return geoms.estimate_utm_crs()
 
 
+def _id_fix(word: str, wanted: str, ids) -> str:
+    """"correct the unit id", naming the id that differs from ``wanted`` only in case."""
+    same = sorted({str(i) for i in ids if str(i).casefold() == wanted.casefold()})
+    if len(same) == 1:
+        return (f"correct the {word} id: ids are exact, upper/lower case included (did you "
+                f"mean {same[0]}?)")
+    return f"correct the {word} id"
+
+
+def _crs_name(crs) -> str:
+    return f"{crs.to_string()} ({crs.name})"
+
+
 def _metric(crs) -> bool:
     """A projected CRS whose first axis is in metres."""
     if crs is None or not crs.is_projected:
@@ -84,7 +99,8 @@ class Intake:
         self.s, self.r = settings, report
         self._layers: dict[tuple, gpd.GeoDataFrame | None] = {}
         self._failed: set[Path] = set()
-        self.crs = None
+        self.crs = None  # the project's CRS (the units', or its UTM zone)
+        self.source_crs = None  # the units layer's own CRS
         self.unit_frame: gpd.GeoDataFrame | None = None  # attributes, rows = units
         self.units: gpd.GeoDataFrame | None = None  # unit_id, geometry, point
         self.unit_ids: np.ndarray | None = None
@@ -156,7 +172,12 @@ class Intake:
         return found
 
     def to_target(self, frame: gpd.GeoDataFrame, key: str, file: Path):
-        """``frame`` in the project's CRS; reports a layer with no CRS."""
+        """``frame`` in the project's CRS; reports a layer with no CRS, warns on another CRS.
+
+        A layer in the units' own CRS is reprojected with them without a word; one in
+        another CRS is reprojected too (coordinates are exact either way), with a warning
+        naming both, since a mismatch is often a layer exported from the wrong project.
+        """
         if frame.crs is None:
             self.r.error(file, f"[{key}]", f"the {key} layer has no coordinate reference "
                          "system (CRS)", "assign the layer's CRS in a GIS (e.g. 'Assign "
@@ -164,6 +185,12 @@ class Intake:
             return frame
         if self.crs is None or frame.crs == self.crs:
             return frame
+        if self.source_crs is not None and frame.crs != self.source_crs:
+            self.r.warning(file, f"[{key}]", f"the {key} layer is in {_crs_name(frame.crs)} "
+                           f"but the units are in {_crs_name(self.source_crs)}; the {key} are "
+                           "reprojected to the units' CRS",
+                           "nothing to do if both CRSs are right; export the layer in the "
+                           "units' CRS to silence this")
         return frame.to_crs(self.crs)
 
     # -- units
@@ -184,17 +211,20 @@ class Intake:
         ids_ok = False
         if "id" in cols:
             ids, missing = text_values(frame[cols["id"]])
-            ids_ok = check_ids(self.r, file, ids, missing, "unit", cols["id"])
+            ids_ok = check_ids(self.r, file, ids, missing, "unit", cols["id"],
+                               raw=frame[cols["id"]])
             self.labels = np.where(missing, rows, ids)
             self.unit_ids = ids
         geoms, geoms_ok = check_polygons(self.r, file, frame.geometry.to_numpy(), self.labels)
         frame = gpd.GeoDataFrame(frame.drop(columns=frame.geometry.name), geometry=geoms,
                                  crs=frame.crs)
-        source_crs = frame.crs
+        source_crs = self.source_crs = frame.crs
         if source_crs is None:
             self.r.error(file, "[units]", "the units layer has no coordinate reference system "
                          "(CRS)", "assign the layer's CRS in a GIS (e.g. 'Assign projection') "
                          "and export it again")
+        elif self._degrees_as_projected(frame, file, geoms_ok):
+            geoms_ok = False
         else:
             frame, geoms_ok = self._project_units(frame, file, geoms_ok)
         self.unit_frame = frame
@@ -209,6 +239,30 @@ class Intake:
              "point": gpd.GeoSeries(points, crs=frame.crs)},
             geometry=frame.geometry.to_numpy(), crs=frame.crs,
         ).reset_index(drop=True)
+
+    def _degrees_as_projected(self, frame, file, geoms_ok) -> bool:
+        """Longitude/latitude values under a projected CRS's label (reported); True if so.
+
+        Told by extent and area together: every coordinate within ±180/±90 and planning
+        units whose median area is under one square unit of the CRS (1 m2 in a metre CRS),
+        which no real planning unit is.
+        """
+        crs = frame.crs
+        if crs.is_geographic or not len(frame) or not geoms_ok:
+            return False
+        area = np.median(frame.geometry.area.to_numpy())
+        if not (degree_like(frame.total_bounds) and area < 1.0):
+            return False
+        x0, y0, x1, y1 = frame.total_bounds
+        unit = crs.axis_info[0].unit_name if crs.axis_info else "unit"
+        self.r.error(file, "[units]", f"the layer says its CRS is {_crs_name(crs)}, in "
+                     f"{unit}s, but its coordinates (x {x0:.4f} to {x1:.4f}, y {y0:.4f} to "
+                     f"{y1:.4f}) look like longitude/latitude degrees: the units would measure "
+                     f"{area:.2g} square {unit}s each and travel would be near 0 km",
+                     "assign the CRS the coordinates are really in (for degrees: EPSG:4326, "
+                     "WGS 84) with 'Assign projection' or 'Set CRS' in a GIS, not 'Reproject', "
+                     "and export again; the tool projects degrees to metres itself")
+        return True
 
     def _project_units(self, frame, file, ok):
         crs = frame.crs
@@ -334,7 +388,8 @@ class Intake:
             empty = np.zeros(0, dtype=object)
             return table.iloc[:0], empty, np.zeros(0, bool)
         ids, missing = text_values(table[id_col])
-        check_ids(self.r, file, ids, missing, "row", id_col, row_word="row")
+        check_ids(self.r, file, ids, missing, "row", id_col, row_word="row",
+                  raw=table[id_col])
         if units is None:  # no units to join to: check the CSV on its own
             keep = ~missing
             return table[keep].reset_index(drop=True), ids[keep], np.ones(keep.sum(), bool)
@@ -369,16 +424,23 @@ class Intake:
         frame = self.layer("sites")
         if frame is None:
             return
+        if len(frame) == 0:
+            self.r.error(file, "[sites]", "the sites layer has no features",
+                         "point [sites] at the layer of school sites (one point per school), "
+                         "or add the schools to it")
+            return
         optional = [r for r in ("name", "min_util", "max_util") if not src.columns.get(r)]
         cols = self.columns("sites", frame, ["id", "name", "level", "capacity", "status",
                                              "min_util", "max_util"], file, optional)
         if cols is None:
             return
-        frame = self.to_target(frame.reset_index(drop=True), "sites", file)
+        frame = frame.reset_index(drop=True)
+        misplaced = self._in_degrees(frame, "sites", file)
+        frame = self.to_target(frame, "sites", file)
         n = len(frame)
         rows = np.array([f"feature {k + 1}" for k in range(n)], dtype=object)
         ids, missing = text_values(frame[cols["id"]])
-        check_ids(self.r, file, ids, missing, "site", cols["id"])
+        check_ids(self.r, file, ids, missing, "site", cols["id"], raw=frame[cols["id"]])
         labels = np.where(missing, rows, ids)
 
         level, no_level = text_values(frame[cols["level"]])
@@ -423,10 +485,34 @@ class Intake:
             {"site_id": labels, "name": frame[cols["name"]].astype(str).str.strip().to_numpy()
              if "name" in cols else labels, "level": level, "capacity": capacity,
              "status": status, "min_util": utils["min_util"], "max_util": utils["max_util"],
-             "unit_index": self._site_units(points, labels, file)},
+             "unit_index": np.full(n, -1) if misplaced else self._site_units(points, labels,
+                                                                             file)},
             geometry=points, crs=self.crs,
         )[keep].reset_index(drop=True)
         self._shared_units(file)
+
+    def _in_degrees(self, frame, key: str, file) -> bool:
+        """A layer's coordinates in degrees under the label of a projected CRS (reported).
+
+        Only judged when the units are sound (their own degrees are reported with them).
+        True when so: the layer is then not used, since every site would lie "outside"
+        and no barrier would cut anything (consequences, not second problems).
+        """
+        crs, units = frame.crs, self.unit_frame
+        if (crs is None or crs.is_geographic or units is None or not len(units)
+                or self.source_crs is None or degree_like(units.total_bounds)):
+            return False
+        geoms = frame.geometry[~(frame.geometry.isna() | frame.geometry.is_empty)]
+        if not (len(geoms) and degree_like(geoms.total_bounds)):
+            return False
+        x0, y0, x1, y1 = geoms.total_bounds
+        self.r.error(file, f"[{key}]", f"the {key} coordinates (x {x0:.4f} to {x1:.4f}, y "
+                     f"{y0:.4f} to {y1:.4f}) look like longitude/latitude degrees, but the "
+                     f"layer says its CRS is {_crs_name(crs)}, and the units' coordinates "
+                     "are not degrees",
+                     f"assign EPSG:4326 (WGS 84) to the {key} layer with 'Assign projection' "
+                     "or 'Set CRS' in a GIS, not 'Reproject', and export again")
+        return True
 
     def _capacity(self, values, column, labels, serving, file) -> np.ndarray:
         num, missing, bad = number_values(values)
@@ -446,10 +532,10 @@ class Intake:
 
     def _share(self, values, column, labels, file) -> np.ndarray:
         num, _missing, bad = number_values(values)
-        wrong = bad | (np.nan_to_num(num) < 0)
+        wrong = bad | (np.nan_to_num(num) < 0) | (np.nan_to_num(num) > MAX_SHARE)
         if wrong.any():
             self.r.error(file, f"column {column}, {where_units(labels[wrong], 'site')}",
-                         f"utilization must be a share of capacity, 0 or more "
+                         f"utilization must be a share of capacity from 0 to {MAX_SHARE:g} "
                          f"({cell_text(values, wrong)})",
                          f"enter e.g. 0.9 for 90% in {column}, or leave it blank for the "
                          "[solve] default", labels[wrong])
@@ -542,7 +628,7 @@ class Intake:
             pos = np.arange(n)
         else:
             ids, missing = text_values(frame[found["id"]])
-            check_ids(self.r, file, ids, missing, "row", found["id"])
+            check_ids(self.r, file, ids, missing, "row", found["id"], raw=frame[found["id"]])
             first = ~pd.Series(ids).duplicated().to_numpy() & ~missing
             index = pd.Index(ids[first])
             frame = frame[first].reset_index(drop=True)
@@ -601,11 +687,17 @@ class Intake:
                 continue
             file = self.s.sources[key].path
             frame = self.layer(key)
-            if frame is None:
+            if frame is None or self._in_degrees(frame, key, file):
                 continue
             frame = self.to_target(frame, key, file)
             geoms = frame.geometry.reset_index(drop=True)
             geoms = geoms[~(geoms.isna() | geoms.is_empty)].reset_index(drop=True)
+            if not len(geoms):
+                effect = ("no adjacency is cut" if key == "barriers"
+                          else "no pair is kept across a barrier")
+                self.r.warning(file, f"[{key}]", f"the {key} layer has no features, so "
+                               f"{effect}", f"point [{key}] at the layer that holds them, or "
+                               f"remove the [{key}] table if there are none")
             if key == "barriers":
                 points = np.isin(shapely.get_type_id(geoms.to_numpy()), [0, 4])
                 if points.any():
@@ -692,11 +784,11 @@ class Intake:
                     continue
                 if positions(self.unit_ids, [lk.unit])[0] < 0:
                     self.r.error(file, where, f"unit {lk.unit!r} is not in the units layer",
-                                 "correct the unit id", [lk.unit])
+                                 _id_fix("unit", lk.unit, self.unit_ids), [lk.unit])
                 j = positions(site_ids, [lk.site])[0]
                 if j < 0:
                     self.r.error(file, where, f"site {lk.site!r} is not in the sites layer",
-                                 "correct the site id", [lk.site])
+                                 _id_fix("site", lk.site, site_ids), [lk.site])
                     continue
                 if levels[j] != lk.level:
                     self.r.error(file, where, f"site {lk.site} is {_a(levels[j])} site, not "

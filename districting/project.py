@@ -3,20 +3,24 @@
 The TOML file names where each layer comes from and which column plays which role
 (see DEVELOPERS.md, "Project file"). :func:`load_project` reads it, validates everything
 before any solve, and returns :class:`Inputs`; every problem found is reported at once in a
-:class:`~districting.validate.Report` (errors stop the run, warnings do not). This module
-parses the TOML (:func:`read_settings`); :mod:`districting.intake` reads the layers and
-tables it names, and :mod:`districting.validate` holds the checks.
+:class:`~districting.validate.Report` (errors stop the run, warnings do not). Every command
+that loads a project goes through :func:`load_project` or :func:`validate_project`. This
+module turns the TOML into :class:`Settings` (:func:`read_settings`: every key checked
+against :data:`districting.schema.SCHEMA`, then the relations between keys);
+:mod:`districting.intake` reads the layers and tables it names, and
+:mod:`districting.validate` holds the checks.
 """
 
 from __future__ import annotations
 
-import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import geopandas as gpd
 import numpy as np
 
+from .schema import SCHEMA, check_value, default, example, suggest, table_of
+from .tomlfile import read_toml
 from .validate import ProjectError, Report
 
 __all__ = [
@@ -24,7 +28,7 @@ __all__ = [
     "read_settings", "ProjectError", "LEVELS", "SITE_STATUSES",
 ]
 
-LEVELS = ("elementary", "middle", "high")
+LEVELS = tuple(default("project", "levels"))
 #: open: open now and in the plan; closing: closes at the plan year (its students move);
 #: new: opens at the plan year; candidate: the solver decides; closed: not in use.
 SITE_STATUSES = ("open", "closing", "new", "candidate", "closed")
@@ -32,17 +36,20 @@ SITE_STATUSES = ("open", "closing", "new", "candidate", "closed")
 
 @dataclass(frozen=True)
 class SolveSettings:
-    """The [solve] table: defaults for every level, overridable per run."""
+    """The [solve] table: defaults for every level, overridable per run.
 
-    max_utilization: float = 1.0
-    min_utilization: float = 0.0
-    stability_weight: float = 0.0  # extra metres of travel charged per student moved
+    The defaults are the schema's (:data:`districting.schema.SCHEMA`).
+    """
+
+    max_utilization: float = default("solve", "max_utilization")
+    min_utilization: float = default("solve", "min_utilization")
+    stability_weight: float = default("solve", "stability_weight")  # metres per student moved
     max_distance: dict[str, float] = field(default_factory=dict)  # level -> metres
     max_moved: float | None = None  # students (plan year) allowed to change school
     open_count: dict[str, int] = field(default_factory=dict)  # level -> p (with candidates)
-    gap: float = 1e-4
-    time_limit: float | None = 60.0
-    solver: str = "highs"  # "highs" (array route) or any solver name Pyomo drives
+    gap: float = default("solve", "gap")
+    time_limit: float | None = default("solve", "time_limit")
+    solver: str = default("solve", "solver")  # "highs" (array route) or a Pyomo solver name
     travel_matrix: Path | None = None  # CSV unit_id, site_id, cost (replaces distances)
 
 
@@ -132,159 +139,125 @@ class Inputs:
 
 
 # ----------------------------------------------------------------------------- the TOML file
-_KNOWN_KEYS: dict[str, tuple[str, ...]] = {
-    "project": ("name", "current_year", "years", "plan_year", "levels", "store"),
-    "units": ("source", "layer", "id", "counts", "point_x", "point_y"),
-    "counts": ("source", "id"),
-    "sites": ("source", "layer", "id", "name", "level", "capacity", "status", "min_util",
-              "max_util"),
-    "zones": ("source", "layer", "id", "columns"),
-    "barriers": ("source", "layer"),
-    "bridges": ("source", "layer"),
-    "adjacency": ("contiguity", "links"),
-    "solve": ("max_utilization", "min_utilization", "stability_weight", "gap", "time_limit",
-              "solver", "travel_matrix", "max_moved", "max_distance", "open_count"),
-    "locks": ("level", "unit", "site"),
-    "forbids": ("level", "unit", "site"),
-}
-#: Column roles with their default column names ("" = optional, not used unless given).
-_ROLES: dict[str, dict[str, str]] = {
-    "units": {"id": "unit_id", "counts": "{level}_{year}", "point_x": "", "point_y": ""},
-    "counts": {"id": "unit_id"},
-    "sites": {"id": "site_id", "name": "name", "level": "level", "capacity": "capacity",
-              "status": "status", "min_util": "", "max_util": ""},
-    "zones": {"id": "unit_id"},
-    "barriers": {},
-    "bridges": {},
-}
-_EXAMPLES = {"text": '"name"', "int": "2027", "number": "0.9", "years": "[2027, 2028]",
-             "names": '["elementary", "middle"]', "level_number": "{ high = 15000 }",
-             "level_int": "{ elementary = 6 }", "level_text": '{ elementary = "zone_el" }',
-             "id": '"U0412"'}
-_EXPECTED = {"text": "text", "int": "a whole number", "number": "a number",
-             "years": "a list of years (whole numbers)", "names": "a list of names (text)",
-             "level_number": "a table of level = number", "level_int":
-             "a table of level = whole number", "level_text": "a table of level = column name",
-             "id": "an id (text)"}
+def _checked(path: Path, data: dict, report) -> dict:
+    """The project file's tables checked against :data:`SCHEMA`, every problem reported.
+
+    Returns table -> key -> value for the keys that passed (arrays of tables: a list of
+    such dicts); unknown tables and keys, wrong kinds and out-of-range values are errors.
+    """
+    out: dict = {}
+    for name, value in data.items():
+        if name not in SCHEMA:
+            near = suggest(name, SCHEMA)
+            report.error(path, f"[{name}]", f"unknown table [{name}]", _unknown_fix(
+                name, [_header(t) for t in SCHEMA], near and _header(near), table_of(name),
+                "table"))
+            continue
+        spec = SCHEMA[name]
+        if spec.array:
+            if not isinstance(value, list) or not all(isinstance(e, dict) for e in value):
+                report.error(path, f"[[{name}]]", f"{name} must be an array of tables",
+                             f"write each entry as [[{name}]] followed by "
+                             f"{', '.join(spec.keys)}")
+                continue
+            out[name] = [_checked_table(path, name, f"[[{name}]] entry {k}", entry, report)
+                         for k, entry in enumerate(value, start=1)]
+        elif not isinstance(value, dict):
+            report.error(path, f"[{name}]", f"{name} must be a table, not a single value",
+                         f"write it as a [{name}] table with its keys on the lines below")
+        else:
+            out[name] = _checked_table(path, name, f"[{name}]", value, report)
+    for name, spec in SCHEMA.items():
+        if spec.required and name not in data:
+            report.error(path, f"[{name}]", f"the [{name}] table is missing",
+                         f"add a [{name}] table with {', '.join(_required(name)) or 'its keys'}"
+                         " (see the project file schema in DEVELOPERS.md)")
+    return out
 
 
-def _convert(kind: str, v):
-    """(ok, value) for a TOML value of the expected kind."""
-    def is_int(x):
-        return isinstance(x, int) and not isinstance(x, bool)
-
-    def is_num(x):
-        return (is_int(x) or isinstance(x, float)) and np.isfinite(x)
-
-    if kind == "text":
-        return isinstance(v, str), v.strip() if isinstance(v, str) else v
-    if kind == "id":
-        ok = isinstance(v, str) and v.strip() != "" or is_int(v)
-        return ok, str(v).strip()
-    if kind == "int":
-        return is_int(v), v
-    if kind == "number":
-        return is_num(v), float(v) if is_num(v) else v
-    if kind == "years":
-        return isinstance(v, list) and len(v) > 0 and all(map(is_int, v)), v
-    if kind == "names":
-        ok = isinstance(v, list) and len(v) > 0 and all(isinstance(x, str) and x.strip()
-                                                        for x in v)
-        return ok, [x.strip().lower() for x in v] if ok else v
-    check = {"level_number": is_num, "level_int": is_int,
-             "level_text": lambda x: isinstance(x, str)}[kind]
-    ok = isinstance(v, dict) and all(check(x) for x in v.values())
-    return ok, {str(k).strip().lower(): x for k, x in v.items()} if ok else v
+def _header(table: str) -> str:
+    return f"[[{table}]]" if SCHEMA[table].array else f"[{table}]"
 
 
-class _TomlReader:
-    """Typed look-ups in the parsed TOML; every bad value becomes a report item."""
+def _required(table: str) -> list[str]:
+    return [k for k, spec in SCHEMA[table].keys.items() if spec.required]
 
-    def __init__(self, path: Path, data: dict, report):
-        self.path, self.data, self.report = path, data, report
 
-    def table(self, name: str, required: bool = False) -> dict | None:
-        t = self.data.get(name)
-        if t is None:
-            if required:
-                self.report.error(self.path, f"[{name}]", f"the [{name}] table is missing",
-                                  f"add a [{name}] table (see the project file schema)")
-            return None
-        if not isinstance(t, dict):
-            self.report.error(self.path, f"[{name}]", f"{name} must be a table",
-                              f"write it as a [{name}] table")
-            return None
-        self.unknown_keys(f"[{name}]", t, _KNOWN_KEYS[name])
-        return t
+def _unknown_fix(name: str, known: list[str], near: str | None, owner: str | None,
+                 word: str) -> str:
+    if near is not None:
+        head = f"did you mean {near}?"
+    elif owner is not None:
+        head = f"{name} is a key of [{owner}]: move it there"
+    else:
+        head = f"remove the {word} or correct its spelling"
+    return f"{head} ({word}s here: {', '.join(known)})"
 
-    def unknown_keys(self, where: str, t: dict, known: tuple[str, ...]) -> None:
-        extra = [k for k in t if k not in known]
-        if extra:
-            self.report.warning(self.path, where, f"unknown key{'s' if len(extra) > 1 else ''} "
-                                f"{', '.join(extra)} (ignored)",
-                                f"known keys: {', '.join(known)}; check the spelling")
 
-    def get(self, where: str, t: dict, key: str, kind: str, default=None):
+def _checked_table(path: Path, table: str, where: str, t: dict, report) -> dict:
+    spec = SCHEMA[table]
+    out = {}
+    for key, value in t.items():
+        if key not in spec.keys:
+            owner = table_of(key)
+            report.error(path, f"{where} {key}", f"unknown key {key} in {where}",
+                         _unknown_fix(key, list(spec.keys), suggest(key, spec.keys),
+                                      owner if owner != table else None, "key"))
+            continue
+        v, problem, fix = check_value(table, key, value)
+        if problem is not None:
+            report.error(path, f"{where} {key}", problem, fix)
+        elif spec.keys[key].required and v == "":
+            report.error(path, f"{where} {key}", f"{key} is empty",
+                         f"write {key} = {example(spec.keys[key])}")
+        else:
+            out[key] = v
+    for key in _required(table):
         if key not in t:
-            return default
-        ok, value = _convert(kind, t[key])
-        if not ok:
-            self.report.error(self.path, f"{where} {key}",
-                              f"must be {_EXPECTED[kind]}, not {t[key]!r}",
-                              f"write e.g. {key} = {_EXAMPLES[kind]}")
-            return default
-        return value
+            report.error(path, f"{where} {key}", f"{key} is not given",
+                         f"write e.g. {key} = {example(spec.keys[key])}")
+    return out
 
-    def path_of(self, where: str, t: dict, key: str, required: bool = False) -> Path | None:
-        value = self.get(where, t, key, "text", "")
-        if not value:
-            if required:
-                self.report.error(self.path, f"{where} {key}", f"{key} is not given",
-                                  f'write {key} = "file.gpkg" (relative to the project file)')
-            return None
-        return (self.path.parent / value).resolve()
+
+class _Values:
+    """Look-ups in the checked tables: the value written, else the schema's default."""
+
+    def __init__(self, path: Path, tables: dict):
+        self.path, self.tables = path, tables
+
+    def get(self, table: str, key: str):
+        t = self.tables.get(table)
+        return t[key] if isinstance(t, dict) and key in t else default(table, key)
+
+    def path_of(self, table: str, key: str) -> Path | None:
+        value = self.get(table, key)
+        return (self.path.parent / value).resolve() if value else None
 
 
 def read_settings(path: str | Path, report) -> Settings | None:
-    """Parse a project file into :class:`Settings`, reporting every bad key or value.
+    """Parse a project file into :class:`Settings`, reporting every bad table, key or value.
 
-    Returns None when the file cannot be read or a required part is missing or wrong (the
-    report says why); other bad values fall back to their defaults after being reported.
+    Every key is checked against :data:`districting.schema.SCHEMA`. Returns None when the
+    file cannot be read or a required part is missing or wrong (the report says why);
+    after other errors the settings are returned with defaults for the bad keys, so that
+    the data can still be checked in the same run (any error stops a solve).
     """
     path = Path(path)
-    if not path.is_file():
-        report.error(path, "", "the project file does not exist",
-                     "give the path of the project's .toml file")
+    data = read_toml(path, report)
+    if data is None:
         return None
-    try:
-        data = tomllib.loads(path.read_text(encoding="utf-8-sig"))
-    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as err:
-        report.error(path, "", f"the project file is not valid TOML ({err})",
-                     "correct the syntax at the line and column named")
-        return None
-    reader = _TomlReader(path, data, report)
-    unknown = [k for k in data if k not in _KNOWN_KEYS]
-    if unknown:
-        report.warning(path, "", f"unknown table{'s' if len(unknown) > 1 else ''} "
-                       f"{', '.join(unknown)} (ignored)",
-                       f"known tables: {', '.join(_KNOWN_KEYS)}; check the spelling")
     n_errors = len(report.errors)
+    values = _Values(path, _checked(path, data, report))
+    get = values.get
 
-    proj = reader.table("project", required=True) or {}
+    name = get("project", "name") or path.stem
+    current_year, years = get("project", "current_year"), get("project", "years")
+    levels = tuple(get("project", "levels"))
     w = "[project]"
-    name = reader.get(w, proj, "name", "text", "") or path.stem
-    current_year = reader.get(w, proj, "current_year", "int")
-    years = reader.get(w, proj, "years", "years")
-    for key, value in (("current_year", current_year), ("years", years)):
-        if value is None and key not in proj:
-            example = _EXAMPLES["int" if key == "current_year" else "years"]
-            report.error(path, f"{w} {key}", f"{key} is not given",
-                         f"write e.g. {key} = {example}")
-    levels = tuple(reader.get(w, proj, "levels", "names", list(LEVELS)))
     if len(set(levels)) != len(levels):
         report.error(path, f"{w} levels", f"a level is named twice ({', '.join(levels)})",
                      "name each school level once")
-    plan_year = reader.get(w, proj, "plan_year", "int")
+    plan_year = get("project", "plan_year")
     if years is not None:
         if len(set(years)) != len(years):
             report.error(path, f"{w} years", f"a year is listed twice ({years})",
@@ -298,56 +271,29 @@ def read_settings(path: str | Path, report) -> Settings | None:
         elif plan_year not in years:
             report.error(path, f"{w} plan_year", f"plan_year {plan_year} is not one of the "
                          f"projected years {years}", "choose plan_year from years")
-    store = reader.path_of(w, proj, "store") or path.with_name(f"{path.stem}.options.gpkg")
+    store = values.path_of("project", "store") or path.with_name(f"{path.stem}.options.gpkg")
 
     sources: dict[str, Source] = {}
-    for key, roles in _ROLES.items():
-        t = reader.table(key, required=key in ("units", "sites"))
-        if t is None:
+    for key in _SOURCES:
+        if not isinstance(values.tables.get(key), dict) or not get(key, "source"):
             continue
-        where = f"[{key}]"
-        src = reader.path_of(where, t, "source", required=True)
-        layer = reader.get(where, t, "layer", "text", "") or None
-        columns = {role: reader.get(where, t, role, "text", default) for role, default
-                   in roles.items()}
-        level_columns = {}
-        if key == "zones":
-            level_columns = reader.get(where, t, "columns", "level_text", {})
-            for level in [lv for lv in level_columns if lv not in levels]:
-                report.warning(path, f"{where} columns", f"level {level!r} is not one of the "
-                               f"project's levels ({', '.join(levels)}); its column is ignored",
-                               "correct the level name or add it to [project] levels")
-                del level_columns[level]
-        if src is not None:
-            sources[key] = Source(src, layer, columns, level_columns)
-    units = sources.get("units")
-    if units is not None:
-        template = units.columns["counts"]
-        try:
-            template.format(level="x", year=2000)
-            ok = "{year}" in template and ("{level}" in template or len(levels) == 1)
-        except (KeyError, IndexError, ValueError):
-            ok = False
-        if not ok:
-            report.error(path, "[units] counts", f"the count column template {template!r} "
-                         "must contain {year} (and {level} when there are several levels)",
-                         'write e.g. counts = "{level}_{year}"')
-        if bool(units.columns["point_x"]) != bool(units.columns["point_y"]):
-            report.error(path, "[units] point_x / point_y", "give both point columns or neither",
-                         "set point_x and point_y, or leave both empty")
+        columns = {role: get(key, role) for role in SCHEMA[key].keys
+                   if role not in ("source", "layer", "columns")}
+        level_columns = dict(get(key, "columns")) if key == "zones" else {}
+        for level in [lv for lv in level_columns if lv not in levels]:
+            report.warning(path, f"[{key}] columns", f"level {level!r} is not one of the "
+                           f"project's levels ({', '.join(levels)}); its column is ignored",
+                           "correct the level name or add it to [project] levels")
+            del level_columns[level]
+        layer = get(key, "layer") if "layer" in SCHEMA[key].keys else None
+        sources[key] = Source(values.path_of(key, "source"), layer or None, columns,
+                              level_columns)
+    _check_units_columns(path, sources.get("units"), levels, report)
 
-    adj = reader.table("adjacency") or {}
-    contiguity = reader.get("[adjacency]", adj, "contiguity", "text", "rook").lower()
-    if contiguity not in ("rook", "queen"):
-        report.error(path, "[adjacency] contiguity", f"contiguity must be 'rook' or 'queen', "
-                     f"not {contiguity!r}", 'write contiguity = "rook" (shared border) or '
-                     '"queen" (a shared corner is enough)')
-        contiguity = "rook"
-    links = reader.path_of("[adjacency]", adj, "links")
-
-    solve = _read_solve(reader, levels)
-    locks = _read_pairs(reader, "locks")
-    forbids = _read_pairs(reader, "forbids")
+    solve = _read_solve(values, levels, report)
+    locks, forbids = (tuple(Lock(e["level"].lower(), e["unit"], e["site"])
+                            for e in values.tables.get(key, []) if len(e) == 3)
+                      for key in ("locks", "forbids"))
     if len(report.errors) > n_errors and (current_year is None or years is None
                                           or "units" not in sources or "sites" not in sources):
         return None
@@ -355,85 +301,75 @@ def read_settings(path: str | Path, report) -> Settings | None:
         path=path.resolve(), name=name, current_year=current_year, years=tuple(years),
         plan_year=plan_year if plan_year in years else years[0], levels=levels, store=store,
         solve=solve, locks=locks, forbids=forbids, raw=data, sources=sources,
-        contiguity=contiguity, links=links,
+        contiguity=get("adjacency", "contiguity"), links=values.path_of("adjacency", "links"),
     )
 
 
-def _read_solve(reader: _TomlReader, levels: tuple[str, ...]) -> SolveSettings:
-    t = reader.table("solve") or {}
-    w, d = "[solve]", SolveSettings()
-    report, path = reader.report, reader.path
+#: Tables that name a source file, in reading order.
+_SOURCES = ("units", "counts", "sites", "zones", "barriers", "bridges")
 
-    def number(key: str, default, low: float = 0.0, high: float | None = None):
-        v = reader.get(w, t, key, "number", default)
-        if v is not None and (v < low or (high is not None and v > high)):
-            span = f"between {low:g} and {high:g}" if high is not None else f"{low:g} or more"
-            report.error(path, f"{w} {key}", f"{key} = {v:g} is out of range",
-                         f"use a value {span}")
-            return default
-        return v
 
-    max_u = number("max_utilization", d.max_utilization)
-    min_u = number("min_utilization", d.min_utilization)
-    if max_u <= 0:
-        report.error(path, f"{w} max_utilization", "max_utilization must be above 0",
-                     "write e.g. max_utilization = 1.0 (100% of capacity)")
-        max_u = d.max_utilization
+def _check_units_columns(path: Path, units: Source | None, levels, report) -> None:
+    if units is None:
+        return
+    template = units.columns["counts"]
+    try:
+        template.format(level="x", year=2000)
+        ok = "{year}" in template and ("{level}" in template or len(levels) == 1)
+    except (KeyError, IndexError, ValueError):
+        ok = False
+    if not ok:
+        report.error(path, "[units] counts", f"the count column template {template!r} "
+                     "must contain {year} (and {level} when there are several levels)",
+                     'write e.g. counts = "{level}_{year}"')
+    if bool(units.columns["point_x"]) != bool(units.columns["point_y"]):
+        report.error(path, "[units] point_x / point_y", "give both point columns or neither",
+                     "set point_x and point_y, or leave both empty")
+
+
+#: A longest-travel limit under this many metres was surely meant in kilometres.
+_SHORTEST_TRIP = 100.0
+
+
+def _read_solve(values: _Values, levels: tuple[str, ...], report) -> SolveSettings:
+    """[solve] with defaults; each value was range-checked against the schema."""
+    path, w = values.path, "[solve]"
+
+    def get(key):
+        return values.get("solve", key)
+
+    max_u, min_u = get("max_utilization"), get("min_utilization")
     if min_u > max_u:
         report.error(path, f"{w} min_utilization", f"min_utilization {min_u:g} is above "
                      f"max_utilization {max_u:g}", "lower min_utilization or raise "
                      "max_utilization")
     per_level = {}
-    for key, kind, low in (("max_distance", "level_number", 0), ("open_count", "level_int", 1)):
-        table = reader.get(w, t, key, kind, {})
-        for level, v in list(table.items()):
-            if level not in levels:
-                report.error(path, f"{w} {key}", f"level {level!r} is not one of the "
-                             f"project's levels ({', '.join(levels)})",
-                             "correct the level name")
-                del table[level]
-            elif v < low:
-                report.error(path, f"{w} {key}", f"{key} for {level} must be {low} or more, "
-                             f"not {v}", "correct the value")
-                del table[level]
+    for key in ("max_distance", "open_count"):
+        table = dict(get(key))
+        for level in [lv for lv in table if lv not in levels]:
+            report.error(path, f"{w} {key}", f"level {level!r} is not one of the "
+                         f"project's levels ({', '.join(levels)})", "correct the level name"
+                         + (f" (did you mean {near}?)" if (near := suggest(level, levels))
+                            else ""))
+            del table[level]
         per_level[key] = table
-    time_limit = number("time_limit", d.time_limit)
-    max_moved = number("max_moved", 0.0)
-    solver = reader.get(w, t, "solver", "text", d.solver) or d.solver
+    for level, metres in per_level["max_distance"].items():
+        if 0 < metres < _SHORTEST_TRIP:
+            report.warning(path, f"{w} max_distance", f"max_distance for {level} is "
+                           f"{metres:g} m, shorter than any trip to school",
+                           f"the value is in metres: write {metres * 1000:g} for {metres:g} km")
     return SolveSettings(
         max_utilization=max_u,
         min_utilization=min_u,
-        stability_weight=number("stability_weight", d.stability_weight),
+        stability_weight=get("stability_weight"),
         max_distance={k: float(v) for k, v in per_level["max_distance"].items()},
-        max_moved=max_moved or None,
+        max_moved=get("max_moved") or None,
         open_count={k: int(v) for k, v in per_level["open_count"].items()},
-        gap=number("gap", d.gap, 0.0, 1.0),
-        time_limit=time_limit or None,
-        solver=solver.lower(),
-        travel_matrix=reader.path_of(w, t, "travel_matrix"),
+        gap=get("gap"),
+        time_limit=get("time_limit") or None,
+        solver=(get("solver") or default("solve", "solver")).lower(),
+        travel_matrix=values.path_of("solve", "travel_matrix"),
     )
-
-
-def _read_pairs(reader: _TomlReader, key: str) -> tuple[Lock, ...]:
-    """[[locks]] / [[forbids]] entries; ids are checked against the data later."""
-    entries = reader.data.get(key, [])
-    if not isinstance(entries, list) or not all(isinstance(e, dict) for e in entries):
-        reader.report.error(reader.path, f"[[{key}]]", f"{key} must be an array of tables",
-                            f"write each entry as [[{key}]] with level, unit and site")
-        return ()
-    out = []
-    for k, entry in enumerate(entries, start=1):
-        where = f"[[{key}]] entry {k}"
-        reader.unknown_keys(where, entry, _KNOWN_KEYS[key])
-        values = {}
-        for field_name in ("level", "unit", "site"):
-            if field_name not in entry:
-                reader.report.error(reader.path, where, f"{field_name} is not given",
-                                    f"give level, unit and site in every [[{key}]] entry")
-            values[field_name] = reader.get(where, entry, field_name, "id")
-        if all(values.values()):
-            out.append(Lock(values["level"].lower(), values["unit"], values["site"]))
-    return tuple(out)
 
 
 def validate_project(path: str | Path) -> tuple[Inputs | None, Report]:

@@ -14,6 +14,7 @@ in units by one tree query.
 from __future__ import annotations
 
 import io as _io
+import unicodedata
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -168,15 +169,17 @@ def text_values(values) -> tuple[np.ndarray, np.ndarray]:
     """Ids as text, and where they are missing.
 
     Whole numbers stored as floats (Shapefile, spreadsheets) lose their ``.0``; strings are
-    stripped; None, NaN and "" count as missing.
+    stripped and put in Unicode normal form NFC (an accent stored as a separate combining
+    mark reads as the one composed character it looks like, so ids match whichever way a
+    file or keyboard spelled them); None, NaN and "" count as missing.
     """
     s = pd.Series(values, dtype=object).reset_index(drop=True)
-    missing = s.isna().to_numpy()
+    missing = s.isna().to_numpy(dtype=bool)
     num = pd.to_numeric(s.where(~missing), errors="coerce")
     is_num = s.map(lambda v: isinstance(v, int | float | np.number)
-                   and not isinstance(v, bool)).to_numpy()
+                   and not isinstance(v, bool)).to_numpy(dtype=bool)
     whole = is_num & np.isfinite(num.to_numpy(dtype=float)) & (num.to_numpy() % 1 == 0)
-    out = s.astype(str).str.strip().to_numpy(dtype=object)
+    out = np.array([unicodedata.normalize("NFC", str(v).strip()) for v in s], dtype=object)
     out[whole] = num[whole].astype(np.int64).astype(str).to_numpy()
     missing = missing | (out == "")
     out[missing] = ""
@@ -217,8 +220,14 @@ def columns_text(columns: Iterable[str]) -> str:
 
 # ----------------------------------------------------------------------------- checks
 def check_ids(report: Report, file, ids: np.ndarray, missing: np.ndarray, word: str,
-              column: str, row_word: str = "feature") -> bool:
-    """Missing and duplicate ids (one item each); True when every id is present and unique."""
+              column: str, row_word: str = "feature", raw=None) -> bool:
+    """Missing and duplicate ids (one item each); True when every id is present and unique.
+
+    ``ids`` come from :func:`text_values` (NFC); ``raw`` are the cells as stored. Ids that
+    differ only in Unicode composition look the same on every screen and page, so they are
+    duplicates (an error that says why); ids that differ only in upper/lower case are kept
+    apart but warned about, since spreadsheets and many GIS joins treat them as one.
+    """
     ok = True
     if missing.any():
         rows = [f"{row_word} {k + 1}" for k in np.flatnonzero(missing)]
@@ -228,12 +237,34 @@ def check_ids(report: Report, file, ids: np.ndarray, missing: np.ndarray, word: 
     present = pd.Series(ids[~missing])
     dup = present[present.duplicated(keep=False)].unique()
     if len(dup):
+        spelled = ""
+        if raw is not None:
+            stored = pd.Series([str(v).strip() for v in raw], dtype=object)[~missing]
+            if stored[present.isin(dup).to_numpy()].nunique() > len(dup):
+                spelled = (" (some are written once with composed and once with decomposed "
+                           "accents: they look the same and are read as the same id)")
         report.error(file, where_units(list(dup), word),
                      f"the id{'s' if len(dup) > 1 else ''} in column {column} "
-                     f"appear{'' if len(dup) > 1 else 's'} more than once",
+                     f"appear{'' if len(dup) > 1 else 's'} more than once{spelled}",
                      f"give every {word} its own id (split or merge the duplicate rows)", dup)
         ok = False
+    unique = present.drop_duplicates()
+    folded = unique.str.casefold()
+    alike = unique[folded.duplicated(keep=False).to_numpy()]
+    if len(alike):
+        groups = alike.groupby(folded[alike.index]).agg(lambda g: "/".join(sorted(g)))
+        report.warning(file, where_units(list(groups), word),
+                       f"ids in column {column} differ only in upper/lower case; they are kept "
+                       "apart here, but spreadsheets and many GIS joins treat them as one id",
+                       f"give each {word} an id that differs in more than case", list(alike))
     return ok
+
+
+def degree_like(bounds) -> bool:
+    """Coordinates that fit longitude/latitude degrees (x within ±180, y within ±90)."""
+    x0, y0, x1, y1 = (float(b) for b in bounds)
+    return bool(np.isfinite([x0, y0, x1, y1]).all() and -180 <= x0 <= x1 <= 180
+                and -90 <= y0 <= y1 <= 90)
 
 
 def check_polygons(report: Report, file, geoms: np.ndarray, labels: Sequence[str]

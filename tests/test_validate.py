@@ -67,11 +67,30 @@ CASES = {
     "counts_csv": [(E, "counts.csv", "U07", "has no row for the unit"),
                    (E, "counts.csv", "U03", "appears more than once"),
                    (W, "counts.csv", "U99", "not in the units layer are ignored")],
-    "bad_toml": [(E, "project.toml", "", "not valid TOML")],
+    "bad_toml": [(E, "project.toml", "line 3, column 21", "not valid TOML")],
+    "toml_windows_path": [(E, "project.toml", "line 19", "Unescaped '\\' in a string")],
+    "misspelt_setting": [(E, "project.toml", "[solve] max_utilisation",
+                          "unknown key max_utilisation in [solve]")],
+    "utilization_percent": [(E, "project.toml", "[solve] max_utilization",
+                             "max_utilization = 90, which is out of range")],
+    "empty_sites": [(E, "town.gpkg", "[sites]", "the sites layer has no features")],
+    "empty_units": [(E, "town.gpkg", "[units]", "the units layer has no features")],
+    "degrees_as_metres": [(E, "units.geojson", "[units]",
+                           "look like longitude/latitude degrees")],
+    "sites_degrees_as_metres": [(E, "sites.geojson", "[sites]",
+                                 "look like longitude/latitude degrees")],
+    "sites_other_crs": [(W, "sites.geojson", "[sites]",
+                         "in EPSG:3857 (WGS 84 / Pseudo-Mercator) but the units are in "
+                         "EPSG:32633")],
+    "empty_barriers": [(W, "river.geojson", "[barriers]", "no features, so no adjacency is cut")],
+    "unicode_twin_ids": [(E, "units.geojson", "\u00dc05",
+                          "composed and once with decomposed accents")],
+    "case_twin_ids": [(W, "units.geojson", "U05/u05", "differ only in upper/lower case")],
+    "site_util_percent": [(E, "sites.geojson", "E2", "share of capacity from 0 to 2 (95)")],
     "bad_settings": [(E, "project.toml", "plan_year", "2035 is not one of the projected years"),
-                     (E, "project.toml", "contiguity", "not 'hexagon'"),
-                     (E, "project.toml", "min_utilization", "above max_utilization"),
-                     (W, "project.toml", "[solve]", "unknown key gapp")],
+                     (E, "project.toml", "contiguity", "'hexagon' is not one of"),
+                     (E, "project.toml", "min_utilization", "out of range (from 0 to 1)"),
+                     (E, "project.toml", "[solve] gapp", "unknown key gapp")],
 }
 # problems that must not appear as consequences of another one
 NOT_EXPECTED = {
@@ -79,6 +98,7 @@ NOT_EXPECTED = {
     "year_no_column": "minimum utilization",
     "unknown_status": "students in",
     "bad_settings": "the site's minimum utilization",
+    "sites_degrees_as_metres": "outside every planning unit",  # a consequence
 }
 
 
