@@ -303,6 +303,32 @@ def _default_text(spec: Key) -> str:
     return f'"{v}"' if isinstance(v, str) else f"{v:g}" if isinstance(v, float) else str(v)
 
 
+#: The [solve] keys a single run may override (command-line flags, the workbench, the API).
+RUN_KEYS = ("max_utilization", "min_utilization", "stability_weight", "gap", "time_limit",
+            "max_moved")
+
+
+def check_run(values: Mapping[str, object], where: str = "run settings") -> None:
+    """Refuse run settings that the project file's [solve] table would refuse (ValueError).
+
+    ``values`` maps [solve] keys (see :data:`RUN_KEYS`) to a run's values; the same ranges
+    hold for a run as for the file, and the lowest utilization may not exceed the highest.
+    """
+    problems = []
+    for key in RUN_KEYS:
+        if values.get(key) is None:
+            continue
+        _v, problem, fix = check_value("solve", key, values[key])
+        if problem is not None:
+            problems.append(f"{problem}; fix: {fix}")
+    low, high = values.get("min_utilization"), values.get("max_utilization")
+    if low is not None and high is not None and _is_num(low) and _is_num(high) and low > high:
+        problems.append(f"min_utilization {low:g} is above max_utilization {high:g}; fix: "
+                        "lower the lowest utilization or raise the highest")
+    if problems:
+        raise ValueError(f"{where}: " + "; ".join(problems))
+
+
 def reference_markdown(schema: Mapping[str, Table] = SCHEMA) -> str:
     """The key reference of DEVELOPERS.md: one table of keys per project-file table."""
     lines = []

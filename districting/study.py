@@ -20,6 +20,7 @@ import shapely
 from .plan import Plan, PlanMetrics, plan_metrics
 from .problem import Problem
 from .project import Inputs
+from .schema import RUN_KEYS, check_run
 
 __all__ = ["RunSettings", "Outcome", "build_problem", "run", "outcome_from_assignment"]
 
@@ -79,7 +80,7 @@ def resolved(inputs: Inputs, rs: RunSettings) -> RunSettings:
     def pick(value, default):
         return default if value is None else value
 
-    return rs.replace(
+    full = rs.replace(
         plan_year=pick(rs.plan_year, s.plan_year),
         max_utilization=pick(rs.max_utilization, d.max_utilization),
         min_utilization=pick(rs.min_utilization, d.min_utilization),
@@ -93,6 +94,8 @@ def resolved(inputs: Inputs, rs: RunSettings) -> RunSettings:
         locks=locks,
         forbids=forbids,
     )
+    check_run({key: getattr(full, key) for key in RUN_KEYS}, f"{rs.level} run settings")
+    return full
 
 
 def level_sites(inputs: Inputs, level: str) -> np.ndarray:

@@ -166,3 +166,28 @@ def test_a_misspelt_key_is_an_error_that_names_the_nearest(tmp_path, key, k, op)
 def test_out_of_range_values_name_the_fix(table, key, value, phrase):
     _value, problem, fix = check_value(table, key, value)
     assert problem is not None and phrase in f"{problem} {fix}"
+
+
+# --- a run's own settings (command line, workbench, API) obey the same ranges as the file
+@pytest.mark.parametrize(
+    ("override", "words"),
+    [
+        ({"max_utilization": 90.0}, "write max_utilization = 0.9 for 90%"),
+        ({"min_utilization": 0.9, "max_utilization": 0.8}, "above max_utilization 0.8"),
+        ({"gap": 1.5}, "gap = 1.5"),
+        ({"time_limit": -5.0}, "time_limit = -5"),
+        ({"stability_weight": -1.0}, "stability_weight = -1"),
+    ],
+)
+def test_a_run_that_overrides_a_setting_is_held_to_the_schema(tmp_path, override, words):
+    from exports_town import make_town
+
+    from districting.study import RunSettings, resolved
+
+    inputs = make_town(tmp_path)
+    resolved(inputs, RunSettings(level="elementary"))  # the project's own values pass
+    with pytest.raises(ValueError) as err:
+        resolved(inputs, RunSettings(level="elementary", **override))
+    assert "elementary run settings" in str(err.value)
+    assert words in str(err.value)
+    assert "fix:" in str(err.value)

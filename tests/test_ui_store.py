@@ -77,8 +77,11 @@ def test_bad_edits_say_what_to_change(inputs):
         st.edit_site(st.site_ids[0], status="demolished")
     with pytest.raises(StoreError, match="plan year"):
         st.update_settings(plan_year=1999)
-    with pytest.raises(StoreError, match="minimum utilization"):
+    with pytest.raises(StoreError, match="min utilization must be between 0 and 1"):
         st.update_settings(min_utilization=1.5)
+    st.update_settings(max_utilization=0.9)
+    with pytest.raises(StoreError, match="min_utilization 0.95 is above max_utilization 0.9"):
+        st.update_settings(min_utilization=0.95)
     st.edit_site(st.site_ids[0], status="closing")
     with pytest.raises(StoreError, match="closing"):
         st.lock([st.unit_ids[0]], st.site_ids[0])

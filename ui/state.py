@@ -15,7 +15,7 @@ from collections.abc import Callable
 
 import param
 
-from .store import TODAY, Store, StoreError
+from .store import EDITABLE_SETTINGS, TODAY, Store, StoreError
 
 __all__ = ["SessionState", "REFERENCES"]
 
@@ -48,9 +48,9 @@ class SessionState(param.Parameterized):
                                     doc="Metres of travel charged per student moved")
     max_distance_km = param.Number(0.0, bounds=(0, None),
                                    doc="Longest allowed trip in km (0 = no limit)")
-    max_util_pct = param.Number(100.0, bounds=(5.0, 300.0),
+    max_util_pct = param.Number(100.0, bounds=(5.0, 100 * EDITABLE_SETTINGS["max_utilization"][1]),
                                 doc="Highest utilization allowed, percent of capacity")
-    min_util_pct = param.Number(0.0, bounds=(0.0, 300.0),
+    min_util_pct = param.Number(0.0, bounds=(0.0, 100 * EDITABLE_SETTINGS["min_utilization"][1]),
                                 doc="Lowest utilization allowed, percent of capacity")
     gap_pct = param.Number(0.01, bounds=(0.0, 50.0), doc="Optimality gap to prove, percent")
     time_limit = param.Number(60.0, bounds=(1.0, 3600.0), doc="Seconds per rerun")

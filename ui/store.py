@@ -29,6 +29,7 @@ import pandas as pd
 from districting import options as _options
 from districting.names import BadName, check_name, path_inside, slug
 from districting.project import SITE_STATUSES, Inputs
+from districting.schema import SCHEMA
 from districting.study import (
     Outcome,
     RunSettings,
@@ -52,8 +53,9 @@ EDITABLE_SETTINGS = {
     "max_moved": (0.0, 1e9),
     "gap": (0.0, 0.5),
     "time_limit": (1.0, 3600.0),
-    "max_utilization": (0.05, 3.0),
-    "min_utilization": (0.0, 3.0),
+    # Utilization ranges are the project file's ([solve] in districting.schema): one home.
+    "max_utilization": (0.05, SCHEMA["solve"].keys["max_utilization"].high),
+    "min_utilization": (0.0, SCHEMA["solve"].keys["min_utilization"].high),
 }
 TODAY = "Today's zones"
 
@@ -220,10 +222,10 @@ class Store:
                                  f"got {value}")
             clean[name] = v
         new = self.settings.replace(**clean)
-        full = resolved(self.inputs, new)
-        if full.min_utilization > full.max_utilization:
-            raise StoreError(f"the minimum utilization ({full.min_utilization:.0%}) is above the "
-                             f"maximum ({full.max_utilization:.0%}); lower the minimum first")
+        try:  # the project file's rules hold for a run too (min below max utilization...)
+            resolved(self.inputs, new)
+        except ValueError as err:
+            raise StoreError(str(err)) from None
         self.runs[self.level] = new
         self._save()
         return new
