@@ -1,7 +1,7 @@
 #!/usr/bin/env bash
 # One entry point for set-up and the two jobs the README promises.
 #   bash dev.sh demo   set up .venv, solve the bundled demo town, write exports and the packet
-#   bash dev.sh test   set up .venv (and headless Chromium for browser tests), run the whole suite
+#   bash dev.sh test   set up .venv (plus Chromium and poppler for the tests), run the whole suite
 # A second run reuses .venv; it reinstalls only when pyproject.toml has changed.
 set -euo pipefail
 cd "$(dirname "$0")"
@@ -28,16 +28,18 @@ setup_venv() {
   fi
 }
 
-setup_chromium() {
-  # Browser tests drive Debian's Chromium through Playwright; never a browser download.
-  if [ ! -x /usr/bin/chromium ]; then
-    if [ "$(id -u)" = "0" ]; then
-      apt-get update -qq
-      DEBIAN_FRONTEND=noninteractive apt-get install -y -qq chromium >/dev/null
-    else
-      sudo apt-get update -qq
-      sudo DEBIAN_FRONTEND=noninteractive apt-get install -y -qq chromium >/dev/null
-    fi
+setup_test_tools() {
+  # Browser tests drive Debian's Chromium through Playwright (never a browser download); the
+  # packet test renders a page with poppler's pdftoppm as an independent PDF reader.
+  local missing=()
+  [ -x /usr/bin/chromium ] || missing+=(chromium)
+  command -v pdftoppm >/dev/null || missing+=(poppler-utils)
+  if [ "${#missing[@]}" -gt 0 ]; then
+    local as_root=()
+    [ "$(id -u)" = "0" ] || as_root=(sudo)
+    "${as_root[@]}" apt-get update -qq
+    "${as_root[@]}" env DEBIAN_FRONTEND=noninteractive apt-get install -y -qq "${missing[@]}" \
+      >/dev/null
   fi
 }
 
@@ -50,7 +52,7 @@ case "$cmd" in
     ;;
   test)
     setup_venv
-    setup_chromium
+    setup_test_tools
     exec "$venv/bin/python" -m pytest "$@"
     ;;
   *)

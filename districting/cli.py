@@ -1,4 +1,4 @@
-"""The `districting` command: check, solve, options, packet, demo (and serve, from ui/).
+"""The `districting` command: check, solve, options, verify, packet, demo (and serve, from ui/).
 
 Each sub-command is a thin wrapper over the engine's public functions; all the work lives
 in the modules it calls. Sub-commands from outside the engine (the workbench's ``serve``)
@@ -221,6 +221,19 @@ def cmd_options(args) -> int:
     return 0
 
 
+def cmd_verify(args) -> int:
+    """Check a saved option independently of the engine (districting.verify)."""
+    from .options import load_option
+    from .verify import check_plan, facts_of_outcome, report
+
+    inputs = _load(args.project)
+    outcome = load_option(inputs, args.option)
+    facts = facts_of_outcome(outcome)
+    findings = check_plan(facts, outcome.plan.assignment)
+    print(report(findings, facts, label=f"option {outcome.name!r} ({outcome.level})"))
+    return 1 if findings else 0
+
+
 def cmd_packet(args) -> int:
     from .options import load_option
     from .packet import write_packet
@@ -322,6 +335,11 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--repair", action="store_true",
                    help="set a damaged option store aside and start a new, empty one")
     p.set_defaults(func=cmd_options)
+
+    p = sub.add_parser("verify", help="check a saved option against every rule, independently")
+    p.add_argument("project")
+    p.add_argument("--option", required=True, metavar="NAME")
+    p.set_defaults(func=cmd_verify)
 
     p = sub.add_parser("packet", help="write the hearing packet (PDF + PNG pages)")
     p.add_argument("project")

@@ -79,10 +79,11 @@ def test_write_packet_pdf_and_pngs(options, tmp_path):
             grey = np.asarray(im.convert("L"), dtype=float)
         assert grey.std() > 5  # something is drawn on every page
     assert not list(tmp_path.glob(".tmp-*")) and not list((tmp_path / "png").glob(".tmp-*"))
-    if shutil.which("pdftoppm"):  # poppler renders the first page when it is installed
-        subprocess.run(["pdftoppm", "-png", "-r", "40", "-f", "1", "-l", "1", str(pdf),
-                        str(tmp_path / "render")], check=True)
-        assert list(tmp_path.glob("render*.png"))
+    # an independent renderer (poppler; bash dev.sh test installs poppler-utils) reads it
+    assert shutil.which("pdftoppm"), "pdftoppm is missing: install poppler-utils"
+    subprocess.run(["pdftoppm", "-png", "-r", "40", "-f", "1", "-l", "1", str(pdf),
+                    str(tmp_path / "render")], check=True)
+    assert list(tmp_path.glob("render*.png"))
 
 
 @pytest.mark.slow

@@ -248,7 +248,6 @@ def test_readers_name_the_problem(tmp_path):
         read_table(tmp_path / "e.csv")
 
 
-@pytest.mark.skipif(not DEMO.exists(), reason="data/demo/project.toml not generated yet")
 def test_demo_project_checks_clean(capsys):
     folder = DEMO.parent
     before = sorted((p.name, p.stat().st_mtime_ns) for p in folder.iterdir())

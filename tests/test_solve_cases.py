@@ -104,12 +104,13 @@ def test_time_limit_returns_best_plan_with_its_gap():
     p = Problem.from_arrays(dist / dem[:, None], dem, capacity=q, p=pp)
     plan = solve(p, gap=0.0, time_limit=1.0)
     assert plan.status in ("time_limit", "optimal")
-    assert plan.feasible
-    assert plan.metrics.load.max() <= q + 1e-9
-    assert plan.objective >= 820 - 1e-6  # the published optimum is a lower bound
+    assert plan.feasible  # and valid: tests/conftest.py hands it to the independent checker
+    # the proven bound may never pass the published optimum 820; optimal means reaching it
+    assert plan.bound <= 820 + 1e-6
+    if plan.status == "optimal":
+        assert plan.objective == pytest.approx(820)
     assert plan.gap == pytest.approx(relative_gap(plan.objective, plan.bound))
-    if plan.status == "time_limit":
-        assert plan.bound <= 820 + 1e-6
+    assert plan.gap > 0 or plan.status == "optimal"
 
 
 def test_infeasible_capacity_is_reported_not_solved():

@@ -1,0 +1,314 @@
+"""An independent check of a finished plan, on plain data.
+
+Written apart from the engine on purpose: it reads no solver, model or local-search code
+(neither :mod:`districting.contiguity` nor :mod:`districting.plan`), so a bug there cannot
+hide itself here. Zones are tested for connectivity with
+``scipy.sparse.csgraph.connected_components`` on the sub-graph each zone induces; loads are
+plain sums per projected year. :func:`check_plan` returns one :class:`Finding` per broken
+rule, each naming the zone, school, year or unit, in words.
+
+:func:`facts_of_problem` turns an engine :class:`~districting.problem.Problem` into the
+plain :class:`PlanFacts` (reading only its stored arrays, none of its derived views), and
+:func:`facts_of_outcome` does the same for a saved option of a project, adding the
+maximum distance it was run with. ``districting verify PROJECT --option NAME`` prints the
+findings for a saved option.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+import scipy.sparse as sp
+from scipy.sparse.csgraph import connected_components
+
+__all__ = ["Finding", "PlanFacts", "check_plan", "facts_of_problem", "facts_of_outcome"]
+
+TOL = 1e-6  # students; loads are sums of counts, compared with a little slack for rounding
+
+
+@dataclass(frozen=True)
+class Finding:
+    """One broken rule: ``rule`` is a short key, ``message`` says it in words."""
+
+    #: assigned, closed, open_count, root, connected, capacity, floor, lock, forbid,
+    #: distance or moved
+    rule: str
+    message: str
+    site: int | None = None
+    unit: int | None = None
+    year: int | None = None  # demand row
+
+    def __str__(self) -> str:
+        return self.message
+
+
+@dataclass(frozen=True)
+class PlanFacts:
+    """What a plan must satisfy, as plain arrays (n units, m sites, T projected years).
+
+    ``must_open`` sites are open in every plan; sites neither closed nor must-open are
+    candidates, opened by taking units, and ``open_count`` (if given) fixes how many sites
+    are open in all. ``max_distance`` applies to ``distance`` except for a school's own unit
+    and locked units (the board's decision stands).
+    """
+
+    demand: np.ndarray  # (T, n)
+    capacity: np.ndarray | None  # (m,)
+    max_util: np.ndarray  # (m,)
+    min_util: np.ndarray  # (m,)
+    must_open: np.ndarray  # (m,) bool
+    closed: np.ndarray  # (m,) bool
+    open_count: int | None = None
+    edges: np.ndarray | None = None  # (k, 2); given: every zone connected, holds its root
+    roots: np.ndarray | None = None  # (m,) unit of each site, -1 none
+    locks: dict[int, int] = field(default_factory=dict)  # unit -> site
+    forbidden: np.ndarray | None = None  # (n, m) bool
+    distance: np.ndarray | None = None  # (n, m)
+    max_distance: float | None = None
+    current: np.ndarray | None = None  # (n,) today's site, -1 none
+    max_moved: float | None = None  # plan-year students (row 0)
+    unit_ids: Sequence[str] = ()
+    site_ids: Sequence[str] = ()
+    years: Sequence = ()
+
+    @property
+    def n_units(self) -> int:
+        return self.demand.shape[1]
+
+    @property
+    def n_sites(self) -> int:
+        return len(self.max_util)
+
+    def unit(self, i: int) -> str:
+        return str(self.unit_ids[i]) if len(self.unit_ids) else f"unit {i}"
+
+    def site(self, j: int) -> str:
+        return str(self.site_ids[j]) if len(self.site_ids) else f"school {j}"
+
+    def year(self, t: int) -> str:
+        return str(self.years[t]) if len(self.years) else f"year row {t}"
+
+
+def _num(v: float) -> str:
+    return f"{v:,.0f}" if abs(v - round(v)) < 1e-9 else f"{v:,.2f}"
+
+
+def check_plan(facts: PlanFacts, assignment) -> list[Finding]:
+    """Every rule ``assignment`` (site index per unit) breaks under ``facts``; [] if valid."""
+    a = np.asarray(assignment, dtype=np.int64)
+    n, m = facts.n_units, facts.n_sites
+    if a.shape != (n,):
+        return [Finding("assigned", f"the plan has {a.size} units, the problem {n}")]
+    bad = np.flatnonzero((a < 0) | (a >= m))
+    if bad.size:
+        return [Finding("assigned", f"{facts.unit(i)} has no school", unit=int(i))
+                for i in bad.tolist()]
+    used = np.zeros(m, bool)
+    used[a] = True
+    opened = used | facts.must_open
+    out: list[Finding] = []
+    out += _closed(facts, a)
+    out += _count(facts, opened)
+    out += _roots(facts, a, opened)
+    out += _connected(facts, a)
+    out += _bands(facts, a, opened)
+    out += _locks(facts, a)
+    out += _forbids(facts, a)
+    out += _distance(facts, a)
+    out += _moved(facts, a)
+    return out
+
+
+def _closed(facts: PlanFacts, a: np.ndarray) -> list[Finding]:
+    out = []
+    for j in np.flatnonzero(facts.closed).tolist():
+        units = np.flatnonzero(a == j)
+        if units.size:
+            out.append(Finding("closed", f"{facts.site(j)} is closed but takes {units.size} "
+                               f"unit(s), e.g. {facts.unit(int(units[0]))}", site=j,
+                               unit=int(units[0])))
+    return out
+
+
+def _count(facts: PlanFacts, opened: np.ndarray) -> list[Finding]:
+    k = int(opened.sum())
+    if facts.open_count is None or k == facts.open_count:
+        return []
+    return [Finding("open_count", f"{k} schools are open, the run asks for {facts.open_count}")]
+
+
+def _roots(facts: PlanFacts, a: np.ndarray, opened: np.ndarray) -> list[Finding]:
+    if facts.roots is None or facts.edges is None:
+        return []
+    out = []
+    for j in np.flatnonzero(opened).tolist():
+        r = int(facts.roots[j])
+        if r >= 0 and a[r] != j:
+            out.append(Finding("root", f"{facts.site(j)} is open but its own unit "
+                               f"{facts.unit(r)} is in the zone of {facts.site(int(a[r]))}",
+                               site=j, unit=r))
+    return out
+
+
+def _connected(facts: PlanFacts, a: np.ndarray) -> list[Finding]:
+    if facts.edges is None:
+        return []
+    e = np.asarray(facts.edges, dtype=np.int64).reshape(-1, 2)
+    n = facts.n_units
+    same = a[e[:, 0]] == a[e[:, 1]]  # keep only edges inside one zone
+    inside = e[same]
+    g = sp.coo_matrix((np.ones(len(inside)), (inside[:, 0], inside[:, 1])), shape=(n, n))
+    _, label = connected_components(g, directed=False)
+    out = []
+    for j in np.unique(a).tolist():
+        units = np.flatnonzero(a == j)
+        pieces, sizes = np.unique(label[units], return_counts=True)
+        if len(pieces) < 2:
+            continue
+        root = -1 if facts.roots is None else int(facts.roots[j])
+        main = label[root] if root >= 0 and a[root] == j else pieces[np.argmax(sizes)]
+        stray = units[label[units] != main]
+        names = ", ".join(facts.unit(int(i)) for i in stray[:3])
+        more = f" and {stray.size - 3} more" if stray.size > 3 else ""
+        out.append(Finding("connected", f"the zone of {facts.site(j)} is in {len(pieces)} "
+                           f"pieces: {names}{more} cut off from the rest", site=j,
+                           unit=int(stray[0])))
+    return out
+
+
+def _bands(facts: PlanFacts, a: np.ndarray, opened: np.ndarray) -> list[Finding]:
+    if facts.capacity is None:
+        return []
+    out = []
+    for t in range(facts.demand.shape[0]):
+        for j in np.flatnonzero(opened).tolist():
+            load = float(facts.demand[t][a == j].sum())
+            cap = float(facts.capacity[j])
+            top, floor = facts.max_util[j] * cap, facts.min_util[j] * cap
+            if load > top + TOL:
+                out.append(Finding("capacity", f"{facts.site(j)} has {_num(load)} students in "
+                                   f"{facts.year(t)}, above its limit of {_num(top)} "
+                                   f"({facts.max_util[j]:.0%} of {_num(cap)} seats)",
+                                   site=j, year=t))
+            if load < floor - TOL:
+                out.append(Finding("floor", f"{facts.site(j)} has {_num(load)} students in "
+                                   f"{facts.year(t)}, below its floor of {_num(floor)} "
+                                   f"({facts.min_util[j]:.0%} of {_num(cap)} seats)",
+                                   site=j, year=t))
+    return out
+
+
+def _locks(facts: PlanFacts, a: np.ndarray) -> list[Finding]:
+    return [Finding("lock", f"{facts.unit(i)} is locked to {facts.site(j)} but is in the zone "
+                    f"of {facts.site(int(a[i]))}", site=j, unit=i)
+            for i, j in sorted(facts.locks.items()) if a[i] != j]
+
+
+def _forbids(facts: PlanFacts, a: np.ndarray) -> list[Finding]:
+    if facts.forbidden is None:
+        return []
+    hit = np.flatnonzero(facts.forbidden[np.arange(facts.n_units), a])
+    return [Finding("forbid", f"{facts.unit(i)} is in the zone of {facts.site(int(a[i]))}, a "
+                    "pair that is forbidden", site=int(a[i]), unit=i) for i in hit.tolist()]
+
+
+def _distance(facts: PlanFacts, a: np.ndarray) -> list[Finding]:
+    if facts.max_distance is None or facts.distance is None:
+        return []
+    far = facts.distance[np.arange(facts.n_units), a] > facts.max_distance + TOL
+    if facts.roots is not None:
+        far[facts.roots[facts.roots >= 0]] = False
+    far[list(facts.locks)] = False
+    return [Finding("distance", f"{facts.unit(i)} is {_num(facts.distance[i, a[i]])} from "
+                    f"{facts.site(int(a[i]))}, beyond the maximum distance of "
+                    f"{_num(facts.max_distance)}", site=int(a[i]), unit=i)
+            for i in np.flatnonzero(far).tolist()]
+
+
+def _moved(facts: PlanFacts, a: np.ndarray) -> list[Finding]:
+    if facts.max_moved is None or facts.current is None:
+        return []
+    cur = np.asarray(facts.current)
+    moved = float(facts.demand[0][(cur >= 0) & (a != cur)].sum())
+    if moved <= facts.max_moved + TOL:
+        return []
+    return [Finding("moved", f"{_num(moved)} students change school in {facts.year(0)}, above "
+                    f"the limit of {_num(facts.max_moved)}", year=0)]
+
+
+# ------------------------------------------------------------------------------ adapters
+def facts_of_problem(problem) -> PlanFacts:
+    """The rules of an engine :class:`~districting.problem.Problem`, as plain data.
+
+    Reads the stored arrays only. A pair with no finite cost (beyond a maximum distance, or
+    missing from a travel table) counts as forbidden, unless the unit is locked there.
+    """
+    n, m = problem.cost.shape
+    forbidden = np.array(problem.forbidden, bool) | ~np.isfinite(problem.cost)
+    locks = {int(i): int(problem.locks[i]) for i in np.flatnonzero(problem.locks >= 0)}
+    for i, j in locks.items():
+        forbidden[i, j] = bool(problem.forbidden[i, j])
+    closed = np.array(problem.closed_sites, bool)
+    must = ~closed if problem.p is None else np.array(problem.open_sites, bool)
+    cap = None if problem.capacity is None else np.array(problem.capacity, float)
+    return PlanFacts(
+        demand=np.array(problem.demand, float),
+        capacity=cap,
+        max_util=np.array(problem.max_util, float),
+        min_util=np.array(problem.min_util, float),
+        must_open=must,
+        closed=closed,
+        open_count=problem.p,
+        edges=None if problem.edges is None else np.array(problem.edges),
+        roots=None if problem.roots is None else np.array(problem.roots),
+        locks=locks,
+        forbidden=forbidden,
+        current=np.array(problem.current),
+        max_moved=problem.max_moved,
+        unit_ids=tuple(problem.unit_names),
+        site_ids=tuple(problem.site_names),
+        years=tuple(problem.years),
+    )
+
+
+def facts_of_outcome(outcome) -> PlanFacts:
+    """The rules of a project option (:class:`~districting.study.Outcome`), as plain data.
+
+    Forbids are the run's explicit ones by unit and site id; the maximum distance is checked
+    on its own against straight-line distance, so a finding says which rule a unit breaks.
+    """
+    facts = facts_of_problem(outcome.problem)
+    rs = outcome.settings
+    unit_pos = {u: i for i, u in enumerate(outcome.unit_ids)}
+    site_pos = {s: j for j, s in enumerate(outcome.site_ids)}
+    forbidden = ~np.isfinite(outcome.problem.cost)  # missing from a travel table
+    for uid, sids in (rs.forbids or {}).items():
+        for sid in sids:
+            if uid in unit_pos and sid in site_pos:
+                forbidden[unit_pos[uid], site_pos[sid]] = True
+    forbidden[list(facts.locks), list(facts.locks.values())] = False  # the board's lock wins
+    travel = outcome.problem.distance
+    limit = float(rs.max_distance) if rs.max_distance else None
+    return replace(facts, forbidden=forbidden, distance=travel, max_distance=limit)
+
+
+def report(findings: list[Finding], facts: PlanFacts, label: str = "the plan") -> str:
+    """A few lines for people: every finding, or what was checked when there is none."""
+    if findings:
+        lines = [f"{label} breaks {len(findings)} rule(s):"]
+        lines += [f"  - {f.message}" for f in findings]
+        return "\n".join(lines)
+    years = ", ".join(facts.year(t) for t in range(facts.demand.shape[0]))
+    checked = ["every unit has an allowed school", "closed schools take nobody",
+               "locks are kept"]
+    if facts.edges is not None:
+        checked.append("every zone is connected and holds its school's unit")
+    if facts.capacity is not None:
+        checked.append(f"every open school is inside its band in {years}")
+    if facts.max_distance is not None:
+        checked.append(f"no trip is longer than {_num(facts.max_distance)}")
+    if facts.max_moved is not None:
+        checked.append("the limit on students moved holds")
+    return f"{label} is valid: " + "; ".join(checked) + "."
