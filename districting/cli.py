@@ -22,8 +22,7 @@ __all__ = ["main"]
 
 # ----------------------------------------------------------------------------- helpers
 def _load(path: str):
-    from .project import load_project
-    from .validate import ProjectError
+    from .intake import ProjectError, load_project
 
     try:
         return load_project(path)
@@ -90,9 +89,22 @@ def plan_summary(outcome) -> str:
 
 
 # ----------------------------------------------------------------------------- commands
-def cmd_check(args) -> int:
-    from .validate import check_command
+def check_command(path: str | Path) -> int:
+    """`districting check PROJECT.toml`: print the report and summary; 0 clean, 1 errors.
 
+    Reads only: nothing is written, not even a cache.
+    """
+    from .intake import check_summary, validate_project
+
+    inputs, report = validate_project(path)
+    print(report.format())
+    if inputs is not None:
+        print()
+        print(check_summary(inputs))
+    return 1 if report.has_errors else 0
+
+
+def cmd_check(args) -> int:
     return check_command(args.project)
 
 
@@ -144,7 +156,7 @@ _FLAGS = {"max_util": "max_utilization", "min_util": "min_utilization",
 
 def check_flags(args) -> None:
     """Refuse a command-line setting the project file's schema would refuse (ValueError)."""
-    from .schema import check_value
+    from .intake.schema import check_value
 
     for attr, key in _FLAGS.items():
         value = getattr(args, attr, None)
@@ -252,11 +264,10 @@ def cmd_demo(args) -> int:
     """Solve the demo town for every level, save two options, export, write the packets."""
     from .demo import copy_demo
     from .exports import export_all
+    from .intake import check_summary, load_project
     from .options import save_option
     from .packet import write_packet
-    from .project import load_project
     from .study import RunSettings, run
-    from .validate import check_summary
 
     check_flags(args)
     out = Path(args.out).resolve()

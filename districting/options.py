@@ -46,10 +46,10 @@ from pathlib import Path
 import numpy as np
 import pyogrio
 
+from .intake import Inputs
 from .io import atomic_copy_edit
 from .names import BadName, check_name, normalise
 from .plan import PlanMetrics
-from .project import Inputs
 from .study import Outcome, RunSettings, level_sites, now_iso, outcome_from_assignment
 
 try:  # POSIX advisory locks; elsewhere writers are not serialised across processes

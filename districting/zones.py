@@ -34,7 +34,7 @@ import numpy as np
 import pandas as pd
 import shapely
 
-from .adjacency import default_tolerance
+from .intake.adjacency import default_tolerance
 
 __all__ = [
     "dissolve_zones",
@@ -175,7 +175,7 @@ def dissolve_zones(
     ``assignment_ids``: site id per unit ('' or None: unassigned, left out with a
     warning). ``site_ids`` orders the rows (and settles overlaps, earlier wins); default:
     sorted ids. ``counts`` (students per unit) adds a ``students`` column. ``tolerance``
-    defaults to :func:`districting.adjacency.default_tolerance`; ``sliver_area`` to
+    defaults to :func:`districting.intake.adjacency.default_tolerance`; ``sliver_area`` to
     ``(100 * tolerance) ** 2``. Columns: site_id, n_units, [students], area, n_parts,
     geometry; ``attrs["warnings"]`` lists problems in words.
     """
@@ -288,7 +288,7 @@ def changed_areas(
 def zone_edges(adjacency, assignment_ids) -> set[tuple[str, str]]:
     """Pairs of zones (site ids, sorted) that contain adjacent units: the zone graph.
 
-    Exact and cheap when the unit :class:`~districting.adjacency.Adjacency` is at hand;
+    Exact and cheap when the unit :class:`~districting.intake.adjacency.Adjacency` is at hand;
     note that barrier-cut pairs do not count, so for map colouring prefer the geometry
     (:func:`color_zones` with a zones GeoDataFrame) or add ``adjacency.cut_edges``.
     """

@@ -1,4 +1,4 @@
-"""Tests of districting.adjacency.
+"""Tests of districting.intake.adjacency.
 
 Outside sources: libpysal example data (libpysal.examples, shipped with the package, BSD-3:
 sids2 - North Carolina SIDS counties; stl - St Louis region counties; columbus - Columbus
@@ -16,7 +16,7 @@ import pytest
 from libpysal import examples
 from shapely.geometry import LineString, Point, box
 
-from districting.adjacency import Adjacency, read_links
+from districting.intake.adjacency import Adjacency, read_links
 
 
 def read_gal(path) -> set[tuple[str, str]]:

@@ -47,8 +47,8 @@ FOUND_IMGS = """() => {
 def hostile_project(folder: Path) -> Path:
     """The demo town with the payload in the project name, a school name and an option."""
     from districting.demo import copy_demo
+    from districting.intake import load_project
     from districting.options import ASSIGNMENTS_TABLE, OPTIONS_TABLE, ZONES_LAYER, save_option
-    from districting.project import load_project
     from districting.study import RunSettings, build_problem, outcome_from_assignment, resolved
 
     project = copy_demo(folder)

@@ -256,7 +256,7 @@ def test_bridges_keep_the_graph_in_one_piece(committed, rook, graph):
 
 
 def test_districting_adjacency_agrees_with_the_independent_graph(committed, graph):
-    from districting import adjacency
+    from districting.intake import adjacency
     units = committed["units"]
     adj = adjacency.Adjacency.from_polygons(
         units.geometry,

@@ -15,9 +15,16 @@ import pandas as pd
 import pytest
 import shapely
 
-from districting.io import ReadError, read_layer, read_table
-from districting.project import Inputs, SolveSettings, load_project
-from districting.validate import ProjectError, check_command, check_summary, validate_project
+from districting.cli import check_command
+from districting.intake import (
+    Inputs,
+    ProjectError,
+    SolveSettings,
+    check_summary,
+    load_project,
+    validate_project,
+)
+from districting.intake.layers import ReadError, read_layer, read_table
 
 DATA = Path(__file__).parent / "data"
 DEMO = Path(__file__).parent.parent / "data" / "demo" / "project.toml"

@@ -272,7 +272,7 @@ def test_a_lock_in_the_wrong_case_names_the_id_meant(tmp_path):
 
 def test_ids_typed_composed_match_data_stored_decomposed(tmp_path):
     """A lock typed as 'Ü05' (one character) finds the unit stored as 'U' + combining mark."""
-    from districting.project import load_project
+    from districting.intake import load_project
 
     units = town.town_units()
     units.loc[4, "unit_id"] = "U\u030805"
@@ -285,7 +285,7 @@ def test_ids_typed_composed_match_data_stored_decomposed(tmp_path):
 
 
 def test_a_distance_in_kilometres_is_warned(tmp_path):
-    from districting.validate import validate_project
+    from districting.intake import validate_project
 
     toml = town.project_dict()
     toml["solve"]["max_distance"] = {"middle": 4}

@@ -13,7 +13,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from districting.validate import Report, check_command, validate_project
+from districting.cli import check_command
+from districting.intake import Report, validate_project
 
 DATA = Path(__file__).parent / "data"
 BROKEN = DATA / "broken"
@@ -187,7 +188,7 @@ def test_overlap_share_is_measured_not_flagged_on_touching_units():
     """Touching squares are not overlaps; a 0.5% sliver is tolerated, 5% is not."""
     import shapely
 
-    from districting.validate import check_overlaps
+    from districting.intake.checks import check_overlaps
 
     squares = np.array([shapely.box(0, 0, 1, 1), shapely.box(1, 0, 2, 1),
                         shapely.box(1.995, 0, 3, 1), shapely.box(2.95, 0, 4, 1)])

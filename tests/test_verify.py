@@ -199,7 +199,7 @@ def test_facts_of_problem_reads_forbids_from_cost_and_locks():
 @pytest.fixture(scope="module")
 def demo(tmp_path_factory):
     from districting.demo import copy_demo
-    from districting.project import load_project
+    from districting.intake import load_project
 
     toml = copy_demo(tmp_path_factory.mktemp("verify") / "demo")
     return toml, load_project(toml)

@@ -18,7 +18,7 @@ from libpysal import examples
 from scipy.sparse.csgraph import dijkstra
 from shapely.geometry import box
 
-from districting.adjacency import Adjacency, default_tolerance
+from districting.intake.adjacency import Adjacency, default_tolerance
 from districting.zones import (
     ZONE_PALETTE,
     changed_areas,

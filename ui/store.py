@@ -27,9 +27,11 @@ import numpy as np
 import pandas as pd
 
 from districting import options as _options
+from districting import rules
+from districting.intake import Inputs
+from districting.intake.schema import SCHEMA
 from districting.names import BadName, check_name, path_inside, slug
-from districting.project import SITE_STATUSES, Inputs
-from districting.schema import SCHEMA
+from districting.rules import SITE_STATUSES
 from districting.study import (
     Outcome,
     RunSettings,
@@ -53,7 +55,7 @@ EDITABLE_SETTINGS = {
     "max_moved": (0.0, 1e9),
     "gap": (0.0, 0.5),
     "time_limit": (1.0, 3600.0),
-    # Utilization ranges are the project file's ([solve] in districting.schema): one home.
+    # Utilization ranges are the project file's ([solve] in districting.intake.schema): one home.
     "max_utilization": (0.05, SCHEMA["solve"].keys["max_utilization"].high),
     "min_utilization": (0.0, SCHEMA["solve"].keys["min_utilization"].high),
 }
@@ -288,7 +290,7 @@ class Store:
         units = self._check_units(unit_ids)
         site = self._check_site(site_id, "lock")
         status = self.effective.status.get(site) or self._file_status(site)
-        if status in ("closing", "closed"):
+        if rules.is_closed(status):
             raise StoreError(f"{site} is {status} in the plan year; change its status to open "
                              "before locking units to it")
         rs = self.settings

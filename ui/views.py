@@ -27,7 +27,7 @@ from bokeh.models import (
 from bokeh.plotting import figure
 
 from districting import DRAFT_NOTICE
-from districting.project import SITE_STATUSES
+from districting.rules import SITE_STATUSES
 
 from .state import REFERENCES, SessionState
 from .text import esc as _esc
@@ -143,7 +143,7 @@ def barrier_kinds(inputs) -> np.ndarray | None:
         src = getattr(inputs.settings, "sources", {}).get("barriers")
         if src is not None:
             try:
-                from districting.io import read_layer
+                from districting.intake.layers import read_layer
 
                 frame = read_layer(src.path, src.layer, what="barriers")
             except Exception:  # noqa: BLE001 - kinds only style the lines

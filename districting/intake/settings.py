@@ -1,141 +1,19 @@
-"""A project: one TOML file -> validated inputs.
+"""The project file -> :class:`~districting.intake.records.Settings`.
 
-The TOML file names where each layer comes from and which column plays which role
-(see DEVELOPERS.md, "Project file"). :func:`load_project` reads it, validates everything
-before any solve, and returns :class:`Inputs`; every problem found is reported at once in a
-:class:`~districting.validate.Report` (errors stop the run, warnings do not). Every command
-that loads a project goes through :func:`load_project` or :func:`validate_project`. This
-module turns the TOML into :class:`Settings` (:func:`read_settings`: every key checked
-against :data:`districting.schema.SCHEMA`, then the relations between keys);
-:mod:`districting.intake` reads the layers and tables it names, and
-:mod:`districting.validate` holds the checks.
+:func:`read_settings` reads the TOML, checks every key against
+:data:`districting.intake.schema.SCHEMA`, then the relations between keys; every problem
+goes into the report.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
 from pathlib import Path
 
-import geopandas as gpd
-import numpy as np
-
+from .records import Lock, Settings, SolveSettings, Source
 from .schema import SCHEMA, check_value, default, example, suggest, table_of
 from .tomlfile import read_toml
-from .validate import ProjectError, Report
 
-__all__ = [
-    "Settings", "SolveSettings", "Lock", "Source", "Inputs", "load_project", "validate_project",
-    "read_settings", "ProjectError", "LEVELS", "SITE_STATUSES",
-]
-
-LEVELS = tuple(default("project", "levels"))
-#: open: open now and in the plan; closing: closes at the plan year (its students move);
-#: new: opens at the plan year; candidate: the solver decides; closed: not in use.
-SITE_STATUSES = ("open", "closing", "new", "candidate", "closed")
-
-
-@dataclass(frozen=True)
-class SolveSettings:
-    """The [solve] table: defaults for every level, overridable per run.
-
-    The defaults are the schema's (:data:`districting.schema.SCHEMA`).
-    """
-
-    max_utilization: float = default("solve", "max_utilization")
-    min_utilization: float = default("solve", "min_utilization")
-    stability_weight: float = default("solve", "stability_weight")  # metres per student moved
-    max_distance: dict[str, float] = field(default_factory=dict)  # level -> metres
-    max_moved: float | None = None  # students (plan year) allowed to change school
-    open_count: dict[str, int] = field(default_factory=dict)  # level -> p (with candidates)
-    gap: float = default("solve", "gap")
-    time_limit: float | None = default("solve", "time_limit")
-    solver: str = default("solve", "solver")  # "highs" (array route) or a Pyomo solver name
-    travel_matrix: Path | None = None  # CSV unit_id, site_id, cost (replaces distances)
-
-
-@dataclass(frozen=True)
-class Lock:
-    level: str
-    unit: str  # unit id
-    site: str  # site id
-
-
-@dataclass(frozen=True)
-class Source:
-    """One source table of the project file: where the layer is, which column plays which role.
-
-    ``columns`` maps a role ("id", "counts", "capacity"...) to a column name ("" = not
-    given); ``level_columns`` maps a level to its column ([zones] ``columns``).
-    """
-
-    path: Path
-    layer: str | None = None
-    columns: dict[str, str] = field(default_factory=dict)
-    level_columns: dict[str, str] = field(default_factory=dict)
-
-
-@dataclass(frozen=True)
-class Settings:
-    """The parsed project file, paths resolved against the file's folder."""
-
-    path: Path  # the TOML file
-    name: str
-    current_year: int
-    years: tuple[int, ...]  # projected years; capacity must hold in each
-    plan_year: int  # the year new zones take effect; one of ``years``
-    levels: tuple[str, ...]
-    store: Path  # GeoPackage that holds saved options
-    solve: SolveSettings
-    locks: tuple[Lock, ...] = ()
-    forbids: tuple[Lock, ...] = ()
-    raw: dict = field(default_factory=dict, repr=False)  # the TOML as read
-    #: "units", "sites" and, when the file has them, "counts", "zones", "barriers", "bridges"
-    sources: dict[str, Source] = field(default_factory=dict)
-    contiguity: str = "rook"  # [adjacency] contiguity: "rook" or "queen"
-    links: Path | None = None  # [adjacency] links CSV (unit_a, unit_b, action)
-
-    @property
-    def all_years(self) -> tuple[int, ...]:
-        """Rows of ``Inputs.counts``: the current year, then the projected years."""
-        return (self.current_year, *self.years)
-
-
-@dataclass(frozen=True, eq=False)
-class Inputs:
-    """Everything a solve needs, validated, in one projected CRS.
-
-    - ``units``: GeoDataFrame, positional index 0..n-1, columns ``unit_id`` (str),
-      ``geometry`` (polygons), ``point`` (shapely Point: population-weighted point if the
-      project gives one, else the centroid).
-    - ``counts[level]``: float array (len(settings.all_years), n_units).
-    - ``sites``: GeoDataFrame, index 0..s-1, columns ``site_id``, ``name``, ``level``,
-      ``capacity``, ``status`` (one of SITE_STATUSES), ``min_util``, ``max_util`` (nan =
-      project default), ``unit_index`` (int: the unit containing the site), ``geometry``.
-    - ``current[level]``: int array (n_units,): index into ``sites`` of today's school, -1
-      where the unit has none.
-    - ``barriers``, ``bridges``: GeoSeries (possibly empty).
-    - ``adjacency``: :class:`districting.adjacency.Adjacency` after barrier cuts, bridges
-      and manual links.
-    - ``travel``: optional (n_units, n_sites) cost matrix from the travel CSV (inf = none).
-    """
-
-    settings: Settings
-    units: gpd.GeoDataFrame
-    counts: dict[str, np.ndarray]
-    sites: gpd.GeoDataFrame
-    current: dict[str, np.ndarray]
-    barriers: gpd.GeoSeries
-    bridges: gpd.GeoSeries
-    adjacency: object
-    report: object
-    travel: np.ndarray | None = None
-
-    @property
-    def crs(self):
-        return self.units.crs
-
-    def year_row(self, year: int) -> int:
-        return self.settings.all_years.index(year)
+__all__ = ["read_settings"]
 
 
 # ----------------------------------------------------------------------------- the TOML file
@@ -237,7 +115,7 @@ class _Values:
 def read_settings(path: str | Path, report) -> Settings | None:
     """Parse a project file into :class:`Settings`, reporting every bad table, key or value.
 
-    Every key is checked against :data:`districting.schema.SCHEMA`. Returns None when the
+    Every key is checked against :data:`districting.intake.schema.SCHEMA`. Returns None when the
     file cannot be read or a required part is missing or wrong (the report says why);
     after other errors the settings are returned with defaults for the bad keys, so that
     the data can still be checked in the same run (any error stops a solve).
@@ -370,26 +248,3 @@ def _read_solve(values: _Values, levels: tuple[str, ...], report) -> SolveSettin
         solver=(get("solver") or default("solve", "solver")).lower(),
         travel_matrix=values.path_of("solve", "travel_matrix"),
     )
-
-
-def validate_project(path: str | Path) -> tuple[Inputs | None, Report]:
-    """Read and check a project: (Inputs, report), Inputs None when there are errors.
-
-    Reads only (nothing is written). Every problem found is in the report at once; see
-    :mod:`districting.validate` for the checks.
-    """
-    report = Report(path)
-    settings = read_settings(path, report)
-    if settings is None:
-        return None, report
-    from .intake import Intake  # intake reads the sources; it imports this module
-
-    return Intake(settings, report).run(), report
-
-
-def load_project(path: str | Path) -> Inputs:
-    """Read, validate and return a project's inputs; raise ProjectError listing every error."""
-    inputs, report = validate_project(path)
-    if inputs is None:
-        raise ProjectError(report)
-    return inputs

@@ -1,14 +1,14 @@
 """The project file's schema, declared once: tables -> keys -> kind, default, range, meaning.
 
-:func:`districting.project.read_settings` checks every key of a project file against
+:func:`districting.intake.read_settings` checks every key of a project file against
 :data:`SCHEMA` (unknown tables and keys are errors that suggest the nearest valid name;
 wrong kinds and out-of-range values are errors that say what to write), and the key
 reference in DEVELOPERS.md ("Project file (TOML)") is :func:`reference_markdown` of the
 same table, so the documentation and the checks cannot drift apart (a test compares them).
 Relations between keys (min below max utilization, plan_year among years...) are checked
-in :mod:`districting.project`; their rule is stated in the keys' help here.
+in :mod:`districting.intake.settings`; their rule is stated in the keys' help here.
 
-``python -m districting.schema`` prints the reference.
+``python -m districting.intake.schema`` prints the reference.
 """
 
 from __future__ import annotations
