@@ -206,7 +206,7 @@ def demo(tmp_path_factory):
 
 
 def test_verify_command_accepts_a_solved_option_and_refuses_a_broken_one(demo):
-    from districting.options import save_option
+    from districting.outputs.store import save_option
     from districting.study import RunSettings, outcome_from_assignment, run
 
     toml, inputs = demo

@@ -26,11 +26,12 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from districting import options as _options
 from districting import rules
 from districting.intake import Inputs
 from districting.intake.schema import SCHEMA
 from districting.names import BadName, check_name, path_inside, slug
+from districting.outputs import store as _options
+from districting.outputs import tables
 from districting.rules import SITE_STATUSES
 from districting.study import (
     Outcome,
@@ -579,27 +580,12 @@ class Store:
         df["mean_km"] = met.mean_distance / 1000.0
         df["max_km"] = met.max_distance / 1000.0
         df["out_of_band"] = met.out_of_band
-        df["flag"] = band_flags(met.load, out.problem, years, out.plan.open_sites)
+        df["flag"] = tables.band_flags(met.load, out.problem, years, out.plan.open_sites)
         return df
 
     def summary(self, outcome: Outcome | None = None) -> dict:
         """Headline figures of a plan (what the results panel and comparisons show)."""
-        out = self.on_screen() if outcome is None else outcome
-        met = out.metrics
-        plan = out.plan
-        return {
-            "option": out.name or "unsaved result",
-            "level": out.level,
-            "plan_year": int(out.settings.plan_year),
-            "status": plan.status,
-            "gap": float(plan.gap),
-            "students_moved": float(met.students_moved),
-            "units_moved": int(met.units_moved),
-            "mean_km": met.overall_mean_distance / 1000.0,
-            "max_km": met.overall_max_distance / 1000.0,
-            "schools_out_of_band": int(met.out_of_band.sum()),
-            "students": float(out.problem.demand[0].sum()),
-        }
+        return tables.headline(self.on_screen() if outcome is None else outcome)
 
     def changes_frame(self, outcome: Outcome | None = None,
                       reference: Outcome | None = None) -> pd.DataFrame:
@@ -672,12 +658,12 @@ class Store:
         label = slug(f"{out.name or 'unsaved-result'}-{out.level}")
         folder = path_inside(self.export_folder(), label)
         if kind == "packet":
-            from districting.packet import write_packet
+            from districting.outputs.packet import write_packet
 
             pdf = folder / f"{label}-packet.pdf"
             write_packet([out], pdf)
             return pdf
-        from districting.exports import export_all
+        from districting.outputs.exports import export_all
 
         if self._exports[0] is not out:  # one export_all per plan, however many buttons
             self._exports = (out, export_all(out, folder))
@@ -848,29 +834,3 @@ class Store:
         fields = {k: p[k] for k in ("status", "objective", "bound", "gap") if k in p}
         return outcome_from_assignment(self.inputs, full, a, fields, name=p.get("name", ""),
                                        created=p.get("created", ""))
-
-
-def band_flags(load: np.ndarray, problem, years, open_sites) -> list[str]:
-    """Words per site for years outside the utilization band, e.g. 'over 100% in 2029'."""
-    cap = problem.capacity
-    flags = []
-    for j in range(load.shape[1]):  # one pass per school: a handful per level
-        has = bool(load[:, j].any())
-        if cap is None:
-            flags.append("")
-        elif not open_sites[j]:
-            flags.append("students at a school that is not open" if has else "")
-        elif cap[j] <= 0:
-            flags.append("students at a school with no capacity" if has else "")
-        else:
-            over = [str(y) for y, v in zip(years, load[:, j], strict=True)
-                    if v > problem.max_util[j] * cap[j] + 1e-6]
-            under = [str(y) for y, v in zip(years, load[:, j], strict=True)
-                     if v < problem.min_util[j] * cap[j] - 1e-6]
-            words = []
-            if over:
-                words.append(f"over {problem.max_util[j]:.0%} in {', '.join(sorted(over))}")
-            if under:
-                words.append(f"under {problem.min_util[j]:.0%} in {', '.join(sorted(under))}")
-            flags.append("; ".join(words))
-    return flags

@@ -16,7 +16,7 @@ from .cells import cell_text, number_values
 from .report import Report, ids_text, plural, where_units
 
 __all__ = ["check_ids", "degree_like", "check_polygons", "check_overlaps", "units_of_points",
-           "check_counts", "check_graph", "OVERLAP_SHARE"]
+           "check_counts", "check_graph", "is_coverage", "OVERLAP_SHARE"]
 
 #: Two units overlap when their intersection exceeds this share of the smaller unit's area
 #: (a choice of ours: digitising slivers along shared borders stay far below 1 %).
@@ -214,3 +214,10 @@ def check_graph(report: Report, file, adjacency, labels: np.ndarray,
                          f"{ids_text(site_labels.get(level, [])) or 'none'})",
                          "connect the piece with a bridge or an 'add' link, or place an open "
                          "or candidate site in it", members)
+
+
+def is_coverage(geoms) -> bool:
+    """True when the polygons form a valid coverage: no overlaps, and neighbours share
+    their borders vertex for vertex (GEOS CoverageValidator, shapely.coverage_is_valid)."""
+    geoms = np.asarray(geoms, dtype=object)
+    return bool(len(geoms)) and bool(shapely.coverage_is_valid(geoms))

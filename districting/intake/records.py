@@ -4,11 +4,13 @@
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from functools import cached_property
 from pathlib import Path
 
 import geopandas as gpd
 import numpy as np
 
+from .checks import is_coverage
 from .schema import default
 
 __all__ = ["Settings", "SolveSettings", "Lock", "Source", "Inputs", "LEVELS"]
@@ -118,3 +120,8 @@ class Inputs:
 
     def year_row(self, year: int) -> int:
         return self.settings.all_years.index(year)
+
+    @cached_property
+    def units_coverage(self) -> bool:
+        """Whether the units form a valid polygon coverage (checked once per project)."""
+        return is_coverage(self.units.geometry.to_numpy())

@@ -16,7 +16,7 @@ import pytest
 from districting.cli import check_command
 from districting.intake import Report, validate_project
 
-DATA = Path(__file__).parent / "data"
+DATA = Path(__file__).parents[1] / "data"
 BROKEN = DATA / "broken"
 
 _spec = importlib.util.spec_from_file_location("make_broken", DATA / "make_broken.py")

@@ -20,7 +20,7 @@ import pytest
 
 from districting.cli import main
 
-DATA = Path(__file__).parent / "data"
+DATA = Path(__file__).parents[1] / "data"
 _spec = importlib.util.spec_from_file_location("make_broken", DATA / "make_broken.py")
 town = importlib.util.module_from_spec(_spec)
 _spec.loader.exec_module(town)

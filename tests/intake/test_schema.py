@@ -19,7 +19,7 @@ from hypothesis import strategies as st
 from districting.intake import Report, SolveSettings, read_settings
 from districting.intake.schema import MAX_SHARE, SCHEMA, check_value, reference_markdown
 
-ROOT = Path(__file__).parent.parent
+ROOT = Path(__file__).parents[2]
 DEVELOPERS = ROOT / "DEVELOPERS.md"
 BASE = {  # the smallest valid project file
     "project": {"current_year": 2026, "years": [2027, 2028], "levels": ["elementary"]},

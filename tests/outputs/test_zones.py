@@ -1,4 +1,4 @@
-"""Tests of districting.zones.
+"""Tests of districting.outputs.zones.
 
 Outside sources: libpysal example data (libpysal.examples ``georgia``: Georgia counties in
 UTM metres, shipped with the package, BSD-3; see its README.md in libpysal/examples),
@@ -8,9 +8,9 @@ networkx and shapely as independent libraries for the colouring checks.
 from __future__ import annotations
 
 import itertools
+from pathlib import Path
 
 import geopandas as gpd
-import networkx as nx
 import numpy as np
 import pytest
 import shapely
@@ -19,15 +19,9 @@ from scipy.sparse.csgraph import dijkstra
 from shapely.geometry import box
 
 from districting.intake.adjacency import Adjacency, default_tolerance
-from districting.zones import (
-    ZONE_PALETTE,
-    changed_areas,
-    color_zones,
-    dissolve_zones,
-    grey_value,
-    zone_color,
-    zone_edges,
-)
+from districting.intake.checks import is_coverage
+from districting.outputs.colours import ZONE_PALETTE, color_zones, zone_edges
+from districting.outputs.zones import changed_areas, dissolve_zones
 
 
 def grid(cols: int, rows: int, gap: float = 0.0, size: float = 100.0) -> gpd.GeoDataFrame:
@@ -191,34 +185,6 @@ def test_georgia_counties_grouped():
     assert max(colors.values()) < len(ZONE_PALETTE)
 
 
-def test_colour_from_edges_is_proper_on_random_planar_graphs():
-    # networkx as an independent library: Delaunay-like planar graphs from a triangulation
-    rng = np.random.default_rng(3)
-    for _ in range(5):
-        pts = shapely.MultiPoint(rng.random((40, 2)) * 1000)
-        tri = shapely.get_parts(shapely.delaunay_triangles(pts, only_edges=True))
-        coords = [tuple(map(tuple, np.round(shapely.get_coordinates(e), 6))) for e in tri]
-        edges = [(f"{a}", f"{b}") for a, b in coords]
-        colors = color_zones(edges)
-        g = nx.Graph(edges)
-        assert set(colors) == set(g.nodes)
-        assert all(colors[a] != colors[b] for a, b in g.edges)
-    lone = color_zones([("a", "b")], nodes=["c"])
-    assert set(lone) == {"a", "b", "c"} and lone["a"] != lone["b"]
-
-
-def test_palette_is_distinct_in_grey():
-    assert 8 <= len(ZONE_PALETTE) <= 10 and len(set(ZONE_PALETTE)) == len(ZONE_PALETTE)
-    greys = sorted(grey_value(c) for c in ZONE_PALETTE)
-    assert min(np.diff(greys)) >= 15  # of 255: tell-apart in print (our margin)
-    assert grey_value("#FFFFFF") == pytest.approx(255) and grey_value("#000000") == 0
-    # consecutive colours (most used together by DSATUR) differ strongly in grey
-    steps = [abs(grey_value(a) - grey_value(b)) for a, b in zip(ZONE_PALETTE, ZONE_PALETTE[1:],
-                                                                  strict=False)]
-    assert min(steps) >= 35
-    assert zone_color(len(ZONE_PALETTE)) == ZONE_PALETTE[0]
-
-
 def test_changed_areas():
     units = grid(6, 4, gap=0.05)
     today = np.array(["A"] * 24, dtype=object)
@@ -236,3 +202,40 @@ def test_changed_areas():
     # a unit with no school today that gets one counts as changed
     new = changed_areas(units, [""] + ["A"] * 23, ["A"] * 24)
     assert new[["from_site", "to_site", "n_units"]].values.tolist() == [["", "A", 1]]
+
+
+def test_coverage_union_gives_the_same_zones_on_the_demo():
+    """shapely.coverage_union_all (units that form a coverage) and the general union_all
+    dissolve the demo town's zones of today into the very same polygons."""
+    from districting.intake import load_project
+
+    inputs = load_project(Path(__file__).parents[2] / "data" / "demo" / "project.toml")
+    assert inputs.units_coverage  # the generator's units share their borders exactly
+    units = inputs.units[["unit_id", "geometry"]]
+    site_ids = np.array([*inputs.sites["site_id"], ""], dtype=object)
+    for level in inputs.settings.levels:
+        cur = inputs.current[level]
+        ids = site_ids[np.where(cur >= 0, cur, len(site_ids) - 1)]
+        fast = dissolve_zones(units, ids, coverage=True)
+        general = dissolve_zones(units, ids, coverage=False)
+        assert fast.drop(columns="geometry").equals(general.drop(columns="geometry"))
+        assert shapely.equals_exact(fast.geometry.to_numpy(), general.geometry.to_numpy(),
+                                    0).all()
+
+
+def test_units_that_overlap_or_do_not_share_vertices_are_not_a_coverage():
+    assert is_coverage(grid(3, 2).geometry)
+    assert is_coverage(grid(3, 2, gap=1.0).geometry)  # apart: no shared border to match
+    # a shared border with a vertex on one side only (GEOS CoverageValidator's rule)
+    split = shapely.Polygon([(10, 0), (20, 0), (20, 10), (10, 10), (10, 5)])
+    assert not is_coverage([box(0, 0, 10, 10), split])
+    assert not is_coverage([box(0, 0, 10, 10), box(5, 0, 15, 10)])  # overlap
+    assert not is_coverage([])
+
+
+def test_gapped_units_dissolve_alike_either_way():
+    units = grid(4, 3, gap=1.0)
+    zone = np.array(["A", "A", "B", "B"] * 3, dtype=object)
+    fast = dissolve_zones(units, zone, coverage=True)
+    general = dissolve_zones(units, zone, coverage=False)
+    assert shapely.equals_exact(fast.geometry.to_numpy(), general.geometry.to_numpy(), 0).all()

@@ -19,9 +19,9 @@
   ``pandas.read_csv(path, comment="#")`` (or :func:`read_export_csv`) reads the table and
   a spreadsheet shows the block above the header.
 
-The tables come from :func:`school_table` and :func:`unit_table`, which the hearing packet
-uses too, so a figure printed is the figure exported. Every file is written through
-:func:`districting.io.atomic_path`.
+The tables come from :mod:`districting.outputs.tables`, which the hearing packet and the
+workbench use too, so a figure printed or shown is the figure exported. Every file is
+written through :func:`districting.io.atomic_path`.
 """
 
 from __future__ import annotations
@@ -37,41 +37,21 @@ import numpy as np
 import pandas as pd
 import pyogrio
 
-from . import DRAFT_NOTICE
-from .io import atomic_path, atomic_write_text
-from .names import slug
-from .study import Outcome, now_iso
-from .zones import changed_areas, dissolve_zones
+from .. import DRAFT_NOTICE
+from ..io import atomic_path, atomic_write_text
+from ..names import slug
+from ..study import Outcome, now_iso
+from .tables import (
+    changed_frame,
+    plan_status,
+    plan_years,
+    require_plan,
+    school_table,
+    unit_table,
+    zones_frame,
+)
 
-__all__ = [
-    "export_all",
-    "about",
-    "school_table",
-    "unit_table",
-    "zones_frame",
-    "changed_frame",
-    "read_export_csv",
-    "slug",
-    "require_plan",
-    "SHAPEFILE_FIELDS",
-]
-
-_TOL = 1e-6  # students: a load within this of a band edge is on the edge
-
-
-def require_plan(outcome: Outcome, what: str) -> None:
-    """Raise a clear ValueError when ``outcome`` has no valid plan to show."""
-    if not outcome.plan.feasible:
-        msg = f": {outcome.plan.message}" if outcome.plan.message else ""
-        raise ValueError(
-            f"{what}: option {outcome.name or '(unsaved)'!r} ({outcome.level}) has no valid "
-            f"plan (status {outcome.plan.status}{msg}); run it again with other settings"
-        )
-
-
-def _years(outcome: Outcome) -> list[int]:
-    return sorted(int(y) for y in outcome.problem.years)
-
+__all__ = ["export_all", "about", "read_export_csv", "SHAPEFILE_FIELDS"]
 
 def about(outcome: Outcome) -> dict[str, str]:
     """The record every export carries: option, level, dates, status and the notice."""
@@ -82,113 +62,13 @@ def about(outcome: Outcome) -> dict[str, str]:
         "level": outcome.level,
         "project": s.name,
         "plan_year": str(outcome.settings.plan_year),
-        "years": ", ".join(str(y) for y in _years(outcome)),
+        "years": ", ".join(str(y) for y in plan_years(outcome)),
         "created": outcome.created,
         "exported": now_iso(),
         "status": plan.status,
         "gap": f"{plan.gap:.4g}",
         "notice": DRAFT_NOTICE,
     }
-
-
-def _plan_status(outcome: Outcome) -> list[str]:
-    st = outcome.settings.status
-    return [st.get(sid, s) for sid, s in zip(outcome.site_ids, outcome.sites["status"],
-                                             strict=True)]
-
-
-def school_table(outcome: Outcome) -> pd.DataFrame:
-    """One row per school of the level, in the problem's site order.
-
-    Columns: ``site_id``, ``name``, ``status`` (in the plan year), ``open``, ``capacity``,
-    ``min_util``, ``max_util`` (the band), ``units``, ``students_now`` (the current year in
-    today's zones), ``students_<year>`` and ``util_<year>`` for each projected year (the
-    proposed zones), ``flag_<year>`` ("over" above the band, "under" below it, "" inside),
-    ``moved_in``, ``moved_out`` (plan-year students), ``mean_distance_m``,
-    ``max_distance_m`` and ``out_of_band``.
-    """
-    p, m = outcome.problem, outcome.metrics
-    a = np.asarray(outcome.assignment)
-    inputs = outcome.inputs
-    now_row = inputs.year_row(inputs.settings.current_year)
-    now_counts = inputs.counts[outcome.level][now_row]
-    cur = p.current
-    has_cur = cur >= 0
-    students_now = np.bincount(cur[has_cur], weights=now_counts[has_cur], minlength=p.n_sites)
-    cap = np.full(p.n_sites, np.nan) if p.capacity is None else p.capacity
-    opened = np.asarray(outcome.plan.open_sites, bool)
-    table = pd.DataFrame({
-        "site_id": outcome.site_ids,
-        "name": outcome.sites["name"].astype(str).to_list(),
-        "status": _plan_status(outcome),
-        "open": opened,
-        "capacity": cap,
-        "min_util": p.min_util,
-        "max_util": p.max_util,
-        "units": np.bincount(a[a >= 0], minlength=p.n_sites),
-        "students_now": students_now,
-    })
-    row_of = {int(y): t for t, y in enumerate(p.years)}
-    for y in _years(outcome):
-        t = row_of[y]
-        load = m.load[t]
-        table[f"students_{y}"] = load
-        table[f"util_{y}"] = m.utilization[t]
-        over = load > p.max_util * cap + _TOL
-        under = opened & (load < p.min_util * cap - _TOL)
-        table[f"flag_{y}"] = np.where(over, "over", np.where(under, "under", ""))
-    table["moved_in"] = m.moved_in
-    table["moved_out"] = m.moved_out
-    table["mean_distance_m"] = m.mean_distance
-    table["max_distance_m"] = m.max_distance
-    table["out_of_band"] = m.out_of_band
-    return table
-
-
-def unit_table(outcome: Outcome) -> pd.DataFrame:
-    """One row per planning unit: ``unit_id``, ``current``, ``proposed`` (site ids),
-    ``changed``, ``students_<plan year>`` and ``distance_m`` (unit point to its proposed
-    school; the travel measure of the run)."""
-    p = outcome.problem
-    a = np.asarray(outcome.assignment)
-    ok = a >= 0
-    distance = np.full(p.n_units, np.nan)
-    distance[ok] = p.travel[np.flatnonzero(ok), a[ok]]
-    cur = p.current
-    return pd.DataFrame({
-        "unit_id": outcome.unit_ids,
-        "current": outcome.site_id_of(cur),
-        "proposed": outcome.site_id_of(a),
-        "changed": (cur >= 0) & ok & (a != cur),
-        f"students_{outcome.settings.plan_year}": p.demand[0],
-        "distance_m": distance,
-    })
-
-
-def zones_frame(outcome: Outcome, current: bool = False) -> gpd.GeoDataFrame:
-    """The proposed zones (or today's with ``current=True``) dissolved, one row per school
-    with a zone, joined to :func:`school_table` (the proposed figures either way)."""
-    assignment = outcome.current if current else outcome.assignment
-    units = outcome.inputs.units[["unit_id", "geometry"]]
-    ids = outcome.site_id_of(np.asarray(assignment))
-    zones = dissolve_zones(units, ids, site_ids=outcome.site_ids)
-    zones = zones.drop(columns=[c for c in zones.columns if c not in ("site_id", "n_parts",
-                                                                      "geometry")])
-    table = school_table(outcome)
-    merged = zones.merge(table, on="site_id", how="left", sort=False)
-    cols = ["site_id", "name", *[c for c in merged.columns if c not in
-                                 ("site_id", "name", "geometry")], "geometry"]
-    return gpd.GeoDataFrame(merged[cols], geometry="geometry", crs=outcome.inputs.crs)
-
-
-def changed_frame(outcome: Outcome) -> gpd.GeoDataFrame:
-    """Units whose school changes, dissolved by (from, to) pair, with plan-year students
-    (``students``) and the number of units per pair."""
-    ut = unit_table(outcome)
-    units = outcome.inputs.units[["unit_id", "geometry"]]
-    students = ut[f"students_{outcome.settings.plan_year}"].to_numpy()
-    return changed_areas(units, ut["current"].to_numpy(), ut["proposed"].to_numpy(),
-                         counts=students)
 
 
 # ---------------------------------------------------------------------------- writers
@@ -323,7 +203,7 @@ def export_all(outcome: Outcome, folder: str | os.PathLike) -> dict[str, Path]:
     site_layer = gpd.GeoDataFrame({
         "site_id": outcome.site_ids,
         "name": sites["name"].astype(str).to_list(),
-        "status": _plan_status(outcome),
+        "status": plan_status(outcome),
         "open": np.asarray(outcome.plan.open_sites, bool),
         "capacity": sites["capacity"].to_numpy(dtype=float),
     }, geometry=sites.geometry.to_numpy(), crs=outcome.inputs.crs)

@@ -13,7 +13,8 @@ from matplotlib.text import Text
 from PIL import Image
 
 from districting import DRAFT_NOTICE
-from districting.packet import (
+from districting.outputs.colours import zone_edges
+from districting.outputs.packet import (
     OVER,
     PAPER,
     PNG_DPI,
@@ -24,7 +25,6 @@ from districting.packet import (
     write_packet,
 )
 from districting.study import RunSettings, outcome_from_assignment
-from districting.zones import zone_edges
 
 
 def texts(fig) -> list[str]:
@@ -184,7 +184,7 @@ def test_moves_table_and_summary(options, pages):
 
 
 def test_touching_zones_never_share_a_colour(options):
-    from districting.packet import _drawing  # the colours the pages use
+    from districting.outputs.packet import _drawing  # the colours the pages use
 
     for o in options:
         d = _drawing(o)
@@ -197,7 +197,7 @@ def test_touching_zones_never_share_a_colour(options):
 
 
 def test_long_tables_continue_on_next_pages(tmp_path):
-    from districting.packet import _table_pages  # the schools pages alone (no maps)
+    from districting.outputs.packet import _table_pages  # the schools pages alone (no maps)
 
     town = make_town(tmp_path, nx=16, ny=12, n_sites=30, seed=3)
     o = make_outcome(town, name="Many schools")

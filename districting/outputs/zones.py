@@ -1,4 +1,4 @@
-"""Zone boundaries: dissolve units into one clean polygon per school, changed areas, colours.
+"""Zone boundaries: dissolve units into one clean polygon per school, and changed areas.
 
 :func:`dissolve_zones` unions each zone's planning units (shapely 2 ``union_all``) and
 cleans the result so that digitising gaps between units leave no holes or cracks:
@@ -18,63 +18,21 @@ A real hole (an enclave of another zone, or a hole in the units themselves large
 counts the pieces and the GeoDataFrame's ``attrs["warnings"]`` lists every zone with more
 than one. Closing by dilation then erosion is the morphological closing of J. Serra,
 "Image Analysis and Mathematical Morphology", Academic Press, 1982.
-
-:func:`color_zones` colours the zone adjacency graph with DSATUR (D. Brelaz, "New methods
-to color the vertices of a graph", Communications of the ACM 22(4), 1979, 251-256; as
-``networkx.greedy_color(strategy="DSATUR")``) so touching zones never share a colour;
-:data:`ZONE_PALETTE` is our own qualitative palette whose grey values are spread apart.
 """
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Sequence
 
 import geopandas as gpd
 import numpy as np
 import pandas as pd
 import shapely
 
-from .intake.adjacency import default_tolerance
+from ..intake.adjacency import default_tolerance
+from ..intake.checks import is_coverage
 
-__all__ = [
-    "dissolve_zones",
-    "changed_areas",
-    "color_zones",
-    "zone_edges",
-    "zone_color",
-    "zone_colors",
-    "ZONE_PALETTE",
-    "grey_value",
-]
-
-#: Qualitative zone colours of our own choosing. Lightness (Rec. 601 luma) steps by about
-#: 20 of 255 from 52 to 232, ordered so consecutive colours differ strongly in both hue and
-#: lightness; zones stay apart when printed in grey. Colour 0 (the most used by DSATUR)
-#: is the lightest.
-ZONE_PALETTE: tuple[str, ...] = (
-    "#F5E9C4",  # pale sand       luma 232
-    "#296C8E",  # deep sea blue   luma 92
-    "#E8977C",  # salmon          luma 172
-    "#452556",  # aubergine       luma 52
-    "#ABD397",  # fern            luma 192
-    "#C95E93",  # orchid          luma 132
-    "#B3E2E2",  # frost           luma 212
-    "#68411A",  # walnut          luma 72
-    "#7B9AD9",  # cornflower      luma 152
-    "#379256",  # moss            luma 112
-)
-
-
-def grey_value(color: str) -> float:
-    """Rec. 601 luma (0..255) of a ``#RRGGBB`` colour: its grey level in print."""
-    r, g, b = (int(color.lstrip("#")[k:k + 2], 16) for k in (0, 2, 4))
-    return 0.299 * r + 0.587 * g + 0.114 * b
-
-
-def zone_color(index: int) -> str:
-    """Palette colour of a colour index (cycles past the palette's end)."""
-    return ZONE_PALETTE[int(index) % len(ZONE_PALETTE)]
-
+__all__ = ["dissolve_zones", "changed_areas"]
 
 # ---------------------------------------------------------------- helpers
 def _closing(geoms: np.ndarray, tol: float) -> np.ndarray:
@@ -119,15 +77,25 @@ def _fill_small_holes(geom, max_area: float):
     return shapely.union_all(shells)
 
 
-def _group_union(geoms: np.ndarray, keys: np.ndarray, order: Sequence) -> np.ndarray:
-    """union_all of ``geoms`` per key, in ``order``."""
+def _group_union(geoms: np.ndarray, keys: np.ndarray, order: Sequence,
+                 coverage: bool = False) -> np.ndarray:
+    """The union of ``geoms`` per key, in ``order``.
+
+    With ``coverage`` (the geometries form a valid coverage: no overlaps, shared borders
+    with the same vertices, as ``shapely.coverage_is_valid`` says) each group is one too,
+    and ``shapely.coverage_union_all`` gives the same union an order of magnitude faster.
+    The two list a polygon's vertices from different starting points, so each union is
+    normalised: the zones then come out identical either way.
+    """
+    union = shapely.coverage_union_all if coverage else shapely.union_all
     codes = pd.Categorical(keys, categories=list(order)).codes
     out = np.empty(len(order), dtype=object)
     sorter = np.argsort(codes, kind="stable")
     bounds = np.searchsorted(codes[sorter], np.arange(len(order) + 1))
     for k in range(len(order)):  # one union per zone, never per unit
-        out[k] = shapely.union_all(geoms[sorter[bounds[k]:bounds[k + 1]]])
-    return out
+        out[k] = union(geoms[sorter[bounds[k]:bounds[k + 1]]])
+    return shapely.normalize(out)
+
 
 
 def _assign_pieces(pieces: np.ndarray, zones: np.ndarray, tol: float) -> np.ndarray:
@@ -169,6 +137,7 @@ def dissolve_zones(
     site_ids: Sequence[str] | None = None,
     counts=None,
     sliver_area: float | None = None,
+    coverage: bool | None = None,
 ) -> gpd.GeoDataFrame:
     """One boundary polygon per zone (see the module docstring for the cleaning).
 
@@ -176,8 +145,10 @@ def dissolve_zones(
     warning). ``site_ids`` orders the rows (and settles overlaps, earlier wins); default:
     sorted ids. ``counts`` (students per unit) adds a ``students`` column. ``tolerance``
     defaults to :func:`districting.intake.adjacency.default_tolerance`; ``sliver_area`` to
-    ``(100 * tolerance) ** 2``. Columns: site_id, n_units, [students], area, n_parts,
-    geometry; ``attrs["warnings"]`` lists problems in words.
+    ``(100 * tolerance) ** 2``. ``coverage``: whether the units form a valid coverage
+    (:func:`districting.intake.checks.is_coverage`; checked when None), so that zones
+    are unioned with ``shapely.coverage_union_all``. Columns: site_id, n_units, [students],
+    area, n_parts, geometry; ``attrs["warnings"]`` lists problems in words.
     """
     geoms = np.asarray(units_gdf.geometry.to_numpy(), dtype=object)
     n = len(geoms)
@@ -195,7 +166,9 @@ def dissolve_zones(
         raise ValueError(f"assignment names site(s) not in site_ids: {', '.join(unknown[:5])}")
 
     g, keys = shapely.make_valid(geoms[assigned]), zone_of[assigned]
-    raw = _group_union(g, keys, order)
+    if coverage is None:
+        coverage = is_coverage(geoms)
+    raw = _group_union(g, keys, order, coverage)
     zones = _polygonal(_closing(raw, tol))
 
     # the cracks and small holes between zones; closing the union of the closed zones is
@@ -249,6 +222,7 @@ def changed_areas(
     to_ids,
     counts=None,
     tolerance: float | None = None,
+    coverage: bool | None = None,
 ) -> gpd.GeoDataFrame:
     """Units whose school changes, dissolved per (from_site, to_site) pair.
 
@@ -256,7 +230,7 @@ def changed_areas(
     counts as changed when its option site is set and differs from today's. Columns:
     from_site, to_site, n_units, [students], geometry (closed like :func:`dissolve_zones`,
     so the gaps between units of one pair leave no cracks); rows by students moved (when
-    ``counts`` is given) then by the pair.
+    ``counts`` is given) then by the pair. ``coverage`` as in :func:`dissolve_zones`.
     """
     geoms = np.asarray(units_gdf.geometry.to_numpy(), dtype=object)
     n = len(geoms)
@@ -275,73 +249,13 @@ def changed_areas(
         c = np.asarray(counts, dtype=float)
         table["students"] = pd.Series(c[moved]).groupby(pairs["key"].to_numpy()).sum()
     order = table.index.tolist()
+    if coverage is None:
+        coverage = is_coverage(geoms)
     shapes = _polygonal(_closing(_group_union(shapely.make_valid(geoms[moved]),
-                                              pairs["key"].to_numpy(), order), tol))
+                                              pairs["key"].to_numpy(), order, coverage), tol))
     out = gpd.GeoDataFrame(table.reset_index(drop=True)[columns], geometry=list(shapes),
                            crs=units_gdf.crs)
     if counts is not None:
         out = out.sort_values(["students", "from_site", "to_site"],
                               ascending=[False, True, True]).reset_index(drop=True)
     return out
-
-
-def zone_edges(adjacency, assignment_ids) -> set[tuple[str, str]]:
-    """Pairs of zones (site ids, sorted) that contain adjacent units: the zone graph.
-
-    Exact and cheap when the unit :class:`~districting.intake.adjacency.Adjacency` is at hand;
-    note that barrier-cut pairs do not count, so for map colouring prefer the geometry
-    (:func:`color_zones` with a zones GeoDataFrame) or add ``adjacency.cut_edges``.
-    """
-    zone_of = _ids(assignment_ids, adjacency.n, "assignment")
-    e = np.vstack([adjacency.edges, adjacency.cut_edges])
-    za, zb = zone_of[e[:, 0]], zone_of[e[:, 1]]
-    keep = (za != zb) & (za != "") & (zb != "")
-    lo, hi = np.minimum(za[keep], zb[keep]), np.maximum(za[keep], zb[keep])
-    return set(zip(lo.tolist(), hi.tolist(), strict=True))
-
-
-def _touching_zones(zones: gpd.GeoDataFrame, tol: float) -> set[tuple[str, str]]:
-    ids = zones["site_id"].astype(str).to_numpy()
-    geoms = zones.geometry.to_numpy()
-    a, b = shapely.STRtree(geoms).query(geoms, predicate="dwithin", distance=tol)
-    keep = a < b
-    return {tuple(sorted(p)) for p in zip(ids[a[keep]], ids[b[keep]], strict=True)}
-
-
-def color_zones(
-    zones: gpd.GeoDataFrame | Iterable[tuple[str, str]],
-    *,
-    nodes: Iterable[str] | None = None,
-    tolerance: float | None = None,
-) -> dict[str, int]:
-    """Colour index per site id such that no two touching zones share one (DSATUR).
-
-    ``zones``: a zones GeoDataFrame (``site_id``, geometry; zones within ``tolerance`` of
-    each other, corners included, count as touching) or an iterable of (site_a, site_b)
-    pairs with ``nodes`` naming zones that touch nothing. Map an index to a colour with
-    :func:`zone_color`; planar zone maps need at most 4 colours in theory and DSATUR rarely
-    needs more than 5, within the palette's 10.
-    """
-    import networkx as nx
-
-    g = nx.Graph()
-    if isinstance(zones, gpd.GeoDataFrame | gpd.GeoSeries):
-        frame = zones if isinstance(zones, gpd.GeoDataFrame) else gpd.GeoDataFrame(
-            {"site_id": zones.index.astype(str)}, geometry=zones.to_numpy())
-        geoms = frame.geometry.to_numpy()
-        tol = default_tolerance(geoms) if tolerance is None else float(tolerance)
-        g.add_nodes_from(frame["site_id"].astype(str))
-        g.add_edges_from(_touching_zones(frame, tol))
-    else:
-        g.add_edges_from((str(a), str(b)) for a, b in zones if str(a) != str(b))
-    if nodes is not None:
-        g.add_nodes_from(str(u) for u in nodes)
-    ordered = nx.Graph()
-    ordered.add_nodes_from(sorted(g.nodes))  # deterministic colours for the same map
-    ordered.add_edges_from(g.edges)
-    return dict(nx.greedy_color(ordered, strategy="DSATUR"))
-
-
-def zone_colors(colors: Mapping[str, int]) -> dict[str, str]:
-    """Colour indices (from :func:`color_zones`) as palette hex strings."""
-    return {sid: zone_color(k) for sid, k in colors.items()}

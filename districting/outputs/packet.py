@@ -5,16 +5,17 @@ Drawn with matplotlib only. For each option:
 1. today's zones and the proposed zones side by side on the same extent, school markers and
    names, a scale bar and a north arrow drawn here, a legend, the units whose school
    changes hatched, and the draft notice (:data:`districting.DRAFT_NOTICE`) at the top;
-2. the per-school table (:func:`districting.exports.school_table`): capacity, students now
+2. the per-school table (:func:`districting.outputs.tables.school_table`): capacity, students now
    and in each projected year with utilization, a marker and a shaded bold cell where a
    school is above or below its band, students moved in and out, mean and longest travel;
 3. where students move: the from -> to pairs with students, and a map of the changed areas
    numbered as in the table.
 
 With several options a first page compares their totals. Zones are filled with
-:data:`districting.zones.ZONE_PALETTE` by :func:`districting.zones.color_zones`, coloured
-once for both maps of an option so a school keeps its colour and no two zones that touch
-in either map share one. Tables longer than a page continue on the next page.
+:data:`~districting.outputs.colours.ZONE_PALETTE` by
+:func:`~districting.outputs.colours.zone_colours`, coloured once for both maps of an
+option so a school keeps its colour and no two zones that touch in either map share one.
+Tables longer than a page continue on the next page.
 """
 
 from __future__ import annotations
@@ -30,7 +31,6 @@ import matplotlib
 matplotlib.use("Agg")  # files only; never a window
 
 import matplotlib.patheffects as pe  # noqa: E402
-import networkx as nx  # noqa: E402
 import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
 from matplotlib.backends.backend_pdf import PdfPages  # noqa: E402
@@ -38,11 +38,11 @@ from matplotlib.figure import Figure  # noqa: E402
 from matplotlib.lines import Line2D  # noqa: E402
 from matplotlib.patches import Patch, Rectangle  # noqa: E402
 
-from . import DRAFT_NOTICE  # noqa: E402
-from .exports import changed_frame, require_plan, school_table, zones_frame  # noqa: E402
-from .io import atomic_path  # noqa: E402
-from .study import Outcome, now_iso  # noqa: E402
-from .zones import ZONE_PALETTE, color_zones, zone_colors, zone_edges  # noqa: E402
+from .. import DRAFT_NOTICE  # noqa: E402
+from ..io import atomic_path  # noqa: E402
+from ..study import Outcome, now_iso  # noqa: E402
+from .colours import ZONE_PALETTE, zone_colours  # noqa: E402
+from .tables import changed_frame, require_plan, school_table, zones_frame  # noqa: E402
 
 __all__ = ["write_packet", "packet_figures", "school_rows", "pair_rows", "summary_rows",
            "PAPER", "PNG_DPI"]
@@ -255,33 +255,6 @@ def _short_name(name: str) -> str:
 
 
 # ---------------------------------------------------------------------------- maps
-def _zone_colours(outcome: Outcome, today, proposed) -> dict[str, str]:
-    """One colour per school for both maps of an option: touching zones differ in either.
-
-    The zone graph is the union of today's and the proposed zone graphs (unit adjacency
-    plus barrier-cut pairs: zones across a river still touch on the map). Zones two, three...
-    steps apart get different colours too while the palette lasts (the k-th power of the
-    zone graph), so schools share a colour only when there are more than the palette holds.
-    """
-    adjacency = outcome.inputs.adjacency
-    pairs = set()
-    for a in (outcome.current, outcome.assignment):
-        pairs |= zone_edges(adjacency, outcome.site_id_of(np.asarray(a)))
-    nodes = sorted(set(today["site_id"]) | set(proposed["site_id"]))
-    best = color_zones(sorted(pairs), nodes=nodes)
-    graph = nx.Graph(sorted(pairs))
-    graph.add_nodes_from(nodes)
-    for k in range(2, len(nodes)):  # zones k steps apart differ too, while the palette lasts
-        wider = nx.power(graph, k)
-        index = color_zones(sorted(tuple(sorted(e)) for e in wider.edges), nodes=nodes)
-        if max(index.values(), default=0) >= len(ZONE_PALETTE):
-            break
-        best = index
-        if wider.number_of_edges() == len(nodes) * (len(nodes) - 1) // 2:
-            break
-    return zone_colors(best)
-
-
 def _extent(outcome: Outcome) -> tuple[float, float, float, float]:
     x0, y0, x1, y1 = outcome.inputs.units.total_bounds
     pad = 0.03 * max(x1 - x0, y1 - y0)
@@ -388,7 +361,9 @@ def _drawing(outcome: Outcome) -> dict:
     proposed = zones_frame(outcome)
     header, rows, areas = pair_rows(outcome)
     return {"today": today, "proposed": proposed, "areas": areas, "pairs": (header, rows),
-            "colours": _zone_colours(outcome, today, proposed), "extent": _extent(outcome)}
+            "colours": zone_colours(outcome.inputs.adjacency, outcome.site_ids,
+                                    (outcome.current, outcome.assignment), spread=True),
+            "extent": _extent(outcome)}
 
 
 def _map_page(outcome: Outcome, d: dict, paper: str, stamp: str, page: int) -> Figure:

@@ -26,8 +26,8 @@ from districting.intake import (
 )
 from districting.intake.layers import ReadError, read_layer, read_table
 
-DATA = Path(__file__).parent / "data"
-DEMO = Path(__file__).parent.parent / "data" / "demo" / "project.toml"
+DATA = Path(__file__).parents[1] / "data"
+DEMO = Path(__file__).parents[2] / "data" / "demo" / "project.toml"
 _spec = importlib.util.spec_from_file_location("make_broken", DATA / "make_broken.py")
 town = importlib.util.module_from_spec(_spec)
 _spec.loader.exec_module(town)

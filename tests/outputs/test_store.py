@@ -16,7 +16,7 @@ import pyogrio
 import pytest
 from exports_town import make_outcome, make_town, nearest_assignment
 
-from districting.options import (
+from districting.outputs.store import (
     ASSIGNMENTS_TABLE,
     OPTIONS_TABLE,
     STATE_TABLE,
@@ -34,7 +34,7 @@ from districting.options import (
 )
 from districting.study import RunSettings, outcome_from_assignment
 
-TESTS = Path(__file__).parent
+TESTS = Path(__file__).parents[1]
 
 
 def metrics_dict(outcome):
@@ -243,7 +243,7 @@ def test_failed_save_leaves_store_unchanged(town, monkeypatch):
     class Boom(RuntimeError):
         pass
 
-    import districting.options as options
+    import districting.outputs.store.options as options  # save_option calls its _touch
 
     def explode(con, *tables):
         raise Boom("disk full")
@@ -263,7 +263,7 @@ WRITER = textwrap.dedent(
     from pathlib import Path
     sys.path.insert(0, sys.argv[1])
     from exports_town import make_outcome, make_town
-    from districting.options import save_option, save_state
+    from districting.outputs.store import save_option, save_state
     town = make_town(Path(sys.argv[2]), nx=40, ny=30)
     out = make_outcome(town)
     k = int(sys.argv[3])
@@ -357,7 +357,7 @@ def test_no_lock_file_is_left_beside_the_store(town):
 def test_stale_copies_go_at_start_unless_a_writer_is_at_work(town):
     import fcntl
 
-    from districting.options import tidy_store
+    from districting.outputs.store import tidy_store
 
     store = town.settings.store
     save_option(town, make_outcome(town), "A")
@@ -386,7 +386,7 @@ def _damage(store: Path) -> bytes:
 
 
 def test_a_damaged_store_is_named_never_a_traceback(town):
-    from districting.options import StoreDamaged, repair_store, state_record, store_problem
+    from districting.outputs.store import StoreDamaged, repair_store, state_record, store_problem
 
     store = town.settings.store
     save_option(town, make_outcome(town), "A")
@@ -409,7 +409,7 @@ def test_a_damaged_store_is_named_never_a_traceback(town):
 
 
 def test_not_an_sqlite_file_is_named(town):
-    from districting.options import StoreDamaged
+    from districting.outputs.store import StoreDamaged
 
     store = town.settings.store
     store.write_text("name,level\nA,high\n")
@@ -418,7 +418,7 @@ def test_not_an_sqlite_file_is_named(town):
 
 
 def test_state_revisions_refuse_a_stale_save(town):
-    from districting.options import StateConflict, state_record
+    from districting.outputs.store import StateConflict, state_record
 
     store = town.settings.store
     assert state_record(store, "w") == (None, 0)
@@ -433,7 +433,7 @@ def test_state_revisions_refuse_a_stale_save(town):
 
 
 def test_records_of_an_older_store_get_revisions(town):
-    from districting.options import state_record
+    from districting.outputs.store import state_record
 
     store = town.settings.store
     save_option(town, make_outcome(town), "A")

@@ -15,14 +15,9 @@ import shapely
 from exports_town import make_outcome, make_town, nearest_assignment
 
 from districting import DRAFT_NOTICE
-from districting.exports import (
-    SHAPEFILE_FIELDS,
-    export_all,
-    read_export_csv,
-    school_table,
-    slug,
-    unit_table,
-)
+from districting.names import slug
+from districting.outputs.exports import SHAPEFILE_FIELDS, export_all, read_export_csv
+from districting.outputs.tables import school_table, unit_table
 from districting.study import RunSettings, outcome_from_assignment
 
 
