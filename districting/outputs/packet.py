@@ -21,7 +21,6 @@ Tables longer than a page continue on the next page.
 from __future__ import annotations
 
 import os
-import re
 import textwrap
 from collections.abc import Sequence
 from pathlib import Path
@@ -32,7 +31,6 @@ matplotlib.use("Agg")  # files only; never a window
 
 import matplotlib.patheffects as pe  # noqa: E402
 import numpy as np  # noqa: E402
-import pandas as pd  # noqa: E402
 from matplotlib.backends.backend_pdf import PdfPages  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
 from matplotlib.lines import Line2D  # noqa: E402
@@ -42,134 +40,29 @@ from .. import DRAFT_NOTICE  # noqa: E402
 from ..io import atomic_path  # noqa: E402
 from ..study import Outcome, now_iso  # noqa: E402
 from .colours import ZONE_PALETTE, zone_colours  # noqa: E402
-from .tables import changed_frame, require_plan, school_table, zones_frame  # noqa: E402
+from .packet_rows import (  # noqa: E402
+    OVER,
+    UNDER,
+    int_text,
+    pair_rows,
+    school_rows,
+    short_name,
+    status_text,
+    summary_rows,
+)
+from .tables import plan_years, require_plan, zones_frame  # noqa: E402
 
-__all__ = ["write_packet", "packet_figures", "school_rows", "pair_rows", "summary_rows",
-           "PAPER", "PNG_DPI"]
+__all__ = ["write_packet", "packet_figures", "PAPER", "PNG_DPI"]
 
 #: Landscape page sizes in inches.
 PAPER = {"letter": (11.0, 8.5), "a4": (11.69, 8.27)}
 PNG_DPI = 110
 TABLE_FONT = 7.8  # points; a table row is twice the font size high
-OVER, UNDER = "\u25b2", "\u25bc"  # up / down triangles: readable without colour
 FLAG_SHADE = "#cfcfcf"
 HEAD_SHADE = "#3b3b3b"
 STRIPE = "#f3f3f3"
 _STATUS_MARK = {"open": ("o", 7), "new": ("*", 12), "candidate": ("D", 6),
                 "closing": ("X", 8), "closed": ("X", 8)}
-
-
-# ---------------------------------------------------------------------------- table content
-def _km(metres) -> str:
-    return "" if metres is None or not np.isfinite(metres) else f"{metres / 1000:.1f}"
-
-
-def _int(x) -> str:
-    return "" if x is None or not np.isfinite(x) else f"{x:,.0f}"
-
-
-def _pct(x) -> str:
-    return "" if x is None or not np.isfinite(x) else f"{100 * x:.0f}%"
-
-
-def _util_text(r, y) -> str:
-    """Utilization in whole percent, or to 0.1% when rounding would hide a flag (100.4%)."""
-    u, flag = r[f"util_{y}"], r[f"flag_{y}"]
-    text = _pct(u)
-    if flag and np.isfinite(u):
-        shown = round(100 * u)
-        if (flag == "over" and shown <= 100 * r["max_util"]) or (
-                flag == "under" and shown >= 100 * r["min_util"]):
-            text = f"{100 * u:.1f}%"
-    return text
-
-
-def _years(outcome: Outcome) -> list[int]:
-    return sorted(int(y) for y in outcome.problem.years)
-
-
-def school_rows(outcome: Outcome) -> tuple[list[str], list[list[str]], list[list[str]]]:
-    """Header, rows and per-cell flags ('over' / 'under' / '') of the per-school table.
-
-    One row per school that is open in the plan or has students today, then a total row.
-    A year cell reads "students (utilization)" with a marker when outside the band.
-    """
-    t = school_table(outcome)
-    years = _years(outcome)
-    now_year = outcome.inputs.settings.current_year
-    keep = t["open"].to_numpy() | (t["students_now"].to_numpy() > 0) | (t["units"] > 0)
-    t = t[keep]
-    header = ["School", "Status", "Capacity", "Band", f"Now {now_year}",
-              *[str(y) for y in years], "Moved in", "Moved out", "Mean km", "Max km"]
-    rows, flags = [], []
-    for _, r in t.iterrows():
-        cells = [f"{_short_name(str(r['name']))} ({r['site_id']})", str(r["status"]),
-                 _int(r["capacity"]),
-                 f"{100 * r['min_util']:.0f}-{100 * r['max_util']:.0f}%",
-                 _int(r["students_now"])]
-        marks = [""] * len(cells)
-        for y in years:
-            flag = r[f"flag_{y}"]
-            text = f"{_int(r[f'students_{y}'])} ({_util_text(r, y)})"
-            if flag:
-                text = f"{OVER if flag == 'over' else UNDER} {text}"
-            cells.append(text)
-            marks.append(flag)
-        cells += [_int(r["moved_in"]), _int(r["moved_out"]), _km(r["mean_distance_m"]),
-                  _km(r["max_distance_m"])]
-        marks += ["", "", "", ""]
-        rows.append(cells)
-        flags.append(marks)
-    m = outcome.metrics
-    opened = t["open"].to_numpy()
-    total = ["All schools", "", _int(t.loc[opened, "capacity"].sum()), "",
-             _int(t["students_now"].sum())]
-    for y in years:
-        students = t[f"students_{y}"].sum()
-        cap = t.loc[opened, "capacity"].sum()
-        total.append(f"{_int(students)} ({_pct(students / cap if cap else np.nan)})")
-    total += [_int(t["moved_in"].sum()), _int(t["moved_out"].sum()),
-              _km(m.overall_mean_distance), _km(m.overall_max_distance)]
-    rows.append(total)
-    flags.append([""] * len(total))
-    return header, rows, flags
-
-
-def pair_rows(outcome: Outcome) -> tuple[list[str], list[list[str]], pd.DataFrame]:
-    """Header and rows of the from -> to table (most students first), and the areas."""
-    areas = changed_frame(outcome)
-    areas = areas.sort_values(["students", "from_site", "to_site"],
-                              ascending=[False, True, True]).reset_index(drop=True)
-    names = dict(zip(outcome.site_ids, outcome.sites["name"].astype(str), strict=True))
-    header = ["#", "From (today)", "To (proposed)", "Units", "Students"]
-    rows = [[str(k + 1), f"{_short_name(names.get(r.from_site, ''))} ({r.from_site})",
-             f"{_short_name(names.get(r.to_site, ''))} ({r.to_site})", _int(r.n_units),
-             _int(r.students)] for k, r in enumerate(areas.itertuples())]
-    if rows:
-        rows.append(["", "All changes", "", _int(areas["n_units"].sum()),
-                     _int(areas["students"].sum())])
-    return header, rows, areas
-
-
-def _status_text(outcome: Outcome) -> str:
-    plan = outcome.plan
-    gap = "" if not np.isfinite(plan.gap) else f", gap {100 * plan.gap:.3g}%"
-    return f"{plan.status}{gap}"
-
-
-def summary_rows(outcomes: Sequence[Outcome], pages: Sequence[str] | None = None
-                 ) -> tuple[list[str], list[list[str]]]:
-    """Header and one row per option of the comparison page (``pages``: where each is)."""
-    header = ["Option", "Level", "Plan year", "Students moved", "Units moved",
-              "Mean km", "Max km", "Schools out of band", "Status", "Pages"]
-    rows = []
-    for k, o in enumerate(outcomes):
-        m = o.metrics
-        rows.append([o.name or "(unsaved)", o.level, str(o.settings.plan_year),
-                     _int(m.students_moved), str(m.units_moved), _km(m.overall_mean_distance),
-                     _km(m.overall_max_distance), str(int(np.count_nonzero(m.out_of_band))),
-                     _status_text(o), pages[k] if pages else ""])
-    return header, rows
 
 
 # ---------------------------------------------------------------------------- page furniture
@@ -250,10 +143,6 @@ def _north_arrow(ax, extent) -> None:
             weight="bold", zorder=22, path_effects=HALO)
 
 
-def _short_name(name: str) -> str:
-    return re.sub(r"\s+(Elementary|Middle|High|School)(\s+School)?$", "", name).strip()
-
-
 # ---------------------------------------------------------------------------- maps
 def _extent(outcome: Outcome) -> tuple[float, float, float, float]:
     x0, y0, x1, y1 = outcome.inputs.units.total_bounds
@@ -320,7 +209,7 @@ def _draw_schools(ax, outcome: Outcome, when: str) -> set[str]:
                 markeredgecolor="black", markeredgewidth=1.2, zorder=10)
     for (x, y), name, st in zip(xy, sites["name"].astype(str), status, strict=True):
         if st:
-            ax.annotate(_short_name(name), (x, y), xytext=(5, 4), textcoords="offset points",
+            ax.annotate(short_name(name), (x, y), xytext=(5, 4), textcoords="offset points",
                         fontsize=6.8, zorder=11, path_effects=HALO)
     return drawn
 
@@ -371,7 +260,7 @@ def _map_page(outcome: Outcome, d: dict, paper: str, stamp: str, page: int) -> F
     s = outcome.inputs.settings
     top = _frame(fig, _title(outcome, f"{outcome.level} attendance zones"),
                  f"{s.name}.  Today's zones ({s.current_year}) beside the proposed zones "
-                 f"(from {outcome.settings.plan_year}); {_status_text(outcome)}.",
+                 f"(from {outcome.settings.plan_year}); {status_text(outcome)}.",
                  _footer(outcome, stamp), page, full_notice=True)
     extent, areas = d["extent"], d["areas"]
     barriers = outcome.inputs.barriers
@@ -391,7 +280,7 @@ def _map_page(outcome: Outcome, d: dict, paper: str, stamp: str, page: int) -> F
         ax.set_title(label, fontsize=11, weight="bold", loc="left")
         map_bottom = ax.get_position().y0
     m = outcome.metrics
-    hatch = (f"Planning units whose school changes ({_int(m.students_moved)} students, "
+    hatch = (f"Planning units whose school changes ({int_text(m.students_moved)} students, "
              f"{m.units_moved} units)") if len(areas) else None
     fig.legend(handles=_legend_handles(statuses, hatch, bool(len(barriers))),
                loc="upper center", bbox_to_anchor=(0.5, map_bottom - 0.015), ncol=3, fontsize=8,
@@ -455,7 +344,7 @@ def _more(k: int, n: int) -> str:
 
 def _table_pages(outcome: Outcome, paper: str, stamp: str, page: int) -> list[Figure]:
     header, rows, flags = school_rows(outcome)
-    years = _years(outcome)
+    years = plan_years(outcome)
     p = outcome.problem
     head = ["School", "Status", "Capacity", "Band", *[h.replace(" ", "\n") for h in header[4:]]]
     head[-4:] = ["Moved\nin", "Moved\nout", "Mean\nkm", "Max\nkm"]
@@ -497,7 +386,7 @@ def _moves_pages(outcome: Outcome, d: dict, paper: str, stamp: str, page: int) -
         fig = _page(paper)
         top = _frame(fig, _title(outcome, f"where students move{_more(k, len(chunks))}"),
                      f"{outcome.inputs.settings.name}, {outcome.level}.  "
-                     f"{_int(m.students_moved)} students in {m.units_moved} planning units "
+                     f"{int_text(m.students_moved)} students in {m.units_moved} planning units "
                      f"change school in {outcome.settings.plan_year}.",
                      _footer(outcome, stamp), page + k, full_notice=False)
         tax = fig.add_axes([0.03, 0.05, 0.40, top - 0.05])

@@ -14,16 +14,8 @@ from PIL import Image
 
 from districting import DRAFT_NOTICE
 from districting.outputs.colours import zone_edges
-from districting.outputs.packet import (
-    OVER,
-    PAPER,
-    PNG_DPI,
-    packet_figures,
-    pair_rows,
-    school_rows,
-    summary_rows,
-    write_packet,
-)
+from districting.outputs.packet import PAPER, PNG_DPI, packet_figures, write_packet
+from districting.outputs.packet_rows import OVER, pair_rows, school_rows, summary_rows
 from districting.study import RunSettings, outcome_from_assignment
 
 

@@ -17,6 +17,7 @@ from pathlib import Path
 import numpy as np
 import pyogrio
 
+from ... import DRAFT_NOTICE
 from ...intake import Inputs
 from ...names import BadName, check_name, normalise
 from ...plan import PlanMetrics
@@ -173,8 +174,6 @@ def save_option(inputs: Inputs, outcome: Outcome, name: str, overwrite: bool = F
          "cuts_added": r.cuts_added, "fragments": r.fragments, "seconds": r.seconds}
         for r in plan.history
     ]
-    from ... import DRAFT_NOTICE
-
     row = {
         "name": name,
         "level": outcome.level,
