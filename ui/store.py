@@ -555,7 +555,7 @@ class Store:
         def override(values: dict, column: str, default: float | None = None) -> list:
             base = sites[column].to_numpy()
             if default is not None:
-                base = np.where(np.isnan(base.astype(float)), default, base.astype(float))
+                base = rules.site_band(base, default)
             return [values.get(s, v) for s, v in zip(ids, base, strict=True)]
 
         df["status"] = override(full.status, "status")

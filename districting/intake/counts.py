@@ -63,12 +63,12 @@ def read_counts(st: Reading) -> None:
             yrs = ", ".join(str(y) for y, _ in absent)
             names = ", ".join(c for _, c in absent)
             st.report.error(file, f"column{'s' if len(absent) > 1 else ''} {names}",
-                         f"no {level} student counts for year{'s' if len(absent) > 1 else ''}"
-                         f" {yrs}: the [units] counts template {template!r} names column"
-                         f"{'s' if len(absent) > 1 else ''} {names}, which the data lack",
-                         "add the column(s), correct the counts template, or remove the "
-                         f"year from [project] years (columns: {columns_text(table.columns)})",
-                         [c for _, c in absent])
+                            f"no {level} student counts for year{'s' if len(absent) > 1 else ''}"
+                            f" {yrs}: the [units] counts template {template!r} names column"
+                            f"{'s' if len(absent) > 1 else ''} {names}, which the data lack",
+                            "add the column(s), correct the counts template, or remove the "
+                            f"year from [project] years (columns: {columns_text(table.columns)})",
+                            [c for _, c in absent])
         st.counts[level] = arr
 
 
@@ -78,8 +78,8 @@ def _join_csv(st: Reading, table: pd.DataFrame, src: Source, file: Path):
     units = st.unit_ids if st.unit_ids is not None else None
     if id_col is None:
         st.report.error(file, "[counts] id", f"column {src.columns['id']!r} not found "
-                     f"(columns: {columns_text(table.columns)})",
-                     "set [counts] id to the column holding the unit ids")
+                        f"(columns: {columns_text(table.columns)})",
+                        "set [counts] id to the column holding the unit ids")
         empty = np.zeros(0, dtype=object)
         return table.iloc[:0], empty, np.zeros(0, bool)
     ids, missing = text_values(table[id_col])
@@ -95,13 +95,13 @@ def _join_csv(st: Reading, table: pd.DataFrame, src: Source, file: Path):
     extra = ~index.isin(units)
     if extra.any():
         st.report.warning(file, where_units(list(index[extra])),
-                       "rows for units that are not in the units layer are ignored",
-                       "correct the unit ids, or add the units", list(index[extra]))
+                          "rows for units that are not in the units layer are ignored",
+                          "correct the unit ids, or add the units", list(index[extra]))
     if (~present).any():
         lacking = st.labels[~present]
         st.report.error(file, where_units(lacking), "the counts CSV has no row for the unit",
-                     f"add a row per unit (id in column {id_col}), with 0 where there "
-                     "are no students", lacking)
+                        f"add a row per unit (id in column {id_col}), with 0 where there "
+                        "are no students", lacking)
     rows = table[first].reset_index(drop=True)
     joined = rows.iloc[np.where(present, pos, 0)].reset_index(drop=True)
     return joined, st.labels, present

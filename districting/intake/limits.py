@@ -6,10 +6,11 @@ import numpy as np
 import pandas as pd
 
 from .. import rules
-from .cells import columns_text, find_column, number_values, text_values
+from .cells import number_values, text_values
 from .reading import (
     Reading,
     a_word,
+    csv_columns,
     positions,
     source_table,
 )
@@ -41,35 +42,35 @@ def check_locks(st: Reading) -> None:
             where = f"[[{key}]] entry {k} ({lk.level}, {lk.unit}, {lk.site})"
             if lk.level not in st.settings.levels:
                 st.report.error(file, where, f"level {lk.level!r} is not one of the project's "
-                             f"levels ({', '.join(st.settings.levels)})", "correct the level")
+                                f"levels ({', '.join(st.settings.levels)})", "correct the level")
                 continue
             if positions(st.unit_ids, [lk.unit])[0] < 0:
                 st.report.error(file, where, f"unit {lk.unit!r} is not in the units layer",
-                             _id_fix("unit", lk.unit, st.unit_ids), [lk.unit])
+                                _id_fix("unit", lk.unit, st.unit_ids), [lk.unit])
             j = positions(site_ids, [lk.site])[0]
             if j < 0:
                 st.report.error(file, where, f"site {lk.site!r} is not in the sites layer",
-                             _id_fix("site", lk.site, site_ids), [lk.site])
+                                _id_fix("site", lk.site, site_ids), [lk.site])
                 continue
             if levels[j] != lk.level:
                 st.report.error(file, where, f"site {lk.site} is {a_word(levels[j])} site, not "
-                             f"{lk.level}", f"name {a_word(lk.level)} site", [lk.site])
+                                f"{lk.level}", f"name {a_word(lk.level)} site", [lk.site])
                 continue
             if key == "locks":
                 before = seen.get((lk.level, lk.unit))
                 if before is not None and before != lk.site:
                     st.report.error(file, where, f"unit {lk.unit} is locked to both {before} "
-                                 f"and {lk.site} for {lk.level}", "keep one lock",
-                                 [lk.unit])
+                                    f"and {lk.site} for {lk.level}", "keep one lock",
+                                    [lk.unit])
                 seen[(lk.level, lk.unit)] = lk.site
                 if rules.is_closed(status[j]):
                     st.report.warning(file, where, f"the unit is locked to site {lk.site}, "
-                                   f"which is {status[j]}", "lock it to a site that stays "
-                                   "open, or change the site's status", [lk.unit])
+                                      f"which is {status[j]}", "lock it to a site that stays "
+                                      "open, or change the site's status", [lk.unit])
             elif seen.get((lk.level, lk.unit)) == lk.site:
                 st.report.error(file, where, f"unit {lk.unit} is both locked to and forbidden "
-                             f"from site {lk.site}", "remove the lock or the forbid",
-                             [lk.unit])
+                                f"from site {lk.site}", "remove the lock or the forbid",
+                                [lk.unit])
 
 
 def read_travel(st: Reading) -> None:
@@ -79,11 +80,8 @@ def read_travel(st: Reading) -> None:
     table = source_table(st, path, "travel matrix")
     if table is None or st.sites is None or st.unit_ids is None:
         return
-    cols = {c: find_column(table.columns, c) for c in ("unit_id", "site_id", "cost")}
-    if None in cols.values():
-        st.report.error(path, "", "the travel matrix needs columns unit_id, site_id and cost "
-                     f"(columns: {columns_text(table.columns)})",
-                     "name the header row unit_id,site_id,cost")
+    cols = csv_columns(st, path, table, ("unit_id", "site_id", "cost"), "the travel matrix")
+    if cols is None:
         return
     line = np.arange(len(table)) + 2
     i = positions(st.unit_ids, text_values(table[cols["unit_id"]])[0])
@@ -104,7 +102,7 @@ def read_travel(st: Reading) -> None:
     if dup.any():
         rows = [f"row {k}" for k in line[ok][dup]]
         st.report.error(path, ids_text(rows), "the same unit and site appear on several rows",
-                     "keep one row per unit and site", rows)
+                        "keep one row per unit and site", rows)
     travel = np.full((len(st.unit_ids), len(st.sites)), np.inf)
     travel[i[ok], j[ok]] = cost[ok]
     for level in st.settings.levels:
@@ -114,9 +112,9 @@ def read_travel(st: Reading) -> None:
         none = ~np.isfinite(travel[:, cols_l]).any(axis=1)
         if none.any():
             st.report.error(path, where_units(st.labels[none]),
-                         f"the travel matrix gives the unit no cost to any {level} site, "
-                         "so it cannot be assigned", "add rows for the unit (pairs absent "
-                         "from the matrix are not allowed)", st.labels[none])
+                            f"the travel matrix gives the unit no cost to any {level} site, "
+                            "so it cannot be assigned", "add rows for the unit (pairs absent "
+                            "from the matrix are not allowed)", st.labels[none])
     st.travel = travel
 
 
@@ -139,15 +137,15 @@ def check_capacity(st: Reading) -> None:
         if p is not None:
             if not candidate.any():
                 st.report.warning(s.path, "[solve] open_count", f"{level} has no candidate "
-                               "sites; open_count is ignored", "mark the sites the solver "
-                               "may open as candidate, or remove open_count")
+                                  "sites; open_count is ignored", "mark the sites the solver "
+                                  "may open as candidate, or remove open_count")
                 p = None
             elif not forced.sum() <= p <= forced.sum() + candidate.sum():
                 st.report.error(s.path, "[solve] open_count",
-                             f"open_count for {level} is {p}, but {int(forced.sum())} sites "
-                             f"are open or new and {int(candidate.sum())} are candidates",
-                             f"choose a number from {int(forced.sum())} to "
-                             f"{int(forced.sum() + candidate.sum())}")
+                                f"open_count for {level} is {p}, but {int(forced.sum())} sites "
+                                f"are open or new and {int(candidate.sum())} are candidates",
+                                f"choose a number from {int(forced.sum())} to "
+                                f"{int(forced.sum() + candidate.sum())}")
                 continue
         if (level, None) in st.doubtful:
             continue
@@ -160,13 +158,13 @@ def check_capacity(st: Reading) -> None:
                 continue  # today's figures are facts, not a plan's constraint
             if students[t] > room + 1e-9:
                 st.report.error(file, f"{level} {year}",
-                             f"{students[t]:,.0f} {level} students in {year} but the "
-                             f"{level} sites that can take students hold only {room:,.0f} "
-                             f"(capacity x max utilization; sites: {names})",
-                             "add capacity, open a site, or raise max_utilization")
+                                f"{students[t]:,.0f} {level} students in {year} but the "
+                                f"{level} sites that can take students hold only {room:,.0f} "
+                                f"(capacity x max utilization; sites: {names})",
+                                "add capacity, open a site, or raise max_utilization")
             elif band_ok and students[t] < floor - 1e-9:
                 st.report.error(file, f"{level} {year}",
-                             f"{students[t]:,.0f} {level} students in {year} cannot fill "
-                             f"every open {level} site to its minimum utilization "
-                             f"({floor:,.0f} needed)",
-                             "lower min_utilization, or let a site close")
+                                f"{students[t]:,.0f} {level} students in {year} cannot fill "
+                                f"every open {level} site to its minimum utilization "
+                                f"({floor:,.0f} needed)",
+                                "lower min_utilization, or let a site close")

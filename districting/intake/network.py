@@ -8,12 +8,13 @@ import shapely
 
 from .. import rules
 from .adjacency import Adjacency
-from .cells import columns_text, find_column, text_values
+from .cells import text_values
 from .checks import (
     check_graph,
 )
 from .reading import (
     Reading,
+    csv_columns,
     in_degrees,
     source_layer,
     source_table,
@@ -40,15 +41,15 @@ def read_lines(st: Reading) -> None:
             effect = ("no adjacency is cut" if key == "barriers"
                       else "no pair is kept across a barrier")
             st.report.warning(file, f"[{key}]", f"the {key} layer has no features, so "
-                           f"{effect}", f"point [{key}] at the layer that holds them, or "
-                           f"remove the [{key}] table if there are none")
+                              f"{effect}", f"point [{key}] at the layer that holds them, or "
+                              f"remove the [{key}] table if there are none")
         if key == "barriers":
             points = np.isin(shapely.get_type_id(geoms.to_numpy()), [0, 4])
             if points.any():
                 st.report.error(file, f"features {ids_text(list(np.flatnonzero(points) + 1))}",
-                             "barriers must be lines (or polygons); a point cannot cut "
-                             "adjacency", "draw the river, road or rail as a line, or put "
-                             "points in [bridges]")
+                                "barriers must be lines (or polygons); a point cannot cut "
+                                "adjacency", "draw the river, road or rail as a line, or put "
+                                "points in [bridges]")
                 geoms = geoms[~points].reset_index(drop=True)
         setattr(st, key, geoms)
 
@@ -60,11 +61,8 @@ def read_links(st: Reading) -> None:
     table = source_table(st, path, "links")
     if table is None:
         return
-    cols = {c: find_column(table.columns, c) for c in ("unit_a", "unit_b", "action")}
-    if None in cols.values():
-        st.report.error(path, "", "the links CSV needs columns unit_a, unit_b and action "
-                     f"(columns: {columns_text(table.columns)})",
-                     "name the header row unit_a,unit_b,action")
+    cols = csv_columns(st, path, table, ("unit_a", "unit_b", "action"), "the links CSV")
+    if cols is None:
         return
     a = text_values(table[cols["unit_a"]])[0]
     b = text_values(table[cols["unit_b"]])[0]
@@ -102,7 +100,7 @@ def build_adjacency(st: Reading) -> None:
         )
     except ValueError as err:
         st.report.error(file, "adjacency", f"the adjacency graph cannot be built ({err})",
-                     "fix the units, barriers or links named")
+                        "fix the units, barriers or links named")
         return
     serving, site_labels = {}, {}
     if st.sites is not None:

@@ -26,7 +26,7 @@ from .records import Settings
 from .report import Report
 
 __all__ = ["Reading", "positions", "source_layer", "source_table", "source_columns",
-           "to_project_crs", "in_degrees", "a_word", "crs_name"]
+           "to_project_crs", "in_degrees", "a_word", "crs_name", "csv_columns"]
 
 
 def positions(keys: Sequence, wanted) -> np.ndarray:
@@ -89,7 +89,7 @@ def source_layer(st: Reading, key: str) -> gpd.GeoDataFrame | None:
         except ReadError as err:
             where = f"layer {src.layer}" if src.layer and err.kind == "layer" else ""
             st.report.error(err.path, where, f"[{key}] source: {err.problem}", err.fix,
-                         err.layers)
+                            err.layers)
             if err.kind in ("missing", "unreadable"):
                 st.failed.add(src.path)
     st.layers[cache] = frame
@@ -125,9 +125,9 @@ def source_columns(st: Reading, key: str, frame, roles: Sequence[str], file: Pat
             found[role] = col
     if missing:
         st.report.error(file, f"[{key}] columns", f"column{'s' if len(missing) > 1 else ''} "
-                     f"{', '.join(missing)} not found (columns: {columns_text(frame.columns)})",
-                     f"rename the column in the data, or set the [{key}] key to one of the "
-                     "columns listed")
+                        f"{', '.join(missing)} not found (columns: {columns_text(frame.columns)})",
+                        f"rename the column in the data, or set the [{key}] key to one of the "
+                        "columns listed")
         return None
     return found
 
@@ -141,17 +141,17 @@ def to_project_crs(st: Reading, frame: gpd.GeoDataFrame, key: str, file: Path):
     """
     if frame.crs is None:
         st.report.error(file, f"[{key}]", f"the {key} layer has no coordinate reference "
-                     "system (CRS)", "assign the layer's CRS in a GIS (e.g. 'Assign "
-                     "projection') and export it again")
+                        "system (CRS)", "assign the layer's CRS in a GIS (e.g. 'Assign "
+                        "projection') and export it again")
         return frame
     if st.crs is None or frame.crs == st.crs:
         return frame
     if st.source_crs is not None and frame.crs != st.source_crs:
         st.report.warning(file, f"[{key}]", f"the {key} layer is in {crs_name(frame.crs)} "
-                       f"but the units are in {crs_name(st.source_crs)}; the {key} are "
-                       "reprojected to the units' CRS",
-                       "nothing to do if both CRSs are right; export the layer in the "
-                       "units' CRS to silence this")
+                          f"but the units are in {crs_name(st.source_crs)}; the {key} are "
+                          "reprojected to the units' CRS",
+                          "nothing to do if both CRSs are right; export the layer in the "
+                          "units' CRS to silence this")
     return frame.to_crs(st.crs)
 
 
@@ -171,9 +171,21 @@ def in_degrees(st: Reading, frame, key: str, file) -> bool:
         return False
     x0, y0, x1, y1 = geoms.total_bounds
     st.report.error(file, f"[{key}]", f"the {key} coordinates (x {x0:.4f} to {x1:.4f}, y "
-                 f"{y0:.4f} to {y1:.4f}) look like longitude/latitude degrees, but the "
-                 f"layer says its CRS is {crs_name(crs)}, and the units' coordinates "
-                 "are not degrees",
-                 f"assign EPSG:4326 (WGS 84) to the {key} layer with 'Assign projection' "
-                 "or 'Set CRS' in a GIS, not 'Reproject', and export again")
+                    f"{y0:.4f} to {y1:.4f}) look like longitude/latitude degrees, but the "
+                    f"layer says its CRS is {crs_name(crs)}, and the units' coordinates "
+                    "are not degrees",
+                    f"assign EPSG:4326 (WGS 84) to the {key} layer with 'Assign projection' "
+                    "or 'Set CRS' in a GIS, not 'Reproject', and export again")
     return True
+
+
+def csv_columns(st: Reading, path: Path, table: pd.DataFrame, names: tuple[str, ...],
+                what: str) -> dict[str, str] | None:
+    """The columns ``names`` of a CSV (found ignoring case); None after one error naming all."""
+    cols = {c: find_column(table.columns, c) for c in names}
+    if None in cols.values():
+        st.report.error(path, "", f"{what} needs columns {', '.join(names[:-1])} and "
+                        f"{names[-1]} (columns: {columns_text(table.columns)})",
+                        f"name the header row {','.join(names)}")
+        return None
+    return cols

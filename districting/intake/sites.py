@@ -41,8 +41,8 @@ def _read_sites(st: Reading) -> None:
         return
     if len(frame) == 0:
         st.report.error(file, "[sites]", "the sites layer has no features",
-                     "point [sites] at the layer of school sites (one point per school), "
-                     "or add the schools to it")
+                        "point [sites] at the layer of school sites (one point per school), "
+                        "or add the schools to it")
         return
     optional = [r for r in ("name", "min_util", "max_util") if not src.columns.get(r)]
     cols = source_columns(st, "sites", frame, ["id", "name", "level", "capacity", "status",
@@ -62,21 +62,21 @@ def _read_sites(st: Reading) -> None:
     level = np.char.lower(level.astype(str)).astype(object)
     if no_level.any():
         st.report.error(file, where_units(labels[no_level], "site"), "the site has no level",
-                     f"enter one of {', '.join(s.levels)} in {cols['level']}",
-                     labels[no_level])
+                        f"enter one of {', '.join(s.levels)} in {cols['level']}",
+                        labels[no_level])
     other = ~no_level & ~np.isin(level, s.levels)
     if other.any():
         st.report.warning(file, where_units(labels[other], "site"),
-                       f"level {cell_text(level, other)} is not one of the project's "
-                       f"levels ({', '.join(s.levels)}); the site is left out",
-                       "correct the level, or add it to [project] levels", labels[other])
+                          f"level {cell_text(level, other)} is not one of the project's "
+                          f"levels ({', '.join(s.levels)}); the site is left out",
+                          "correct the level, or add it to [project] levels", labels[other])
     status, no_status = text_values(frame[cols["status"]])
     status = np.char.lower(status.astype(str)).astype(object)
     unknown = ~np.isin(status, rules.SITE_STATUSES)
     if unknown.any():
         st.report.error(file, f"column {cols['status']}, {where_units(labels[unknown], 'site')}",
-                     f"unknown status {cell_text(frame[cols['status']], unknown)}",
-                     f"use one of {', '.join(rules.SITE_STATUSES)}", labels[unknown])
+                        f"unknown status {cell_text(frame[cols['status']], unknown)}",
+                        f"use one of {', '.join(rules.SITE_STATUSES)}", labels[unknown])
     serving = rules.takes_students(status)
     capacity = _capacity(st, frame[cols["capacity"]], cols["capacity"], labels, serving,
                               file)
@@ -91,9 +91,9 @@ def _read_sites(st: Reading) -> None:
     flipped = (lo > hi) & (own | (s.solve.min_utilization <= s.solve.max_utilization))
     if flipped.any():
         st.report.error(file, where_units(labels[flipped], "site"),
-                     "the site's minimum utilization is above its maximum",
-                     "lower min_util or raise max_util (blank = the [solve] default)",
-                     labels[flipped])
+                        "the site's minimum utilization is above its maximum",
+                        "lower min_util or raise max_util (blank = the [solve] default)",
+                        labels[flipped])
     points = _site_points(st, frame, labels, file)
     keep = ~other
     st.sites = gpd.GeoDataFrame(
@@ -119,8 +119,8 @@ def _capacity(st: Reading, values, column, labels, serving, file) -> np.ndarray:
     ):
         if mask.any():
             st.report.error(file, f"column {column}, {where_units(labels[mask], 'site')}",
-                         what, f"enter the site's capacity (students, above 0) in {column}"
-                         ", or mark the site closed", labels[mask])
+                            what, f"enter the site's capacity (students, above 0) in {column}"
+                            ", or mark the site closed", labels[mask])
     return np.where(np.isfinite(num) & (num > 0), num, 0.0)
 
 
@@ -129,10 +129,10 @@ def _share(st: Reading, values, column, labels, file) -> np.ndarray:
     wrong = bad | (np.nan_to_num(num) < 0) | (np.nan_to_num(num) > MAX_SHARE)
     if wrong.any():
         st.report.error(file, f"column {column}, {where_units(labels[wrong], 'site')}",
-                     f"utilization must be a share of capacity from 0 to {MAX_SHARE:g} "
-                     f"({cell_text(values, wrong)})",
-                     f"enter e.g. 0.9 for 90% in {column}, or leave it blank for the "
-                     "[solve] default", labels[wrong])
+                        f"utilization must be a share of capacity from 0 to {MAX_SHARE:g} "
+                        f"({cell_text(values, wrong)})",
+                        f"enter e.g. 0.9 for 90% in {column}, or leave it blank for the "
+                        "[solve] default", labels[wrong])
     return np.where(wrong, np.nan, num)
 
 
@@ -141,13 +141,13 @@ def _site_points(st: Reading, frame, labels, file) -> np.ndarray:
     empty = shapely.is_missing(geoms) | shapely.is_empty(geoms)
     if empty.any():
         st.report.error(file, where_units(labels[empty], "site"), "the site has no location",
-                     "place the site's point at the school", labels[empty])
+                        "place the site's point at the school", labels[empty])
     other = ~empty & (shapely.get_type_id(geoms) != 0)
     if other.any():
         st.report.warning(file, where_units(labels[other], "site"),
-                       "the site is not a point; a point inside its shape is used",
-                       "store sites as points to choose the location yourself",
-                       labels[other])
+                          "the site is not a point; a point inside its shape is used",
+                          "store sites as points to choose the location yourself",
+                          labels[other])
         geoms = geoms.copy()
         geoms[other] = shapely.point_on_surface(geoms[other])
     return geoms
@@ -165,10 +165,10 @@ def _site_units(st: Reading, points, labels, file) -> np.ndarray:
         far = shapely.STRtree(unit_geoms).query_nearest(points[outside], return_distance=True)
         dist = far[1]
         st.report.error(file, where_units(labels[outside], "site"),
-                     f"the site lies outside every planning unit (by "
-                     f"{ids_text([f'{d:,.0f} m' for d in dist], 4)})",
-                     "move the site's point into the unit it stands in, or add that unit "
-                     "to the units layer", labels[outside])
+                        f"the site lies outside every planning unit (by "
+                        f"{ids_text([f'{d:,.0f} m' for d in dist], 4)})",
+                        "move the site's point into the unit it stands in, or add that unit "
+                        "to the units layer", labels[outside])
     return index
 
 
@@ -181,7 +181,7 @@ def _shared_units(st: Reading, file) -> None:
         labels = dup["site_id"].tolist()
         units = st.labels[dup["unit_index"].unique()]
         st.report.error(file, where_units(labels, "site"),
-                     f"these sites of one level stand in the same planning unit "
-                     f"({ids_text(units)}); each open site's zone must hold its own unit",
-                     "split the unit so each site has its own, or mark one site closed",
-                     labels)
+                        f"these sites of one level stand in the same planning unit "
+                        f"({ids_text(units)}); each open site's zone must hold its own unit",
+                        "split the unit so each site has its own, or mark one site closed",
+                        labels)

@@ -49,7 +49,7 @@ def read_units(st: Reading) -> None:
     st.labels = rows
     if n == 0:
         st.report.error(file, "[units]", "the units layer has no features",
-                     "point [units] at the planning-unit polygons")
+                        "point [units] at the planning-unit polygons")
         return
     cols = source_columns(st, "units", frame, ["id"], file) or {}
     ids_ok = False
@@ -65,8 +65,8 @@ def read_units(st: Reading) -> None:
     source_crs = st.source_crs = frame.crs
     if source_crs is None:
         st.report.error(file, "[units]", "the units layer has no coordinate reference system "
-                     "(CRS)", "assign the layer's CRS in a GIS (e.g. 'Assign projection') "
-                     "and export it again")
+                        "(CRS)", "assign the layer's CRS in a GIS (e.g. 'Assign projection') "
+                        "and export it again")
     elif _degrees_as_projected(st, frame, file, geoms_ok):
         geoms_ok = False
     else:
@@ -101,12 +101,12 @@ def _degrees_as_projected(st: Reading, frame, file, geoms_ok) -> bool:
     x0, y0, x1, y1 = frame.total_bounds
     unit = crs.axis_info[0].unit_name if crs.axis_info else "unit"
     st.report.error(file, "[units]", f"the layer says its CRS is {crs_name(crs)}, in "
-                 f"{unit}s, but its coordinates (x {x0:.4f} to {x1:.4f}, y {y0:.4f} to "
-                 f"{y1:.4f}) look like longitude/latitude degrees: the units would measure "
-                 f"{area:.2g} square {unit}s each and travel would be near 0 km",
-                 "assign the CRS the coordinates are really in (for degrees: EPSG:4326, "
-                 "WGS 84) with 'Assign projection' or 'Set CRS' in a GIS, not 'Reproject', "
-                 "and export again; the tool projects degrees to metres itself")
+                    f"{unit}s, but its coordinates (x {x0:.4f} to {x1:.4f}, y {y0:.4f} to "
+                    f"{y1:.4f}) look like longitude/latitude degrees: the units would measure "
+                    f"{area:.2g} square {unit}s each and travel would be near 0 km",
+                    "assign the CRS the coordinates are really in (for degrees: EPSG:4326, "
+                    "WGS 84) with 'Assign projection' or 'Set CRS' in a GIS, not 'Reproject', "
+                    "and export again; the tool projects degrees to metres itself")
     return True
 
 
@@ -116,9 +116,9 @@ def _project_units(st: Reading, frame, file, ok):
         x0, y0, x1, y1 = frame.total_bounds
         if not (-180 <= x0 <= x1 <= 180 and -90 <= y0 <= y1 <= 90):
             st.report.error(file, "[units]", f"the layer says its CRS is {crs.to_string()} "
-                         f"(longitude/latitude) but its coordinates ({x0:.0f}, {y0:.0f}) "
-                         "are not degrees", "assign the CRS the coordinates are really in, "
-                         "then export again")
+                            f"(longitude/latitude) but its coordinates ({x0:.0f}, {y0:.0f}) "
+                            "are not degrees", "assign the CRS the coordinates are really in, "
+                            "then export again")
             return frame, False
     if _metric(crs):
         st.crs = crs
@@ -127,15 +127,15 @@ def _project_units(st: Reading, frame, file, ok):
         target = _utm_for(frame.geometry)
     except Exception as err:  # pyproj finds no UTM zone (bad bounds)
         st.report.error(file, "[units]", f"no local projection found for the data ({err})",
-                     "reproject the layers to a projected CRS in metres")
+                        "reproject the layers to a projected CRS in metres")
         return frame, False
     kind = "geographic (longitude/latitude)" if crs.is_geographic else "not in metres"
     st.report.warning(file, "[units]",
-                   f"the CRS {crs.to_string()} ({crs.name}) is {kind}; the project is "
-                   f"reprojected to {target.to_string()} ({target.name}), the UTM zone of "
-                   "the data's centre, so that distances and areas are in metres",
-                   "to use another projection, reproject the layers to a projected CRS in "
-                   "metres before loading")
+                      f"the CRS {crs.to_string()} ({crs.name}) is {kind}; the project is "
+                      f"reprojected to {target.to_string()} ({target.name}), the UTM zone of "
+                      "the data's centre, so that distances and areas are in metres",
+                      "to use another projection, reproject the layers to a projected CRS in "
+                      "metres before loading")
     st.crs = target
     return frame.to_crs(target), ok
 
@@ -157,9 +157,9 @@ def _unit_points(st: Reading, frame, source_crs, file, usable) -> np.ndarray:
         wrong = missing | bad
         if wrong.any():
             st.report.error(file, f"column {cols[role]}, {where_units(st.labels[wrong])}",
-                         "point coordinate is missing or not a number",
-                         f"enter the coordinate in {cols[role]}, or leave point_x and "
-                         "point_y empty in [units] to use centroids", st.labels[wrong])
+                            "point coordinate is missing or not a number",
+                            f"enter the coordinate in {cols[role]}, or leave point_x and "
+                            "point_y empty in [units] to use centroids", st.labels[wrong])
         xy.append(num)
     pts = gpd.GeoSeries(gpd.points_from_xy(*xy), crs=source_crs)
     if source_crs is not None and st.crs is not None and source_crs != st.crs:
@@ -170,7 +170,7 @@ def _unit_points(st: Reading, frame, source_crs, file, usable) -> np.ndarray:
     outside[good] = ~shapely.covers(frame.geometry.to_numpy()[good], pts[good])
     if outside.any():
         st.report.warning(file, where_units(st.labels[outside]),
-                       "the population-weighted point lies outside its unit",
-                       "check point_x / point_y (and that they share the layer's CRS)",
-                       st.labels[outside])
+                          "the population-weighted point lies outside its unit",
+                          "check point_x / point_y (and that they share the layer's CRS)",
+                          st.labels[outside])
     return np.where(good, pts, cen)

@@ -49,12 +49,12 @@ def read_zones(st: Reading) -> None:
         found[role] = col
     if lacking:
         st.report.error(file, "[zones] columns", f"column{'s' if len(lacking) > 1 else ''} "
-                     f"{', '.join(lacking)} not found (columns: {columns_text(frame.columns)})",
-                     "rename the column in the data, or correct [zones] id / columns")
+                        f"{', '.join(lacking)} not found (columns: {columns_text(frame.columns)})",
+                        "rename the column in the data, or correct [zones] id / columns")
     for level in [lv for lv in s.levels if lv not in src.level_columns]:
         st.report.warning(file, "[zones] columns", f"today's {level} zones are not given; "
-                       f"students moved and the stability weight do not apply to {level}",
-                       f"add {level} = \"<column>\" to [zones] columns")
+                          f"students moved and the stability weight do not apply to {level}",
+                          f"add {level} = \"<column>\" to [zones] columns")
     if found["id"] is None or st.unit_ids is None:
         return
     if frame is st.unit_frame:
@@ -69,8 +69,8 @@ def read_zones(st: Reading) -> None:
         extra = ~index.isin(st.unit_ids)
         if extra.any():
             st.report.warning(file, where_units(list(index[extra])), "zone rows for units that "
-                           "are not in the units layer are ignored",
-                           "correct the unit ids", list(index[extra]))
+                              "are not in the units layer are ignored",
+                              "correct the unit ids", list(index[extra]))
     site_ids = [] if st.sites is None else st.sites["site_id"].tolist()
     for level, col in src.level_columns.items():
         if col is None or found.get(level) is None:
@@ -89,27 +89,27 @@ def _zone_column(st: Reading, cells, level, col, site_ids, file) -> np.ndarray:
         return index
     if unknown.any():
         st.report.error(file, f"column {col}, {where_units(st.labels[unknown])}",
-                     f"today's {level} zone names site {cell_text(cells, unknown)}, which "
-                     "is not in the sites layer",
-                     f"correct the site id in {col}, or add the site", st.labels[unknown])
+                        f"today's {level} zone names site {cell_text(cells, unknown)}, which "
+                        "is not in the sites layer",
+                        f"correct the site id in {col}, or add the site", st.labels[unknown])
     known = index >= 0
     site_level = np.where(known, st.sites["level"].to_numpy(dtype=object)[index], level)
     wrong = known & (site_level != level)
     if wrong.any():
         st.report.error(file, f"column {col}, {where_units(st.labels[wrong])}",
-                     f"today's {level} zone names site {cell_text(cells, wrong)}, which is "
-                     f"{a_word(ids_text(sorted(set(site_level[wrong]))))} site",
-                     f"name {a_word(level)} site in {col}", st.labels[wrong])
+                        f"today's {level} zone names site {cell_text(cells, wrong)}, which is "
+                        f"{a_word(ids_text(sorted(set(site_level[wrong]))))} site",
+                        f"name {a_word(level)} site in {col}", st.labels[wrong])
     status = np.where(known, st.sites["status"].to_numpy(dtype=object)[index], "")
     future = known & ~wrong & np.isin(status, rules.NOT_OPEN_TODAY)
     if future.any():
         st.report.warning(file, f"column {col}, {where_units(st.labels[future])}",
-                       f"today's {level} zone names a site that is not open today "
-                       f"({cell_text(cells, future)}: new or candidate)",
-                       "name the school the unit attends today", st.labels[future])
+                          f"today's {level} zone names a site that is not open today "
+                          f"({cell_text(cells, future)}: new or candidate)",
+                          "name the school the unit attends today", st.labels[future])
     if none.any():
         st.report.warning(file, f"column {col}, {where_units(st.labels[none])}",
-                       f"no current {level} zone: the unit attends no {level} site today, "
-                       "so no plan counts it as moved",
-                       f"enter today's {level} site id in {col}", st.labels[none])
+                          f"no current {level} zone: the unit attends no {level} site today, "
+                          "so no plan counts it as moved",
+                          f"enter today's {level} site id in {col}", st.labels[none])
     return np.where(known & ~wrong, index, -1)
