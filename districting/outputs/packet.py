@@ -36,7 +36,7 @@ from matplotlib.figure import Figure  # noqa: E402
 from matplotlib.lines import Line2D  # noqa: E402
 from matplotlib.patches import Patch, Rectangle  # noqa: E402
 
-from .. import DRAFT_NOTICE  # noqa: E402
+from .. import DRAFT_NOTICE, rules  # noqa: E402
 from ..io import atomic_path  # noqa: E402
 from ..study import Outcome, now_iso  # noqa: E402
 from .colours import ZONE_PALETTE, zone_colours  # noqa: E402
@@ -192,11 +192,11 @@ def _draw_schools(ax, outcome: Outcome, when: str) -> set[str]:
         over = outcome.settings.status
         status = np.array([over.get(s, st) for s, st in zip(outcome.site_ids, status,
                                                             strict=True)])
-        status = np.where(status == "closing", "closed", status)
-        status = np.where((status == "candidate") & outcome.plan.open_sites, "open", status)
-    else:  # today: new and candidate sites are not in use yet
-        status = np.where(np.isin(status, ["new", "candidate"]), "", status)
-        status = np.where(status == "closing", "open", status)
+        status = np.where(rules.is_closed(status), "closed", status)
+        status = np.where(rules.is_candidate(status) & outcome.plan.open_sites, "open", status)
+    else:  # today: new and candidate sites are not in use yet; closing ones still are
+        status = np.where(rules.open_today(status), "open",
+                          np.where(rules.is_closed(status), status, ""))
     xy = np.column_stack([sites.geometry.x, sites.geometry.y])
     drawn = set()
     for st, (marker, size) in _STATUS_MARK.items():
