@@ -65,3 +65,25 @@ def test_open_sites_without_spare_candidates_are_the_used_and_forced_sites(p):
     problem = Problem.from_arrays(cost, [1.0, 1.0], p=p, open_sites=[True, False])
     expected = [True, True] if p is None else [True, False]
     assert rules.open_sites(problem, np.array([0, 0])).tolist() == expected
+
+
+def test_todays_zones_under_the_plan_do_not_count_a_closing_school_as_open(tmp_path):
+    """The workbench's "Today's zones" and reloaded plans are rebuilt from an assignment;
+    they now say which sites are open the way the solver does: a closing school that
+    still has students today is not open in the plan year (formerly: open, "under 60%")."""
+    from exports_town import make_town
+
+    from districting.outputs.tables import band_flags
+    from districting.study import RunSettings, build_problem, outcome_from_assignment
+
+    town = make_town(tmp_path, statuses=["open", "open", "closing", "open"])
+    rs = RunSettings(level="elementary")
+    problem, _ = build_problem(town, rs)
+    today = outcome_from_assignment(town, rs, problem.current)
+    j = int(np.flatnonzero(today.sites["status"].to_numpy() == "closing")[0])
+    assert (problem.current == j).any()  # the closing school has students today
+    assert not today.plan.open_sites[j]
+    assert today.plan.open_sites.tolist() == rules.open_sites(problem, problem.current).tolist()
+    met = today.metrics
+    flags = band_flags(met.load, problem, problem.years, today.plan.open_sites)
+    assert flags[j] == "students at a school that is not open"

@@ -3,9 +3,9 @@
 A :class:`Store` holds the edits a planner makes for each school level (a
 :class:`~districting.study.RunSettings` of overrides: settings, site edits, locks, forbids),
 the plan on screen and the one before it, and talks to the engine
-(:func:`districting.study.run`), the options (:mod:`districting.options`) and the exports.
+(:func:`districting.study.run`), the options (:mod:`districting.outputs.store`) and the exports.
 Every edit is written as it happens to the project's store GeoPackage
-(:func:`districting.options.save_state`, atomic), so a new store on the same project starts
+(:func:`districting.outputs.store.save_state`, atomic), so a new store on the same project starts
 from the last state. Two stores never share memory: unsaved work cannot leak between
 browser sessions. Each store is a draft: it remembers the revision of the record it
 started from, and a save over a record another session changed since is refused and
@@ -650,7 +650,7 @@ class Store:
         """Write one export of the plan on screen and return its path.
 
         ``kind``: gpkg, geojson, shapefile, units_csv, schools_csv (via
-        :func:`districting.exports.export_all`) or packet (the PDF packet).
+        :func:`districting.outputs.exports.export_all`) or packet (the PDF packet).
         """
         out = self.outcome
         if out is None:
