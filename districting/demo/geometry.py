@@ -20,7 +20,7 @@ from .constants import (
 
 
 # --------------------------------------------------------------------------- geometry
-def _outline(rng: np.random.Generator, radius: float) -> shapely.Polygon:
+def town_outline(rng: np.random.Generator, radius: float) -> shapely.Polygon:
     """A star-shaped outline: radius times (1 + a few random harmonics)."""
     theta = np.linspace(0.0, 2.0 * np.pi, 240, endpoint=False)
     r = np.ones_like(theta)
@@ -40,7 +40,7 @@ _LINE_PLAN = (
 )
 
 
-def _lines(rng: np.random.Generator, outline: shapely.Polygon, radius: float):
+def barrier_lines(rng: np.random.Generator, outline: shapely.Polygon, radius: float):
     """The river, highway and rail line, each from one outline vertex to another.
 
     Starting and ending exactly on outline vertices lets ``shapely.node`` split the outline
@@ -86,7 +86,7 @@ def _pieces(outline: shapely.Polygon, lines: list) -> np.ndarray:
     return faces[keep]
 
 
-def _sample_in(rng, region, n, centres=None, sigmas=None, weights=None, background=1.0):
+def sample_in(rng, region, n, centres=None, sigmas=None, weights=None, background=1.0):
     """``n`` points inside ``region``: a Gaussian mixture around ``centres`` (spreads
     ``sigmas``, mixing ``weights``) plus a uniform ``background`` share; rejection sampling
     over whole batches. With no centres the points are uniform."""
@@ -104,7 +104,7 @@ def _sample_in(rng, region, n, centres=None, sigmas=None, weights=None, backgrou
     return out[:n]
 
 
-def _voronoi(points: np.ndarray, clip: shapely.Polygon) -> np.ndarray:
+def voronoi_cells(points: np.ndarray, clip: shapely.Polygon) -> np.ndarray:
     """Voronoi cells of ``points`` in point order, clipped to ``clip``."""
     extent = shapely.buffer(shapely.envelope(clip), 5000.0)
     cells = shapely.get_parts(
@@ -113,7 +113,7 @@ def _voronoi(points: np.ndarray, clip: shapely.Polygon) -> np.ndarray:
     return shapely.intersection(cells, clip)
 
 
-def _units_from_cells(cells: np.ndarray, pieces: np.ndarray, min_share: float, min_area: float):
+def units_from_cells(cells: np.ndarray, pieces: np.ndarray, min_share: float, min_area: float):
     """Clip cells to the pieces, explode, and merge slivers into a same-piece neighbour.
 
     A part is a sliver when it is below ``min_share`` of its cell's area or below
@@ -167,14 +167,14 @@ def _largest_part(geoms: np.ndarray) -> np.ndarray:
     return out
 
 
-def _reading_order(geoms: np.ndarray, band: float) -> np.ndarray:
+def reading_order(geoms: np.ndarray, band: float) -> np.ndarray:
     """Permutation sorting polygons north to south in bands, west to east within a band."""
     p = shapely.point_on_surface(geoms)
     x, y = shapely.get_x(p), shapely.get_y(p)
     return np.lexsort((x, -np.floor(y / band)))
 
 
-def _rook_pairs(geoms: np.ndarray, min_length: float = 0.05):
+def rook_pairs(geoms: np.ndarray, min_length: float = 0.05):
     """Pairs (i < j) of polygons sharing a border longer than ``min_length`` metres, the
     shared border of each pair and its length."""
     i, j = shapely.STRtree(geoms).query(geoms, predicate="intersects")
@@ -187,11 +187,11 @@ def _rook_pairs(geoms: np.ndarray, min_length: float = 0.05):
 
 
 # --------------------------------------------------------------------------- graph helpers
-def _csr(n: int, i: np.ndarray, j: np.ndarray, w: np.ndarray):
+def csr(n: int, i: np.ndarray, j: np.ndarray, w: np.ndarray):
     return coo_matrix((np.r_[w, w], (np.r_[i, j], np.r_[j, i])), shape=(n, n)).tocsr()
 
 
-def _graph_voronoi(
+def graph_voronoi(
     n: int, i: np.ndarray, j: np.ndarray, w: np.ndarray, roots: np.ndarray, offsets: np.ndarray
 ) -> np.ndarray:
     """Index of the nearest root for every node, distance = offset + path length.
@@ -201,7 +201,7 @@ def _graph_voronoi(
     connected subtree that holds its root (given offsets smaller than root distances).
     """
     s = n
-    graph = _csr(
+    graph = csr(
         n + 1,
         np.r_[i, np.full(len(roots), s)],
         np.r_[j, roots],
@@ -224,16 +224,16 @@ def _graph_voronoi(
     return zone
 
 
-def _grow(n, i, j, seeds: np.ndarray, size: int) -> np.ndarray:
+def grow_region(n, i, j, seeds: np.ndarray, size: int) -> np.ndarray:
     """Bool mask of about ``size`` nodes nearest (in hops) to ``seeds``: a breadth-first blob."""
-    hops = dijkstra(_csr(n, i, j, np.ones(len(i))), directed=False, indices=seeds, min_only=True)
+    hops = dijkstra(csr(n, i, j, np.ones(len(i))), directed=False, indices=seeds, min_only=True)
     order = np.argsort(hops, kind="stable")
     mask = np.zeros(n, bool)
     mask[order[: min(size, n)]] = True
     return mask
 
 
-def _kmeans(rng, xy: np.ndarray, w: np.ndarray, k: int, iters: int = 30) -> np.ndarray:
+def weighted_kmeans(rng, xy: np.ndarray, w: np.ndarray, k: int, iters: int = 30) -> np.ndarray:
     """Weighted k-means (k-means++ start, Lloyd iterations); returns the k centres."""
     p = w / w.sum()
     centres = [xy[rng.choice(len(xy), p=p)]]
@@ -252,7 +252,7 @@ def _kmeans(rng, xy: np.ndarray, w: np.ndarray, k: int, iters: int = 30) -> np.n
     return c
 
 
-def _snap(centres: np.ndarray, xy: np.ndarray, allowed: np.ndarray) -> np.ndarray:
+def snap(centres: np.ndarray, xy: np.ndarray, allowed: np.ndarray) -> np.ndarray:
     """Distinct allowed nodes nearest to each centre (greedy, in centre order)."""
     d = np.sqrt(((centres[:, None, :] - xy[None]) ** 2).sum(-1))
     d[:, ~allowed] = np.inf

@@ -21,14 +21,14 @@ from .constants import (
     YEARS,
 )
 from .geometry import (
-    _graph_voronoi,
-    _kmeans,
-    _reading_order,
-    _snap,
+    graph_voronoi,
+    reading_order,
+    snap,
+    weighted_kmeans,
 )
 
 
-def _counts(rng, n, land_use, hood, n_hood) -> dict[str, np.ndarray]:
+def student_counts(rng, n, land_use, hood, n_hood) -> dict[str, np.ndarray]:
     """Students per unit, level and year (int arrays keyed ``{level}_{year}``).
 
     Households per residential unit are lognormal; each neighbourhood has its own mix of
@@ -67,7 +67,7 @@ def _counts(rng, n, land_use, hood, n_hood) -> dict[str, np.ndarray]:
     return out
 
 
-def _sites_and_zones(rng, n, gi, gj, gw, xy, point, land_use, hood, hood_names, centres, counts):
+def sites_and_zones(rng, n, gi, gj, gw, xy, point, land_use, hood, hood_names, centres, counts):
     """Sites per level at weighted k-means centres, today's zones by graph Voronoi, and
     capacities that crowd a few schools and leave a few far under capacity today."""
     res = land_use == "residential"
@@ -79,16 +79,16 @@ def _sites_and_zones(rng, n, gi, gj, gw, xy, point, land_use, hood, hood_names, 
         late = counts[f"{level}_{years[-1]}"].astype(float)
         w = np.where(res, 0.5 * now + 0.5 * late + 0.5, 0.0)
         k = N_SITES[level]
-        c = _kmeans(rng, xy, w, k)
+        c = weighted_kmeans(rng, xy, w, k)
         allowed = res & (hood != 1)  # today's schools stand in the built town
-        roots = _snap(c, xy, allowed)
-        roots = roots[_reading_order(shapely.points(xy[roots]), band=1500.0)]
+        roots = snap(c, xy, allowed)
+        roots = roots[reading_order(shapely.points(xy[roots]), band=1500.0)]
         spacing = np.sqrt(((xy[roots][:, None] - xy[roots][None]) ** 2).sum(-1))
         np.fill_diagonal(spacing, np.inf)
         nearest = spacing.min(1)
         offsets = rng.uniform(0.0, 0.15, k) * nearest
         status = np.array(["open"] * k, dtype=object)
-        zone = _graph_voronoi(n, gi, gj, gw, roots, offsets)
+        zone = graph_voronoi(n, gi, gj, gw, roots, offsets)
         zone_now = np.bincount(zone, weights=now, minlength=k)
         new_root = relief = closing = None
         if level == "elementary":

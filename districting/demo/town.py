@@ -24,19 +24,19 @@ from .constants import (
     DemoTown,
 )
 from .geometry import (
-    _csr,
-    _grow,
-    _lines,
-    _outline,
-    _reading_order,
-    _rook_pairs,
-    _sample_in,
-    _units_from_cells,
-    _voronoi,
+    barrier_lines,
+    csr,
+    grow_region,
+    reading_order,
+    rook_pairs,
+    sample_in,
+    town_outline,
+    units_from_cells,
+    voronoi_cells,
 )
 from .schools import (
-    _counts,
-    _sites_and_zones,
+    sites_and_zones,
+    student_counts,
 )
 
 
@@ -51,16 +51,16 @@ def generate(seed: int = 2027, n_units: int = 1500, radius: float = 6800.0) -> D
     if n_units < 200:
         raise ValueError(f"n_units={n_units}: the demo town needs at least 200 units")
     rng = np.random.default_rng(seed)
-    outline = _outline(rng, radius)
-    lines, pieces = _lines(rng, outline, radius)
+    outline = town_outline(rng, radius)
+    lines, pieces = barrier_lines(rng, outline, radius)
     kinds = [RIVER, HIGHWAY, RAIL]
 
     # neighbourhood centres: the old town at the middle, the subdivision near the edge, the
     # others spread out (farthest-point choice among random candidates)
     n_hood = len(NEIGHBOURHOODS)
     core = outline.buffer(-0.12 * radius)
-    cand = _sample_in(rng, core, 3000)
-    edge = _sample_in(rng, core.difference(shapely.Point(CENTRE).buffer(0.6 * radius)), 1)
+    cand = sample_in(rng, core, 3000)
+    edge = sample_in(rng, core.difference(shapely.Point(CENTRE).buffer(0.6 * radius)), 1)
     centres = [np.array(CENTRE) + rng.normal(0, 0.05 * radius, 2), edge[0]]
     for _ in range(n_hood - 1):
         d = np.sqrt(((cand[:, None] - np.asarray(centres)[None]) ** 2).sum(-1)).min(1)
@@ -70,18 +70,18 @@ def generate(seed: int = 2027, n_units: int = 1500, radius: float = 6800.0) -> D
     sigmas = np.r_[0.12, 0.07, rng.uniform(0.09, 0.16, n_hood - 1)] * radius
     weights = np.r_[1.6, 0.6, rng.uniform(0.6, 1.2, n_hood - 1)]
 
-    pts = _sample_in(rng, outline, n_units, centres, sigmas, weights, background=0.22)
-    pts = shapely.get_coordinates(shapely.centroid(_voronoi(pts, outline)))  # one Lloyd step
-    cells = _voronoi(pts, outline)
-    geoms, piece = _units_from_cells(cells, pieces, min_share=0.3, min_area=6000.0)
-    order = _reading_order(geoms, band=250.0)
+    pts = sample_in(rng, outline, n_units, centres, sigmas, weights, background=0.22)
+    pts = shapely.get_coordinates(shapely.centroid(voronoi_cells(pts, outline)))  # one Lloyd step
+    cells = voronoi_cells(pts, outline)
+    geoms, piece = units_from_cells(cells, pieces, min_share=0.3, min_area=6000.0)
+    order = reading_order(geoms, band=250.0)
     geoms, piece = geoms[order], piece[order]
     n = len(geoms)
     point = shapely.point_on_surface(geoms)
     xy = shapely.get_coordinates(point)
 
     # rook graph; pairs in different pieces lie across a barrier
-    i, j, border, blen = _rook_pairs(geoms)
+    i, j, border, blen = rook_pairs(geoms)
     across = piece[i] != piece[j]
     mid = shapely.point_on_surface(border)
     line_arr = np.array([lines[k] for k in kinds], dtype=object)
@@ -96,12 +96,12 @@ def generate(seed: int = 2027, n_units: int = 1500, radius: float = 6800.0) -> D
     keep = base | kept
     gi, gj = i[keep], j[keep]
     gw = np.hypot(*(xy[gi] - xy[gj]).T)
-    if connected_components(_csr(n, gi, gj, gw), directed=False)[0] != 1:
+    if connected_components(csr(n, gi, gj, gw), directed=False)[0] != 1:
         raise ValueError(f"seed {seed}: the unit graph is not connected after bridges")
 
     land_use = _land_use(rng, n, gi, gj, i, j, across, kind_of, blen, hood, xy, lines, kinds)
-    counts = _counts(rng, n, land_use, hood, n_hood + 1)
-    sites, zones = _sites_and_zones(
+    counts = student_counts(rng, n, land_use, hood, n_hood + 1)
+    sites, zones = sites_and_zones(
         rng, n, gi, gj, gw, xy, point, land_use, hood, hood_names, centres, counts
     )
 
@@ -143,7 +143,7 @@ def _bridges(n, i, j, base, across, kind_of, border, blen, lines, kinds, hood_of
     while True:
         edge = base | kept
         ncomp, lab = connected_components(
-            _csr(n, i[edge], j[edge], np.ones(int(edge.sum()))), directed=False
+            csr(n, i[edge], j[edge], np.ones(int(edge.sum()))), directed=False
         )
         if ncomp == 1:
             break
@@ -199,13 +199,13 @@ def _land_use(rng, n, gi, gj, i, j, across, kind_of, blen, hood, xy, lines, kind
     start = rng.uniform(0.5, 0.6)
     yard = u[(pos > start) & (pos < start + 0.2)]
     if len(yard):  # the yards and the blocks around them
-        use[_grow(n, gi, gj, yard, int(0.035 * n))] = "industrial"
+        use[grow_region(n, gi, gj, yard, int(0.035 * n))] = "industrial"
     u, pos = along(1)
     start = rng.uniform(0.35, 0.45)
     use[u[(pos > start) & (pos < start + 0.15)]] = "commercial"
     n_parks = max(3, n // 130)
     free = np.flatnonzero((use == "residential") & (hood != 1))
     for s in rng.choice(free, n_parks, replace=False):
-        blob = _grow(n, gi, gj, np.array([s]), int(rng.integers(2, 8)))
+        blob = grow_region(n, gi, gj, np.array([s]), int(rng.integers(2, 8)))
         use[blob & (use == "residential")] = "park"
     return use.astype(str)
