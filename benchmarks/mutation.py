@@ -44,7 +44,8 @@ MODULES = {
                      ("zone_components", "_main_labels", "_attached", "fragments",
                       "is_contiguous", "separator", "min_separator", "_vertex_cut",
                       "separator_cuts", "fractional_cuts", "plan_checks")),
-    "options-names": ("districting/options.py", "tests/test_options.py", ("_clean_name",)),
+    "options-names": ("districting/outputs/store/options.py", "tests/outputs/test_store.py",
+                      ("_clean_name",)),
 }
 TIMEOUT = 120.0  # seconds per mutant's test run (a mutant that loops forever is killed)
 

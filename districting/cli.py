@@ -22,8 +22,7 @@ __all__ = ["main"]
 
 # ----------------------------------------------------------------------------- helpers
 def _load(path: str):
-    from .project import load_project
-    from .validate import ProjectError
+    from .intake import ProjectError, load_project
 
     try:
         return load_project(path)
@@ -90,9 +89,22 @@ def plan_summary(outcome) -> str:
 
 
 # ----------------------------------------------------------------------------- commands
-def cmd_check(args) -> int:
-    from .validate import check_command
+def check_command(path: str | Path) -> int:
+    """`districting check PROJECT.toml`: print the report and summary; 0 clean, 1 errors.
 
+    Reads only: nothing is written, not even a cache.
+    """
+    from .intake import check_summary, validate_project
+
+    inputs, report = validate_project(path)
+    print(report.format())
+    if inputs is not None:
+        print()
+        print(check_summary(inputs))
+    return 1 if report.has_errors else 0
+
+
+def cmd_check(args) -> int:
     return check_command(args.project)
 
 
@@ -120,7 +132,7 @@ def _solve_targets(args, inputs) -> dict[str, tuple[str, Path]]:
     --overwrite). The folder is a slug of the name, checked to lie inside the output folder.
     """
     from .names import path_inside, slug
-    from .options import check_option_name
+    from .outputs.store import check_option_name
 
     levels = list(inputs.settings.levels) if args.level == "all" else [args.level]
     out = Path(args.out) if args.out else inputs.settings.path.parent / "out"
@@ -144,7 +156,7 @@ _FLAGS = {"max_util": "max_utilization", "min_util": "min_utilization",
 
 def check_flags(args) -> None:
     """Refuse a command-line setting the project file's schema would refuse (ValueError)."""
-    from .schema import check_value
+    from .intake.schema import check_value
 
     for attr, key in _FLAGS.items():
         value = getattr(args, attr, None)
@@ -162,9 +174,9 @@ def check_flags(args) -> None:
 
 
 def cmd_solve(args) -> int:
-    from .exports import export_all
     from .names import check_name
-    from .options import save_option, tidy_store
+    from .outputs.exports import export_all
+    from .outputs.store import save_option, tidy_store
     from .study import run
 
     if args.save:
@@ -192,7 +204,7 @@ def cmd_solve(args) -> int:
 
 
 def cmd_options(args) -> int:
-    from .options import delete_option, list_options, rename_option, repair_store, tidy_store
+    from .outputs.store import delete_option, list_options, rename_option, repair_store, tidy_store
 
     inputs = _load(args.project)
     store = inputs.settings.store
@@ -223,7 +235,7 @@ def cmd_options(args) -> int:
 
 def cmd_verify(args) -> int:
     """Check a saved option independently of the engine (districting.verify)."""
-    from .options import load_option
+    from .outputs.store import load_option
     from .verify import check_plan, facts_of_outcome, report
 
     inputs = _load(args.project)
@@ -235,8 +247,8 @@ def cmd_verify(args) -> int:
 
 
 def cmd_packet(args) -> int:
-    from .options import load_option
-    from .packet import write_packet
+    from .outputs.packet import write_packet
+    from .outputs.store import load_option
 
     inputs = _load(args.project)
     names = [n.strip() for n in args.options.split(",") if n.strip()]
@@ -251,12 +263,11 @@ def cmd_packet(args) -> int:
 def cmd_demo(args) -> int:
     """Solve the demo town for every level, save two options, export, write the packets."""
     from .demo import copy_demo
-    from .exports import export_all
-    from .options import save_option
-    from .packet import write_packet
-    from .project import load_project
+    from .intake import check_summary, load_project
+    from .outputs.exports import export_all
+    from .outputs.packet import write_packet
+    from .outputs.store import save_option
     from .study import RunSettings, run
-    from .validate import check_summary
 
     check_flags(args)
     out = Path(args.out).resolve()

@@ -1,6 +1,6 @@
 """One level of a project, as a problem and as an outcome with names.
 
-:func:`build_problem` turns validated :class:`~districting.project.Inputs` and a
+:func:`build_problem` turns validated :class:`~districting.intake.Inputs` and a
 :class:`RunSettings` (level, caps, weights, locks, forbids, site status changes) into a
 :class:`~districting.problem.Problem`; :func:`run` solves it and wraps the
 :class:`~districting.plan.Plan` in an :class:`Outcome` that knows unit ids, site ids and
@@ -17,10 +17,11 @@ from dataclasses import dataclass, field
 import numpy as np
 import shapely
 
+from . import rules
+from .intake import Inputs
+from .intake.schema import RUN_KEYS, check_run
 from .plan import Plan, PlanMetrics, plan_metrics
 from .problem import Problem
-from .project import Inputs
-from .schema import RUN_KEYS, check_run
 
 __all__ = ["RunSettings", "Outcome", "build_problem", "run", "outcome_from_assignment"]
 
@@ -152,12 +153,12 @@ def build_problem(inputs: Inputs, rs: RunSettings) -> tuple[Problem, np.ndarray]
     cap = per_site(rs.capacity, "capacity")
     max_u = per_site(rs.site_max_util, "max_util")
     min_u = per_site(rs.site_min_util, "min_util")
-    max_u = np.where(np.isnan(max_u), rs.max_utilization, max_u)
-    min_u = np.where(np.isnan(min_u), rs.min_utilization, min_u)
+    max_u = rules.site_band(max_u, rs.max_utilization)
+    min_u = rules.site_band(min_u, rs.min_utilization)
 
-    closed = np.isin(status, ["closing", "closed"])
-    forced = np.isin(status, ["open", "new"])
-    candidate = status == "candidate"
+    closed = rules.is_closed(status)
+    forced = rules.open_in_plan(status)
+    candidate = rules.is_candidate(status)
     p = None
     if candidate.any() and rs.open_count:
         p = int(rs.open_count)
@@ -326,7 +327,7 @@ def run(
             if rnd.best is not None and rnd.best is not shown[0]:
                 shown[0] = rnd.best
                 a = np.asarray(rnd.best, np.int64)
-                opened = _open_of(problem, a)
+                opened = rules.open_sites(problem, a)
                 interim = Plan("feasible", float(rnd.objective), float(rnd.bound),
                                float(rnd.gap), a, opened, rounds=rnd.number,
                                solve_seconds=rnd.seconds, route=solver,
@@ -352,7 +353,7 @@ def outcome_from_assignment(
     full = resolved(inputs, rs)
     problem, rows = build_problem(inputs, full)
     a = np.asarray(assignment, dtype=np.int64)
-    opened = _open_of(problem, a)
+    opened = rules.open_sites(problem, a)
     fields = dict(plan_fields or {})
     plan = Plan(
         status=fields.pop("status", "feasible"),
@@ -368,9 +369,3 @@ def outcome_from_assignment(
     )
     return Outcome(inputs, full, rows, problem, plan, name=name, created=created or now_iso())
 
-
-def _open_of(problem: Problem, a: np.ndarray) -> np.ndarray:
-    """Sites open under assignment ``a``: those that take a unit, and those always open."""
-    opened = np.zeros(problem.n_sites, bool)
-    opened[a[a >= 0]] = True
-    return opened | problem.always_open

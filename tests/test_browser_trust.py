@@ -47,8 +47,8 @@ FOUND_IMGS = """() => {
 def hostile_project(folder: Path) -> Path:
     """The demo town with the payload in the project name, a school name and an option."""
     from districting.demo import copy_demo
-    from districting.options import ASSIGNMENTS_TABLE, OPTIONS_TABLE, ZONES_LAYER, save_option
-    from districting.project import load_project
+    from districting.intake import load_project
+    from districting.outputs.store import ASSIGNMENTS_TABLE, OPTIONS_TABLE, ZONES_LAYER, save_option
     from districting.study import RunSettings, build_problem, outcome_from_assignment, resolved
 
     project = copy_demo(folder)
@@ -141,7 +141,7 @@ def _problem(page) -> str:
 
 def test_two_pages_on_one_project_never_overwrite_each_other(tmp_path):
     from districting.demo import copy_demo
-    from districting.options import state_record
+    from districting.outputs.store import state_record
 
     project = copy_demo(tmp_path / "demo")
     store = project.parent / "options.gpkg"

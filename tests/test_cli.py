@@ -116,8 +116,8 @@ def _files(folder) -> dict:
 
 def _save_today(project, level: str, name: str) -> None:
     """Save today's zones of ``level`` as an option (a real plan: the district's own)."""
-    from districting.options import save_option
-    from districting.project import load_project
+    from districting.intake import load_project
+    from districting.outputs.store import save_option
     from districting.study import RunSettings, build_problem, outcome_from_assignment, resolved
 
     inputs = load_project(project)

@@ -199,14 +199,14 @@ def test_facts_of_problem_reads_forbids_from_cost_and_locks():
 @pytest.fixture(scope="module")
 def demo(tmp_path_factory):
     from districting.demo import copy_demo
-    from districting.project import load_project
+    from districting.intake import load_project
 
     toml = copy_demo(tmp_path_factory.mktemp("verify") / "demo")
     return toml, load_project(toml)
 
 
 def test_verify_command_accepts_a_solved_option_and_refuses_a_broken_one(demo):
-    from districting.options import save_option
+    from districting.outputs.store import save_option
     from districting.study import RunSettings, outcome_from_assignment, run
 
     toml, inputs = demo

@@ -14,8 +14,8 @@ import geopandas as gpd
 import numpy as np
 import shapely
 
-from districting.adjacency import Adjacency
-from districting.project import Inputs, Settings, SolveSettings
+from districting.intake import Inputs, Settings, SolveSettings
+from districting.intake.adjacency import Adjacency
 
 CRS = "EPSG:32633"  # any projected CRS in metres
 CELL = 200.0

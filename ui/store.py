@@ -3,9 +3,9 @@
 A :class:`Store` holds the edits a planner makes for each school level (a
 :class:`~districting.study.RunSettings` of overrides: settings, site edits, locks, forbids),
 the plan on screen and the one before it, and talks to the engine
-(:func:`districting.study.run`), the options (:mod:`districting.options`) and the exports.
+(:func:`districting.study.run`), the options (:mod:`districting.outputs.store`) and the exports.
 Every edit is written as it happens to the project's store GeoPackage
-(:func:`districting.options.save_state`, atomic), so a new store on the same project starts
+(:func:`districting.outputs.store.save_state`, atomic), so a new store on the same project starts
 from the last state. Two stores never share memory: unsaved work cannot leak between
 browser sessions. Each store is a draft: it remembers the revision of the record it
 started from, and a save over a record another session changed since is refused and
@@ -26,10 +26,13 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from districting import options as _options
+from districting import rules
+from districting.intake import Inputs
+from districting.intake.schema import SCHEMA
 from districting.names import BadName, check_name, path_inside, slug
-from districting.project import SITE_STATUSES, Inputs
-from districting.schema import SCHEMA
+from districting.outputs import store as _options
+from districting.outputs import tables
+from districting.rules import SITE_STATUSES
 from districting.study import (
     Outcome,
     RunSettings,
@@ -53,7 +56,7 @@ EDITABLE_SETTINGS = {
     "max_moved": (0.0, 1e9),
     "gap": (0.0, 0.5),
     "time_limit": (1.0, 3600.0),
-    # Utilization ranges are the project file's ([solve] in districting.schema): one home.
+    # Utilization ranges are the project file's ([solve] in districting.intake.schema): one home.
     "max_utilization": (0.05, SCHEMA["solve"].keys["max_utilization"].high),
     "min_utilization": (0.0, SCHEMA["solve"].keys["min_utilization"].high),
 }
@@ -288,7 +291,7 @@ class Store:
         units = self._check_units(unit_ids)
         site = self._check_site(site_id, "lock")
         status = self.effective.status.get(site) or self._file_status(site)
-        if status in ("closing", "closed"):
+        if rules.is_closed(status):
             raise StoreError(f"{site} is {status} in the plan year; change its status to open "
                              "before locking units to it")
         rs = self.settings
@@ -552,7 +555,7 @@ class Store:
         def override(values: dict, column: str, default: float | None = None) -> list:
             base = sites[column].to_numpy()
             if default is not None:
-                base = np.where(np.isnan(base.astype(float)), default, base.astype(float))
+                base = rules.site_band(base, default)
             return [values.get(s, v) for s, v in zip(ids, base, strict=True)]
 
         df["status"] = override(full.status, "status")
@@ -577,27 +580,12 @@ class Store:
         df["mean_km"] = met.mean_distance / 1000.0
         df["max_km"] = met.max_distance / 1000.0
         df["out_of_band"] = met.out_of_band
-        df["flag"] = band_flags(met.load, out.problem, years, out.plan.open_sites)
+        df["flag"] = tables.band_flags(met.load, out.problem, years, out.plan.open_sites)
         return df
 
     def summary(self, outcome: Outcome | None = None) -> dict:
         """Headline figures of a plan (what the results panel and comparisons show)."""
-        out = self.on_screen() if outcome is None else outcome
-        met = out.metrics
-        plan = out.plan
-        return {
-            "option": out.name or "unsaved result",
-            "level": out.level,
-            "plan_year": int(out.settings.plan_year),
-            "status": plan.status,
-            "gap": float(plan.gap),
-            "students_moved": float(met.students_moved),
-            "units_moved": int(met.units_moved),
-            "mean_km": met.overall_mean_distance / 1000.0,
-            "max_km": met.overall_max_distance / 1000.0,
-            "schools_out_of_band": int(met.out_of_band.sum()),
-            "students": float(out.problem.demand[0].sum()),
-        }
+        return tables.headline(self.on_screen() if outcome is None else outcome)
 
     def changes_frame(self, outcome: Outcome | None = None,
                       reference: Outcome | None = None) -> pd.DataFrame:
@@ -662,7 +650,7 @@ class Store:
         """Write one export of the plan on screen and return its path.
 
         ``kind``: gpkg, geojson, shapefile, units_csv, schools_csv (via
-        :func:`districting.exports.export_all`) or packet (the PDF packet).
+        :func:`districting.outputs.exports.export_all`) or packet (the PDF packet).
         """
         out = self.outcome
         if out is None:
@@ -670,12 +658,12 @@ class Store:
         label = slug(f"{out.name or 'unsaved-result'}-{out.level}")
         folder = path_inside(self.export_folder(), label)
         if kind == "packet":
-            from districting.packet import write_packet
+            from districting.outputs.packet import write_packet
 
             pdf = folder / f"{label}-packet.pdf"
             write_packet([out], pdf)
             return pdf
-        from districting.exports import export_all
+        from districting.outputs.exports import export_all
 
         if self._exports[0] is not out:  # one export_all per plan, however many buttons
             self._exports = (out, export_all(out, folder))
@@ -846,29 +834,3 @@ class Store:
         fields = {k: p[k] for k in ("status", "objective", "bound", "gap") if k in p}
         return outcome_from_assignment(self.inputs, full, a, fields, name=p.get("name", ""),
                                        created=p.get("created", ""))
-
-
-def band_flags(load: np.ndarray, problem, years, open_sites) -> list[str]:
-    """Words per site for years outside the utilization band, e.g. 'over 100% in 2029'."""
-    cap = problem.capacity
-    flags = []
-    for j in range(load.shape[1]):  # one pass per school: a handful per level
-        has = bool(load[:, j].any())
-        if cap is None:
-            flags.append("")
-        elif not open_sites[j]:
-            flags.append("students at a school that is not open" if has else "")
-        elif cap[j] <= 0:
-            flags.append("students at a school with no capacity" if has else "")
-        else:
-            over = [str(y) for y, v in zip(years, load[:, j], strict=True)
-                    if v > problem.max_util[j] * cap[j] + 1e-6]
-            under = [str(y) for y, v in zip(years, load[:, j], strict=True)
-                     if v < problem.min_util[j] * cap[j] - 1e-6]
-            words = []
-            if over:
-                words.append(f"over {problem.max_util[j]:.0%} in {', '.join(sorted(over))}")
-            if under:
-                words.append(f"under {problem.min_util[j]:.0%} in {', '.join(sorted(under))}")
-            flags.append("; ".join(words))
-    return flags

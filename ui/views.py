@@ -27,7 +27,7 @@ from bokeh.models import (
 from bokeh.plotting import figure
 
 from districting import DRAFT_NOTICE
-from districting.project import SITE_STATUSES
+from districting.rules import SITE_STATUSES
 
 from .state import REFERENCES, SessionState
 from .text import esc as _esc
@@ -116,7 +116,7 @@ def today_lines(inputs, level: str) -> tuple[list, list]:
     """Outlines of today's zones of a level (dissolved once per Inputs and level)."""
     cache = _TODAY.setdefault(inputs, {})
     if level not in cache:
-        from districting.zones import dissolve_zones
+        from districting.outputs.zones import dissolve_zones
 
         sites = inputs.sites
         ids = np.array([*sites["site_id"].astype(str), ""], dtype=object)
@@ -143,7 +143,7 @@ def barrier_kinds(inputs) -> np.ndarray | None:
         src = getattr(inputs.settings, "sources", {}).get("barriers")
         if src is not None:
             try:
-                from districting.io import read_layer
+                from districting.intake.layers import read_layer
 
                 frame = read_layer(src.path, src.layer, what="barriers")
             except Exception:  # noqa: BLE001 - kinds only style the lines
@@ -166,7 +166,7 @@ def touching_pairs(inputs) -> np.ndarray:
 
 def zone_colors(inputs, site_ids: list[str], assignment: np.ndarray) -> dict[str, str]:
     """Colour per site id: zones that touch on the map get different palette colours."""
-    from districting.zones import color_zones, zone_color
+    from districting.outputs.colours import color_zones, zone_color
 
     a = np.asarray(assignment)
     pairs = touching_pairs(inputs)
