@@ -1,8 +1,9 @@
 """The app shell: ``districting serve [PROJECT.toml]`` and the page each session gets.
 
 The project is read and validated once when the server starts (its Inputs are read-only
-and shared); every browser session then gets its own :class:`~ui.store.Store` and
-:class:`~ui.state.SessionState`, made in the app factory, so two sessions never share
+and shared, and so is their map data, :class:`~ui.mapdata.MapData`); every browser session
+then gets its own :class:`~ui.store.Store` and :class:`~ui.session.Session` (state
+parameters, actions and a runner), made in the app factory, so two sessions never share
 unsaved state. A project that does not load gives a page with the validation report and a
 field to open another project, never a traceback.
 
@@ -87,14 +88,14 @@ def create_app(project: str | Path, *, persist: bool = True):
         shell.objects = [_error_page(problem_text(exc, project), opener)]
         return shell
 
-    from .state import SessionState
+    from .session import Session
 
     doc = pn.state.curdoc
-    state = SessionState(Store(inputs, persist=persist), schedule=_scheduler(doc))
+    session = Session(Store(inputs, persist=persist), schedule=_scheduler(doc))
     if doc is not None and doc.session_context is not None:
-        pn.state.add_periodic_callback(state.tick, period=500)
+        pn.state.add_periodic_callback(session.runner.tick, period=500)
 
-    mapview = MapView(state)
+    mapview = MapView(session)
     header = pn.pane.HTML(
         f"<div class='app-header' style='display:flex;justify-content:space-between;"
         f"align-items:baseline'><span style='font-size:20px;font-weight:600'>"
@@ -108,22 +109,22 @@ def create_app(project: str | Path, *, persist: bool = True):
         "&middot; 5&nbsp;check <i>Changes</i>, save in <i>Options</i>, download in "
         "<i>Downloads</i>.</div>", sizing_mode="stretch_width", margin=(0, 10))
     sidebar = pn.Column(
-        SettingsPanel(state), pn.Card(RunPanel(state), title="Run", sizing_mode="stretch_width",
+        SettingsPanel(session), pn.Card(RunPanel(session), title="Run", sizing_mode="stretch_width",
                                       css_classes=["run-card"]),
-        SelectionPanel(state), width=340, scroll=True, css_classes=["sidebar"])
+        SelectionPanel(session), width=340, scroll=True, css_classes=["sidebar"])
     tabs = pn.Tabs(
-        ("Schools", SitesTable(state)),
-        ("Changes", ResultsView(state)),
-        ("Locks", LocksTable(state)),
-        ("Options", OptionsPanel(state)),
-        ("Downloads", DownloadsPanel(state)),
+        ("Schools", SitesTable(session)),
+        ("Changes", ResultsView(session)),
+        ("Locks", LocksTable(session)),
+        ("Options", OptionsPanel(session)),
+        ("Downloads", DownloadsPanel(session)),
         ("Project", pn.Column(_project_info(inputs, project), opener)),
         dynamic=True, sizing_mode="stretch_width", css_classes=["result-tabs"],
     )
-    main = pn.Column(MessageArea(state), StoreProblem(state), mapview, tabs,
+    main = pn.Column(MessageArea(session), StoreProblem(session), mapview, tabs,
                      sizing_mode="stretch_width")
     shell.objects = [header, guide, pn.Row(sidebar, main, sizing_mode="stretch_width")]
-    shell.state = state  # for scripts and tests driving the page from Python
+    shell.session = session  # for scripts and tests driving the page from Python
     return shell
 
 
@@ -187,8 +188,8 @@ def _project_opener(shell, persist: bool):
             return
         new = create_app(target, persist=persist)
         shell.objects = list(new.objects)
-        if hasattr(new, "state"):
-            shell.state = new.state
+        if hasattr(new, "session"):
+            shell.session = new.session
 
     button.on_click(open_it)
     return pn.Column(pn.Row(path, button), note)
