@@ -60,8 +60,13 @@ def line_paths(geoms) -> Paths:
     geoms = np.asarray(geoms, dtype=object)
     if not len(geoms):
         return [], []
-    lines = shapely.get_parts(np.asarray(shapely.boundary(geoms), dtype=object) if
-                              shapely.get_type_id(geoms).max() >= 3 else geoms)
+    # Polygons give their rings; lines (multi-lines too: their boundary is their end points)
+    # are drawn as they are.
+    polygons = np.isin(shapely.get_type_id(geoms), (shapely.GeometryType.POLYGON,
+                                                    shapely.GeometryType.MULTIPOLYGON))
+    geoms = geoms.copy()
+    geoms[polygons] = shapely.boundary(geoms[polygons])
+    lines = shapely.get_parts(geoms)
     lines = lines[~shapely.is_empty(lines)]
     if not len(lines):
         return [], []
