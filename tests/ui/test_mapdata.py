@@ -32,6 +32,19 @@ def rings_of(geom) -> list[np.ndarray]:
     return out
 
 
+def count_calls(monkeypatch, module, name: str) -> list:
+    """Record each call of ``module.name`` (the real function still runs)."""
+    calls = []
+    real = getattr(module, name)
+
+    def counted(*args, **kwargs):
+        calls.append(args)
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(module, name, counted)
+    return calls
+
+
 def test_polygon_paths_hold_every_ring_of_every_unit():
     square = shapely.box(0, 0, 100, 100)
     holed = shapely.Polygon([(200, 0), (400, 0), (400, 200), (200, 200)],
@@ -80,14 +93,7 @@ def barred(inputs, tmp_path):
 
 
 def test_barrier_layer_is_read_once_and_grouped_by_kind(barred, monkeypatch):
-    reads = []
-    real = districting.io.read_layer
-
-    def counted(*args, **kwargs):
-        reads.append(args)
-        return real(*args, **kwargs)
-
-    monkeypatch.setattr(districting.io, "read_layer", counted)
+    reads = count_calls(monkeypatch, districting.io, "read_layer")
     data = MapData.of(barred)
     assert MapData.of(barred) is data  # every session's map shares it
     assert len(reads) == 1
@@ -99,14 +105,7 @@ def test_barrier_layer_is_read_once_and_grouped_by_kind(barred, monkeypatch):
 
 
 def test_todays_outlines_are_dissolved_once_per_level(inputs, monkeypatch):
-    calls = []
-    real = districting.zones.dissolve_zones
-
-    def counted(*args, **kwargs):
-        calls.append(args)
-        return real(*args, **kwargs)
-
-    monkeypatch.setattr(districting.zones, "dissolve_zones", counted)
+    calls = count_calls(monkeypatch, districting.zones, "dissolve_zones")
     data = MapData.of(inputs)
     xs, ys = data.today(LEVEL)
     assert data.today(LEVEL) == (xs, ys) and len(calls) == 1
