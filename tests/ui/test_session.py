@@ -50,3 +50,21 @@ def test_a_damaged_store_gives_a_message_and_a_way_out(inputs):
     assert page.state.store_problem == "" and "kept as" in page.state.message
     assert len(list(store.parent.glob(f"{store.stem}.damaged-*{store.suffix}"))) == 1
     assert Store(inputs).settings.max_utilization == pytest.approx(0.90)  # written now
+
+
+def test_the_store_session_runner_and_map_data_load_no_ui_library():
+    """Only views/ and app.py draw: the rest of ui/ runs without Panel or Bokeh (a script or
+    another front end can use it)."""
+    import os
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    root = str(Path(__file__).resolve().parents[2])
+    env = {**os.environ, "PYTHONPATH": os.pathsep.join(
+        [root, *filter(None, [os.environ.get("PYTHONPATH")])])}
+    code = ("import sys, ui.store, ui.session, ui.runner, ui.mapdata, ui.projects; "
+            "print(sorted({m.split('.')[0] for m in sys.modules} & {'panel', 'bokeh'}))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True, cwd=root, env=env)
+    assert out.stdout.strip() == "[]"
