@@ -1,7 +1,7 @@
 """The app shell without a browser (ui/app.py, ui/views/project.py): a project that does
 not load gives a page with words, never a traceback; the field to open another project
 says what is wrong with a path, and a project that loads replaces the page. The whole page
-in a browser: tests/test_browser.py."""
+in a browser: tests/ui/test_browser.py."""
 
 from __future__ import annotations
 
