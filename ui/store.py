@@ -12,26 +12,28 @@ started from, and a save over a record another session changed since is refused 
 flagged (:attr:`Store.conflict`), keeping this session's edits in memory until the
 planner reloads the saved record or keeps the edits as a draft of a new name. Tables come
 out as pandas DataFrames for any front end.
+
+The Store is made of three parts: this module (settings, site edits, locks, runs, exports),
+:mod:`ui.store_records` (options and the draft record in the store file) and
+:mod:`ui.store_tables` (the report tables). No Panel or Bokeh here: threads and the page
+belong to :mod:`ui.runner` and :mod:`ui.session`.
 """
 
 from __future__ import annotations
 
 import math
 import tempfile
-import threading
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 
 from districting import rules
 from districting.intake import Inputs
 from districting.intake.schema import SCHEMA
-from districting.names import BadName, check_name, path_inside, slug
+from districting.names import path_inside, slug
 from districting.outputs import store as _options
-from districting.outputs import tables
 from districting.rules import SITE_STATUSES
 from districting.study import (
     Outcome,
@@ -42,12 +44,12 @@ from districting.study import (
     run,
 )
 
-__all__ = ["Store", "StoreError", "LockRow", "STATE_KEY", "DRAFT_PREFIX", "EDITABLE_SETTINGS"]
+from .store_records import DRAFT_PREFIX, STATE_KEY, StoreError, StoreRecords
+from .store_tables import PlanTables
 
-#: Key of the workbench's row in the store's state table (drafts of other names: "workbench:NAME").
-STATE_KEY = "workbench"
-DRAFT_PREFIX = STATE_KEY + ":"
-STATE_VERSION = 1
+__all__ = ["Store", "StoreError", "LockRow", "STATE_KEY", "DRAFT_PREFIX", "EDITABLE_SETTINGS",
+           "TODAY"]
+
 #: RunSettings fields the settings panel edits, with their allowed range.
 EDITABLE_SETTINGS = {
     "plan_year": None,
@@ -62,19 +64,6 @@ EDITABLE_SETTINGS = {
 }
 TODAY = "Today's zones"
 
-# One writer at a time per store file in this process (sessions share the server process).
-_WRITE_LOCKS: dict[Path, threading.Lock] = {}
-_LOCKS_GUARD = threading.Lock()
-
-
-def _write_lock(path: Path) -> threading.Lock:
-    with _LOCKS_GUARD:
-        return _WRITE_LOCKS.setdefault(Path(path).resolve(), threading.Lock())
-
-
-class StoreError(ValueError):
-    """An edit or a run that cannot be done, in words that say what to change."""
-
 
 @dataclass(frozen=True)
 class LockRow:
@@ -84,7 +73,7 @@ class LockRow:
     source: str  # "workbench" (removable) or "project file" (decided in project.toml)
 
 
-class Store:
+class Store(StoreRecords, PlanTables):
     """The planner's edits and plans for one project, one session.
 
     ``inputs`` are read-only and may be shared between stores; everything else is owned by
@@ -436,210 +425,6 @@ class Store:
         self._save()
         return out
 
-    # ------------------------------------------------------------------ options
-    def save_option(self, name: str, overwrite: bool = False) -> None:
-        """Save the plan on screen as a named option in the project's store."""
-        try:
-            name = check_name(name)
-        except BadName as exc:
-            raise StoreError(str(exc)) from None
-        out = self.outcome
-        if out is None:
-            raise StoreError("run a plan first (press Rerun); today's zones are not an option")
-        if not self.persist:
-            raise StoreError("this session does not write to the project store")
-        try:
-            with _write_lock(self.store_path):
-                _options.save_option(self.inputs, out, name, overwrite=overwrite)
-        except (ValueError, KeyError) as exc:
-            raise StoreError(str(exc)) from exc
-        self.outcomes[self.level] = out.renamed(name)
-        self._save()
-
-    def list_options(self) -> list:
-        """Saved options of the project (every level), as ``options.list_options`` gives;
-        none when the store is damaged (:attr:`problem` says so)."""
-        if not self.store_path.exists():
-            return []
-        try:
-            return list(_options.list_options(self.store_path))
-        except _options.StoreDamaged as exc:
-            self.damaged = str(exc)
-            return []
-
-    def option_names(self, level: str | None = None) -> list[str]:
-        level = self.level if level is None else level
-        return [o.name for o in self.list_options() if o.level == level]
-
-    def load_option(self, name: str) -> Outcome:
-        try:
-            return _options.load_option(self.inputs, name)
-        except (ValueError, KeyError) as exc:
-            raise StoreError(str(exc)) from exc
-
-    def open_option(self, name: str) -> Outcome:
-        """Put a saved option on screen; its settings become the edits to continue from."""
-        out = self.load_option(name)
-        if out.level != self.level:
-            self.level = out.level
-        self.previous[out.level] = self.outcomes[out.level]
-        self.outcomes[out.level] = out
-        self.runs[out.level] = self._overrides_of(out.settings)
-        self._save()
-        return out
-
-    def delete_option(self, name: str) -> None:
-        with _write_lock(self.store_path):
-            try:
-                _options.delete_option(self.store_path, name)
-            except (ValueError, KeyError) as exc:
-                raise StoreError(str(exc)) from exc
-
-    def _overrides_of(self, full: RunSettings) -> RunSettings:
-        """Resolved settings -> overrides: locks/forbids of the project file are not copied."""
-        file_locks = {lk.unit: lk.site for lk in self.inputs.settings.locks
-                      if lk.level == full.level}
-        locks = {u: s for u, s in full.locks.items() if file_locks.get(u) != s}
-        file_forbids = {(fb.unit, fb.site) for fb in self.inputs.settings.forbids
-                        if fb.level == full.level}
-        forbids = {}
-        for u, sites in full.forbids.items():
-            keep = [s for s in sites if (u, s) not in file_forbids]
-            if keep:
-                forbids[u] = keep
-        return full.replace(locks=locks, forbids=forbids)
-
-    # ------------------------------------------------------------------ tables
-    def units_frame(self, outcome: Outcome | None = None) -> pd.DataFrame:
-        """One row per unit: students (plan year), today's and proposed school, distance."""
-        out = self.on_screen() if outcome is None else outcome
-        prob = out.problem
-        a = out.assignment
-        names = self.site_names()
-        cur_ids = out.site_id_of(prob.current)
-        new_ids = out.site_id_of(a)
-        n = prob.n_units
-        dist = np.full(n, np.nan)
-        ok = a >= 0
-        dist[ok] = prob.travel[np.flatnonzero(ok), a[ok]]
-        full = out.settings
-        locks = full.locks
-        forbids = full.forbids
-        uid = out.unit_ids
-        return pd.DataFrame({
-            "unit_id": uid,
-            "students": prob.demand[0],
-            "current": cur_ids,
-            "current_name": [names.get(s, "none") for s in cur_ids],
-            "proposed": new_ids,
-            "proposed_name": [names.get(s, "none") for s in new_ids],
-            "changed": (prob.current != a) & (prob.current >= 0),
-            "distance_km": dist / 1000.0,
-            "locked": [locks.get(u, "") for u in uid],
-            "forbidden": [", ".join(forbids.get(u, [])) for u in uid],
-        })
-
-    def sites_frame(self, outcome: Outcome | None = None, *,
-                    resolved_settings: RunSettings | None = None) -> pd.DataFrame:
-        """One row per site of the level: edits in force and the plan's figures.
-
-        Columns: site_id, name, status, capacity, min_util, max_util (shares), students_<year>
-        and util_<year> (share) for each projected year, today (plan-year students under
-        today's zones), moved_in, moved_out, mean_km, max_km, out_of_band, flag (words).
-        """
-        full = self.effective if resolved_settings is None else resolved_settings
-        sites = self.inputs.sites
-        sites = sites.loc[sites["level"] == self.level].reset_index(drop=True)
-        ids = sites["site_id"].astype(str).to_numpy()
-        df = pd.DataFrame({"site_id": ids, "name": sites["name"].astype(str).to_numpy()})
-        def override(values: dict, column: str, default: float | None = None) -> list:
-            base = sites[column].to_numpy()
-            if default is not None:
-                base = rules.site_band(base, default)
-            return [values.get(s, v) for s, v in zip(ids, base, strict=True)]
-
-        df["status"] = override(full.status, "status")
-        df["capacity"] = np.asarray(override(full.capacity, "capacity"), dtype=float)
-        df["min_util"] = np.asarray(override(full.site_min_util, "min_util",
-                                             full.min_utilization), dtype=float)
-        df["max_util"] = np.asarray(override(full.site_max_util, "max_util",
-                                             full.max_utilization), dtype=float)
-        if resolved_settings is not None:
-            return df
-        out = self.on_screen() if outcome is None else outcome
-        met = out.metrics
-        years = out.problem.years
-        order = np.argsort([int(y) for y in years])
-        for t in order:
-            df[f"students_{years[t]}"] = met.load[t]
-        for t in order:
-            df[f"util_{years[t]}"] = met.utilization[t]
-        df["today"] = self.today().metrics.load[0]
-        df["moved_in"] = met.moved_in
-        df["moved_out"] = met.moved_out
-        df["mean_km"] = met.mean_distance / 1000.0
-        df["max_km"] = met.max_distance / 1000.0
-        df["out_of_band"] = met.out_of_band
-        df["flag"] = tables.band_flags(met.load, out.problem, years, out.plan.open_sites)
-        return df
-
-    def summary(self, outcome: Outcome | None = None) -> dict:
-        """Headline figures of a plan (what the results panel and comparisons show)."""
-        return tables.headline(self.on_screen() if outcome is None else outcome)
-
-    def changes_frame(self, outcome: Outcome | None = None,
-                      reference: Outcome | None = None) -> pd.DataFrame:
-        """Units whose school differs between ``reference`` (default: today) and the plan."""
-        out = self.on_screen() if outcome is None else outcome
-        ref = self.today() if reference is None else reference
-        if ref.level != out.level:
-            raise StoreError("compare plans of the same level")
-        a = self.units_frame(out)
-        b = self.units_frame(ref)
-        diff = (a["proposed"] != b["proposed"]).to_numpy()
-        frame = pd.DataFrame({
-            "unit_id": a["unit_id"][diff],
-            "students": a["students"][diff],
-            "from": b["proposed"][diff],
-            "from_name": b["proposed_name"][diff],
-            "to": a["proposed"][diff],
-            "to_name": a["proposed_name"][diff],
-            "km_before": b["distance_km"][diff],
-            "km_after": a["distance_km"][diff],
-        })
-        return frame.reset_index(drop=True)
-
-    def flows_frame(self, outcome: Outcome | None = None,
-                    reference: Outcome | None = None) -> pd.DataFrame:
-        """Students per (from, to) school pair between ``reference`` and the plan."""
-        ch = self.changes_frame(outcome, reference)
-        g = ch.groupby(["from_name", "to_name"], as_index=False).agg(
-            units=("unit_id", "size"), students=("students", "sum"))
-        return g.sort_values("students", ascending=False).reset_index(drop=True)
-
-    def compare_frame(self, outcomes: list[Outcome]) -> pd.DataFrame:
-        """Headline figures side by side (one column per plan) and plan-year utilization."""
-        cols = {}
-        for out in outcomes:
-            s = self.summary(out)
-            col = {
-                "status": s["status"],
-                "gap": f"{s['gap']:.3%}" if np.isfinite(s["gap"]) else "",
-                "students moved": f"{s['students_moved']:,.0f}",
-                "units moved": f"{s['units_moved']:,}",
-                "mean travel (km)": f"{s['mean_km']:.2f}",
-                "longest travel (km)": f"{s['max_km']:.2f}",
-                "schools out of band": str(s["schools_out_of_band"]),
-            }
-            met = out.metrics
-            for sid, u in zip(out.site_ids, met.utilization[0], strict=True):
-                col[f"{sid} utilization {s['plan_year']}"] = "" if np.isnan(u) else f"{u:.0%}"
-            label = out.name or "unsaved result"
-            while label in cols:
-                label += " "
-            cols[label] = col
-        return pd.DataFrame(cols)
-
     # ------------------------------------------------------------------ exports
     def export_folder(self) -> Path:
         if self._export_dir is None:
@@ -671,166 +456,3 @@ class Store:
         if kind not in files:
             raise StoreError(f"unknown export {kind!r} (exports: {', '.join(files)})")
         return Path(files[kind])
-
-    # ------------------------------------------------------------------ persistence
-    def state(self) -> dict:
-        """The JSON-friendly state written to the store after every change."""
-        plans = {}
-        for lv, out in self.outcomes.items():
-            if out is None:
-                continue
-            plans[lv] = {
-                "name": out.name,
-                "created": out.created,
-                "sites": out.site_id_of(out.assignment).tolist(),
-                "settings": out.settings.to_dict(),
-                "units": len(out.unit_ids),
-                "status": out.plan.status,
-                "objective": float(out.plan.objective),
-                "bound": float(out.plan.bound),
-                "gap": float(out.plan.gap),
-            }
-        return {
-            "version": STATE_VERSION,
-            "level": self.level,
-            "runs": {lv: rs.to_dict() for lv, rs in self.runs.items()},
-            "plans": plans,
-        }
-
-    @property
-    def record_key(self) -> str:
-        """The store's key of this session's draft."""
-        return DRAFT_PREFIX + self.draft if self.draft else STATE_KEY
-
-    def _save(self) -> None:
-        """Write the draft; a record changed by another session since is left alone and
-        :attr:`conflict` set (the edits stay here until :meth:`reload` or
-        :meth:`keep_as_draft`)."""
-        if not self.persist or self.conflict or self.damaged:
-            return
-        try:
-            with _write_lock(self.store_path):
-                self.revision = _options.save_state(self.store_path, self.record_key,
-                                                    self.state(), expected=self.revision)
-        except _options.StateConflict:
-            self.conflict = True
-        except _options.StoreDamaged as exc:
-            self.damaged = str(exc)
-
-    @property
-    def problem(self) -> str:
-        """Words for the planner when edits are not being written ('' when all is well)."""
-        if self.damaged:
-            return (self.damaged + " Your edits in this page are kept while it stays open, "
-                    "but nothing is written until the store is repaired.")
-        if self.conflict:
-            where = f"draft {self.draft!r}" if self.draft else "the workbench record"
-            return (f"Another session saved {where} of this project after this page loaded it, "
-                    "so your latest edits were not written over theirs. Reload to continue "
-                    "from their saved work (your unsaved edits here are dropped), or keep your "
-                    "edits as a draft of a new name.")
-        return ""
-
-    def reload(self) -> list[str]:
-        """Drop this session's edits and continue from the record as saved now."""
-        self._reset()
-        self.conflict = False
-        self.revision = 0
-        return self.restore()
-
-    def keep_as_draft(self, name: str) -> str:
-        """Write this session's edits as a new draft ``name`` and continue on it."""
-        try:
-            name = check_name(name, "draft")
-        except BadName as exc:
-            raise StoreError(str(exc)) from None
-        if name in self.drafts():
-            raise StoreError(f"a draft named {name!r} exists; choose another name")
-        self.draft, self.revision, self.conflict = name, 0, False
-        self._save()
-        if self.damaged:
-            raise StoreError(self.problem)
-        return name
-
-    def drafts(self) -> list[str]:
-        """Names of the drafts kept in the store besides the main workbench record."""
-        try:
-            keys = _options.state_keys(self.store_path)
-        except _options.OptionError as exc:
-            self.damaged = str(exc)
-            return []
-        return [k[len(DRAFT_PREFIX):] for k in keys if k.startswith(DRAFT_PREFIX)]
-
-    def open_draft(self, name: str) -> list[str]:
-        """Continue on another draft ('' = the main record), dropping unsaved edits here."""
-        if name and name not in self.drafts():
-            raise StoreError(f"there is no draft named {name!r}")
-        self.draft = name
-        return self.reload()
-
-    def repair(self) -> Path | None:
-        """Set a damaged store aside and start a new one; this session's edits are written."""
-        try:
-            with _write_lock(self.store_path):
-                aside = _options.repair_store(self.store_path)
-        except _options.OptionError as exc:
-            raise StoreError(str(exc)) from exc
-        self.damaged, self.revision, self.conflict = "", 0, False
-        self._save()
-        return aside
-
-    def restore(self) -> list[str]:
-        """Read the last state from the store; returns notes on what could not be restored."""
-        notes: list[str] = []
-        if not self.persist or not self.store_path.exists():
-            return notes
-        try:
-            data, self.revision = _options.state_record(self.store_path, self.record_key)
-        except _options.OptionError as exc:
-            self.damaged = str(exc)
-            self.last_message = self.problem
-            return [self.problem]
-        if not data or data.get("version") != STATE_VERSION:
-            return notes
-        units = set(self.unit_ids)
-        for lv, rsd in data.get("runs", {}).items():
-            if lv not in self.runs:
-                continue
-            rs = RunSettings.from_dict({**rsd, "level": lv})
-            sites = set(self.inputs.sites.loc[self.inputs.sites["level"] == lv, "site_id"]
-                        .astype(str))
-            locks = {u: s for u, s in rs.locks.items() if u in units and s in sites}
-            forbids = {u: [s for s in ss if s in sites] for u, ss in rs.forbids.items()
-                       if u in units}
-            if len(locks) < len(rs.locks) or sum(map(len, forbids.values())) < sum(
-                    map(len, rs.forbids.values())):
-                notes.append(f"{lv}: some saved locks name units or schools no longer in the "
-                             "project and were dropped")
-            self.runs[lv] = rs.replace(locks=locks, forbids={u: s for u, s in forbids.items()
-                                                             if s})
-        if data.get("level") in self.runs:
-            self.level = data["level"]
-        for lv, p in data.get("plans", {}).items():
-            if lv not in self.runs:
-                continue
-            try:
-                self.outcomes[lv] = self._plan_from_state(lv, p)
-            except (ValueError, KeyError, IndexError) as exc:
-                notes.append(f"{lv}: the last plan could not be restored ({exc}); press Rerun")
-        self.last_message = " ".join(notes)
-        return notes
-
-    def _plan_from_state(self, level: str, p: dict) -> Outcome:
-        ids = p["sites"]
-        if len(ids) != len(self.unit_ids):
-            raise ValueError("the project's units changed")
-        full = RunSettings.from_dict({**p["settings"], "level": level})
-        sites = self.inputs.sites
-        level_ids = sites.loc[sites["level"] == level, "site_id"].astype(str).tolist()
-        pos = {s: j for j, s in enumerate(level_ids)}
-        a = np.array([pos[s] if s in pos else -1 for s in ids], dtype=np.int64)
-        if (a < 0).any():
-            raise ValueError("the plan names schools no longer in the project")
-        fields = {k: p[k] for k in ("status", "objective", "bound", "gap") if k in p}
-        return outcome_from_assignment(self.inputs, full, a, fields, name=p.get("name", ""),
-                                       created=p.get("created", ""))
