@@ -116,6 +116,20 @@ def test_open_count_is_checked():
     assert check_plan(f, [0] * 6) == []  # one school open, its zone the whole grid
 
 
+def test_open_count_may_be_met_by_a_school_opened_without_students():
+    # Hand-worked, p-median semantics: p = 2 and the plan uses only A; B may open empty
+    # when it has no unit of its own to hold and no floor, so the count is met. With a
+    # unit of its own, or with a floor, an empty B cannot be open: one school short.
+    one_zone = [0] * 6
+    base = dict(must_open=np.zeros(2, bool), open_count=2, capacity=np.array([80.0, 40.0]))
+    assert check_plan(facts(**base, min_util=np.zeros(2), roots=np.array([0, -1])),
+                      one_zone) == []
+    assert rules(check_plan(facts(**base, min_util=np.zeros(2)), one_zone)) == [
+        ("open_count", None, None, None)]
+    assert ("open_count", None, None, None) in rules(check_plan(
+        facts(**base, min_util=np.array([0.0, 0.5]), roots=np.array([0, -1])), one_zone))
+
+
 def test_a_broken_lock_is_refused():
     found = check_plan(facts(locks={4: 0}), GOOD)
     assert rules(found) == [("lock", 0, None, 4)]
