@@ -123,7 +123,7 @@ def run_flow(n_units: int, n_sites: int, seed: int, empty: float, gap: float,
     from towns import synthetic_town
 
     import districting
-    from districting.model import build_model, solve_model
+    from districting.engine.pyomo_route import build_model, solve_model
 
     problem, _ = synthetic_town(n_units, n_sites, seed, empty)
     t0 = time.perf_counter()
@@ -156,7 +156,7 @@ def run_resolve(n_units: int, n_sites: int, seed: int, empty: float, gap: float,
     """Lock 5 student units on zone borders to the neighbouring zone, then re-solve."""
     from towns import synthetic_town
 
-    from districting.solve import Session
+    from districting.engine import Session
 
     problem, _ = synthetic_town(n_units, n_sites, seed, empty)
     session = Session(problem)

@@ -303,7 +303,7 @@ def run(
     ``feasible``, its gap so far) each time the solver finds a better valid plan, so a
     caller can show it while the solve goes on.
     """
-    from .solve import Session  # late import keeps study importable while solve builds
+    from .engine import Session
 
     full = resolved(inputs, rs)
     problem, rows = build_problem(inputs, full)

@@ -10,7 +10,9 @@ import numpy as np
 import pytest
 
 from districting import Problem, solve
-from districting import contiguity as cg
+from districting.engine import connectivity as cg
+from districting.engine import cuts as cutting
+from districting.engine import repair
 
 
 def grid(w: int, h: int):
@@ -150,7 +152,7 @@ def test_separator_separates_fragment_from_root():
     graph = cg.UnitGraph.of(problem)
     frags = cg.fragments(problem, graph, a)
     assert [sorted(f.tolist()) for f in frags] == [[18, 19]]
-    cuts = cg.separator_cuts(problem, graph, a)
+    cuts = cutting.separator_cuts(problem, graph, a)
     # the fragment's own separator, then the smallest one (here the root's two neighbours)
     assert len(cuts) == 2
     for cut in cuts:
@@ -178,7 +180,7 @@ def test_reassign_empty_keeps_student_units_and_connects():
     problem = Problem.from_arrays(np.zeros((5, 2)), d, edges=edges, roots=[0, 4])
     a = np.array([0, 1, 1, 0, 1])
     graph = cg.UnitGraph.of(problem)
-    b, detached = cg.reassign_empty(problem, graph, a)
+    b, detached = repair.reassign_empty(problem, graph, a)
     assert not detached.any()
     assert b.tolist() == [0, 0, 0, 0, 1]
     assert cg.is_contiguous(problem, graph, b)
@@ -211,7 +213,7 @@ def test_fractional_cut_weight_matches_networkx_and_separates():
     point[:, 1] = 1.0 - point[:, 0]
     point[12] = [0.0, 1.0]
     graph = cg.UnitGraph.of(problem)
-    cuts = [c for c in cg.fractional_cuts(problem, graph, point) if c.site == 0]
+    cuts = [c for c in cutting.fractional_cuts(problem, graph, point) if c.site == 0]
     expected = split_graph_min_cut(n, edges, point[:, 0], 24, 0)
     assert expected == pytest.approx(0.4)  # its two neighbours, 0.2 each
     assert cuts, "a violated cut was not found"
@@ -224,7 +226,7 @@ def test_fractional_cut_weight_matches_networkx_and_separates():
     solid = np.zeros((n, 2))
     solid[:, 0] = 1.0
     solid[12] = [0.0, 1.0]
-    assert not [c for c in cg.fractional_cuts(problem, graph, solid) if c.site == 0]
+    assert not [c for c in cutting.fractional_cuts(problem, graph, solid) if c.site == 0]
 
 
 @pytest.mark.parametrize("seed", range(3))
@@ -248,7 +250,7 @@ def test_fractional_cuts_hold_for_every_contiguous_plan(seed):
         x0 = rng.random(n)
         point = np.column_stack([x0, 1 - x0])
         point[0], point[8] = [1, 0], [0, 1]
-        for cut in cg.fractional_cuts(problem, graph, point):
+        for cut in cutting.fractional_cuts(problem, graph, point):
             found += 1
             for x in plans:
                 lhs = x[cut.units, cut.site]

@@ -1,15 +1,15 @@
-"""The assignment problem as a Pyomo model: the reference route and the route to other solvers.
+"""The Pyomo reference route: the formulation written as a Pyomo model, any solver Pyomo drives.
 
-Every constraint family is one function whose docstring states its formula in the notation
-of :mod:`districting.problem` (``i`` unit, ``j`` site, ``t`` demand row; ``x[i, j]``
-assignment, ``y[j]`` open site). :func:`build_model` calls them in turn on a
-``pyo.ConcreteModel``; :func:`solve_model` runs any solver Pyomo drives and reads the answer
-back as a :class:`ModelResult`.
+:func:`build_model` writes every column and row family of
+:mod:`districting.engine.formulation` (the same rows the HiGHS array route passes to
+highspy) as Pyomo components; :func:`solve_model` runs any solver Pyomo drives and reads the
+answer back as a :class:`ModelResult`; :class:`PyomoRoute` is the route the solve session
+drives.
 
 Sets and variables:
 
 - ``m.I`` units, ``m.J`` sites that may be open (not closed), ``m.J_cand`` candidate sites
-  (opening decided by the solver), ``m.P`` the allowed ``(i, j)`` pairs (``problem.allowed``);
+  (opening decided by the solver), ``m.P`` the pairs with a column;
 - ``m.x[i, j]`` binary on ``m.P``; ``m.y[j]`` binary on ``m.J``, fixed to 1 for the
   always-open sites.
 
@@ -19,9 +19,10 @@ Operations Research 70(2) 2022, 867-892), or the single-commodity flow formulati
 (2005) (:func:`contiguity_flow`), which is exact in one solve and the baseline the cut loop is
 measured against in ``benchmarks/``.
 
-``build_model(..., elastic=...)`` gives chosen families a non-negative slack (the model stays
-feasible and the slack says by how much a rule must give); :mod:`districting.diagnose` uses
-it to explain an infeasible problem in words.
+``build_model(..., elastic=...)`` gives chosen families a non-negative slack per row
+(``m.<family>_slack``, indexed by the row's key: (t, j) for capacity and floor, the unit for
+locks, 0 for the move limit); :mod:`districting.engine.diagnose` uses it to explain an
+infeasible problem in words.
 """
 
 from __future__ import annotations
@@ -36,29 +37,21 @@ import numpy as np
 import pyomo.environ as pyo
 from pyomo.opt import TerminationCondition
 
-from .problem import Problem
+from ..problem import Problem
+from .answer import Answer
+from .connectivity import Cut
+from .formulation import ELASTIC_FAMILIES, Formulation, RowBlock, formulate, separator_rows
+from .precheck import unbuildable
 
 __all__ = [
     "ModelResult",
-    "ELASTIC_FAMILIES",
+    "PyomoRoute",
     "build_model",
     "solve_model",
     "add_separator_cut",
-    "objective",
-    "assignment",
-    "linking",
-    "count",
-    "roots",
-    "capacity",
-    "floor",
-    "locks",
-    "max_moved",
     "contiguity_cuts",
     "contiguity_flow",
 ]
-
-#: Families that :func:`build_model` can build with a slack (``elastic=``).
-ELASTIC_FAMILIES = ("capacity", "floor", "locks", "max_moved")
 
 #: Name of each solver's relative MIP gap option (Pyomo passes ``options`` through as is).
 _GAP_OPTION = {
@@ -108,7 +101,7 @@ def build_model(
     *,
     elastic: Iterable[str] = (),
 ) -> pyo.ConcreteModel:
-    """The Pyomo model of ``problem``: one component per constraint family.
+    """The Pyomo model of ``problem``: every family of :func:`formulate`, one component each.
 
     ``contiguity`` is "cuts" (an empty cut list the solve loop fills, see
     :func:`add_separator_cut`), "flow" (Shirabe's exact flow formulation) or "none".
@@ -124,21 +117,16 @@ def build_model(
     unknown = elastic - set(ELASTIC_FAMILIES)
     if unknown:
         raise ValueError(f"elastic families must be among {ELASTIC_FAMILIES}; got {unknown}")
-    from .diagnose import unbuildable
-
     reasons = unbuildable(problem)
     if reasons:
         raise ValueError("\n".join(reasons))
 
+    f = formulate(problem, elastic=elastic)
     m = pyo.ConcreteModel(name=f"districting {problem.level}".strip())
     m.problem = problem
     m.elastic = elastic
-    # Soft locks keep every pair a lock would remove, so a slack can move the unit.
-    pair_source = problem.replace(locks=np.full(problem.n_units, -1)) if (
-        "locks" in elastic
-    ) else problem
-    allowed = pair_source.allowed
-    ii, jj = np.nonzero(allowed)
+    m.formulation = f
+    ii, jj = f.xi, f.xj
     m.pairs = np.column_stack([ii, jj])
     m.sites_of = [[] for _ in range(problem.n_units)]
     m.units_of = [[] for _ in range(problem.n_sites)]
@@ -155,16 +143,17 @@ def build_model(
     m.y = pyo.Var(m.J, domain=pyo.Binary)
     for j in np.flatnonzero(problem.always_open).tolist():
         m.y[j].fix(1)
-
-    objective(m)
-    assignment(m)
-    linking(m)
-    count(m)
-    roots(m)
-    capacity(m)
-    floor(m)
-    locks(m)
-    max_moved(m)
+    m.columns = _columns(m, f)
+    for k, var in enumerate(m.columns):  # fixings of the formulation (locks, roots)
+        if f.lower[k] > 0.5:
+            var.setlb(1)
+        if f.upper[k] < 0.5:
+            var.fix(0)
+    m.objective = pyo.Objective(
+        expr=_sum([float(f.cost[k]) * m.columns[k] for k in range(f.n_pairs)]),
+        sense=pyo.minimize)
+    for block in f.blocks:
+        _add_block(m, block)
     if problem.contiguous and contiguity == "cuts":
         contiguity_cuts(m)
     elif problem.contiguous and contiguity == "flow":
@@ -172,177 +161,57 @@ def build_model(
     return m
 
 
+def _columns(m: pyo.ConcreteModel, f: Formulation) -> list:
+    """The Pyomo variable of each formulation column (x pairs, then y of candidates)."""
+    out = [m.x[i, j] for i, j in zip(f.xi.tolist(), f.xj.tolist(), strict=True)]
+    ysite = np.empty(f.ncol - f.n_pairs, np.int64)
+    cand = np.flatnonzero(f.ycol >= 0)
+    ysite[f.ycol[cand] - f.n_pairs] = cand
+    return out + [m.y[int(j)] for j in ysite]
+
+
 def _sum(terms: Sequence) -> object:
     return pyo.quicksum(terms) if terms else 0.0
 
 
-def _slack(m: pyo.ConcreteModel, family: str, index) -> pyo.Var | None:
-    """A non-negative slack ``m.<family>_slack`` over ``index`` when the family is elastic."""
-    if family not in m.elastic:
-        return None
-    var = pyo.Var(index, domain=pyo.NonNegativeReals)
-    m.add_component(f"{family}_slack", var)
-    return var
+def _rows(m: pyo.ConcreteModel, block: RowBlock) -> list:
+    """The body sum_k coef x_k of each row of ``block``."""
+    order = np.argsort(block.row, kind="stable")
+    ends = np.searchsorted(block.row[order], np.arange(block.n_rows + 1))
+    cols, coefs = block.col[order].tolist(), block.coef[order].tolist()
+    return [_sum([c * m.columns[k] for k, c in zip(cols[a:b], coefs[a:b], strict=True)])
+            for a, b in zip(ends[:-1], ends[1:], strict=True)]
 
 
-def objective(m: pyo.ConcreteModel) -> None:
-    """min sum_{(i,j) in P} w[i, j] x[i, j], with w = ``problem.weighted_cost``.
-
-    w[i, j] = d[0, i] c[i, j] + stability_weight d[0, i] [j != current_i].
-    """
-    w = m.problem.weighted_cost
-    m.objective = pyo.Objective(
-        expr=_sum([float(w[i, j]) * m.x[i, j] for i, j in m.P]), sense=pyo.minimize
-    )
-
-
-def assignment(m: pyo.ConcreteModel) -> None:
-    """sum_{j: (i,j) in P} x[i, j] = 1 for every unit i (each unit in exactly one zone)."""
-
-    def rule(m, i):
-        return _sum([m.x[i, j] for j in m.sites_of[i]]) == 1
-
-    m.assignment = pyo.Constraint(m.I, rule=rule)
-
-
-def linking(m: pyo.ConcreteModel) -> None:
-    """x[i, j] <= y[j] for every allowed pair of a candidate site j (the strong form)."""
-    cand = set(m.J_cand)
-    m.link_pairs = pyo.Set(dimen=2, initialize=[(i, j) for i, j in m.P if j in cand],
-                           ordered=True)
-    m.linking = pyo.Constraint(m.link_pairs, rule=lambda m, i, j: m.x[i, j] <= m.y[j])
-
-
-def count(m: pyo.ConcreteModel) -> None:
-    """sum_{j in J} y[j] = p (forced-open sites included) when p is not None."""
-    if m.problem.p is not None:
-        m.count = pyo.Constraint(expr=_sum([m.y[j] for j in m.J]) == m.problem.p)
-
-
-def roots(m: pyo.ConcreteModel) -> None:
-    """x[r_j, j] = y[j] for every site j with a root unit r_j (y[j] = 1 when always open).
-
-    A site stands in its root unit, so an open site's zone holds that unit. A candidate whose
-    root may not be assigned to it cannot open (y[j] fixed to 0).
-    """
-    prob = m.problem
-    if prob.roots is None:
+def _add_block(m: pyo.ConcreteModel, block: RowBlock) -> None:
+    """``m.<family>`` with one constraint per row; with ``m.<family>_slack`` when elastic
+    (+ slack on a row with a lower side, - slack on a row with an upper side only)."""
+    if not block.n_rows:
         return
-    rooted = []
-    for j in m.J:
-        r = int(prob.roots[j])
-        if r < 0:
-            continue
-        if (r, j) in m.x:
-            rooted.append(j)
-        elif not m.y[j].fixed:
-            m.y[j].fix(0)
-    m.J_root = pyo.Set(initialize=rooted, ordered=True)
-    m.roots = pyo.Constraint(
-        m.J_root, rule=lambda m, j: m.x[int(prob.roots[j]), j] == m.y[j]
-    )
+    family = block.family
+    bodies = _rows(m, block)
+    slack = None
+    if family in m.elastic:
+        slack = pyo.Var(list(block.keys), domain=pyo.NonNegativeReals)
+        m.add_component(f"{family}_slack", slack)
 
-
-def _load(m: pyo.ConcreteModel, t: int, j: int):
-    d = m.problem.demand[t]
-    return _sum([float(d[i]) * m.x[i, j] for i in m.units_of[j] if d[i] > 0])
-
-
-def _band_index(m: pyo.ConcreteModel, share: np.ndarray) -> list[tuple[int, int]]:
-    cap = m.problem.capacity
-    if cap is None:
-        return []
-    return [(t, j) for t in range(m.problem.n_years) for j in m.J
-            if np.isfinite(cap[j]) and np.isfinite(share[j]) and share[j] > 0]
-
-
-def capacity(m: pyo.ConcreteModel) -> None:
-    """sum_i d[t, i] x[i, j] <= u_max[j] Q[j] y[j] for every demand row t and site j.
-
-    Holds in every projected year; with y[j] on the right it also links a closed candidate.
-    Elastic: the right-hand side gains ``capacity_slack[t, j]`` (students over the limit).
-    """
-    prob = m.problem
-    if prob.capacity is None:
-        return
-    m.capacity_index = pyo.Set(dimen=2, initialize=_band_index(m, np.ones(prob.n_sites)),
-                               ordered=True)
-    slack = _slack(m, "capacity", m.capacity_index)
-
-    def rule(m, t, j):
-        rhs = float(prob.max_util[j] * prob.capacity[j]) * m.y[j]
+    def rule(m, r):
+        body, lo, hi = bodies[r], float(block.lo[r]), float(block.hi[r])
         if slack is not None:
-            rhs = rhs + slack[t, j]
-        return _load(m, t, j) <= rhs
+            s = slack[block.keys[r]]
+            body = body + s if np.isfinite(lo) else body - s
+        if isinstance(body, float):  # no column left in the row
+            ok = lo - 1e-9 <= body <= hi + 1e-9
+            return pyo.Constraint.Feasible if ok else pyo.Constraint.Infeasible
+        if lo == hi:
+            return body == lo
+        if not np.isfinite(lo):
+            return body <= hi
+        if not np.isfinite(hi):
+            return body >= lo
+        return pyo.inequality(lo, body, hi)
 
-    m.capacity = pyo.Constraint(m.capacity_index, rule=rule)
-
-
-def floor(m: pyo.ConcreteModel) -> None:
-    """sum_i d[t, i] x[i, j] >= u_min[j] Q[j] y[j] for every row t, where u_min[j] > 0.
-
-    Elastic: the left-hand side gains ``floor_slack[t, j]`` (students short of the floor).
-    """
-    prob = m.problem
-    if prob.capacity is None or not np.any(prob.min_util > 0):
-        return
-    m.floor_index = pyo.Set(dimen=2, initialize=_band_index(m, prob.min_util), ordered=True)
-    slack = _slack(m, "floor", m.floor_index)
-
-    def rule(m, t, j):
-        lhs = _load(m, t, j)
-        if slack is not None:
-            lhs = lhs + slack[t, j]
-        return lhs >= float(prob.min_util[j] * prob.capacity[j]) * m.y[j]
-
-    m.floor = pyo.Constraint(m.floor_index, rule=rule)
-
-
-def locks(m: pyo.ConcreteModel) -> None:
-    """x[i, lock_i] = 1 for every locked unit i (its other pairs are not in P).
-
-    Elastic: the other pairs stay in P and ``x[i, lock_i] + locks_slack[i] = 1``.
-    """
-    lk = m.problem.locks
-    locked = np.flatnonzero(lk >= 0).tolist()
-    if not locked:
-        return
-    m.locked = pyo.Set(initialize=locked, ordered=True)
-    slack = _slack(m, "locks", m.locked)
-
-    def rule(m, i):
-        lhs = m.x[i, int(lk[i])]
-        if slack is not None:
-            lhs = lhs + slack[i]
-        return lhs == 1
-
-    m.locks = pyo.Constraint(m.locked, rule=rule)
-
-
-def max_moved(m: pyo.ConcreteModel) -> None:
-    """sum_{i: current_i >= 0} d[0, i] (1 - x[i, current_i]) <= max_moved.
-
-    A pair (i, current_i) outside P counts as moved for sure (a constant d[0, i]).
-    Elastic: the right-hand side gains ``max_moved_slack`` (students over the limit).
-    """
-    prob = m.problem
-    if prob.max_moved is None:
-        return
-    d0 = prob.demand[0]
-    terms, fixed = [], 0.0
-    for i in np.flatnonzero((prob.current >= 0) & (d0 > 0)).tolist():
-        j = int(prob.current[i])
-        if (i, j) in m.x:
-            terms.append(float(d0[i]) * (1 - m.x[i, j]))
-        else:
-            fixed += float(d0[i])
-    slack = _slack(m, "max_moved", [0])
-    if not terms and slack is None:
-        return  # nothing left to decide; ``unbuildable`` rejects a limit already broken
-    rhs = prob.max_moved - fixed
-    if slack is not None:
-        rhs = rhs + slack[0]
-    m.max_moved = pyo.Constraint(expr=_sum(terms) <= rhs)
+    m.add_component(family, pyo.Constraint(range(block.n_rows), rule=rule))
 
 
 # ---------------------------------------------------------------------------- contiguity
@@ -599,3 +468,45 @@ def _number(value, default: float) -> float:
     except (TypeError, ValueError):
         return default
     return v if np.isfinite(v) else default
+
+
+# ---------------------------------------------------------------------------- the route
+class PyomoRoute:
+    """The model of :func:`build_model`, solved by any solver Pyomo drives; cuts as rows."""
+
+    def __init__(self, problem: Problem, solver: str) -> None:
+        self.name = solver
+        self.problem = problem
+        self.model = build_model(problem, contiguity="cuts")
+        self.fixed = 0
+
+    def add_cuts(self, cuts: Sequence[Cut]) -> int:
+        """Add the rows of ``cuts`` (:func:`~districting.engine.formulation.separator_rows`)."""
+        block = separator_rows(self.model.formulation, cuts)
+        if not hasattr(self.model, "separator_cuts"):
+            contiguity_cuts(self.model)
+        for body, hi in zip(_rows(self.model, block), block.hi.tolist(), strict=True):
+            self.model.separator_cuts.add(body <= hi)
+        return block.n_rows
+
+    def solve(self, gap, time_left, start, cancel) -> Answer:
+        r = solve_model(self.model, self.name, gap, time_left, start)
+        a = None if r.assignment is None or np.any(np.asarray(r.assignment) < 0) else (
+            np.asarray(r.assignment, np.int64))
+        status = r.status
+        if a is None and status in ("optimal", "feasible"):
+            status = "error"
+        obj = float(r.objective) if a is not None else np.inf
+        bound = float(r.bound) if r.bound is not None and np.isfinite(r.bound) else -np.inf
+        msg = getattr(r, "message", "") or ("" if status != "error" else f"{self.name}: error")
+        return Answer(status, a, obj, bound, msg)
+
+    def relaxation(self) -> None:
+        """No LP pass on this route: its bound comes from the solver's own answers."""
+        return None
+
+    def unrestrict(self) -> None:
+        """Nothing to undo: this route never restricts columns for the heuristic."""
+
+    def fix_by_reduced_cost(self, ub: float) -> int:
+        return 0
