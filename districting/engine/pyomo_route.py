@@ -148,7 +148,7 @@ def build_model(
         if f.lower[k] > 0.5:
             var.setlb(1)
         if f.upper[k] < 0.5:
-            var.fix(0)
+            var.setub(0)
     m.objective = pyo.Objective(
         expr=_sum([float(f.cost[k]) * m.columns[k] for k in range(f.n_pairs)]),
         sense=pyo.minimize)
