@@ -297,7 +297,7 @@ def run(
     """Solve one level; ``progress`` gets each :class:`~districting.plan.Round`.
 
     ``sessions`` is a dict the caller keeps between runs (the workbench keeps one per
-    planner): it holds a :class:`~districting.solve.Session` per level and solver, so a
+    planner): it holds a :class:`~districting.engine.Session` per level and solver, so a
     rerun after a lock or a cap reuses the cuts found so far and, when the change only
     removes plans, the bound already proven. ``on_plan`` gets an interim Outcome (status
     ``feasible``, its gap so far) each time the solver finds a better valid plan, so a

@@ -216,7 +216,7 @@ class HighsRoute:
         """Root cutting planes: separator cuts violated by the LP point, in rounds.
 
         Solves the LP relaxation with every row so far, adds the separator cuts its point
-        violates (:func:`districting.contiguity.fractional_cuts`) and solves again (the
+        violates (:func:`districting.engine.cuts.fractional_cuts`) and solves again (the
         dual simplex restarts from the last basis), until no cut is violated, the clock
         reaches ``deadline``, or three rounds running each close less than ``min_gain``
         of the gap to ``ub`` (the cost of a valid plan; without one, of a thousandth of
@@ -314,9 +314,9 @@ class HighsRoute:
 
     def tree_rows(self, parent: np.ndarray) -> np.ndarray:
         """Add the rows x[i,j] <= x[q,j] (q: i's nearest ancestor with a column in site j's
-        tree, :func:`districting.contiguity.site_trees`), inactive until :meth:`trees` turns
-        them on. Returns the pair columns a tree-shaped zone cannot use (ancestor without a
-        column, unit not reached). Heuristic only: a tree restricts the plans.
+        tree, :func:`districting.engine.connectivity.site_trees`), inactive until
+        :meth:`trees` turns them on. Returns the pair columns a tree-shaped zone cannot use
+        (ancestor without a column, unit not reached). Heuristic only: a tree restricts the plans.
         """
         p = self.problem
         xi, xj = self.xi, self.xj
