@@ -51,22 +51,6 @@ def objective(problem, a) -> float:
     return float(problem.weighted_cost[np.arange(problem.n_units), a].sum())
 
 
-def test_make_valid_turns_fragments_and_overload_into_a_valid_plan():
-    prob, edges = make(capacity=[60, 60, 60])
-    g = UnitGraph.of(prob)
-    # nearest school, then a scatter of units handed to the far school: fragments appear
-    a = np.argmin(prob.cost, axis=1)
-    a[[10, 13, 30]] = 2
-    a[prob.roots] = np.arange(3)
-    assert not zones_connected(a, prob, edges)
-    b = repair.make_valid(prob, g, a)
-    assert b is not None
-    assert zones_connected(b, prob, edges)
-    assert_plan_valid(prob, b)  # the independent checker
-    load = loads(prob, b)
-    assert (load <= 60 + 1e-9).all() and (load >= 0.3 * 60 - 1e-9).all()
-
-
 def loads(problem, a):
     return np.stack([np.bincount(a, weights=row, minlength=problem.n_sites)
                      for row in problem.demand])
