@@ -57,11 +57,6 @@ class RowBlock:
     def n_rows(self) -> int:
         return len(self.lo)
 
-    def entries(self, r: int) -> tuple[np.ndarray, np.ndarray]:
-        """(columns, coefficients) of row r."""
-        sel = self.row == r
-        return self.col[sel], self.coef[sel]
-
 
 def _block(family: str, parts: list[tuple], keys: Sequence = ()) -> RowBlock:
     """A block from per-row parts (cols, coefs, lo, hi)."""

@@ -10,7 +10,7 @@ from __future__ import annotations
 import dataclasses
 import time
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -131,7 +131,6 @@ class SolveState:
     parents: np.ndarray | None = None
     status: str = "feasible"
     message: str = ""
-    rebuild: Callable[[], object] | None = field(default=None, repr=False)
 
     def far(self) -> bool:
         """The best plan is far above the bound (the heuristics deserve another turn)."""
