@@ -27,6 +27,7 @@ import numpy as np
 from ..plan import Plan
 from ..problem import Problem
 from .connectivity import UnitGraph, zone_touch
+from .tuning import LNS_SECONDS_PER_ZONE, LNS_SIZES
 
 __all__ = ["subproblem", "reoptimise", "ExactSolve"]
 
@@ -90,7 +91,7 @@ ExactSolve = Callable[[Problem, float, float | None, np.ndarray | None,
 
 def reoptimise(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
                solve_exact: ExactSolve, deadline: float | None = None, *,
-               sizes: tuple[int, ...] = (3, 5, 8),
+               sizes: tuple[int, ...] = LNS_SIZES,
                gap: float = 1e-4, on_better: Callable[[np.ndarray], None] | None = None,
                cancel: Callable[[], bool] | None = None) -> np.ndarray:
     """Improve a valid plan by exact re-solves of neighbourhoods of a few zones.
@@ -98,11 +99,11 @@ def reoptimise(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
     Passes over every zone as seed with neighbourhoods of ``sizes[0]`` zones until a pass
     finds nothing better, then with the next size (larger neighbourhoods reach moves that
     need several zones to give way, and cost more per solve: each solve gets at most
-    0.4 s per zone). ``solve_exact`` solves a neighbourhood exactly (the session passes
-    :func:`districting.engine.session.exact_subsolve`; passed in so this module does not
-    depend on the session that calls it). ``deadline`` is a :func:`time.monotonic` time;
-    ``on_better`` gets every better plan. Returns the best plan found (a copy of
-    ``assignment`` when none was).
+    ``LNS_SECONDS_PER_ZONE`` s per zone). ``solve_exact`` solves a neighbourhood exactly
+    (the session passes :func:`districting.engine.session.exact_subsolve`; passed in so
+    this module does not depend on the session that calls it). ``deadline`` is a
+    :func:`time.monotonic` time; ``on_better`` gets every better plan. Returns the best
+    plan found (a copy of ``assignment`` when none was).
     """
     best = np.asarray(assignment, np.int64).copy()
     m = problem.n_sites
@@ -134,8 +135,8 @@ def reoptimise(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
                 sub, units = subproblem(problem, best, sites)
                 smap = np.full(m, -1, np.int64)
                 smap[sites] = np.arange(len(sites))
-                plan = solve_exact(sub, gap, min(0.4 * size, left()), smap[best[units]],
-                                   cancel)
+                limit = min(LNS_SECONDS_PER_ZONE * size, left())
+                plan = solve_exact(sub, gap, limit, smap[best[units]], cancel)
                 if plan.status == "optimal":
                     clean.add(key)
                 if not plan.feasible:

@@ -42,6 +42,10 @@ LNS_SHARE = 0.35
 #: at 350,000 columns), so the search runs at once and gets ``LNS_SHARE_BIG`` of the time.
 LNS_BIG = 150_000
 LNS_SHARE_BIG = 0.9
+#: Zones per neighbourhood, grown in turn when a pass over every seed finds nothing.
+LNS_SIZES = (3, 5, 8)
+#: Seconds, at most, for one neighbourhood's exact solve, per zone in it.
+LNS_SECONDS_PER_ZONE = 0.4
 
 # ---- exact rounds and heuristics (districting.engine.session, heuristics)
 #: A repaired plan is "far" from the bound when its gap exceeds this many times the gap
