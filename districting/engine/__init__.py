@@ -12,12 +12,12 @@ Layout (each module imports only those above it in this list, never the session)
 - ``session`` (the pipeline of stages), ``solve`` (one-shot).
 
 The engine works on :class:`~districting.problem.Problem` arrays; it reads no project files.
+Pyomo is imported only by the Pyomo route and :mod:`~districting.engine.diagnose`.
 """
 
 from .connectivity import UnitGraph, plan_checks
-from .diagnose import explain
 from .precheck import precheck
 from .session import Session
 from .solve import solve
 
-__all__ = ["solve", "Session", "UnitGraph", "plan_checks", "precheck", "explain"]
+__all__ = ["solve", "Session", "UnitGraph", "plan_checks", "precheck"]

@@ -43,6 +43,7 @@ class HighsRoute:
         self.infeasible_reason = f.infeasible_reason
         ncol, cost, lower, upper = f.ncol, f.cost, f.lower, f.upper
         a, row_lower, row_upper = f.matrix()
+        f.blocks = []  # passed to HiGHS; the columns stay for the cut rows
         nrow = a.shape[0]
         lp = highspy.HighsLp()
         lp.num_col_ = ncol
