@@ -154,6 +154,7 @@ def build_model(
         sense=pyo.minimize)
     for block in f.blocks:
         _add_block(m, block)
+    f.blocks = []  # written as constraints; the columns stay for the cut rows
     if problem.contiguous and contiguity == "cuts":
         contiguity_cuts(m)
     elif problem.contiguous and contiguity == "flow":
