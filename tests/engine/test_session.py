@@ -206,15 +206,15 @@ def test_a_cut_through_a_unit_left_out_of_the_model_is_not_added():
     # optimum, which (hand-worked) puts units 0-3 in zone 0 and unit 4 in zone 1 at cost
     # 1+1+0+1+1 = 4, against 1+1+0+5+1 = 8 with unit 3 in zone 1.
     from districting.engine.connectivity import Cut
-    from districting.engine.highs_route import HighsRoute as _HighsBackend
+    from districting.engine.highs_route import HighsRoute
 
     cost = np.array([[1, 9], [1, 9], [1, 9], [1, 5], [9, 1]], float)
     d = np.array([1, 1, 0, 1, 1], float)
     p = Problem.from_arrays(cost, d, edges=[(0, 1), (1, 2), (2, 3), (3, 4)], roots=[0, 4])
     cut = Cut(site=0, units=np.array([3]), separator=np.array([2]))
-    full = _HighsBackend(p)
+    full = HighsRoute(p)
     assert full.add_cuts([cut]) == 1
-    relaxed = _HighsBackend(p, drop=np.array([False, False, True, False, False]))
+    relaxed = HighsRoute(p, drop=np.array([False, False, True, False, False]))
     assert relaxed.add_cuts([cut]) == 0
     z, _, _ = relaxed.relaxation()
     assert z <= 4 + 1e-9
