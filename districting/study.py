@@ -18,6 +18,7 @@ import numpy as np
 import shapely
 
 from . import rules
+from .engine import Session
 from .intake import Inputs
 from .intake.schema import RUN_KEYS, check_run
 from .plan import Plan, PlanMetrics, plan_metrics
@@ -298,14 +299,12 @@ def run(
     """Solve one level; ``progress`` gets each :class:`~districting.plan.Round`.
 
     ``sessions`` is a dict the caller keeps between runs (the workbench keeps one per
-    planner): it holds a :class:`~districting.solve.Session` per level and solver, so a
+    planner): it holds a :class:`~districting.engine.Session` per level and solver, so a
     rerun after a lock or a cap reuses the cuts found so far and, when the change only
     removes plans, the bound already proven. ``on_plan`` gets an interim Outcome (status
     ``feasible``, its gap so far) each time the solver finds a better valid plan, so a
     caller can show it while the solve goes on.
     """
-    from .solve import Session  # late import keeps study importable while solve builds
-
     full = resolved(inputs, rs)
     problem, rows = build_problem(inputs, full)
     solver = full.solver or "highs"

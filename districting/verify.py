@@ -1,7 +1,7 @@
 """An independent check of a finished plan, on plain data.
 
 Written apart from the engine on purpose: it reads no solver, model or local-search code
-(neither :mod:`districting.contiguity` nor :mod:`districting.plan`), so a bug there cannot
+(neither :mod:`districting.engine` nor :mod:`districting.plan`), so a bug there cannot
 hide itself here. Zones are tested for connectivity with
 ``scipy.sparse.csgraph.connected_components`` on the sub-graph each zone induces; loads are
 plain sums per projected year. :func:`check_plan` returns one :class:`Finding` per broken

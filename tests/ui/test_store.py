@@ -105,7 +105,7 @@ def test_cancel_keeps_the_best_plan_found(inputs):
 
 
 def test_better_plans_go_on_screen_while_the_solver_works(inputs):
-    from districting.contiguity import UnitGraph, plan_checks
+    from districting.engine.connectivity import UnitGraph, plan_checks
 
     st = new_store(inputs)
     st.update_settings(gap=0.0)

@@ -1,21 +1,18 @@
-"""Local search over contiguous plans: absorb fragments, rebalance loads, improve by swaps.
+"""Local search over plans: rebalance loads into band, lower the cost by moves and swaps.
 
-The exact rounds in :mod:`districting.solve` hand back MIP answers that are nearly optimal
-but break contiguity in a few dozen small pieces (when capacity binds, the MIP fills a
-school with a scatter of small boundary units). These functions turn such an answer into a
-valid plan that stays close to it, so each round yields an upper bound near the MIP bound:
+The exact rounds hand back MIP answers that are nearly optimal but break contiguity in a few
+dozen small pieces (when capacity binds, the MIP fills a school with a scatter of small
+boundary units). :mod:`districting.engine.repair` joins the pieces to zones; then:
 
-1. :func:`absorb` -- every piece cut from its root joins the neighbouring zone it costs
-   least to join (capacity ignored for now), until every zone is connected;
-2. :func:`rebalance` -- boundary moves that keep every zone connected bring capacity and
+1. :func:`rebalance` -- boundary moves that keep every zone connected bring capacity and
    floors back in band in every year; when no single move lowers the total excess, a move
    that keeps it equal is taken towards the nearest zone with room (an ejection chain along
    the zone graph, as in the ejection-chain methods of Glover, "Ejection chains, reference
    structures and alternating path methods for traveling salesman problems", Discrete
    Applied Mathematics 65, 1996);
-3. :func:`improve` -- cost-lowering single moves and pair swaps across zone borders that
-   keep every constraint and contiguity (the classic relocate / exchange neighbourhoods of
-   local search for the generalized assignment problem).
+2. :func:`improve` -- cost-lowering single moves and (optionally) pair swaps across zone
+   borders that keep every constraint and contiguity (the classic relocate / exchange
+   neighbourhoods of local search for the generalized assignment problem).
 
 All loads are kept for every demand row, so capacity and floors hold in every projected
 year. Locked units and sites' root units never move. Pure numpy plus breadth-first searches.
@@ -27,22 +24,16 @@ from collections import deque
 
 import numpy as np
 
-from .contiguity import (
-    UnitGraph,
-    _stays_connected,
-    reassign_empty,
-    zone_components,
-    zone_touch,
-)
-from .problem import Problem
+from ..problem import Problem
+from .connectivity import UnitGraph, stays_connected, zone_loads, zone_touch
 
-__all__ = ["absorb", "rebalance", "improve", "make_valid"]
+__all__ = ["fixed_units", "rebalance", "improve", "relocate"]
 
 _TOL = 1e-6
 _MAX_MOVES = 6  # per unit and call of rebalance: chains of moves cannot cycle for ever
 
 
-def _fixed_units(problem: Problem) -> np.ndarray:
+def fixed_units(problem: Problem) -> np.ndarray:
     """Units that never move: locked units and the root unit of every site."""
     fixed = problem.locks >= 0
     if problem.roots is not None:
@@ -62,11 +53,6 @@ def _bands(problem: Problem, a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     hi = problem.max_util * problem.capacity
     lo = np.where(used, problem.min_util * problem.capacity, 0.0)
     return hi, lo
-
-
-def _loads(problem: Problem, a: np.ndarray) -> np.ndarray:
-    m = problem.n_sites
-    return np.stack([np.bincount(a, weights=row, minlength=m) for row in problem.demand])
 
 
 def _excess(load: np.ndarray, hi: np.ndarray, lo: np.ndarray) -> np.ndarray:
@@ -92,97 +78,6 @@ def _reach(j: int, al: list[int], nbrs: list[list[int]], start: int,
 def _zone_connected(j: int, al: list[int], nbrs: list[list[int]], start: int) -> bool:
     """True when every unit of zone j is reachable from ``start`` inside zone j."""
     return len(_reach(j, al, nbrs, start)) == sum(1 for x in al if x == j)
-
-
-def _bridge(problem: Problem, graph: UnitGraph, b: np.ndarray, piece: np.ndarray, j: int,
-            target: np.ndarray, movable: np.ndarray) -> tuple[float, np.ndarray] | None:
-    """Cheapest chain of units that joins ``piece`` to ``target`` (zone j's root piece).
-
-    Dijkstra over the unit graph where entering unit w costs what moving w to j adds to the
-    objective (at least a tiny amount, so shorter chains win ties); units that may not move
-    or may not join j are closed. Returns (cost, chain units) or None.
-    """
-    from scipy.sparse import csr_matrix
-    from scipy.sparse.csgraph import dijkstra
-
-    n = graph.n
-    wc = problem.weighted_cost
-    step = wc[:, j] - wc[np.arange(n), b]
-    step = np.where(b == j, 0.0, np.maximum(step, 0.0)) + 1e-6
-    open_ = (movable | (b == j)) & problem.allowed[:, j]
-    head = graph.indices
-    keep = open_[head]
-    rows = np.repeat(np.arange(n), np.diff(graph.indptr))[keep]
-    g = csr_matrix((step[head[keep]], (rows, head[keep])), shape=(n, n))
-    dist, pred, _ = dijkstra(g, directed=True, indices=piece, min_only=True,
-                             return_predecessors=True)
-    reach = np.flatnonzero(target & np.isfinite(dist))
-    if not len(reach):
-        return None
-    end = int(reach[np.argmin(dist[reach])])
-    chain = []
-    inside = set(piece.tolist())
-    k = int(pred[end])
-    while k >= 0 and k not in inside:
-        chain.append(k)
-        k = int(pred[k])
-    return float(dist[end] - step[end]), np.array(chain, dtype=np.int64)
-
-
-def absorb(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
-           max_iter: int = 30) -> np.ndarray | None:
-    """Connect every zone, piece by piece, whichever way costs less.
-
-    Units with no students are handed out first (:func:`reassign_empty`). Each piece cut
-    from its root either joins the cheapest touching zone, or stays and pulls in the
-    cheapest chain of units that links it to its own root piece (:func:`_bridge`). A piece
-    holding a locked unit or a root can only be bridged. Zones split by a chain are mended
-    in the next pass; a unit taken into a chain is never taken again, so the passes end
-    (moving a whole piece never cuts another zone). Capacity is left to :func:`rebalance`.
-    """
-    a = np.asarray(assignment, dtype=np.int64).copy()
-    wc = problem.weighted_cost
-    allowed = problem.allowed
-    fixed = _fixed_units(problem)
-    settled = np.zeros(graph.n, bool)  # chain units: taken once, never taken again
-    for _ in range(max_iter):
-        b, detached = reassign_empty(problem, graph, a)
-        if not detached.any():
-            return b
-        labels = zone_components(graph, np.where(detached, b, -1))
-        pieces = [np.flatnonzero(labels == lab) for lab in np.unique(labels[detached])]
-        pieces.sort(key=len)
-        moved = False
-
-        for piece in pieces:
-            if not detached[piece[0]]:
-                continue
-            j = int(b[piece[0]])
-            mask = np.zeros(graph.n, bool)
-            mask[piece] = True
-            options: list[tuple[float, int, np.ndarray]] = []
-            if not fixed[piece].any():
-                touch = graph.touching(mask) & ~detached
-                for k in np.unique(b[touch]).tolist():
-                    if k >= 0 and k != j and allowed[piece, k].all():
-                        delta = float(wc[piece, k].sum() - wc[piece, j].sum())
-                        options.append((delta, k, piece))
-            target = (b == j) & ~detached
-            link = _bridge(problem, graph, b, piece, j, target, ~fixed & ~detached & ~settled)
-            if link is not None:
-                options.append((link[0], j, link[1]))
-            if not options:
-                continue
-            _, k, units = min(options, key=lambda o: o[0])
-            if k == j:
-                settled[units] = True
-            b[units] = k
-            detached[piece] = False
-            moved = True
-        if not moved:
-            return None
-        a = b
-    return None
 
 
 def _zone_distances(a: np.ndarray, graph: UnitGraph, m: int, sources: np.ndarray) -> np.ndarray:
@@ -225,11 +120,11 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
         return a
     n, m = problem.n_units, problem.n_sites
     hi, lo = _bands(problem, a)
-    load = _loads(problem, a)
+    load = zone_loads(problem, a)
     dem = problem.demand
     wc = problem.weighted_cost
     allowed = problem.allowed
-    can = ~_fixed_units(problem)  # empty units move too: they open a border to a zone
+    can = ~fixed_units(problem)  # empty units move too: they open a border to a zone
     moved_units = np.zeros(n, np.int64)  # moves per unit: a few, so chains cannot cycle
     moved = float(dem[0][(problem.current >= 0) & (a != problem.current)].sum())
     cap_moved = np.inf if problem.max_moved is None else problem.max_moved
@@ -263,7 +158,7 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
         idx = np.flatnonzero(better)
         order = idx[np.argsort(dc[idx] / -dv[idx], kind="stable")][:2000]  # cost per student
         c = next((c for c in order.tolist()
-                  if _stays_connected(int(cu[c]), int(cj[c]), al, nbrs)), None)
+                  if stays_connected(int(cu[c]), int(cj[c]), al, nbrs)), None)
         if c is None:
             # sideways moves (when no move lowers the excess, or each would cut a zone)
             over = (load > hi + _TOL).any(axis=0)
@@ -274,7 +169,7 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
             side_order = idx[np.lexsort((dc[idx], dist[ck[idx]]))][:2000]
             order = np.concatenate([order, side_order])
             c = next((c for c in side_order.tolist()
-                      if _stays_connected(int(cu[c]), int(cj[c]), al, nbrs)), None)
+                      if stays_connected(int(cu[c]), int(cj[c]), al, nbrs)), None)
         if c is not None:
             i, j, k = int(cu[c]), int(cj[c]), int(ck[c])
             al[i] = k
@@ -401,7 +296,7 @@ def _eject(problem: Problem, graph: UnitGraph, al: list[int], load: np.ndarray,
                 w = t if push else f
                 if per.get(w, 0) >= branch or i in used or al[i] != f:
                     continue
-                if not any(al[x] == t for x in nbrs[i]) or not _stays_connected(i, f, al, nbrs):
+                if not any(al[x] == t for x in nbrs[i]) or not stays_connected(i, f, al, nbrs):
                     continue
                 dm = float(_moved_delta(problem, np.array([i]), np.array([f]),
                                         np.array([t]))[0])
@@ -439,22 +334,23 @@ def _feasible_loads(lj, lk, hj, hk, loj, lok) -> bool:
 
 
 def improve(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
-            passes: int = 6, top: int = 6) -> np.ndarray:
+            passes: int = 6, top: int = 6, exchange: bool = True) -> np.ndarray:
     """Lower the cost of a valid plan by relocate and exchange moves that keep it valid.
 
     Relocate: a border unit moves to the neighbouring zone when that is cheaper and every
-    constraint holds. Exchange: for each pair of touching zones, the ``top`` most promising
+    constraint holds (best gain first; zone j must stay connected without the unit).
+    Exchange (when ``exchange``): for each pair of touching zones, the ``top`` most promising
     border units of each side are tried in pairs; a swap is made when it is cheaper, both
     zones stay in band in every year and both stay connected. Repeats up to ``passes``
     times or until nothing improves.
     """
     a = np.asarray(assignment, dtype=np.int64).copy()
     hi, lo = _bands(problem, a)
-    load = _loads(problem, a)
+    load = zone_loads(problem, a)
     dem = problem.demand
     wc = problem.weighted_cost
     allowed = problem.allowed
-    can = ~_fixed_units(problem)
+    can = ~fixed_units(problem)
     nbrs = graph.lists
     cap_moved = np.inf if problem.max_moved is None else problem.max_moved
     moved = float(dem[0][(problem.current >= 0) & (a != problem.current)].sum())
@@ -482,15 +378,19 @@ def improve(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
                 continue
             if not _feasible_loads(load[:, j] - d, load[:, k] + d, hi[j], hi[k], lo[j], lo[k]):
                 continue
-            if not _stays_connected(i, j, al, nbrs):
+            if not stays_connected(i, j, al, nbrs):
                 continue
             al[i] = k
             load[:, j] -= d
             load[:, k] += d
             moved += dm
             improved = True
-        # exchange between touching zones
         a = np.array(al, dtype=np.int64)
+        if not exchange:
+            if not improved:
+                break
+            continue
+        # exchange between touching zones
         cand: dict[tuple[int, int], list[tuple[float, int]]] = {}
         for c in range(len(cu)):
             i, j, k = int(cu[c]), int(cj[c]), int(ck[c])
@@ -538,12 +438,9 @@ def improve(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
     return a
 
 
-def make_valid(problem: Problem, graph: UnitGraph, assignment: np.ndarray) -> np.ndarray | None:
-    """absorb -> rebalance -> improve: a valid contiguous plan near ``assignment``, or None."""
-    a = absorb(problem, graph, assignment)
-    if a is None:
-        return None
-    a = rebalance(problem, graph, a)
-    if a is None:
-        return None
-    return improve(problem, graph, a)
+
+def relocate(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
+             passes: int = 3) -> np.ndarray:
+    """:func:`improve` with relocate moves only, in at most ``passes`` passes: the quick
+    polish of each repaired answer between exact rounds."""
+    return improve(problem, graph, assignment, passes=passes, exchange=False)

@@ -8,8 +8,8 @@ import numpy as np
 import pytest
 
 from districting import Problem, solve
+from districting.engine import Session
 from districting.plan import relative_gap
-from districting.solve import Session
 
 LINE = np.array([0.0, 1.0, 2.0, 3.0])  # four units on a line, one student each
 
@@ -95,7 +95,7 @@ def test_max_moved_limits_changes():
 def test_time_limit_returns_best_plan_with_its_gap():
     # Osman & Christofides (1994) instance 8 (OR-Library pmedcap1) needs tens of seconds to
     # prove; with a 1 s limit the engine must still hand back a valid plan and its gap.
-    path = Path(__file__).parent / "data" / "orlib_pmedcap" / "pmedcap1_08.txt"
+    path = Path(__file__).parents[1] / "data" / "orlib_pmedcap" / "pmedcap1_08.txt"
     rows = [ln.split() for ln in path.read_text().splitlines() if ln.strip()]
     n, pp, q = int(rows[1][0]), int(rows[1][1]), float(rows[1][2])
     pts = np.array(rows[2:2 + n], float)
@@ -205,16 +205,16 @@ def test_a_cut_through_a_unit_left_out_of_the_model_is_not_added():
     # without unit 2's column the row would read x[3,0] <= 0, and that cuts off the
     # optimum, which (hand-worked) puts units 0-3 in zone 0 and unit 4 in zone 1 at cost
     # 1+1+0+1+1 = 4, against 1+1+0+5+1 = 8 with unit 3 in zone 1.
-    from districting.contiguity import Cut
-    from districting.solve import _HighsBackend
+    from districting.engine.connectivity import Cut
+    from districting.engine.highs_route import HighsRoute
 
     cost = np.array([[1, 9], [1, 9], [1, 9], [1, 5], [9, 1]], float)
     d = np.array([1, 1, 0, 1, 1], float)
     p = Problem.from_arrays(cost, d, edges=[(0, 1), (1, 2), (2, 3), (3, 4)], roots=[0, 4])
     cut = Cut(site=0, units=np.array([3]), separator=np.array([2]))
-    full = _HighsBackend(p)
+    full = HighsRoute(p)
     assert full.add_cuts([cut]) == 1
-    relaxed = _HighsBackend(p, drop=np.array([False, False, True, False, False]))
+    relaxed = HighsRoute(p, drop=np.array([False, False, True, False, False]))
     assert relaxed.add_cuts([cut]) == 0
     z, _, _ = relaxed.relaxation()
     assert z <= 4 + 1e-9

@@ -10,12 +10,13 @@ import networkx as nx
 import numpy as np
 import pytest
 from plan_check import assert_plan_valid
-from test_contiguity import brute_force, tiny_town
+from test_connectivity import brute_force, tiny_town
 
 from districting import Problem, solve
-from districting import neighbourhood as nh
-from districting.contiguity import UnitGraph
-from districting.localsearch import make_valid
+from districting.engine import neighbourhood as nh
+from districting.engine.connectivity import UnitGraph
+from districting.engine.repair import make_valid
+from districting.engine.session import exact_subsolve
 
 
 def grid(w: int, h: int):
@@ -92,7 +93,7 @@ def test_reoptimise_never_raises_the_cost_and_keeps_every_rule(seed):
     g = UnitGraph.of(prob)
     a = make_valid(prob, g, stripes(prob))
     assert a is not None
-    b = nh.reoptimise(prob, g, a)
+    b = nh.reoptimise(prob, g, a, exact_subsolve)
     assert_valid(prob, edges, b)
     assert cost_of(prob, b) < cost_of(prob, a)  # local search alone left room
     # a bound proven by the exact engine is a lower bound for any plan the search returns
@@ -108,10 +109,10 @@ def test_reoptimise_keeps_the_moved_students_limit():
     assert a is not None
     d0 = prob.demand[0]
     limit = float(d0[a != prob.current].sum()) + 5
-    free = nh.reoptimise(prob, g, a)
+    free = nh.reoptimise(prob, g, a, exact_subsolve)
     assert float(d0[free != prob.current].sum()) > limit  # the limit binds
     prob = prob.replace(max_moved=limit)
-    b = nh.reoptimise(prob, g, a)
+    b = nh.reoptimise(prob, g, a, exact_subsolve)
     assert float(d0[b != prob.current].sum()) <= limit + 1e-9
     assert cost_of(prob, b) < cost_of(prob, a)
     assert_valid(prob, edges, b)
@@ -127,6 +128,6 @@ def test_one_neighbourhood_over_the_whole_town_reaches_the_brute_force_optimum(s
     hops = np.abs(xy[:, None, :] - xy[roots][None, :, :]).sum(axis=2)  # grid distance
     a = make_valid(prob, g, np.argmin(hops, axis=1))  # compact zones, not cheap ones
     assert a is not None
-    b = nh.reoptimise(prob, g, a, sizes=(3,), gap=1e-9)
+    b = nh.reoptimise(prob, g, a, exact_subsolve, sizes=(3,), gap=1e-9)
     assert cost_of(prob, b) < cost_of(prob, a)
     assert cost_of(prob, b) == pytest.approx(brute_force(prob, edges))

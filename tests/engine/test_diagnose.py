@@ -5,7 +5,8 @@ from __future__ import annotations
 import numpy as np
 
 from districting import Problem
-from districting.diagnose import explain, precheck, reachable
+from districting.engine.diagnose import explain
+from districting.engine.precheck import precheck, reachable
 
 YEARS = (2027, 2028)
 

@@ -1,14 +1,9 @@
-"""Why a problem has no plan, in words staff can act on; never a bare solver status.
+"""Cheap reasons, in words staff can act on, why a problem has no plan (before any solve).
 
-:func:`precheck` runs cheap array and graph checks before any solve; each finding is one
-sentence naming the level, the year, the school or the unit and what to change.
-:func:`explain` is for the harder case: the solver proved infeasibility and no pre-check
-fired. It re-solves the problem with constraint families dropped in a fixed order (floors,
-capacity, locks, move limit, then contiguity), finds which families are needed for the
-conflict, and solves an elastic version (a non-negative slack on each row of those families,
-minimising the total slack in students) to name the schools, years and amounts involved.
-This is the elastic-programming idea of locating infeasibility by minimising constraint
-violation (Chinneck, "Feasibility and Infeasibility in Optimization", Springer 2008).
+:func:`precheck` runs array and graph checks; each finding is one sentence naming the level,
+the year, the school or the unit and what to change. :func:`unbuildable` is the part that
+leaves no model to write down (the Pyomo route refuses to build then). The harder case, an
+infeasibility the solver proved, is explained by :mod:`districting.engine.diagnose`.
 """
 
 from __future__ import annotations
@@ -17,22 +12,13 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import breadth_first_order
 
-from .problem import Problem
+from ..problem import Problem
 
-__all__ = ["precheck", "explain", "unbuildable", "reachable"]
-
-_FAMILY_ORDER = ("floor", "capacity", "locks", "max_moved")
-_FAMILY_WORDS = {
-    "floor": "the minimum utilization of schools",
-    "capacity": "the capacity limits",
-    "locks": "the locked units",
-    "max_moved": "the limit on students moved",
-    "contiguity": "connected zones",
-}
-
+__all__ = ["precheck", "unbuildable", "reachable", "prefix", "num", "plural"]
 
 # ---------------------------------------------------------------------------- wording
-def _prefix(problem: Problem) -> str:
+def prefix(problem: Problem) -> str:
+    """"Middle level: " before a finding (nothing without a level name)."""
     return f"{problem.level.capitalize()} level: " if problem.level else ""
 
 
@@ -42,11 +28,13 @@ def _units(problem: Problem, idx, most: int = 5) -> str:
     return names + (f" and {len(idx) - most} more" if len(idx) > most else "")
 
 
-def _plural(value: float, word: str) -> str:
+def plural(value: float, word: str) -> str:
+    """``word`` with an s unless ``value`` is one."""
     return word if abs(value - 1) < 1e-9 else word + "s"
 
 
-def _n(value: float) -> str:
+def num(value: float) -> str:
+    """A count in words: thousands separated, one decimal only when not whole."""
     return f"{value:,.0f}" if abs(value - round(value)) < 1e-9 else f"{value:,.1f}"
 
 
@@ -82,7 +70,7 @@ def reachable(problem: Problem) -> np.ndarray:
 
 # ---------------------------------------------------------------------------- checks
 def unbuildable(problem: Problem) -> list[str]:
-    """Findings that leave no model to write down (used by :func:`districting.model.build_model`).
+    """Findings that leave no model to write down (the Pyomo route refuses to build then).
 
     A unit with no allowed school, a lock to a closed, forbidden or unreachable pair, an
     always-open school whose own unit may not join it, a move limit already broken by the
@@ -116,20 +104,20 @@ def _count_issues(problem: Problem) -> list[str]:
         return []
     forced = int(problem.open_sites.sum())
     can_open = int((~problem.closed_sites).sum())
-    pre = _prefix(problem)
+    pre = prefix(problem)
     if forced > p:
-        return [f"{pre}the run asks for {p} open {_plural(p, 'school')}, but {forced} must "
+        return [f"{pre}the run asks for {p} open {plural(p, 'school')}, but {forced} must "
                 f"stay open. Raise the number of open schools to at least {forced}, or make "
                 "some of them candidates."]
     if can_open < p:
-        return [f"{pre}the run asks for {p} open {_plural(p, 'school')}, but only {can_open} "
+        return [f"{pre}the run asks for {p} open {plural(p, 'school')}, but only {can_open} "
                 f"are not closed. Lower the number of open schools to {can_open} or add "
                 "candidate sites."]
     return []
 
 
 def _lock_pair_issues(problem: Problem) -> list[str]:
-    pre = _prefix(problem)
+    pre = prefix(problem)
     out = []
     for i in np.flatnonzero(problem.locks >= 0).tolist():
         j = int(problem.locks[i])
@@ -149,11 +137,11 @@ def _lock_pair_issues(problem: Problem) -> list[str]:
 
 def _no_school_issues(problem: Problem) -> list[str]:
     allowed = problem.allowed & ~problem.closed_sites[None, :]
-    pre = _prefix(problem)
+    pre = prefix(problem)
     out = []
     for i in np.flatnonzero(~allowed.any(axis=1) & (problem.locks < 0)).tolist():
         students = problem.demand[:, i].max()
-        who = (f"has {_n(students)} students but" if students > 0 else
+        who = (f"has {num(students)} students but" if students > 0 else
                "has no students, but every unit must belong to a zone, and it")
         out.append(f"{pre}{problem.unit_label(i)} {who} cannot go to any school: every school "
                    "is closed, forbidden or out of reach for it. Raise the maximum distance, "
@@ -165,7 +153,7 @@ def _root_pair_issues(problem: Problem) -> list[str]:
     if problem.roots is None:
         return []
     allowed = problem.allowed
-    pre = _prefix(problem)
+    pre = prefix(problem)
     out = []
     for j in np.flatnonzero(problem.always_open).tolist():
         r = int(problem.roots[j])
@@ -195,10 +183,10 @@ def _forced_move_issues(problem: Problem) -> list[str]:
     forced = float(problem.demand[0, idx].sum())
     if forced <= problem.max_moved + 1e-9:
         return []
-    return [f"{_prefix(problem)}at least {_n(forced)} students in {problem.year_label(0)} must "
+    return [f"{prefix(problem)}at least {num(forced)} students in {problem.year_label(0)} must "
             "change school because their current school is closed or no longer allowed for "
             f"their unit ({_units(problem, idx)}), but the move limit is "
-            f"{_n(problem.max_moved)}. Raise the move limit to at least {_n(forced)}."]
+            f"{num(problem.max_moved)}. Raise the move limit to at least {num(forced)}."]
 
 
 def _seats(problem: Problem) -> np.ndarray:
@@ -223,9 +211,9 @@ def _year_capacity_issues(problem: Problem) -> list[str]:
     for t in range(problem.n_years):
         students = problem.demand[t].sum()
         if students > best + 1e-6:
-            out.append(f"{_prefix(problem)}in {problem.year_label(t)} there are "
-                       f"{_n(students)} students, but the open schools can seat at most "
-                       f"{_n(best)} (capacity x maximum utilization{how}). Raise capacity or "
+            out.append(f"{prefix(problem)}in {problem.year_label(t)} there are "
+                       f"{num(students)} students, but the open schools can seat at most "
+                       f"{num(best)} (capacity x maximum utilization{how}). Raise capacity or "
                        "the maximum utilization, or open more schools.")
     return out
 
@@ -240,7 +228,7 @@ def _shared_root_issues(problem: Problem) -> list[str]:
     for r in values[counts > 1].tolist():
         sites = always[roots == r]
         names = " and ".join(problem.site_label(int(j)) for j in sites)
-        out.append(f"{_prefix(problem)}{names} all stand in {problem.unit_label(r)}, but a "
+        out.append(f"{prefix(problem)}{names} all stand in {problem.unit_label(r)}, but a "
                    "unit belongs to one zone, so they cannot all be open. Give each school "
                    "its own unit, or close all but one.")
     return out
@@ -256,10 +244,10 @@ def _floor_issues(problem: Problem, reach: np.ndarray) -> list[str]:
             most = problem.demand[t, reach[:, j]].sum()
             if most < floor - 1e-6:
                 out.append(
-                    f"{_prefix(problem)}{problem.site_label(j)} cannot reach its minimum "
+                    f"{prefix(problem)}{problem.site_label(j)} cannot reach its minimum "
                     f"utilization in {problem.year_label(t)}: even with every unit it may take "
-                    f"it would have {_n(most)} students, below its floor of {_n(floor)} "
-                    f"({problem.min_util[j]:.0%} of {_n(problem.capacity[j])} seats). Lower "
+                    f"it would have {num(most)} students, below its floor of {num(floor)} "
+                    f"({problem.min_util[j]:.0%} of {num(problem.capacity[j])} seats). Lower "
                     "its minimum utilization, allow it more units (maximum distance, forbids), "
                     "or close it.")
                 break
@@ -277,7 +265,7 @@ def _lock_reach_issues(problem: Problem, reach: np.ndarray) -> list[str]:
         if r < 0 or reach[i, j] or not allowed[i, j] or problem.closed_sites[j]:
             continue
         school = problem.site_label(j)
-        out.append(f"{_prefix(problem)}{problem.unit_label(i)} is locked to {school}, but it "
+        out.append(f"{prefix(problem)}{problem.unit_label(i)} is locked to {school}, but it "
                    f"cannot be joined to {school}'s zone: every path from the school's unit "
                    f"{problem.unit_label(r)} runs through units that may not go to {school} "
                    "(locked elsewhere, forbidden or out of reach). Remove the lock, or allow a "
@@ -292,169 +280,8 @@ def _island_issues(problem: Problem, reach: np.ndarray) -> list[str]:
     cut_off = allowed.any(axis=1) & ~reach.any(axis=1) & (problem.locks < 0)
     out = []
     for i in np.flatnonzero(cut_off).tolist():
-        out.append(f"{_prefix(problem)}{problem.unit_label(i)} cannot be joined to any "
+        out.append(f"{prefix(problem)}{problem.unit_label(i)} cannot be joined to any "
                    "school's zone: in the unit adjacency it is cut off from every school it "
                    "may attend (an island, or surrounded by units that may not go there). Add "
                    "a link across the gap in the adjacency, or allow it a school it can reach.")
     return out
-
-
-# ---------------------------------------------------------------------------- explain
-def _present(problem: Problem) -> list[str]:
-    fams = []
-    has_cap = problem.capacity is not None
-    if has_cap and np.any(problem.min_util > 0):
-        fams.append("floor")
-    if has_cap:
-        fams.append("capacity")
-    if np.any(problem.locks >= 0):
-        fams.append("locks")
-    if problem.max_moved is not None:
-        fams.append("max_moved")
-    return fams
-
-
-def _feasible(problem: Problem, contiguity: str, drop: set[str], time_limit: float):
-    """True / False / None (undecided within the time limit) with ``drop`` families removed."""
-    import pyomo.environ as pyo
-
-    from .model import build_model, solve_model
-
-    m = build_model(problem, contiguity, elastic=drop)
-    # A dropped family is an elastic one whose slack costs nothing.
-    m.objective.deactivate()
-    m.feasibility = pyo.Objective(expr=0.0)
-    res = solve_model(m, gap=1.0, time_limit=time_limit)
-    if res.status == "infeasible":
-        return False
-    if res.has_solution:
-        return True
-    return None
-
-
-def _elastic_details(problem: Problem, contiguity: str, fams: list[str],
-                     time_limit: float) -> list[str]:
-    """Solve with slack on ``fams`` (min total slack) and describe the rows that give."""
-    import pyomo.environ as pyo
-
-    from .model import build_model, solve_model
-
-    m = build_model(problem, contiguity, elastic=fams)
-    d0 = problem.demand[0]
-    terms = []
-    for fam in fams:
-        var = getattr(m, f"{fam}_slack", None)
-        if var is None:
-            continue
-        for key, v in var.items():
-            weight = max(float(d0[key]), 1.0) if fam == "locks" else 1.0
-            terms.append(weight * v)
-    m.objective.deactivate()
-    m.violation = pyo.Objective(expr=pyo.quicksum(terms))
-    res = solve_model(m, gap=1e-6, time_limit=time_limit)
-    if not res.has_solution:
-        return []
-    out = []
-    cap = problem.capacity
-    for fam in fams:
-        var = getattr(m, f"{fam}_slack", None)
-        if var is None:
-            continue
-        for key, v in var.items():
-            s = v.value or 0.0
-            if s <= 1e-6:
-                continue
-            if fam == "capacity":
-                t, j = key
-                lim = problem.max_util[j] * cap[j]
-                out.append(f"{problem.site_label(j)} in {problem.year_label(t)} would need "
-                           f"{_n(s)} {_plural(s, 'seat')} over its limit of {_n(lim)}")
-            elif fam == "floor":
-                t, j = key
-                fl = problem.min_util[j] * cap[j]
-                out.append(f"{problem.site_label(j)} in {problem.year_label(t)} would be "
-                           f"{_n(s)} {_plural(s, 'student')} short of its floor of {_n(fl)}")
-            elif fam == "locks":
-                j = int(problem.locks[key])
-                out.append(f"{problem.unit_label(key)} would have to leave its lock to "
-                           f"{problem.site_label(j)}")
-            elif fam == "max_moved":
-                out.append(f"the move limit of {_n(problem.max_moved)} would have to rise to "
-                           f"{_n(problem.max_moved + s)}")
-    return out
-
-
-_FIXES = {
-    "floor": "lower the minimum utilization of those schools, or let one close",
-    "capacity": "raise capacity or the maximum utilization there, or open another school",
-    "locks": "remove or change those locks",
-    "max_moved": "raise the move limit",
-    "contiguity": "add adjacency links (bridges) or allow more units to go to those schools",
-}
-
-
-def explain(problem: Problem, time_limit: float = 30.0) -> str:
-    """Which constraint families conflict, which schools and years, and what to relax.
-
-    Call it when the solver proved the problem infeasible. Pre-check findings, when there
-    are any, are returned first. Otherwise families are dropped in the order floors,
-    capacity, locks, move limit (each re-solve without contiguity, then with the exact flow
-    form of contiguity when the zones must be connected); the families whose removal makes a
-    plan possible are the conflict, and an elastic solve names the rows that must give.
-    ``time_limit`` bounds each re-solve in seconds.
-    """
-    found = precheck(problem)
-    if found:
-        return "\n".join(found)
-    pre = _prefix(problem)
-    fams = _present(problem)
-    stages = ["none"] + (["flow"] if problem.contiguous else [])
-    for contiguity in stages:
-        base = _feasible(problem, contiguity, set(), time_limit)
-        if base is None:
-            return (f"{pre}no plan was found within {time_limit:.0f} s and infeasibility could "
-                    "not be located in that time. Loosen the utilization band, the move "
-                    "limit or the locks, or allow more time.")
-        if base:
-            continue
-        needed = _needed(problem, contiguity, fams, time_limit)
-        if needed is None and contiguity == "flow":
-            return (f"{pre}the zones cannot all be connected: every other rule can be met, "
-                    "but some units cannot join a school's zone through units that may go "
-                    "there. To fix it: " + _FIXES["contiguity"] + ".")
-        if needed is None:
-            return (f"{pre}no plan exists even without the utilization band, the locks and the "
-                    "move limit: the number of open schools, closures, forbidden pairs and "
-                    "the maximum distance leave some units without a school they can join. "
-                    "Allow more pairs (maximum distance, forbids) or open more schools.")
-        details = _elastic_details(problem, contiguity, needed, time_limit)
-        words = " and ".join(_FAMILY_WORDS[f] for f in needed)
-        fixes = "; ".join(_FIXES[f] for f in needed + (["contiguity"] if contiguity == "flow"
-                                                          else []))
-        where = " together with connected zones" if contiguity == "flow" else ""
-        text = f"{pre}no plan meets {words}{where}."
-        if details:
-            text += " The smallest change that allows a plan: " + "; ".join(details) + "."
-        return text + f" To fix it: {fixes}."
-    if problem.contiguous:
-        return (f"{pre}the exact flow formulation finds a plan that meets every rule, so the "
-                "problem is feasible; the infeasible answer came from a limit of the solve "
-                "loop. Re-run with more time or rounds.")
-    return f"{pre}a plan that meets every rule exists; re-run the solve."
-
-
-def _needed(problem: Problem, contiguity: str, fams: list[str], time_limit: float):
-    """The families whose removal makes a plan possible, or None when dropping all fails."""
-    drop: set[str] = set()
-    for fam in fams:
-        drop.add(fam)
-        if _feasible(problem, contiguity, drop, time_limit):
-            break
-    else:
-        return None
-    # Keep only the families the conflict needs: put each back while a plan still exists.
-    for fam in sorted(drop, key=_FAMILY_ORDER.index):
-        trial = drop - {fam}
-        if trial and _feasible(problem, contiguity, trial, time_limit):
-            drop = trial
-    return sorted(drop, key=_FAMILY_ORDER.index)

@@ -12,7 +12,7 @@ import scipy.sparse as sp
 from plan_check import assert_plan_valid
 
 from districting import Problem
-from districting.model import add_separator_cut, build_model, solve_model
+from districting.engine.pyomo_route import add_separator_cut, build_model, solve_model
 
 
 # ---------------------------------------------------------------------------- helpers

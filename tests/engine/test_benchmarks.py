@@ -25,7 +25,7 @@ from scipy.sparse.csgraph import shortest_path
 
 from districting import Problem, solve
 
-DATA = Path(__file__).parent / "data"
+DATA = Path(__file__).parents[1] / "data"
 
 
 # ---------------------------------------------------------------------- readers

