@@ -18,7 +18,7 @@ _CACHE_LOCK = threading.Lock()
 def load_inputs(path: str | Path):
     """Validated Inputs of a project, read once per file version and shared by sessions.
 
-    Raises ``districting.validate.ProjectError`` (with ``.report``) or ``OSError``.
+    Raises ``districting.intake.ProjectError`` (with ``.report``) or ``OSError``.
     """
     from districting.intake import load_project
 
