@@ -4,9 +4,9 @@ Sections:
 
 1. synthetic towns (``benchmarks/towns.py``): build s, solve s, rounds, cuts, objective,
    bound, gap, fragments before repair in round 1 (``plan.history``), peak memory;
-2. the exact flow formulation of contiguity (Shirabe 2005, ``districting.model``) on the
-   500-unit, 25-school town against the default cut loop, with the time ratio;
-3. re-solve after locking 5 units at 2,000 units (``districting.solve.Session``);
+2. the exact flow formulation of contiguity (Shirabe 2005, ``districting.engine.flow``) on
+   the 500-unit, 25-school town against the default cut loop, with the time ratio;
+3. re-solve after locking 5 units at 2,000 units (``districting.engine.Session``);
 4. published capacitated p-median instances: Osman & Christofides (1994) 1-20 and
    Lorena & Senne (2004) SJC1-SJC3, time to proven optimum against the published optimum.
 
@@ -123,7 +123,7 @@ def run_flow(n_units: int, n_sites: int, seed: int, empty: float, gap: float,
     from towns import synthetic_town
 
     import districting
-    from districting.model import build_model, solve_model
+    from districting.engine.pyomo_route import build_model, solve_model
 
     problem, _ = synthetic_town(n_units, n_sites, seed, empty)
     t0 = time.perf_counter()
@@ -156,7 +156,7 @@ def run_resolve(n_units: int, n_sites: int, seed: int, empty: float, gap: float,
     """Lock 5 student units on zone borders to the neighbouring zone, then re-solve."""
     from towns import synthetic_town
 
-    from districting.solve import Session
+    from districting.engine import Session
 
     problem, _ = synthetic_town(n_units, n_sites, seed, empty)
     session = Session(problem)

@@ -18,7 +18,7 @@ import time
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[1]
-sys.path.insert(0, str(ROOT / "tests"))
+sys.path[:0] = [str(ROOT / "tests"), str(ROOT / "tests" / "ui")]
 
 from browser_support import (  # noqa: E402 - the helpers live beside the tests
     chromium_page,
@@ -26,7 +26,7 @@ from browser_support import (  # noqa: E402 - the helpers live beside the tests
     running_server,
     source_columns,
 )
-from test_browser import lockable_pair  # noqa: E402
+from test_browser import lockable_pair  # noqa: E402 - tests/ui/test_browser.py
 
 READY = ("() => window.Bokeh && Bokeh.documents.length && "
          "Bokeh.documents[0].get_model_by_name('units-source')")

@@ -34,19 +34,21 @@ ROOT = Path(__file__).resolve().parent.parent
 #: Tests are kept fast: each mutant runs them once.
 MODULES = {
     "verify": ("districting/verify.py", "tests/test_verify.py -k 'not command'", ()),
-    "precheck": ("districting/diagnose.py",
-                 "tests/test_diagnose.py tests/test_years.py -k 'not explain'",
+    "precheck": ("districting/engine/precheck.py",
+                 "tests/engine/test_diagnose.py tests/test_years.py -k 'not explain'",
                  ("reachable", "unbuildable", "precheck", "_count_issues", "_lock_pair_issues",
                   "_no_school_issues", "_root_pair_issues", "_must_move",
                   "_forced_move_issues", "_seats", "_year_capacity_issues",
                   "_shared_root_issues", "_floor_issues", "_lock_reach_issues",
                   "_island_issues")),
     "bands": ("districting/plan.py", "tests/test_years.py -k 'flag'", ("out_of_band",)),
-    "connectivity": ("districting/contiguity.py", "tests/test_contiguity.py",
-                     ("zone_components", "_main_labels", "_attached", "fragments",
-                      "is_contiguous", "separator", "min_separator", "_vertex_cut",
-                      "separator_cuts", "fractional_cuts", "plan_checks")),
-    "options-names": ("districting/options.py", "tests/test_options.py", ("_clean_name",)),
+    "connectivity": ("districting/engine/connectivity.py", "tests/engine/test_connectivity.py",
+                     ("zone_components", "main_labels", "attached_mask", "fragments",
+                      "is_contiguous", "plan_checks")),
+    "cuts": ("districting/engine/cuts.py", "tests/engine/test_cuts.py",
+             ("separator", "min_separator", "_vertex_cut", "separator_cuts",
+              "fractional_cuts")),
+    "option-names": ("districting/names.py", "tests/test_names.py", ()),
 }
 TIMEOUT = 120.0  # seconds per mutant's test run (a mutant that loops forever is killed)
 

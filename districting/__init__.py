@@ -5,9 +5,9 @@ The engine: read and validate a project, build the assignment problem, solve it 
 into boundaries, tables, exports and a hearing packet. Results are decision support.
 """
 
+from .engine import solve
 from .plan import Plan
 from .problem import Problem
-from .solve import solve
 
 __all__ = ["Problem", "Plan", "solve", "DRAFT_NOTICE", "__version__"]
 __version__ = "0.1.0"

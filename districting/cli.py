@@ -22,8 +22,7 @@ __all__ = ["main"]
 
 # ----------------------------------------------------------------------------- helpers
 def _load(path: str):
-    from .project import load_project
-    from .validate import ProjectError
+    from .intake import ProjectError, load_project
 
     try:
         return load_project(path)
@@ -90,9 +89,22 @@ def plan_summary(outcome) -> str:
 
 
 # ----------------------------------------------------------------------------- commands
-def cmd_check(args) -> int:
-    from .validate import check_command
+def check_command(path: str | Path) -> int:
+    """`districting check PROJECT.toml`: print the report and summary; 0 clean, 1 errors.
 
+    Reads only: nothing is written, not even a cache.
+    """
+    from .intake import check_summary, validate_project
+
+    inputs, report = validate_project(path)
+    print(report.format())
+    if inputs is not None:
+        print()
+        print(check_summary(inputs))
+    return 1 if report.has_errors else 0
+
+
+def cmd_check(args) -> int:
     return check_command(args.project)
 
 
@@ -112,37 +124,98 @@ def _run_settings(args, level: str):
     )
 
 
+def _solve_targets(args, inputs) -> dict[str, tuple[str, Path]]:
+    """Level -> (option name, export folder), every check done before any solve or write.
+
+    Refuses a second level under one option name, a name the store already has (without
+    --overwrite), a damaged store, and an export folder that already holds files (without
+    --overwrite). The folder is a slug of the name, checked to lie inside the output folder.
+    """
+    from .names import path_inside, slug
+    from .outputs.store import check_option_name
+
+    levels = list(inputs.settings.levels) if args.level == "all" else [args.level]
+    out = Path(args.out) if args.out else inputs.settings.path.parent / "out"
+    if not args.save:
+        return {lv: (f"{lv}-latest", path_inside(out, slug(f"{lv}-latest"))) for lv in levels}
+    if len(levels) > 1:
+        raise ValueError(f"--save names one option, and this project has {len(levels)} "
+                         f"levels; add --level ({', '.join(levels)})")
+    name = check_option_name(inputs.settings.store, args.save, overwrite=args.overwrite)
+    folder = path_inside(out, slug(name))
+    if not args.overwrite and folder.exists() and any(folder.iterdir()):
+        raise ValueError(f"{folder} already holds exports; choose another option name, or "
+                         "add --overwrite to replace them")
+    return {levels[0]: (name, folder)}
+
+
+#: Command-line settings -> the [solve] keys whose schema they obey.
+_FLAGS = {"max_util": "max_utilization", "min_util": "min_utilization",
+          "stability_weight": "stability_weight", "gap": "gap", "time_limit": "time_limit"}
+
+
+def check_flags(args) -> None:
+    """Refuse a command-line setting the project file's schema would refuse (ValueError)."""
+    from .intake.schema import check_value
+
+    for attr, key in _FLAGS.items():
+        value = getattr(args, attr, None)
+        if value is None:
+            continue
+        flag = "--" + attr.replace("_", "-")
+        _value, problem, fix = check_value("solve", key, value)
+        if problem is not None:
+            what = problem.split(", which is ", 1)[-1]  # "out of range (...)"
+            raise ValueError(f"{flag} {value:g} is {what}; fix: "
+                             f"{fix.replace(f'{key} = ', f'{flag} ')}")
+    if getattr(args, "max_distance", None) is not None and not args.max_distance >= 0:
+        raise ValueError(f"--max-distance {args.max_distance:g}: the longest travel is in "
+                         "metres, 0 or more (0 = no limit)")
+
+
 def cmd_solve(args) -> int:
-    from .exports import export_all
-    from .options import save_option
+    from .names import check_name
+    from .outputs.exports import export_all
+    from .outputs.store import save_option, tidy_store
     from .study import run
 
+    if args.save:
+        check_name(args.save)  # before the project is read: the rule needs no data
+    check_flags(args)
     inputs = _load(args.project)
-    levels = inputs.settings.levels if args.level == "all" else [args.level]
+    tidy_store(inputs.settings.store)
+    targets = _solve_targets(args, inputs)
     status = 0
-    for level in levels:
+    for level, (name, folder) in targets.items():
         progress = Progress(level)
-        outcome = run(inputs, _run_settings(args, level), name=args.save or "", progress=progress)
+        outcome = run(inputs, _run_settings(args, level), name=name if args.save else "",
+                      progress=progress)
         progress.done()
         print(plan_summary(outcome))
         if not outcome.plan.feasible:
             status = 1
             continue
-        out = Path(args.out) if args.out else inputs.settings.path.parent / "out"
-        name = args.save or f"{level}-latest"
-        files = export_all(outcome.renamed(name), out / name)
-        print(f"    wrote {len(files)} files to {out / name}")
-        if args.save:
-            save_option(inputs, outcome, args.save, overwrite=args.overwrite)
-            print(f"    saved as option {args.save!r} in {inputs.settings.store}")
+        if args.save:  # the store first: a name taken meanwhile leaves no exports behind
+            save_option(inputs, outcome, name, overwrite=args.overwrite)
+            print(f"    saved as option {name!r} in {inputs.settings.store}")
+        files = export_all(outcome.renamed(name), folder)
+        print(f"    wrote {len(files)} files to {folder}")
     return status
 
 
 def cmd_options(args) -> int:
-    from .options import delete_option, list_options, rename_option
+    from .outputs.store import delete_option, list_options, rename_option, repair_store, tidy_store
 
     inputs = _load(args.project)
     store = inputs.settings.store
+    tidy_store(store)
+    if args.repair:
+        aside = repair_store(store)
+        if aside is None:
+            print(f"{store}: the option store is whole; nothing to repair")
+        else:
+            print(f"{store}: the damaged store is kept as {aside}; a new, empty store "
+                  "is in its place (solve and save the options again)")
     if args.delete:
         delete_option(store, args.delete)
         print(f"deleted option {args.delete!r}")
@@ -162,7 +235,7 @@ def cmd_options(args) -> int:
 
 def cmd_verify(args) -> int:
     """Check a saved option independently of the engine (districting.verify)."""
-    from .options import load_option
+    from .outputs.store import load_option
     from .verify import check_plan, facts_of_outcome, report
 
     inputs = _load(args.project)
@@ -174,8 +247,8 @@ def cmd_verify(args) -> int:
 
 
 def cmd_packet(args) -> int:
-    from .options import load_option
-    from .packet import write_packet
+    from .outputs.packet import write_packet
+    from .outputs.store import load_option
 
     inputs = _load(args.project)
     names = [n.strip() for n in args.options.split(",") if n.strip()]
@@ -190,13 +263,13 @@ def cmd_packet(args) -> int:
 def cmd_demo(args) -> int:
     """Solve the demo town for every level, save two options, export, write the packets."""
     from .demo import copy_demo
-    from .exports import export_all
-    from .options import save_option
-    from .packet import write_packet
-    from .project import load_project
+    from .intake import check_summary, load_project
+    from .outputs.exports import export_all
+    from .outputs.packet import write_packet
+    from .outputs.store import save_option
     from .study import RunSettings, run
-    from .validate import check_summary
 
+    check_flags(args)
     out = Path(args.out).resolve()
     toml = copy_demo(out / "project")
     inputs = load_project(toml)
@@ -266,10 +339,12 @@ def build_parser() -> argparse.ArgumentParser:
     _add_solve_options(p)
     p.set_defaults(func=cmd_solve)
 
-    p = sub.add_parser("options", help="list, delete or rename saved options")
+    p = sub.add_parser("options", help="list, delete, rename saved options; repair the store")
     p.add_argument("project")
     p.add_argument("--delete", metavar="NAME")
     p.add_argument("--rename", nargs=2, metavar=("OLD", "NEW"))
+    p.add_argument("--repair", action="store_true",
+                   help="set a damaged option store aside and start a new, empty one")
     p.set_defaults(func=cmd_options)
 
     p = sub.add_parser("verify", help="check a saved option against every rule, independently")

@@ -1,7 +1,8 @@
 """A plan: the engine's answer, with what it proved and the numbers staff ask for.
 
 :class:`Plan` is index-based (unit i -> site j) like :class:`~districting.problem.Problem`;
-names and geometry are added downstream (:mod:`districting.study`, :mod:`districting.zones`).
+names and geometry are added downstream (:mod:`districting.study`,
+:mod:`districting.outputs.zones`).
 :func:`plan_metrics` computes the per-school figures from any assignment, so a plan read
 back from a file is summarized by the same code as a fresh one.
 """

@@ -6,7 +6,7 @@ sites are open, candidates or closed, the unit adjacency (for contiguity), each 
 unit, locks, forbidden pairs, today's assignment and the stability weight. It carries no
 geometry and no names; :mod:`districting.study` builds one from a validated project.
 
-Notation used across the engine (and in :mod:`districting.model`):
+Notation used across the engine (and in :mod:`districting.engine.formulation`):
 
 - ``i`` a planning unit (``n`` of them), ``j`` a site (``m``), ``t`` a year (``T`` rows,
   row 0 the plan year);

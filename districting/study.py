@@ -1,6 +1,6 @@
 """One level of a project, as a problem and as an outcome with names.
 
-:func:`build_problem` turns validated :class:`~districting.project.Inputs` and a
+:func:`build_problem` turns validated :class:`~districting.intake.Inputs` and a
 :class:`RunSettings` (level, caps, weights, locks, forbids, site status changes) into a
 :class:`~districting.problem.Problem`; :func:`run` solves it and wraps the
 :class:`~districting.plan.Plan` in an :class:`Outcome` that knows unit ids, site ids and
@@ -17,9 +17,12 @@ from dataclasses import dataclass, field
 import numpy as np
 import shapely
 
+from . import rules
+from .engine import Session
+from .intake import Inputs
+from .intake.schema import RUN_KEYS, check_run
 from .plan import Plan, PlanMetrics, plan_metrics
 from .problem import Problem
-from .project import Inputs
 
 __all__ = ["RunSettings", "Outcome", "build_problem", "run", "outcome_from_assignment"]
 
@@ -79,7 +82,7 @@ def resolved(inputs: Inputs, rs: RunSettings) -> RunSettings:
     def pick(value, default):
         return default if value is None else value
 
-    return rs.replace(
+    full = rs.replace(
         plan_year=pick(rs.plan_year, s.plan_year),
         max_utilization=pick(rs.max_utilization, d.max_utilization),
         min_utilization=pick(rs.min_utilization, d.min_utilization),
@@ -93,6 +96,8 @@ def resolved(inputs: Inputs, rs: RunSettings) -> RunSettings:
         locks=locks,
         forbids=forbids,
     )
+    check_run({key: getattr(full, key) for key in RUN_KEYS}, f"{rs.level} run settings")
+    return full
 
 
 def level_sites(inputs: Inputs, level: str) -> np.ndarray:
@@ -149,12 +154,12 @@ def build_problem(inputs: Inputs, rs: RunSettings) -> tuple[Problem, np.ndarray]
     cap = per_site(rs.capacity, "capacity")
     max_u = per_site(rs.site_max_util, "max_util")
     min_u = per_site(rs.site_min_util, "min_util")
-    max_u = np.where(np.isnan(max_u), rs.max_utilization, max_u)
-    min_u = np.where(np.isnan(min_u), rs.min_utilization, min_u)
+    max_u = rules.site_band(max_u, rs.max_utilization)
+    min_u = rules.site_band(min_u, rs.min_utilization)
 
-    closed = np.isin(status, ["closing", "closed"])
-    forced = np.isin(status, ["open", "new"])
-    candidate = status == "candidate"
+    closed = rules.is_closed(status)
+    forced = rules.open_in_plan(status)
+    candidate = rules.is_candidate(status)
     p = None
     if candidate.any() and rs.open_count:
         p = int(rs.open_count)
@@ -294,14 +299,12 @@ def run(
     """Solve one level; ``progress`` gets each :class:`~districting.plan.Round`.
 
     ``sessions`` is a dict the caller keeps between runs (the workbench keeps one per
-    planner): it holds a :class:`~districting.solve.Session` per level and solver, so a
+    planner): it holds a :class:`~districting.engine.Session` per level and solver, so a
     rerun after a lock or a cap reuses the cuts found so far and, when the change only
     removes plans, the bound already proven. ``on_plan`` gets an interim Outcome (status
     ``feasible``, its gap so far) each time the solver finds a better valid plan, so a
     caller can show it while the solve goes on.
     """
-    from .solve import Session  # late import keeps study importable while solve builds
-
     full = resolved(inputs, rs)
     problem, rows = build_problem(inputs, full)
     solver = full.solver or "highs"
@@ -323,7 +326,7 @@ def run(
             if rnd.best is not None and rnd.best is not shown[0]:
                 shown[0] = rnd.best
                 a = np.asarray(rnd.best, np.int64)
-                opened = _open_of(problem, a)
+                opened = rules.open_sites(problem, a)
                 interim = Plan("feasible", float(rnd.objective), float(rnd.bound),
                                float(rnd.gap), a, opened, rounds=rnd.number,
                                solve_seconds=rnd.seconds, route=solver,
@@ -349,7 +352,7 @@ def outcome_from_assignment(
     full = resolved(inputs, rs)
     problem, rows = build_problem(inputs, full)
     a = np.asarray(assignment, dtype=np.int64)
-    opened = _open_of(problem, a)
+    opened = rules.open_sites(problem, a)
     fields = dict(plan_fields or {})
     plan = Plan(
         status=fields.pop("status", "feasible"),
@@ -365,9 +368,3 @@ def outcome_from_assignment(
     )
     return Outcome(inputs, full, rows, problem, plan, name=name, created=created or now_iso())
 
-
-def _open_of(problem: Problem, a: np.ndarray) -> np.ndarray:
-    """Sites open under assignment ``a``: those that take a unit, and those always open."""
-    opened = np.zeros(problem.n_sites, bool)
-    opened[a[a >= 0]] = True
-    return opened | problem.always_open

@@ -5,7 +5,7 @@ from __future__ import annotations
 import pytest
 from plan_check import assert_plan_valid
 
-from districting.solve import Session
+from districting.engine import Session
 
 
 @pytest.fixture(autouse=True)

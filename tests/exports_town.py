@@ -16,8 +16,8 @@ import geopandas as gpd
 import numpy as np
 import shapely
 
-from districting.adjacency import Adjacency
-from districting.project import Inputs, Settings, SolveSettings
+from districting.intake import Inputs, Settings, SolveSettings
+from districting.intake.adjacency import Adjacency
 from districting.study import Outcome, RunSettings, outcome_from_assignment
 
 CRS = "EPSG:32617"  # a UTM zone: any projected CRS in metres will do for the invented town

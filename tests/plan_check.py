@@ -2,7 +2,7 @@
 
 ``assert_plan_valid`` hands a plan to :mod:`districting.verify` (scipy components, plain
 sums; no engine code) and re-costs it with plain array arithmetic. ``tests/conftest.py``
-applies it to every plan :class:`districting.solve.Session` returns in any test.
+applies it to every plan :class:`districting.engine.Session` returns in any test.
 """
 
 from __future__ import annotations

@@ -140,6 +140,20 @@ def test_open_count_is_checked():
     assert check_plan(g, [0, 0, 0, 1, 1, 0]) == []
 
 
+def test_open_count_may_be_met_by_a_school_opened_without_students():
+    # Hand-worked, p-median semantics: p = 2 and the plan uses only A; B may open empty
+    # when it has no unit of its own to hold and no floor, so the count is met. With a
+    # unit of its own, or with a floor, an empty B cannot be open: one school short.
+    one_zone = [0] * 6
+    base = dict(must_open=np.zeros(2, bool), open_count=2, capacity=np.array([80.0, 40.0]))
+    assert check_plan(facts(**base, min_util=np.zeros(2), roots=np.array([0, -1])),
+                      one_zone) == []
+    assert rules(check_plan(facts(**base, min_util=np.zeros(2)), one_zone)) == [
+        ("open_count", None, None, None)]
+    assert ("open_count", None, None, None) in rules(check_plan(
+        facts(**base, min_util=np.array([0.0, 0.5]), roots=np.array([0, -1])), one_zone))
+
+
 def test_a_broken_lock_is_refused():
     found = check_plan(facts(locks={4: 0}), GOOD)
     assert rules(found) == [("lock", 0, None, 4)]
@@ -279,14 +293,14 @@ def test_facts_of_an_option_keep_forbids_and_the_maximum_distance(tmp_path):
 @pytest.fixture(scope="module")
 def demo(tmp_path_factory):
     from districting.demo import copy_demo
-    from districting.project import load_project
+    from districting.intake import load_project
 
     toml = copy_demo(tmp_path_factory.mktemp("verify") / "demo")
     return toml, load_project(toml)
 
 
 def test_verify_command_accepts_a_solved_option_and_refuses_a_broken_one(demo):
-    from districting.options import save_option
+    from districting.outputs.store import save_option
     from districting.study import RunSettings, outcome_from_assignment, run
 
     toml, inputs = demo

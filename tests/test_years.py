@@ -7,7 +7,8 @@ import numpy as np
 import pytest
 
 from districting import Problem, solve
-from districting.diagnose import explain, precheck
+from districting.engine.diagnose import explain
+from districting.engine.precheck import precheck
 from districting.plan import plan_metrics
 
 LINE = np.array([0.0, 1.0, 2.0, 3.0])  # four units on a line

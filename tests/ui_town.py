@@ -1,9 +1,10 @@
-"""A small invented grid town for the workbench store tests (no real place or data).
+"""A small invented grid town for the workbench tests (no real place or data).
 
 Square planning units (200 m) on an ``nx`` x ``ny`` grid, four middle schools with invented
 names, seeded student counts for today and three projected years, today's zones as
 vertical bands (so today's plan is far from the shortest trips), rook adjacency. The
-engine solves it for real in well under a second.
+engine solves it for real in well under a second. ``new_store`` and ``boundary_pair`` are
+the workbench tests' shared helpers.
 """
 
 from __future__ import annotations
@@ -14,8 +15,8 @@ import geopandas as gpd
 import numpy as np
 import shapely
 
-from districting.adjacency import Adjacency
-from districting.project import Inputs, Settings, SolveSettings
+from districting.intake import Inputs, Settings, SolveSettings
+from districting.intake.adjacency import Adjacency
 
 CRS = "EPSG:32633"  # any projected CRS in metres
 CELL = 200.0
@@ -56,3 +57,28 @@ def grid_inputs(folder: Path, nx: int = 14, ny: int = 10, seed: int = 11) -> Inp
                   current={"middle": current}, barriers=gpd.GeoSeries([], crs=CRS),
                   bridges=gpd.GeoSeries([], crs=CRS),
                   adjacency=Adjacency.from_edges(ids, edges), report=None)
+
+
+# ---------------------------------------------------------------------- workbench helpers
+LEVEL = "middle"
+
+
+def new_store(inputs):
+    """A workbench store on the grid town, at its level, with a 30 s time limit."""
+    from ui.store import Store
+
+    st = Store(inputs)
+    st.set_level(LEVEL)
+    st.update_settings(time_limit=30)
+    return st
+
+
+def boundary_pair(out, inputs) -> tuple[str, str]:
+    """A unit on a zone border and the school of a neighbouring zone (a lock that can hold)."""
+    a = out.assignment
+    e = inputs.adjacency.edges
+    students = out.problem.demand[0]
+    k = np.flatnonzero((a[e[:, 0]] != a[e[:, 1]]) & (students[e[:, 0]] > 0))
+    assert len(k), "the plan has no zone border"
+    i, j = e[k[0]]
+    return out.unit_ids[i], out.site_ids[a[j]]

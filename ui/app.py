@@ -1,8 +1,9 @@
 """The app shell: ``districting serve [PROJECT.toml]`` and the page each session gets.
 
 The project is read and validated once when the server starts (its Inputs are read-only
-and shared); every browser session then gets its own :class:`~ui.store.Store` and
-:class:`~ui.state.SessionState`, made in the app factory, so two sessions never share
+and shared, and so is their map data, :class:`~ui.mapdata.MapData`); every browser session
+then gets its own :class:`~ui.store.Store` and :class:`~ui.session.Session` (state
+parameters, actions and a runner), made in the app factory, so two sessions never share
 unsaved state. A project that does not load gives a page with the validation report and a
 field to open another project, never a traceback.
 
@@ -16,43 +17,14 @@ import argparse
 import os
 import socket
 import sys
-import threading
 from pathlib import Path
 
-__all__ = ["register_serve", "serve_command", "create_app", "load_inputs", "DEMO_FOLDER"]
+from .projects import load_inputs, problem_text
+
+__all__ = ["register_serve", "serve_command", "create_app", "DEMO_FOLDER"]
 
 #: Where ``districting serve`` without a project puts its working copy of the demo town.
 DEMO_FOLDER = "districting-demo"
-
-_CACHE: dict[Path, tuple[float, object]] = {}
-_CACHE_LOCK = threading.Lock()
-
-
-def load_inputs(path: str | Path):
-    """Validated Inputs of a project, read once per file version and shared by sessions.
-
-    Raises ``districting.validate.ProjectError`` (with ``.report``) or ``OSError``.
-    """
-    from districting.project import load_project
-
-    path = Path(path).resolve()
-    mtime = path.stat().st_mtime
-    with _CACHE_LOCK:
-        hit = _CACHE.get(path)
-        if hit is not None and hit[0] == mtime:
-            return hit[1]
-        inputs = load_project(path)
-        _CACHE[path] = (mtime, inputs)
-        return inputs
-
-
-def problem_text(exc: BaseException, path) -> str:
-    """Words for a project that does not load: the validation report, or the OS error."""
-    report = getattr(exc, "report", None)
-    if report is not None and hasattr(report, "format"):
-        return f"The project {path} has problems to fix before it can be planned:\n\n" + (
-            report.format())
-    return f"The project {path} could not be opened: {exc}"
 
 
 # ---------------------------------------------------------------------- the page
@@ -60,7 +32,6 @@ def create_app(project: str | Path, *, persist: bool = True):
     """The page of one session: its own store and state over the shared project Inputs."""
     import panel as pn
 
-    from .store import Store
     from .views import (
         DownloadsPanel,
         LocksTable,
@@ -72,53 +43,53 @@ def create_app(project: str | Path, *, persist: bool = True):
         SelectionPanel,
         SettingsPanel,
         SitesTable,
+        StoreProblem,
     )
+    from .views.project import ProjectOpener, error_page, page_header, project_info
 
     shell = pn.Column(sizing_mode="stretch_width", css_classes=["districting-app"])
-    opener = _project_opener(shell, persist)
 
+    def open_project(target: Path) -> None:  # the opener's project replaces this page
+        new = create_app(target, persist=persist)
+        shell.objects = list(new.objects)
+        if hasattr(new, "session"):
+            shell.session = new.session
+
+    opener = ProjectOpener(open_project)
     try:
         inputs = load_inputs(project)
     except Exception as exc:  # noqa: BLE001 - shown as a report on the page
-        shell.objects = [_error_page(problem_text(exc, project), opener)]
+        shell.objects = [error_page(problem_text(exc, project), opener)]
         return shell
 
-    from .state import SessionState
+    from .session import Session
+    from .store import Store
 
     doc = pn.state.curdoc
-    state = SessionState(Store(inputs, persist=persist), schedule=_scheduler(doc))
+    session = Session(Store(inputs, persist=persist), schedule=_scheduler(doc))
     if doc is not None and doc.session_context is not None:
-        pn.state.add_periodic_callback(state.tick, period=500)
+        pn.state.add_periodic_callback(session.runner.tick, period=500)
 
-    mapview = MapView(state)
-    header = pn.pane.HTML(
-        f"<div class='app-header' style='display:flex;justify-content:space-between;"
-        f"align-items:baseline'><span style='font-size:20px;font-weight:600'>"
-        f"{_esc(inputs.settings.name)}</span><span style='font-size:12px;color:#8a1c1c'>"
-        f"DRAFT - options for discussion; the board decides.</span></div>",
-        sizing_mode="stretch_width", margin=(4, 10))
-    guide = pn.pane.HTML(
-        "<div style='font-size:12px;color:#333'><b>How to:</b> 1&nbsp;pick the level and "
-        "settings &middot; 2&nbsp;select units on the map and lock them to a school &middot; "
-        "3&nbsp;edit capacities in <i>Schools</i> &middot; 4&nbsp;press <b>Rerun</b> "
-        "&middot; 5&nbsp;check <i>Changes</i>, save in <i>Options</i>, download in "
-        "<i>Downloads</i>.</div>", sizing_mode="stretch_width", margin=(0, 10))
+    mapview = MapView(session)  # first: its watchers run before the panels', as always
     sidebar = pn.Column(
-        SettingsPanel(state), pn.Card(RunPanel(state), title="Run", sizing_mode="stretch_width",
-                                      css_classes=["run-card"]),
-        SelectionPanel(state), width=340, scroll=True, css_classes=["sidebar"])
+        SettingsPanel(session),
+        pn.Card(RunPanel(session), title="Run", sizing_mode="stretch_width",
+                css_classes=["run-card"]),
+        SelectionPanel(session), width=340, scroll=True, css_classes=["sidebar"])
     tabs = pn.Tabs(
-        ("Schools", SitesTable(state)),
-        ("Changes", ResultsView(state)),
-        ("Locks", LocksTable(state)),
-        ("Options", OptionsPanel(state)),
-        ("Downloads", DownloadsPanel(state)),
-        ("Project", pn.Column(_project_info(inputs, project), opener)),
+        ("Schools", SitesTable(session)),
+        ("Changes", ResultsView(session)),
+        ("Locks", LocksTable(session)),
+        ("Options", OptionsPanel(session)),
+        ("Downloads", DownloadsPanel(session)),
+        ("Project", pn.Column(project_info(inputs, project), opener)),
         dynamic=True, sizing_mode="stretch_width", css_classes=["result-tabs"],
     )
-    main = pn.Column(MessageArea(state), mapview, tabs, sizing_mode="stretch_width")
-    shell.objects = [header, guide, pn.Row(sidebar, main, sizing_mode="stretch_width")]
-    shell.state = state  # for scripts and tests driving the page from Python
+    main = pn.Column(MessageArea(session), StoreProblem(session), mapview, tabs,
+                     sizing_mode="stretch_width")
+    shell.objects = [*page_header(inputs),
+                     pn.Row(sidebar, main, sizing_mode="stretch_width")]
+    shell.session = session  # for scripts and tests driving the page from Python
     return shell
 
 
@@ -136,63 +107,6 @@ def _scheduler(doc):
         doc.add_next_tick_callback(cb)
 
     return schedule
-
-
-def _project_info(inputs, project) -> object:
-    import panel as pn
-
-    s = inputs.settings
-    return pn.pane.HTML(
-        f"<div style='font-size:13px'><b>{_esc(s.name)}</b><br>File: {_esc(str(project))}"
-        f"<br>Planning units: {len(inputs.units):,} &middot; levels: {', '.join(s.levels)}"
-        f" &middot; years {s.current_year} (today) and {', '.join(map(str, s.years))}"
-        f"<br>Options and the workbench state are kept in {_esc(str(s.store))}</div>")
-
-
-def _error_page(text: str, opener):
-    import panel as pn
-
-    return pn.Column(
-        pn.pane.Alert(_esc(text).replace("\n", "<br>"), alert_type="danger",
-                      css_classes=["message", "project-error"], sizing_mode="stretch_width"),
-        opener, sizing_mode="stretch_width")
-
-
-def _project_opener(shell, persist: bool):
-    """A field to open another project (a TOML path on this computer)."""
-    import panel as pn
-
-    path = pn.widgets.TextInput(name="Open another project (path of its project.toml)",
-                                css_classes=["project-path"], width=520)
-    button = pn.widgets.Button(name="Open project", css_classes=["open-project"])
-    note = pn.pane.Alert("", alert_type="danger", visible=False, css_classes=["open-error"])
-
-    def open_it(event):
-        target = Path(path.value.strip()).expanduser()
-        if not path.value.strip() or target.suffix.lower() != ".toml" or not target.is_file():
-            note.object = (f"{_esc(path.value)}: give the full path of an existing project "
-                           "file ending in .toml")
-            note.visible = True
-            return
-        try:
-            load_inputs(target)
-        except Exception as exc:  # noqa: BLE001 - shown as a report on the page
-            note.object = _esc(problem_text(exc, target)).replace("\n", "<br>")
-            note.visible = True
-            return
-        new = create_app(target, persist=persist)
-        shell.objects = list(new.objects)
-        if hasattr(new, "state"):
-            shell.state = new.state
-
-    button.on_click(open_it)
-    return pn.Column(pn.Row(path, button), note)
-
-
-def _esc(text: str) -> str:
-    import html
-
-    return html.escape(str(text), quote=True)
 
 
 # ---------------------------------------------------------------------- the command

@@ -3,27 +3,38 @@
 A :class:`Store` holds the edits a planner makes for each school level (a
 :class:`~districting.study.RunSettings` of overrides: settings, site edits, locks, forbids),
 the plan on screen and the one before it, and talks to the engine
-(:func:`districting.study.run`), the options (:mod:`districting.options`) and the exports.
+(:func:`districting.study.run`), the options (:mod:`districting.outputs.store`) and the exports.
 Every edit is written as it happens to the project's store GeoPackage
-(:func:`districting.options.save_state`, atomic), so a new store on the same project starts
+(:func:`districting.outputs.store.save_state`, atomic), so a new store on the same project starts
 from the last state. Two stores never share memory: unsaved work cannot leak between
-browser sessions. Tables come out as pandas DataFrames for any front end.
+browser sessions. Each store is a draft: it remembers the revision of the record it
+started from, and a save over a record another session changed since is refused and
+flagged (:attr:`Store.conflict`), keeping this session's edits in memory until the
+planner reloads the saved record or keeps the edits as a draft of a new name. Tables come
+out as pandas DataFrames for any front end.
+
+The Store is made of three parts: this module (settings, site edits, locks, runs, exports),
+:mod:`ui.store_records` (options and the draft record in the store file) and
+:mod:`ui.store_tables` (the report tables). No Panel or Bokeh here: threads and the page
+belong to :mod:`ui.runner` and :mod:`ui.session`.
 """
 
 from __future__ import annotations
 
 import math
 import tempfile
-import threading
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 
-from districting import options as _options
-from districting.project import SITE_STATUSES, Inputs
+from districting import rules
+from districting.intake import Inputs
+from districting.intake.schema import SCHEMA
+from districting.names import path_inside, slug
+from districting.outputs import store as _options
+from districting.rules import SITE_STATUSES
 from districting.study import (
     Outcome,
     RunSettings,
@@ -33,11 +44,12 @@ from districting.study import (
     run,
 )
 
-__all__ = ["Store", "StoreError", "LockRow", "STATE_KEY", "EDITABLE_SETTINGS"]
+from .store_records import DRAFT_PREFIX, STATE_KEY, StoreError, StoreRecords
+from .store_tables import PlanTables
 
-#: Key of the workbench's row in the store's state table.
-STATE_KEY = "workbench"
-STATE_VERSION = 1
+__all__ = ["Store", "StoreError", "LockRow", "STATE_KEY", "DRAFT_PREFIX", "EDITABLE_SETTINGS",
+           "TODAY"]
+
 #: RunSettings fields the settings panel edits, with their allowed range.
 EDITABLE_SETTINGS = {
     "plan_year": None,
@@ -46,23 +58,11 @@ EDITABLE_SETTINGS = {
     "max_moved": (0.0, 1e9),
     "gap": (0.0, 0.5),
     "time_limit": (1.0, 3600.0),
-    "max_utilization": (0.05, 3.0),
-    "min_utilization": (0.0, 3.0),
+    # Utilization ranges are the project file's ([solve] in districting.intake.schema): one home.
+    "max_utilization": (0.05, SCHEMA["solve"].keys["max_utilization"].high),
+    "min_utilization": (0.0, SCHEMA["solve"].keys["min_utilization"].high),
 }
 TODAY = "Today's zones"
-
-# One writer at a time per store file in this process (sessions share the server process).
-_WRITE_LOCKS: dict[Path, threading.Lock] = {}
-_LOCKS_GUARD = threading.Lock()
-
-
-def _write_lock(path: Path) -> threading.Lock:
-    with _LOCKS_GUARD:
-        return _WRITE_LOCKS.setdefault(Path(path).resolve(), threading.Lock())
-
-
-class StoreError(ValueError):
-    """An edit or a run that cannot be done, in words that say what to change."""
 
 
 @dataclass(frozen=True)
@@ -73,16 +73,27 @@ class LockRow:
     source: str  # "workbench" (removable) or "project file" (decided in project.toml)
 
 
-class Store:
+class Store(StoreRecords, PlanTables):
     """The planner's edits and plans for one project, one session.
 
     ``inputs`` are read-only and may be shared between stores; everything else is owned by
     this store. ``persist=False`` keeps the store in memory (nothing is written).
     """
 
-    def __init__(self, inputs: Inputs, *, persist: bool = True) -> None:
+    def __init__(self, inputs: Inputs, *, persist: bool = True, draft: str = "") -> None:
         self.inputs = inputs
         self.persist = persist
+        self.draft = draft  # "" = the project's main workbench record
+        self.revision = 0  # of the record this store last read or wrote
+        self.conflict = False  # another session saved the record since: not written
+        self.damaged = ""  # the store file cannot be read or written: the message
+        self._reset()
+        if persist:
+            _options.tidy_store(self.store_path)
+        self.restore()
+
+    def _reset(self) -> None:
+        inputs = self.inputs
         levels = tuple(inputs.settings.levels)
         self.level: str = levels[0]
         self.runs: dict[str, RunSettings] = {lv: RunSettings(level=lv) for lv in levels}
@@ -94,7 +105,6 @@ class Store:
         self._export_dir: Path | None = None
         self._exports: tuple = (None, {})
         self._sessions: dict = {}  # engine sessions per level: cuts and bounds carry over
-        self.restore()
 
     # ------------------------------------------------------------------ basics
     @property
@@ -204,10 +214,10 @@ class Store:
                                  f"got {value}")
             clean[name] = v
         new = self.settings.replace(**clean)
-        full = resolved(self.inputs, new)
-        if full.min_utilization > full.max_utilization:
-            raise StoreError(f"the minimum utilization ({full.min_utilization:.0%}) is above the "
-                             f"maximum ({full.max_utilization:.0%}); lower the minimum first")
+        try:  # the project file's rules hold for a run too (min below max utilization...)
+            resolved(self.inputs, new)
+        except ValueError as err:
+            raise StoreError(str(err)) from None
         self.runs[self.level] = new
         self._save()
         return new
@@ -270,7 +280,7 @@ class Store:
         units = self._check_units(unit_ids)
         site = self._check_site(site_id, "lock")
         status = self.effective.status.get(site) or self._file_status(site)
-        if status in ("closing", "closed"):
+        if rules.is_closed(status):
             raise StoreError(f"{site} is {status} in the plan year; change its status to open "
                              "before locking units to it")
         rs = self.settings
@@ -415,219 +425,6 @@ class Store:
         self._save()
         return out
 
-    # ------------------------------------------------------------------ options
-    def save_option(self, name: str, overwrite: bool = False) -> None:
-        """Save the plan on screen as a named option in the project's store."""
-        name = name.strip()
-        if not name:
-            raise StoreError("type a name for the option first")
-        out = self.outcome
-        if out is None:
-            raise StoreError("run a plan first (press Rerun); today's zones are not an option")
-        if not self.persist:
-            raise StoreError("this session does not write to the project store")
-        try:
-            with _write_lock(self.store_path):
-                _options.save_option(self.inputs, out, name, overwrite=overwrite)
-        except (ValueError, KeyError) as exc:
-            raise StoreError(str(exc)) from exc
-        self.outcomes[self.level] = out.renamed(name)
-        self._save()
-
-    def list_options(self) -> list:
-        """Saved options of the project (every level), as ``options.list_options`` gives."""
-        if not self.store_path.exists():
-            return []
-        return list(_options.list_options(self.store_path))
-
-    def option_names(self, level: str | None = None) -> list[str]:
-        level = self.level if level is None else level
-        return [o.name for o in self.list_options() if o.level == level]
-
-    def load_option(self, name: str) -> Outcome:
-        try:
-            return _options.load_option(self.inputs, name)
-        except (ValueError, KeyError) as exc:
-            raise StoreError(str(exc)) from exc
-
-    def open_option(self, name: str) -> Outcome:
-        """Put a saved option on screen; its settings become the edits to continue from."""
-        out = self.load_option(name)
-        if out.level != self.level:
-            self.level = out.level
-        self.previous[out.level] = self.outcomes[out.level]
-        self.outcomes[out.level] = out
-        self.runs[out.level] = self._overrides_of(out.settings)
-        self._save()
-        return out
-
-    def delete_option(self, name: str) -> None:
-        with _write_lock(self.store_path):
-            try:
-                _options.delete_option(self.store_path, name)
-            except (ValueError, KeyError) as exc:
-                raise StoreError(str(exc)) from exc
-
-    def _overrides_of(self, full: RunSettings) -> RunSettings:
-        """Resolved settings -> overrides: locks/forbids of the project file are not copied."""
-        file_locks = {lk.unit: lk.site for lk in self.inputs.settings.locks
-                      if lk.level == full.level}
-        locks = {u: s for u, s in full.locks.items() if file_locks.get(u) != s}
-        file_forbids = {(fb.unit, fb.site) for fb in self.inputs.settings.forbids
-                        if fb.level == full.level}
-        forbids = {}
-        for u, sites in full.forbids.items():
-            keep = [s for s in sites if (u, s) not in file_forbids]
-            if keep:
-                forbids[u] = keep
-        return full.replace(locks=locks, forbids=forbids)
-
-    # ------------------------------------------------------------------ tables
-    def units_frame(self, outcome: Outcome | None = None) -> pd.DataFrame:
-        """One row per unit: students (plan year), today's and proposed school, distance."""
-        out = self.on_screen() if outcome is None else outcome
-        prob = out.problem
-        a = out.assignment
-        names = self.site_names()
-        cur_ids = out.site_id_of(prob.current)
-        new_ids = out.site_id_of(a)
-        n = prob.n_units
-        dist = np.full(n, np.nan)
-        ok = a >= 0
-        dist[ok] = prob.travel[np.flatnonzero(ok), a[ok]]
-        full = out.settings
-        locks = full.locks
-        forbids = full.forbids
-        uid = out.unit_ids
-        return pd.DataFrame({
-            "unit_id": uid,
-            "students": prob.demand[0],
-            "current": cur_ids,
-            "current_name": [names.get(s, "none") for s in cur_ids],
-            "proposed": new_ids,
-            "proposed_name": [names.get(s, "none") for s in new_ids],
-            "changed": (prob.current != a) & (prob.current >= 0),
-            "distance_km": dist / 1000.0,
-            "locked": [locks.get(u, "") for u in uid],
-            "forbidden": [", ".join(forbids.get(u, [])) for u in uid],
-        })
-
-    def sites_frame(self, outcome: Outcome | None = None, *,
-                    resolved_settings: RunSettings | None = None) -> pd.DataFrame:
-        """One row per site of the level: edits in force and the plan's figures.
-
-        Columns: site_id, name, status, capacity, min_util, max_util (shares), students_<year>
-        and util_<year> (share) for each projected year, today (plan-year students under
-        today's zones), moved_in, moved_out, mean_km, max_km, out_of_band, flag (words).
-        """
-        full = self.effective if resolved_settings is None else resolved_settings
-        sites = self.inputs.sites
-        sites = sites.loc[sites["level"] == self.level].reset_index(drop=True)
-        ids = sites["site_id"].astype(str).to_numpy()
-        df = pd.DataFrame({"site_id": ids, "name": sites["name"].astype(str).to_numpy()})
-        def override(values: dict, column: str, default: float | None = None) -> list:
-            base = sites[column].to_numpy()
-            if default is not None:
-                base = np.where(np.isnan(base.astype(float)), default, base.astype(float))
-            return [values.get(s, v) for s, v in zip(ids, base, strict=True)]
-
-        df["status"] = override(full.status, "status")
-        df["capacity"] = np.asarray(override(full.capacity, "capacity"), dtype=float)
-        df["min_util"] = np.asarray(override(full.site_min_util, "min_util",
-                                             full.min_utilization), dtype=float)
-        df["max_util"] = np.asarray(override(full.site_max_util, "max_util",
-                                             full.max_utilization), dtype=float)
-        if resolved_settings is not None:
-            return df
-        out = self.on_screen() if outcome is None else outcome
-        met = out.metrics
-        years = out.problem.years
-        order = np.argsort([int(y) for y in years])
-        for t in order:
-            df[f"students_{years[t]}"] = met.load[t]
-        for t in order:
-            df[f"util_{years[t]}"] = met.utilization[t]
-        df["today"] = self.today().metrics.load[0]
-        df["moved_in"] = met.moved_in
-        df["moved_out"] = met.moved_out
-        df["mean_km"] = met.mean_distance / 1000.0
-        df["max_km"] = met.max_distance / 1000.0
-        df["out_of_band"] = met.out_of_band
-        df["flag"] = band_flags(met.load, out.problem, years, out.plan.open_sites)
-        return df
-
-    def summary(self, outcome: Outcome | None = None) -> dict:
-        """Headline figures of a plan (what the results panel and comparisons show)."""
-        out = self.on_screen() if outcome is None else outcome
-        met = out.metrics
-        plan = out.plan
-        return {
-            "option": out.name or "unsaved result",
-            "level": out.level,
-            "plan_year": int(out.settings.plan_year),
-            "status": plan.status,
-            "gap": float(plan.gap),
-            "students_moved": float(met.students_moved),
-            "units_moved": int(met.units_moved),
-            "mean_km": met.overall_mean_distance / 1000.0,
-            "max_km": met.overall_max_distance / 1000.0,
-            "schools_out_of_band": int(met.out_of_band.sum()),
-            "students": float(out.problem.demand[0].sum()),
-        }
-
-    def changes_frame(self, outcome: Outcome | None = None,
-                      reference: Outcome | None = None) -> pd.DataFrame:
-        """Units whose school differs between ``reference`` (default: today) and the plan."""
-        out = self.on_screen() if outcome is None else outcome
-        ref = self.today() if reference is None else reference
-        if ref.level != out.level:
-            raise StoreError("compare plans of the same level")
-        a = self.units_frame(out)
-        b = self.units_frame(ref)
-        diff = (a["proposed"] != b["proposed"]).to_numpy()
-        frame = pd.DataFrame({
-            "unit_id": a["unit_id"][diff],
-            "students": a["students"][diff],
-            "from": b["proposed"][diff],
-            "from_name": b["proposed_name"][diff],
-            "to": a["proposed"][diff],
-            "to_name": a["proposed_name"][diff],
-            "km_before": b["distance_km"][diff],
-            "km_after": a["distance_km"][diff],
-        })
-        return frame.reset_index(drop=True)
-
-    def flows_frame(self, outcome: Outcome | None = None,
-                    reference: Outcome | None = None) -> pd.DataFrame:
-        """Students per (from, to) school pair between ``reference`` and the plan."""
-        ch = self.changes_frame(outcome, reference)
-        g = ch.groupby(["from_name", "to_name"], as_index=False).agg(
-            units=("unit_id", "size"), students=("students", "sum"))
-        return g.sort_values("students", ascending=False).reset_index(drop=True)
-
-    def compare_frame(self, outcomes: list[Outcome]) -> pd.DataFrame:
-        """Headline figures side by side (one column per plan) and plan-year utilization."""
-        cols = {}
-        for out in outcomes:
-            s = self.summary(out)
-            col = {
-                "status": s["status"],
-                "gap": f"{s['gap']:.3%}" if np.isfinite(s["gap"]) else "",
-                "students moved": f"{s['students_moved']:,.0f}",
-                "units moved": f"{s['units_moved']:,}",
-                "mean travel (km)": f"{s['mean_km']:.2f}",
-                "longest travel (km)": f"{s['max_km']:.2f}",
-                "schools out of band": str(s["schools_out_of_band"]),
-            }
-            met = out.metrics
-            for sid, u in zip(out.site_ids, met.utilization[0], strict=True):
-                col[f"{sid} utilization {s['plan_year']}"] = "" if np.isnan(u) else f"{u:.0%}"
-            label = out.name or "unsaved result"
-            while label in cols:
-                label += " "
-            cols[label] = col
-        return pd.DataFrame(cols)
-
     # ------------------------------------------------------------------ exports
     def export_folder(self) -> Path:
         if self._export_dir is None:
@@ -638,20 +435,20 @@ class Store:
         """Write one export of the plan on screen and return its path.
 
         ``kind``: gpkg, geojson, shapefile, units_csv, schools_csv (via
-        :func:`districting.exports.export_all`) or packet (the PDF packet).
+        :func:`districting.outputs.exports.export_all`) or packet (the PDF packet).
         """
         out = self.outcome
         if out is None:
             raise StoreError("run a plan first (press Rerun); there is no option to export yet")
-        label = safe_name(out.name or "unsaved-result")
-        folder = self.export_folder() / f"{label}-{out.level}"
+        label = slug(f"{out.name or 'unsaved-result'}-{out.level}")
+        folder = path_inside(self.export_folder(), label)
         if kind == "packet":
-            from districting.packet import write_packet
+            from districting.outputs.packet import write_packet
 
-            pdf = folder / f"{label}-{out.level}-packet.pdf"
+            pdf = folder / f"{label}-packet.pdf"
             write_packet([out], pdf)
             return pdf
-        from districting.exports import export_all
+        from districting.outputs.exports import export_all
 
         if self._exports[0] is not out:  # one export_all per plan, however many buttons
             self._exports = (out, export_all(out, folder))
@@ -659,117 +456,3 @@ class Store:
         if kind not in files:
             raise StoreError(f"unknown export {kind!r} (exports: {', '.join(files)})")
         return Path(files[kind])
-
-    # ------------------------------------------------------------------ persistence
-    def state(self) -> dict:
-        """The JSON-friendly state written to the store after every change."""
-        plans = {}
-        for lv, out in self.outcomes.items():
-            if out is None:
-                continue
-            plans[lv] = {
-                "name": out.name,
-                "created": out.created,
-                "sites": out.site_id_of(out.assignment).tolist(),
-                "settings": out.settings.to_dict(),
-                "units": len(out.unit_ids),
-                "status": out.plan.status,
-                "objective": float(out.plan.objective),
-                "bound": float(out.plan.bound),
-                "gap": float(out.plan.gap),
-            }
-        return {
-            "version": STATE_VERSION,
-            "level": self.level,
-            "runs": {lv: rs.to_dict() for lv, rs in self.runs.items()},
-            "plans": plans,
-        }
-
-    def _save(self) -> None:
-        if not self.persist:
-            return
-        with _write_lock(self.store_path):
-            _options.save_state(self.store_path, STATE_KEY, self.state())
-
-    def restore(self) -> list[str]:
-        """Read the last state from the store; returns notes on what could not be restored."""
-        notes: list[str] = []
-        if not self.persist or not self.store_path.exists():
-            return notes
-        data = _options.load_state(self.store_path, STATE_KEY)
-        if not data or data.get("version") != STATE_VERSION:
-            return notes
-        units = set(self.unit_ids)
-        for lv, rsd in data.get("runs", {}).items():
-            if lv not in self.runs:
-                continue
-            rs = RunSettings.from_dict({**rsd, "level": lv})
-            sites = set(self.inputs.sites.loc[self.inputs.sites["level"] == lv, "site_id"]
-                        .astype(str))
-            locks = {u: s for u, s in rs.locks.items() if u in units and s in sites}
-            forbids = {u: [s for s in ss if s in sites] for u, ss in rs.forbids.items()
-                       if u in units}
-            if len(locks) < len(rs.locks) or sum(map(len, forbids.values())) < sum(
-                    map(len, rs.forbids.values())):
-                notes.append(f"{lv}: some saved locks name units or schools no longer in the "
-                             "project and were dropped")
-            self.runs[lv] = rs.replace(locks=locks, forbids={u: s for u, s in forbids.items()
-                                                             if s})
-        if data.get("level") in self.runs:
-            self.level = data["level"]
-        for lv, p in data.get("plans", {}).items():
-            if lv not in self.runs:
-                continue
-            try:
-                self.outcomes[lv] = self._plan_from_state(lv, p)
-            except (ValueError, KeyError, IndexError) as exc:
-                notes.append(f"{lv}: the last plan could not be restored ({exc}); press Rerun")
-        self.last_message = " ".join(notes)
-        return notes
-
-    def _plan_from_state(self, level: str, p: dict) -> Outcome:
-        ids = p["sites"]
-        if len(ids) != len(self.unit_ids):
-            raise ValueError("the project's units changed")
-        full = RunSettings.from_dict({**p["settings"], "level": level})
-        sites = self.inputs.sites
-        level_ids = sites.loc[sites["level"] == level, "site_id"].astype(str).tolist()
-        pos = {s: j for j, s in enumerate(level_ids)}
-        a = np.array([pos[s] if s in pos else -1 for s in ids], dtype=np.int64)
-        if (a < 0).any():
-            raise ValueError("the plan names schools no longer in the project")
-        fields = {k: p[k] for k in ("status", "objective", "bound", "gap") if k in p}
-        return outcome_from_assignment(self.inputs, full, a, fields, name=p.get("name", ""),
-                                       created=p.get("created", ""))
-
-
-def band_flags(load: np.ndarray, problem, years, open_sites) -> list[str]:
-    """Words per site for years outside the utilization band, e.g. 'over 100% in 2029'."""
-    cap = problem.capacity
-    flags = []
-    for j in range(load.shape[1]):  # one pass per school: a handful per level
-        has = bool(load[:, j].any())
-        if cap is None:
-            flags.append("")
-        elif not open_sites[j]:
-            flags.append("students at a school that is not open" if has else "")
-        elif cap[j] <= 0:
-            flags.append("students at a school with no capacity" if has else "")
-        else:
-            over = [str(y) for y, v in zip(years, load[:, j], strict=True)
-                    if v > problem.max_util[j] * cap[j] + 1e-6]
-            under = [str(y) for y, v in zip(years, load[:, j], strict=True)
-                     if v < problem.min_util[j] * cap[j] - 1e-6]
-            words = []
-            if over:
-                words.append(f"over {problem.max_util[j]:.0%} in {', '.join(sorted(over))}")
-            if under:
-                words.append(f"under {problem.min_util[j]:.0%} in {', '.join(sorted(under))}")
-            flags.append("; ".join(words))
-    return flags
-
-
-def safe_name(text: str) -> str:
-    """A file-name-safe version of an option name."""
-    keep = "".join(c if c.isalnum() or c in "-_" else "-" for c in text.strip())
-    return "-".join(p for p in keep.split("-") if p) or "option"

@@ -121,6 +121,14 @@ def _unit(units: gpd.GeoDataFrame, uid: str) -> int:
     return int(np.flatnonzero(units["unit_id"].to_numpy() == uid)[0])
 
 
+def _write_ids(folder: Path, ids: dict) -> None:
+    """The town with some unit ids replaced (old id -> new id, None for none)."""
+    units = town_units()
+    for old, new in ids.items():
+        units.loc[_unit(units, old), "unit_id"] = new
+    write_town(folder, units=units)
+
+
 # ----------------------------------------------------------------------------- the cases
 def _cases() -> dict:
     """folder name -> function(folder) writing that broken project."""
@@ -186,15 +194,11 @@ def _cases() -> dict:
 
     @case
     def duplicate_id(d):
-        units = town_units()
-        units.loc[_unit(units, "U08"), "unit_id"] = "U07"
-        write_town(d, units=units)
+        _write_ids(d, {"U08": "U07"})
 
     @case
     def missing_id(d):
-        units = town_units()
-        units.loc[_unit(units, "U08"), "unit_id"] = None
-        write_town(d, units=units)
+        _write_ids(d, {"U08": None})
 
     @case
     def negative_count(d):
@@ -333,6 +337,76 @@ def _cases() -> dict:
         t["solve"].update({"min_utilization": 1.2, "gapp": 0.01})
         t["adjacency"] = {"contiguity": "hexagon"}
         write_town(d, toml=t)
+
+    @case
+    def misspelt_setting(d):
+        t = project_dict()
+        t["solve"]["max_utilisation"] = 0.9  # British spelling of max_utilization
+        write_town(d, toml=t)
+
+    @case
+    def utilization_percent(d):
+        t = project_dict()
+        t["solve"]["max_utilization"] = 90  # a percentage where a share is meant
+        write_town(d, toml=t)
+
+    @case
+    def toml_windows_path(d):
+        write_town(d)
+        text = (d / "project.toml").read_text()
+        (d / "project.toml").write_text(text.replace('"sites.geojson"',
+                                                     r'"C:\data\sites.geojson"'))
+
+    @case
+    def empty_sites(d):
+        write_layer(town_units(), d / "town.gpkg", layer="units")
+        write_layer(town_sites().iloc[:0], d / "town.gpkg", layer="sites")
+        write_toml(project_dict("town.gpkg", "town.gpkg", "units", "sites"), d / "project.toml")
+
+    @case
+    def empty_units(d):
+        write_layer(town_units().iloc[:0], d / "town.gpkg", layer="units")
+        write_layer(town_sites(), d / "town.gpkg", layer="sites")
+        write_toml(project_dict("town.gpkg", "town.gpkg", "units", "sites"), d / "project.toml")
+
+    @case
+    def degrees_as_metres(d):  # lon/lat values labelled with the metre CRS
+        units = town_units().to_crs(4326).set_crs(CRS, allow_override=True)
+        sites = town_sites().to_crs(4326).set_crs(CRS, allow_override=True)
+        write_town(d, units=units, sites=sites)
+
+    @case
+    def sites_degrees_as_metres(d):
+        write_town(d, sites=town_sites().to_crs(4326).set_crs(CRS, allow_override=True))
+
+    @case
+    def sites_other_crs(d):  # Web Mercator sites beside UTM units: reprojected, warned
+        write_town(d, sites=town_sites().to_crs(3857))
+
+    @case
+    def empty_barriers(d):
+        t = project_dict()
+        t["barriers"] = {"source": "river.geojson"}
+        write_town(d, toml=t)
+        line = gpd.GeoDataFrame(geometry=[shapely.LineString([(X0, Y0), (X0, Y0 + 1)])],
+                                crs=CRS)
+        write_layer(line.iloc[:0], d / "river.geojson")
+
+    @case
+    def unicode_twin_ids(d):  # "Ü05" composed and decomposed: they print the same
+        _write_ids(d, {"U05": "\u00dc05", "U06": "U\u030805"})
+
+    @case
+    def case_twin_ids(d):
+        _write_ids(d, {"U06": "u05"})
+
+    @case
+    def site_util_percent(d):
+        sites = town_sites()
+        sites["max_util"] = [0.95, 95.0, np.nan]  # E2 written as a percentage
+        t = project_dict()
+        t["sites"]["max_util"] = "max_util"
+        write_town(d, sites=sites, toml=t)
 
     return cases
 

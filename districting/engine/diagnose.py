@@ -1,0 +1,184 @@
+"""Why a problem has no plan, in words staff can act on; never a bare solver status.
+
+:func:`explain` is for the case the pre-checks (:mod:`districting.engine.precheck`) miss: the
+solver proved infeasibility. It re-solves the problem with constraint families dropped in a
+fixed order (floors, capacity, locks, move limit, then contiguity), finds which families are
+needed for the conflict, and solves an elastic version (a non-negative slack on each row of
+those families, minimising the total slack in students) to name the schools, years and
+amounts involved. This is the elastic-programming idea of locating infeasibility by
+minimising constraint violation (Chinneck, "Feasibility and Infeasibility in Optimization",
+Springer 2008).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pyomo.environ as pyo
+
+from ..problem import Problem
+from .precheck import num, plural, precheck, prefix
+from .pyomo_route import build_model, solve_model
+
+__all__ = ["explain"]
+
+_FAMILY_ORDER = ("floor", "capacity", "locks", "max_moved")
+_FAMILY_WORDS = {
+    "floor": "the minimum utilization of schools",
+    "capacity": "the capacity limits",
+    "locks": "the locked units",
+    "max_moved": "the limit on students moved",
+    "contiguity": "connected zones",
+}
+
+
+# ---------------------------------------------------------------------------- explain
+def _present(problem: Problem) -> list[str]:
+    fams = []
+    has_cap = problem.capacity is not None
+    if has_cap and np.any(problem.min_util > 0):
+        fams.append("floor")
+    if has_cap:
+        fams.append("capacity")
+    if np.any(problem.locks >= 0):
+        fams.append("locks")
+    if problem.max_moved is not None:
+        fams.append("max_moved")
+    return fams
+
+
+def _feasible(problem: Problem, contiguity: str, drop: set[str], time_limit: float):
+    """True / False / None (undecided within the time limit) with ``drop`` families removed."""
+    m = build_model(problem, contiguity, elastic=drop)
+    # A dropped family is an elastic one whose slack costs nothing.
+    m.objective.deactivate()
+    m.feasibility = pyo.Objective(expr=0.0)
+    res = solve_model(m, gap=1.0, time_limit=time_limit)
+    if res.status == "infeasible":
+        return False
+    if res.has_solution:
+        return True
+    return None
+
+
+def _elastic_details(problem: Problem, contiguity: str, fams: list[str],
+                     time_limit: float) -> list[str]:
+    """Solve with slack on ``fams`` (min total slack) and describe the rows that give."""
+    m = build_model(problem, contiguity, elastic=fams)
+    d0 = problem.demand[0]
+    terms = []
+    for fam in fams:
+        var = getattr(m, f"{fam}_slack", None)
+        if var is None:
+            continue
+        for key, v in var.items():
+            weight = max(float(d0[key]), 1.0) if fam == "locks" else 1.0
+            terms.append(weight * v)
+    m.objective.deactivate()
+    m.violation = pyo.Objective(expr=pyo.quicksum(terms))
+    res = solve_model(m, gap=1e-6, time_limit=time_limit)
+    if not res.has_solution:
+        return []
+    out = []
+    cap = problem.capacity
+    for fam in fams:
+        var = getattr(m, f"{fam}_slack", None)
+        if var is None:
+            continue
+        for key, v in var.items():
+            s = v.value or 0.0
+            if s <= 1e-6:
+                continue
+            if fam == "capacity":
+                t, j = key
+                lim = problem.max_util[j] * cap[j]
+                out.append(f"{problem.site_label(j)} in {problem.year_label(t)} would need "
+                           f"{num(s)} {plural(s, 'seat')} over its limit of {num(lim)}")
+            elif fam == "floor":
+                t, j = key
+                fl = problem.min_util[j] * cap[j]
+                out.append(f"{problem.site_label(j)} in {problem.year_label(t)} would be "
+                           f"{num(s)} {plural(s, 'student')} short of its floor of {num(fl)}")
+            elif fam == "locks":
+                j = int(problem.locks[key])
+                out.append(f"{problem.unit_label(key)} would have to leave its lock to "
+                           f"{problem.site_label(j)}")
+            elif fam == "max_moved":
+                out.append(f"the move limit of {num(problem.max_moved)} would have to rise to "
+                           f"{num(problem.max_moved + s)}")
+    return out
+
+
+_FIXES = {
+    "floor": "lower the minimum utilization of those schools, or let one close",
+    "capacity": "raise capacity or the maximum utilization there, or open another school",
+    "locks": "remove or change those locks",
+    "max_moved": "raise the move limit",
+    "contiguity": "add adjacency links (bridges) or allow more units to go to those schools",
+}
+
+
+def explain(problem: Problem, time_limit: float = 30.0) -> str:
+    """Which constraint families conflict, which schools and years, and what to relax.
+
+    Call it when the solver proved the problem infeasible. Pre-check findings, when there
+    are any, are returned first. Otherwise families are dropped in the order floors,
+    capacity, locks, move limit (each re-solve without contiguity, then with the exact flow
+    form of contiguity when the zones must be connected); the families whose removal makes a
+    plan possible are the conflict, and an elastic solve names the rows that must give.
+    ``time_limit`` bounds each re-solve in seconds.
+    """
+    found = precheck(problem)
+    if found:
+        return "\n".join(found)
+    pre = prefix(problem)
+    fams = _present(problem)
+    stages = ["none"] + (["flow"] if problem.contiguous else [])
+    for contiguity in stages:
+        base = _feasible(problem, contiguity, set(), time_limit)
+        if base is None:
+            return (f"{pre}no plan was found within {time_limit:.0f} s and infeasibility could "
+                    "not be located in that time. Loosen the utilization band, the move "
+                    "limit or the locks, or allow more time.")
+        if base:
+            continue
+        needed = _needed(problem, contiguity, fams, time_limit)
+        if needed is None and contiguity == "flow":
+            return (f"{pre}the zones cannot all be connected: every other rule can be met, "
+                    "but some units cannot join a school's zone through units that may go "
+                    "there. To fix it: " + _FIXES["contiguity"] + ".")
+        if needed is None:
+            return (f"{pre}no plan exists even without the utilization band, the locks and the "
+                    "move limit: the number of open schools, closures, forbidden pairs and "
+                    "the maximum distance leave some units without a school they can join. "
+                    "Allow more pairs (maximum distance, forbids) or open more schools.")
+        details = _elastic_details(problem, contiguity, needed, time_limit)
+        words = " and ".join(_FAMILY_WORDS[f] for f in needed)
+        fixes = "; ".join(_FIXES[f] for f in needed + (["contiguity"] if contiguity == "flow"
+                                                          else []))
+        where = " together with connected zones" if contiguity == "flow" else ""
+        text = f"{pre}no plan meets {words}{where}."
+        if details:
+            text += " The smallest change that allows a plan: " + "; ".join(details) + "."
+        return text + f" To fix it: {fixes}."
+    if problem.contiguous:
+        return (f"{pre}the exact flow formulation finds a plan that meets every rule, so the "
+                "problem is feasible; the infeasible answer came from a limit of the solve "
+                "loop. Re-run with more time or rounds.")
+    return f"{pre}a plan that meets every rule exists; re-run the solve."
+
+
+def _needed(problem: Problem, contiguity: str, fams: list[str], time_limit: float):
+    """The families whose removal makes a plan possible, or None when dropping all fails."""
+    drop: set[str] = set()
+    for fam in fams:
+        drop.add(fam)
+        if _feasible(problem, contiguity, drop, time_limit):
+            break
+    else:
+        return None
+    # Keep only the families the conflict needs: put each back while a plan still exists.
+    for fam in sorted(drop, key=_FAMILY_ORDER.index):
+        trial = drop - {fam}
+        if trial and _feasible(problem, contiguity, trial, time_limit):
+            drop = trial
+    return sorted(drop, key=_FAMILY_ORDER.index)

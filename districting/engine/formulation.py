@@ -1,0 +1,369 @@
+"""The model, stated once: columns and row families as a neutral sparse description.
+
+Both solver routes are built from :func:`formulate`: the HiGHS array route
+(:mod:`districting.engine.highs_route`) passes the rows to highspy as they are, the Pyomo
+reference route (:mod:`districting.engine.pyomo_route`) writes each row as a Pyomo
+constraint. Neither writes a row of its own, so they cannot drift apart.
+
+Notation of :mod:`districting.problem`: ``i`` unit, ``j`` site, ``t`` demand row,
+``d[t, i]`` students, ``Q[j]`` capacity, ``u_min`` / ``u_max`` the utilization band,
+``w = problem.weighted_cost`` (distance times students plus the stability charge).
+
+Columns: ``x[i, j]`` (binary) for every pair that some plan may use (``problem.allowed``,
+without pairs whose students exceed the site's upper capacity in some year: such a pair can
+never be used), then ``y[j]`` (binary) for every candidate site. Always-open sites have no
+``y`` column (``y[j] = 1`` is a constant); closed sites have neither.
+
+Each row family is one function (its formula in its docstring) returning a
+:class:`RowBlock`; :func:`formulate` calls them in a fixed order (the row order matters to
+the solver's path, so it is part of the model). ``elastic`` families (for diagnosis) keep
+every row (no dominated rows left out) so a slack per row can say by how much it must give.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+import scipy.sparse as sp
+
+from ..problem import Problem
+from .connectivity import Cut
+from .tuning import LINK_LIMIT, TOL
+
+__all__ = ["RowBlock", "Formulation", "formulate", "separator_rows", "ELASTIC_FAMILIES"]
+
+#: Families that can be built with a slack (``elastic=``).
+ELASTIC_FAMILIES = ("capacity", "floor", "locks", "max_moved")
+
+
+@dataclass(frozen=True)
+class RowBlock:
+    """Rows of one family: ``lo[r] <= sum_k coef x_k <= hi[r]`` over entries (row, col, coef).
+
+    ``keys[r]`` names row r in the family's own index (a unit, a (row t, site j) pair...).
+    """
+
+    family: str
+    row: np.ndarray
+    col: np.ndarray
+    coef: np.ndarray
+    lo: np.ndarray
+    hi: np.ndarray
+    keys: tuple = ()
+
+    @property
+    def n_rows(self) -> int:
+        return len(self.lo)
+
+
+def _block(family: str, parts: list[tuple], keys: Sequence = ()) -> RowBlock:
+    """A block from per-row parts (cols, coefs, lo, hi)."""
+    rows, cols, vals, lo, hi = [], [], [], [], []
+    for r, (c, v, a, b) in enumerate(parts):
+        c = np.asarray(c, np.int64)
+        rows.append(np.full(len(c), r, np.int64))
+        cols.append(c)
+        vals.append(np.asarray(v, float))
+        lo.append(float(a))
+        hi.append(float(b))
+    if not parts:
+        return RowBlock(family, np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0),
+                        np.zeros(0), np.zeros(0), ())
+    return RowBlock(family, np.concatenate(rows), np.concatenate(cols), np.concatenate(vals),
+                    np.array(lo), np.array(hi), tuple(keys))
+
+
+@dataclass
+class Formulation:
+    """Columns (x pairs, then y of candidates), their bounds and costs, and the row blocks."""
+
+    problem: Problem
+    drop: np.ndarray  # units left out (no students; handed out after each answer)
+    xi: np.ndarray  # unit of x column k
+    xj: np.ndarray  # site of x column k
+    colmap: np.ndarray  # (n, m) x column of a pair, -1 without one
+    ycol: np.ndarray  # (m,) y column of a candidate site, -1 otherwise
+    cost: np.ndarray
+    lower: np.ndarray
+    upper: np.ndarray
+    elastic: frozenset = frozenset()
+    blocks: list[RowBlock] = field(default_factory=list)
+    infeasible_reason: str = ""
+
+    @property
+    def ncol(self) -> int:
+        return len(self.cost)
+
+    @property
+    def n_pairs(self) -> int:
+        return len(self.xi)
+
+    def matrix(self) -> tuple[sp.csc_matrix, np.ndarray, np.ndarray]:
+        """(A, row lower, row upper) of every block in order."""
+        rows, cols, vals, lo, hi = [], [], [], [], []
+        nrow = 0
+        for b in self.blocks:
+            rows.append(b.row + nrow)
+            cols.append(b.col)
+            vals.append(b.coef)
+            lo.append(b.lo)
+            hi.append(b.hi)
+            nrow += b.n_rows
+        a = sp.csc_matrix((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
+                          shape=(nrow, self.ncol))
+        a.sum_duplicates()
+        return a, np.concatenate(lo), np.concatenate(hi)
+
+
+# ---------------------------------------------------------------------------- columns
+def columns(problem: Problem, drop: np.ndarray | None = None,
+            elastic: Iterable[str] = ()) -> Formulation:
+    """x[i, j] for allowed pairs of units not in ``drop``, then y[j] for candidates.
+
+    A pair whose students exceed u_max[j] Q[j] in some year is left out (x = 0 in every
+    plan), except a locked pair (its infeasibility is reported, not hidden) and when the
+    capacity family is elastic. With elastic locks the pairs a lock removes stay in.
+    Cost: w[i, j] on x, 0 on y; bounds [0, 1].
+    """
+    elastic = frozenset(elastic)
+    n, m = problem.n_units, problem.n_sites
+    drop = np.zeros(n, bool) if drop is None else np.asarray(drop, bool)
+    source = problem.replace(locks=np.full(n, -1)) if "locks" in elastic else problem
+    ok = source.allowed & ~drop[:, None]
+    if problem.capacity is not None and "capacity" not in elastic:
+        hi = problem.max_util * problem.capacity
+        ok &= ~(problem.demand[:, :, None] > hi[None, None, :] + TOL).any(axis=0)
+        if problem.locks.max(initial=-1) >= 0:
+            li = np.flatnonzero(problem.locks >= 0)
+            ok[li, problem.locks[li]] = problem.allowed[li, problem.locks[li]]
+    xi, xj = np.nonzero(ok)
+    k = len(xi)
+    colmap = np.full((n, m), -1, np.int64)
+    colmap[xi, xj] = np.arange(k)
+    cand = np.flatnonzero(problem.candidates)
+    ycol = np.full(m, -1, np.int64)
+    ycol[cand] = k + np.arange(len(cand))
+    ncol = k + len(cand)
+    cost = np.zeros(ncol)
+    cost[:k] = problem.weighted_cost[xi, xj]
+    return Formulation(problem, drop, xi, xj, colmap, ycol, cost, np.zeros(ncol),
+                       np.ones(ncol), elastic)
+
+
+# ---------------------------------------------------------------------------- rows
+def assignment_rows(f: Formulation) -> RowBlock:
+    """sum_j x[i, j] = 1 for every unit i (0 for a unit left out)."""
+    n = f.problem.n_units
+    need = np.where(f.drop, 0.0, 1.0)
+    missing = np.flatnonzero((np.bincount(f.xi, minlength=n) == 0) & ~f.drop)
+    if len(missing):
+        f.infeasible_reason = f"{f.problem.unit_label(int(missing[0]))} has no site"
+    k = f.n_pairs
+    return RowBlock("assignment", f.xi.copy(), np.arange(k), np.ones(k), need, need.copy(),
+                    tuple(range(n)))
+
+
+def linking_rows(f: Formulation) -> RowBlock:
+    """x[i, j] <= y[j] for every pair of a candidate site j (the strong form).
+
+    Left out above ``LINK_LIMIT`` pairs when (firm) capacity rows exist: the capacity row
+    sum_i d x[i, j] <= u_max Q y[j] links them in aggregate.
+    """
+    ci = np.flatnonzero(f.ycol[f.xj] >= 0)
+    aggregate = f.problem.capacity is not None and "capacity" not in f.elastic
+    if not len(ci) or (len(ci) > LINK_LIMIT and aggregate):
+        return _block("linking", [])
+    r = np.arange(len(ci))
+    return RowBlock("linking", np.concatenate([r, r]),
+                    np.concatenate([ci, f.ycol[f.xj[ci]]]),
+                    np.concatenate([np.ones(len(ci)), -np.ones(len(ci))]),
+                    np.full(len(ci), -np.inf), np.zeros(len(ci)),
+                    tuple(zip(f.xi[ci].tolist(), f.xj[ci].tolist(), strict=True)))
+
+
+def count_row(f: Formulation) -> RowBlock:
+    """sum_{j candidate} y[j] = p - (sites open anyway), when p is set."""
+    p = f.problem
+    cand = np.flatnonzero(p.candidates)
+    if p.p is None or not (f.ycol[f.xj] >= 0).any():
+        return _block("count", [])
+    rest = p.p - int(p.always_open.sum())
+    return _block("count", [(f.ycol[cand], np.ones(len(cand)), rest, rest)], [0])
+
+
+def root_rows(f: Formulation) -> RowBlock:
+    """x[r_j, j] = y[j] for every candidate j with a root unit r_j; x[r_j, j] = 1 (a bound)
+    for an always-open site. A candidate whose root pair has no column cannot open
+    (y[j] <= 0); an always-open one makes the model infeasible."""
+    p = f.problem
+    parts, keys = [], []
+    if p.roots is None:
+        return _block("roots", [])
+    for j in np.flatnonzero(p.roots >= 0).tolist():
+        r = int(p.roots[j])
+        c = f.colmap[r, j]
+        if p.closed_sites[j]:
+            continue
+        if f.ycol[j] < 0:
+            if c < 0:
+                f.infeasible_reason = (f"{p.site_label(j)} cannot take its own unit "
+                                       f"{p.unit_label(r)}")
+            else:
+                f.lower[c] = 1.0
+        elif c < 0:
+            f.upper[f.ycol[j]] = 0.0
+        else:
+            parts.append(([c, f.ycol[j]], [1.0, -1.0], 0.0, 0.0))
+            keys.append(j)
+    return _block("roots", parts, keys)
+
+
+def undominated(d: np.ndarray, larger: bool) -> list[int]:
+    """Demand rows not implied by another row (for capacity: rows no other row covers)."""
+    keep: list[int] = []
+    for t in range(d.shape[0]):
+        dominated = False
+        for s in range(d.shape[0]):
+            if s == t:
+                continue
+            ge = np.all(d[s] >= d[t]) if larger else np.all(d[s] <= d[t])
+            if ge and (not np.array_equal(d[s], d[t]) or s < t):
+                dominated = True
+                break
+        if not dominated:
+            keep.append(t)
+    return keep
+
+
+def band_rows(f: Formulation, upper_side: bool) -> RowBlock:
+    """Capacity: sum_i d[t, i] x[i, j] <= u_max[j] Q[j] y[j]; floor (``upper_side`` False):
+    sum_i d[t, i] x[i, j] >= u_min[j] Q[j] y[j], for every demand row t and open site j.
+
+    y[j] = 1 for an always-open site (the bound moves to the right-hand side). Left out
+    unless the family is elastic: rows another row dominates, capacity rows of a site that
+    fits every student it may take, floor rows of a zero floor.
+    """
+    p = f.problem
+    family = "capacity" if upper_side else "floor"
+    if p.capacity is None:
+        return _block(family, [])
+    share = p.max_util if upper_side else p.min_util
+    bound = share * p.capacity
+    elastic = family in f.elastic
+    if not upper_side and not elastic and not np.any(bound > TOL):
+        return _block(family, [])
+    years = range(p.n_years) if elastic else undominated(p.demand, larger=upper_side)
+    parts, keys = [], []
+    for t in years:
+        coef = p.demand[t][f.xi]
+        reach = np.bincount(f.xj, weights=coef, minlength=p.n_sites)
+        for j in range(p.n_sites):
+            if not np.isfinite(bound[j]) or p.closed_sites[j]:
+                continue
+            cand = f.ycol[j] >= 0
+            if elastic:
+                if not share[j] > 0:
+                    continue
+            elif upper_side and reach[j] <= bound[j] + TOL and not cand:
+                continue  # every student it may take fits: the row cannot bind
+            elif not upper_side and bound[j] <= TOL:
+                continue
+            sel = np.flatnonzero((f.xj == j) & (coef != 0))
+            cs = sel.tolist()
+            vs = coef[sel].tolist()
+            if cand:
+                cs.append(int(f.ycol[j]))
+                vs.append(-float(bound[j]))
+                lo, hi = (-np.inf, 0.0) if upper_side else (0.0, np.inf)
+            else:
+                lo, hi = (-np.inf, bound[j]) if upper_side else (bound[j], np.inf)
+            parts.append((cs, vs, lo, hi))
+            keys.append((t, j))
+    return _block(family, parts, keys)
+
+
+def cover_rows(f: Formulation) -> RowBlock:
+    """sum_{j candidate} u_max[j] Q[j] y[j] >= sum_i d[t, i] - (seats of always-open sites)
+    for every undominated row t: the open seats hold every student (implied by the rows
+    above, it lifts the LP bound). Not with elastic capacity."""
+    p = f.problem
+    cand = np.flatnonzero(p.candidates)
+    if p.capacity is None or not len(cand) or "capacity" in f.elastic:
+        return _block("cover", [])
+    hi = p.max_util * p.capacity
+    parts, keys = [], []
+    for t in undominated(p.demand, larger=True):
+        need = p.demand[t].sum() - hi[p.always_open].sum()
+        if need > TOL:
+            parts.append((f.ycol[cand], hi[cand], need, np.inf))
+            keys.append(t)
+    return _block("cover", parts, keys)
+
+
+def max_moved_row(f: Formulation) -> RowBlock:
+    """sum_{i: current_i >= 0} d[0, i] (1 - x[i, current_i]) <= max_moved, written as
+    -sum d[0, i] x[i, current_i] <= max_moved - sum d[0, i] (a pair without a column counts
+    as moved for sure)."""
+    p = f.problem
+    if p.max_moved is None:
+        return _block("max_moved", [])
+    cur, d0 = p.current, p.demand[0]
+    has = (cur >= 0) & (d0 > 0)
+    total = float(d0[has].sum())
+    c = f.colmap[np.flatnonzero(has), cur[has]]
+    stay = c >= 0
+    return _block("max_moved", [(c[stay], -d0[has][stay], -np.inf, p.max_moved - total)], [0])
+
+
+def lock_rows(f: Formulation) -> RowBlock:
+    """x[i, lock_i] = 1 for every locked unit: a bound on its column, or a row when the
+    family is elastic (its other pairs are then columns too)."""
+    p = f.problem
+    li = np.flatnonzero(p.locks >= 0)
+    lc = f.colmap[li, p.locks[li]]
+    if "locks" not in f.elastic:
+        f.lower[lc[lc >= 0]] = 1.0
+        return _block("locks", [])
+    ok = lc >= 0
+    return _block("locks", [([c], [1.0], 1.0, 1.0) for c in lc[ok].tolist()],
+                  li[ok].tolist())
+
+
+def separator_rows(f: Formulation, cuts: Sequence[Cut]) -> RowBlock:
+    """x[i, j] (+ x[a, j] - 1) - sum_{s in S} x[s, j] <= 0 for each unit i of each cut.
+
+    A separator pair without a column is left out of its row (x[s, j] = 0 in every plan);
+    a cut through a unit the model leaves out is not written at all (cuts found on the full
+    model, reused by a relaxed rebuild: the unit may be handed any zone later).
+    """
+    parts = []
+    for cut in cuts:
+        j = cut.site
+        if f.drop[cut.separator].any() or (cut.anchor >= 0 and f.drop[cut.anchor]):
+            continue
+        sc = f.colmap[cut.separator, j]
+        sc = sc[sc >= 0]
+        ac = f.colmap[cut.anchor, j] if cut.anchor >= 0 else -1
+        for i in cut.units.tolist():
+            ic = f.colmap[i, j]
+            if ic < 0:
+                continue
+            cs = [ic, *sc.tolist()]
+            vs = [1.0] + [-1.0] * len(sc)
+            if ac >= 0:
+                cs.append(int(ac))
+                vs.append(1.0)
+            parts.append((cs, vs, -np.inf, 1.0 if ac >= 0 else 0.0))
+    return _block("separator", parts)
+
+
+def formulate(problem: Problem, drop: np.ndarray | None = None,
+              elastic: Iterable[str] = ()) -> Formulation:
+    """Every column and row family of ``problem`` (units in ``drop`` left out)."""
+    f = columns(problem, drop, elastic)
+    f.blocks = [assignment_rows(f), linking_rows(f), count_row(f), root_rows(f),
+                band_rows(f, upper_side=True), band_rows(f, upper_side=False), cover_rows(f),
+                max_moved_row(f), lock_rows(f)]
+    return f

@@ -1,0 +1,390 @@
+"""The HiGHS array route: the formulation passed to highspy as arrays, cuts added as rows.
+
+Only allowed unit-site pairs become columns (:mod:`districting.engine.formulation`). Besides
+solving, the route gives the LP relaxation (bound, point, reduced costs), root cutting
+planes, reduced-cost fixing, and temporary column and row restrictions for the heuristics
+(:mod:`districting.engine.heuristics`).
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable, Sequence
+from contextlib import contextmanager
+
+import numpy as np
+
+from ..problem import Problem
+from ..rules import open_sites
+from .answer import Answer
+from .connectivity import Cut, UnitGraph
+from .cuts import fractional_cuts
+from .formulation import formulate, separator_rows
+from .tuning import PROBE_LIMIT, ROOT_KEEP_SHARE, ROOT_MIN_GAIN, ROOT_ROUNDS
+
+__all__ = ["HighsRoute"]
+
+
+class HighsRoute:
+    """The MIP built from arrays in one highspy model; cuts are added as rows."""
+
+    name = "highs"
+
+    def __init__(self, problem: Problem, drop: np.ndarray | None = None,
+                 threads: int = 2) -> None:
+        """``drop`` marks units left out of the MIP (free empty units handed out after)."""
+        import highspy
+
+        self._hs = highspy
+        self.problem = problem
+        f = formulate(problem, drop)
+        self.formulation = f
+        self.drop = f.drop
+        self.xi, self.xj, self.colmap, self.ycol = f.xi, f.xj, f.colmap, f.ycol
+        self.infeasible_reason = f.infeasible_reason
+        ncol, cost, lower, upper = f.ncol, f.cost, f.lower, f.upper
+        a, row_lower, row_upper = f.matrix()
+        f.blocks = []  # passed to HiGHS; the columns stay for the cut rows
+        nrow = a.shape[0]
+        lp = highspy.HighsLp()
+        lp.num_col_ = ncol
+        lp.num_row_ = nrow
+        lp.col_cost_ = cost
+        lp.col_lower_ = lower
+        lp.col_upper_ = upper
+        lp.row_lower_ = row_lower
+        lp.row_upper_ = row_upper
+        lp.a_matrix_.format_ = highspy.MatrixFormat.kColwise
+        lp.a_matrix_.start_ = a.indptr.astype(np.int32)
+        lp.a_matrix_.index_ = a.indices.astype(np.int32)
+        lp.a_matrix_.value_ = a.data
+        lp.integrality_ = [highspy.HighsVarType.kInteger] * ncol
+        self.ncol = ncol
+        self._cost = cost
+        self.lower0 = lower
+        self.upper = upper.copy()  # permanent bounds (reduced-cost fixing lowers them)
+        self._temp: np.ndarray | None = None  # columns a heuristic turned off for a while
+        self._lp: tuple[float, np.ndarray, np.ndarray] | None = None
+        self._cut_lp: tuple[float, np.ndarray, np.ndarray] | None = None  # after strengthen
+        self._tree: np.ndarray | None = None  # rows of the heuristic's site trees
+        self._tree_off = np.zeros(0, np.int64)
+        h = _quiet_highs()
+        h.setOptionValue("threads", int(threads))
+        h.setOptionValue("presolve", "on")
+        if ncol > PROBE_LIMIT:  # see tuning.PROBE_LIMIT
+            h.setOptionValue("presolve_rule_off", 32768)
+        h.passModel(lp)
+        self.h = h
+        self._cancel: Callable[[], bool] | None = None
+        self._deadline = float("inf")
+        h.cbMipInterrupt.subscribe(self._interrupt)
+        self.fixed = 0
+
+    def _interrupt(self, e) -> None:
+        if (self._cancel is not None and self._cancel()) or time.monotonic() > self._deadline:
+            e.interrupt()
+
+    # --------------------------------------------------------------- interface
+    def vector(self, assignment: np.ndarray) -> np.ndarray:
+        """Column values of a plan (x and y)."""
+        p = self.problem
+        a = np.asarray(assignment, np.int64)
+        x = np.zeros(self.ncol)
+        has = np.flatnonzero(a >= 0)
+        c = self.colmap[has, a[has]]
+        x[c[c >= 0]] = 1.0
+        opened = open_sites(p, a)
+        yc = self.ycol[opened & (self.ycol >= 0)]
+        x[yc] = 1.0
+        return x
+
+    def add_cuts(self, cuts: Sequence[Cut]) -> int:
+        """Add the rows of ``cuts`` (:func:`~districting.engine.formulation.separator_rows`);
+        returns the number of rows added."""
+        block = separator_rows(self.formulation, cuts)
+        k = block.n_rows
+        if not k:
+            return 0
+        starts = np.searchsorted(block.row, np.arange(k)).astype(np.int32)
+        self.h.addRows(k, block.lo, block.hi, len(block.col), starts,
+                       block.col.astype(np.int32), block.coef)
+        return k
+
+    def solve(self, gap: float, time_left: float | None, start: np.ndarray | None,
+              cancel: Callable[[], bool] | None) -> Answer:
+        hs, h = self._hs, self.h
+        if self.infeasible_reason:
+            return Answer("infeasible", None, np.inf, np.inf, self.infeasible_reason)
+        h.setOptionValue("mip_rel_gap", float(gap))
+        tl = np.inf if time_left is None else max(float(time_left), 0.01)
+        h.setOptionValue("time_limit", float(tl))
+        self._cancel = cancel
+        self._deadline = time.monotonic() + tl + 0.5
+        if start is not None:
+            sol = hs.HighsSolution()
+            sol.col_value = self.vector(start)
+            sol.value_valid = True
+            h.setSolution(sol)
+        h.run()
+        st = h.getModelStatus()
+        info = h.getInfo()
+        ms = hs.HighsModelStatus
+        has = info.primal_solution_status == 2
+        if has:
+            col = np.asarray(h.getSolution().col_value)
+            got = float(np.dot(self._cost, col))
+            want = float(info.objective_function_value)
+            if abs(got - want) > 1e-7 * max(1.0, abs(want)):
+                # seen after rows were added: HiGHS reported a stale objective with the
+                # start as its solution; solving again from scratch gives a true answer
+                h.clearSolver()
+                h.run()
+                st = h.getModelStatus()
+                info = h.getInfo()
+                has = info.primal_solution_status == 2
+        a = None
+        if has:
+            col = np.asarray(h.getSolution().col_value)
+            xv = col[: len(self.xi)] > 0.5
+            a = np.full(self.problem.n_units, -1, np.int64)
+            a[self.xi[xv]] = self.xj[xv]
+            if (a[~self.drop] < 0).any():
+                a, has = None, False
+        status = {
+            ms.kOptimal: "optimal",
+            ms.kInfeasible: "infeasible",
+            ms.kTimeLimit: "time_limit",
+            ms.kInterrupt: "cancelled",
+            ms.kHighsInterrupt: "cancelled",
+            ms.kSolutionLimit: "feasible",
+        }.get(st, "error")
+        if status == "cancelled" and (cancel is None or not cancel()):
+            status = "time_limit"  # the deadline guard fired, not the user
+        bound = float(info.mip_dual_bound)
+        obj = float(info.objective_function_value) if has else np.inf
+        if status == "optimal" and not has:
+            status = "error"
+        if status == "infeasible":
+            bound = np.inf
+        msg = "" if status != "error" else f"HiGHS stopped: {h.modelStatusToString(st)}"
+        return Answer(status, a, obj, bound if np.isfinite(bound) else -np.inf, msg)
+
+    def relaxation(self) -> tuple[float, np.ndarray, np.ndarray] | None:
+        """The LP relaxation of the model as built (no integrality): (z_LP, x, rc).
+
+        Solved once and kept: rows added later (cuts) only cut the LP's feasible set, so
+        z_LP stays a lower bound and the reduced-cost test below stays valid.
+        """
+        if self._lp is not None or self.infeasible_reason:
+            return self._lp
+        with self._continuous():
+            self._lp = self._run_lp(np.inf)
+        return self._lp
+
+    @contextmanager
+    def _continuous(self):
+        """Every column continuous inside the block (the LP relaxation), integer after."""
+        hs, h = self._hs, self.h
+        allc = np.arange(self.ncol, dtype=np.int32)
+        h.changeColsIntegrality(self.ncol, allc, np.full(self.ncol, hs.HighsVarType.kContinuous))
+        try:
+            yield
+        finally:
+            h.changeColsIntegrality(self.ncol, allc,
+                                    np.full(self.ncol, hs.HighsVarType.kInteger))
+
+    def _run_lp(self, time_limit: float) -> tuple[float, np.ndarray, np.ndarray] | None:
+        """Solve the model as it stands (inside :meth:`_continuous`): (z, x, rc) of the
+        pair columns, or None when the LP did not finish optimal."""
+        hs, h = self._hs, self.h
+        h.setOptionValue("time_limit", float(time_limit))
+        h.run()
+        if h.getModelStatus() != hs.HighsModelStatus.kOptimal:
+            return None
+        sol = h.getSolution()
+        k = len(self.xi)
+        return (float(h.getInfo().objective_function_value),
+                np.asarray(sol.col_value)[:k].copy(), np.asarray(sol.col_dual)[:k].copy())
+
+    def strongest(self) -> tuple[float, np.ndarray, np.ndarray] | None:
+        """The LP with the root cutting planes when :meth:`strengthen` ran, else the plain
+        one: the best lower bound (z_LP, x, rc) for the bound and reduced-cost fixing."""
+        return self._cut_lp if self._cut_lp is not None else self.relaxation()
+
+    def strengthen(self, graph: UnitGraph, passable: np.ndarray | None, deadline: float,
+                   ub: float = np.inf, max_rounds: int = ROOT_ROUNDS,
+                   min_gain: float = ROOT_MIN_GAIN,
+                   keep_share: float = ROOT_KEEP_SHARE) -> list[Cut]:
+        """Root cutting planes: separator cuts violated by the LP point, in rounds.
+
+        Solves the LP relaxation with every row so far, adds the separator cuts its point
+        violates (:func:`districting.engine.cuts.fractional_cuts`) and solves again (the
+        dual simplex restarts from the last basis), until no cut is violated, the clock
+        reaches ``deadline``, or three rounds running each close less than ``min_gain``
+        of the gap to ``ub`` (the cost of a valid plan; without one, of a thousandth of
+        the bound): on some towns the cuts lift the bound a long way at once, on others
+        they creep, and creeping rows only slow the integer rounds down. The cuts are
+        valid for every plan, so the last LP stays a relaxation (:meth:`strongest`): it
+        lifts the bound and lets reduced-cost fixing drop more pairs. The heuristics keep
+        the plain LP (:meth:`relaxation`): its point, less fractional, guides them better
+        (measured on the demo town's elementary level). When all the rounds together
+        close less than ``keep_share`` of the gap to ``ub``, the rows are taken out of the
+        model again (the bound they gave is kept): there they slowed the integer rounds
+        more than they helped (measured on the same level). Returns the cuts kept.
+        """
+        lp = self.relaxation()
+        if lp is None or self.problem.roots is None:
+            return []
+        h = self.h
+        n, m = self.problem.n_units, self.problem.n_sites
+        found: list[Cut] = []
+        z, xv = lp[0], lp[1]
+        first_row = h.getNumRow()
+        stalls = 0
+        with self._continuous():
+            for _ in range(max_rounds):
+                if time.monotonic() >= deadline:
+                    break
+                point = np.zeros((n, m))
+                point[self.xi, self.xj] = xv
+                cuts = fractional_cuts(self.problem, graph, point, passable)
+                if not cuts or not self.add_cuts(cuts):
+                    break
+                found.extend(cuts)
+                answer = self._run_lp(max(deadline - time.monotonic(), 0.01))
+                if answer is None:
+                    break
+                self._cut_lp = answer
+                z_new, xv = answer[0], answer[1]
+                room = ub - z if np.isfinite(ub) and ub > z else 1e-3 * max(abs(z), 1.0)
+                stalls = stalls + 1 if z_new - z < min_gain * room else 0
+                z = z_new
+                if stalls >= 3:
+                    break
+        closed = (z - lp[0]) / (ub - lp[0]) if np.isfinite(ub) and ub > lp[0] else 1.0
+        if found and closed < keep_share:
+            rows = np.arange(first_row, h.getNumRow(), dtype=np.int32)
+            h.deleteRows(len(rows), rows)
+            return []
+        return found
+
+    def fix_by_reduced_cost(self, ub: float) -> int:
+        """Reduced-cost fixing against a valid plan of cost ``ub``; returns columns fixed.
+
+        For the LP relaxation min c x with optimum z_LP and reduced costs rc, every feasible
+        x satisfies c x >= z_LP + sum_k rc_k x_k over the columns nonbasic at their lower
+        bound 0 (rc_k >= 0). A plan using pair k therefore costs at least z_LP + rc_k; when
+        that exceeds ``ub`` (the cost of a valid plan in hand) no better plan uses k, and
+        x_k <= 0 is fixed for good. Columns at their upper bound have rc <= 0 and are never
+        fixed. Redone (with the same LP) whenever a better plan lowers ``ub``.
+        """
+        lp = self.strongest()
+        if lp is None or not np.isfinite(ub):
+            return 0
+        z, xv, rc = lp
+        slack = max(abs(ub), 1.0) * 1e-9
+        k = len(self.xi)
+        drop = np.flatnonzero((z + rc > ub + slack) & (self.lower0[:k] < 0.5)
+                              & (self.upper[:k] > 0.5) & (xv < 0.5))
+        if len(drop):
+            self.upper[drop] = 0.0
+            if self._temp is None or not len(self._temp):
+                self.h.changeColsBounds(len(drop), drop.astype(np.int32), self.lower0[drop],
+                                        self.upper[drop])
+            else:
+                self._temp = np.union1d(self._temp, drop)
+                self._apply(self._temp, np.zeros(len(self._temp)))
+        self.fixed += len(drop)
+        return len(drop)
+
+    def _apply(self, cols: np.ndarray, upper: np.ndarray) -> None:
+        if len(cols):
+            self.h.changeColsBounds(len(cols), cols.astype(np.int32), self.lower0[cols], upper)
+
+    def restrict(self, off: np.ndarray) -> None:
+        """Heuristic only: columns ``off`` get upper bound 0 until :meth:`unrestrict`."""
+        self.unrestrict()
+        off = np.asarray(off, np.int64)
+        off = off[self.lower0[off] < 0.5]
+        self._temp = off
+        self._apply(off, np.zeros(len(off)))
+
+    def unrestrict(self) -> None:
+        if self._temp is not None:
+            self._apply(self._temp, self.upper[self._temp])
+            self._temp = None
+
+    def tree_rows(self, parent: np.ndarray) -> np.ndarray:
+        """Add the rows x[i,j] <= x[q,j] (q: i's nearest ancestor with a column in site j's
+        tree, :func:`districting.engine.connectivity.site_trees`), inactive until
+        :meth:`trees` turns them on. Returns the pair columns a tree-shaped zone cannot use
+        (ancestor without a column, unit not reached). Heuristic only: a tree restricts the plans.
+        """
+        p = self.problem
+        xi, xj = self.xi, self.xj
+        k = len(xi)
+        q = parent[xj, xi].copy()
+        for _ in range(p.n_units):  # climb over units left out of the model
+            up = (q >= 0) & self.drop[np.maximum(q, 0)]
+            if not up.any():
+                break
+            q[up] = parent[xj[up], q[up]]
+        roots = p.roots if p.roots is not None else np.full(p.n_sites, -1)
+        free_site = roots[xj] < 0
+        is_root = xi == roots[xj]
+        qc = np.where(q >= 0, self.colmap[np.maximum(q, 0), xj], -1)
+        off = ~free_site & ~is_root & (qc < 0)
+        rows = np.flatnonzero(~free_site & ~is_root & (qc >= 0))
+        nr = len(rows)
+        r0 = self.h.getNumRow()
+        if nr:
+            starts = np.arange(0, 2 * nr, 2, dtype=np.int32)
+            idx = np.column_stack([rows, qc[rows]]).ravel().astype(np.int32)
+            val = np.tile([1.0, -1.0], nr)
+            self.h.addRows(nr, np.full(nr, -np.inf), np.full(nr, np.inf), 2 * nr, starts,
+                           idx, val)
+        self._tree = np.arange(r0, r0 + nr, dtype=np.int32)
+        self._tree_off = np.flatnonzero(off[:k])
+        return self._tree_off
+
+    @property
+    def has_trees(self) -> bool:
+        """True once :meth:`tree_rows` added the rows of the site trees."""
+        return self._tree is not None
+
+    @property
+    def tree_off(self) -> np.ndarray:
+        """The pair columns a tree-shaped zone cannot use (from :meth:`tree_rows`)."""
+        return self._tree_off
+
+    def trees(self, on: bool) -> None:
+        """Turn the tree rows on (upper bound 0) or off (free rows)."""
+        t = self._tree
+        if t is not None and len(t):
+            self.h.changeRowsBounds(len(t), t, np.full(len(t), -np.inf),
+                                    np.full(len(t), 0.0 if on else np.inf))
+
+    def column(self, units: np.ndarray, sites: np.ndarray) -> np.ndarray:
+        """Column index per (unit, site) pair (-1: no column)."""
+        return self.colmap[units, sites]
+
+
+def _quiet_highs():
+    """A Highs object with no output: its constructor prints a banner on the C stdout,
+    which would break the CLI's tables and pipes, so file descriptor 1 is muted meanwhile."""
+    import os
+    import sys
+
+    import highspy
+
+    sys.stdout.flush()
+    saved = os.dup(1)
+    try:
+        with open(os.devnull, "wb") as null:
+            os.dup2(null.fileno(), 1)
+            h = highspy.Highs()
+            h.setOptionValue("output_flag", False)
+    finally:
+        os.dup2(saved, 1)
+        os.close(saved)
+    return h

@@ -1,0 +1,366 @@
+"""The solve session: a short pipeline of named stages over one of two solver routes.
+
+Routes: ``solver="highs"`` builds the formulation (:mod:`districting.engine.formulation`)
+as arrays for HiGHS (:mod:`~districting.engine.highs_route`); any other name writes it as a
+Pyomo model for that solver (:mod:`~districting.engine.pyomo_route`).
+
+Stages of :meth:`Session.solve`, passing a :class:`~districting.engine.run.SolveState`:
+
+1. ``_start`` -- pre-checks; the start (or today's zones) adapted and repaired is the first
+   valid plan; with a bound carried over by :meth:`Session.update` it may already be proven;
+   the model is built;
+2. ``_lp_bound`` -- the LP relaxation bounds the cost; its own choice per unit, made valid,
+   is a candidate plan; root cutting planes lift the bound (HiGHS route);
+3. ``_first_heuristics`` -- on a model above ``LNS_BIG`` columns the large-neighbourhood
+   search runs at once; without a valid start, fix-and-resolve gives the first plan;
+4. ``_exact_rounds`` -- the MIP with the cuts so far, warm-started from the best valid plan;
+   each answer is repaired into a plan (an upper bound; the MIP bound is a lower bound as
+   every cut is valid) and its violated separator cuts are added (Validi, Buchanan &
+   Lykhovyd, Operations Research 70(2), 2022), until the gap is within the request.
+
+Columns are removed only with a proof: a pair whose students exceed the site's upper
+capacity in some year is never a column, and after a valid plan of cost UB is known,
+reduced-cost fixing drops every pair with LP bound + reduced cost > UB.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable
+
+import numpy as np
+
+from ..plan import Plan, Round
+from ..problem import Problem, _same_array
+from .connectivity import Cut, UnitGraph, fragments, free_units, plan_checks
+from .cuts import separator_cuts
+from .heuristics import constructive, fix_and_resolve, prepare_start, rounded
+from .highs_route import HighsRoute
+from .improve import relocate
+from .neighbourhood import reoptimise
+from .precheck import precheck
+from .repair import make_valid, reassign_empty, repair
+from .run import Run, SolveState, failed_plan, infeasible_plan
+from .tuning import (
+    FIRST_ROUND_MIN,
+    FIRST_ROUND_SHARE,
+    LNS_BIG,
+    LNS_MIN_SITES,
+    LNS_SHARE,
+    LNS_SHARE_BIG,
+    PROBE_LIMIT,
+    ROOT_MAX,
+    ROOT_SHARE,
+)
+
+__all__ = ["Session", "exact_subsolve"]
+
+
+def _make_backend(problem: Problem, solver: str, drop: np.ndarray | None = None):
+    if solver == "highs":
+        return HighsRoute(problem, drop)
+    # Pyomo is imported only on this route (and to explain an infeasibility): the HiGHS
+    # route starts faster and holds less memory without it. No cycle: it never imports
+    # the session.
+    from .pyomo_route import PyomoRoute
+
+    return PyomoRoute(problem, solver)
+
+
+def _columns(backend) -> int:
+    """Columns of the model (0 when the route does not say)."""
+    return int(getattr(backend, "ncol", 0))
+
+
+def exact_subsolve(problem: Problem, gap: float, time_limit: float | None,
+                   start: np.ndarray | None, cancel: Callable[[], bool] | None) -> Plan:
+    """The exact rounds alone (no heuristics) on a small problem: a neighbourhood's solve
+    in the large-neighbourhood search (:func:`districting.engine.neighbourhood.reoptimise`)."""
+    session = Session(problem)
+    session.heuristics = False
+    return session.solve(gap, time_limit, start=start, cancel=cancel)
+
+
+class Session:
+    """A solver that keeps its built model, cuts and best plan between re-solves.
+
+    ``Session(problem).solve(...)`` solves; ``update(problem2)`` changes the problem (a lock,
+    a capacity, a closure): the cuts are kept when the unit graph and the roots are the same
+    (a separator cut depends only on them), and the previous plan becomes the warm start.
+    """
+
+    def __init__(self, problem: Problem, solver: str = "highs") -> None:
+        self.solver = solver
+        self.problem = problem
+        self.cuts: list[Cut] = []
+        self.last: Plan | None = None
+        self._backend = None
+        self._full = False  # True once empty units had to join the MIP
+        self._graph = UnitGraph.of(problem) if problem.contiguous else None
+        self._carried_bound = -np.inf  # a bound proven for a problem this one restricts
+        self._solved: Problem | None = None  # the problem self.last was solved for
+        # heuristics besides the exact rounds and their repair: LP rounding, the
+        # large-neighbourhood search, fix-and-resolve (off inside a neighbourhood's solve)
+        self.heuristics = True
+        self.build_seconds = 0.0
+
+    def update(self, problem: Problem) -> None:
+        """Switch to a changed problem; keeps the cuts when graph and roots are unchanged.
+
+        When the new problem only removes plans (a lock, a forbid, a closure, a lower cap:
+        :meth:`Problem.is_restriction_of`), the last plan's proven bound stays a valid
+        lower bound and starts the next solve.
+        """
+        old = self.problem
+        last, base = self.last, self._solved
+        carry = (last is not None and base is not None and last.feasible
+                 and np.isfinite(last.bound) and problem.is_restriction_of(base))
+        self._carried_bound = last.bound if carry else -np.inf
+        same_graph = (
+            problem.n_units == old.n_units
+            and problem.n_sites == old.n_sites
+            and _same_array(problem.edges, old.edges)
+            and _same_array(problem.roots, old.roots)
+        )
+        if not same_graph:
+            self.cuts = []
+            self._graph = UnitGraph.of(problem) if problem.contiguous else None
+        self.problem = problem
+        self._backend = None
+        self._full = False
+
+    def _ensure_backend(self, drop: np.ndarray | None = None):
+        if self._backend is None:
+            t0 = time.perf_counter()
+            self._backend = _make_backend(self.problem, self.solver, drop)
+            if self.cuts:
+                self._backend.add_cuts(self.cuts)
+            self.build_seconds = time.perf_counter() - t0
+        return self._backend
+
+    def solve(
+        self,
+        gap: float = 1e-4,
+        time_limit: float | None = None,
+        *,
+        progress: Callable[[Round], None] | None = None,
+        cancel: Callable[[], bool] | None = None,
+        start=None,
+        max_rounds: int = 200,
+    ) -> Plan:
+        """Solve the current problem; ``start`` defaults to the last plan of this session.
+
+        Runs the stages of the module docstring in turn; a stage may end the solve with a
+        plan (proven already, or no model could be built).
+        """
+        st = self._start(gap, time_limit, progress, cancel, start)
+        if isinstance(st, Plan):
+            return self._finish(st)
+        self._lp_bound(st)
+        self._first_heuristics(st)
+        return self._finish(self._exact_rounds(st, max_rounds))
+
+    # ------------------------------------------------------------------ stages
+    def _start(self, gap, time_limit, progress, cancel, start) -> SolveState | Plan:
+        """Stage 1: pre-checks, the first valid plan from the start, the model built."""
+        t0 = time.monotonic()
+        problem, route = self.problem, self.solver
+        if start is None and self.last is not None and self.last.feasible:
+            start = self.last.assignment
+        reasons = precheck(problem)
+        if reasons:
+            return infeasible_plan(problem, "\n".join(reasons), route)
+        graph = self._graph
+        passable = free_units(problem) if graph is not None else None
+        relaxed = bool(route == "highs" and passable is not None and passable.any()
+                       and not self._full)
+        run = Run(problem, graph, t0, time_limit, progress)
+        run.bound = self._carried_bound
+        st = SolveState(problem, graph, passable, relaxed, run, gap, cancel, self.cuts,
+                        given=start is not None)
+        cand = prepare_start(problem, graph, start)
+        if cand is not None:
+            run.consider(cand)
+        if run.best is None and graph is not None:
+            # insurance for the time limit: today's zones (or nearest schools) made valid
+            # by local search, when that succeeds; the heuristics below still run
+            run.consider(prepare_start(problem, graph, constructive(problem)))
+        if run.best is not None and run.gap() <= gap + 1e-12:
+            # the adapted start is within the gap of a bound carried from a problem this
+            # one restricts (see update): proven without building a model
+            return run.plan("optimal", "", route, len(self.cuts), gap)
+        try:
+            st.backend = self._ensure_backend(passable if relaxed else None)
+        except (ImportError, RuntimeError, ValueError) as exc:
+            return failed_plan(problem, f"could not build the model: {exc}", route)
+        run.build = self.build_seconds
+        self.build_seconds = 0.0
+        hint = run.best if run.best is not None else cand
+        if hint is not None and plan_checks(problem, hint, graph, contiguity=False):
+            hint = None
+        st.hint = hint
+        return st
+
+    def _lp_bound(self, st: SolveState) -> None:
+        """Stage 2: the LP bound, the LP's own plan made valid, root cutting planes, and
+        reduced-cost fixing against the best plan."""
+        backend, run, graph = st.backend, st.run, st.graph
+        lp = backend.relaxation()
+        if lp is not None and graph is not None and self.heuristics:
+            # the LP's own choice per unit, made valid: often far better than today's zones
+            run.consider(make_valid(st.problem, graph, rounded(st.problem, backend)))
+            # root cutting planes: separator cuts the LP point violates, while they pay
+            # (not inside a neighbourhood's small solve, where they cost more than they give)
+            left = run.left()
+            budget = ROOT_MAX if left is None else min(ROOT_MAX, ROOT_SHARE * left)
+            self.cuts.extend(backend.strengthen(graph, st.passable if st.relaxed else None,
+                                                time.monotonic() + budget, run.best_obj))
+            lp = backend.strongest()
+        if lp is not None:
+            run.bound = max(run.bound, lp[0])
+            if run.best is not None:
+                backend.fix_by_reduced_cost(run.best_obj)
+
+    def _first_heuristics(self, st: SolveState) -> None:
+        """Stage 3: the large-neighbourhood search at once on a model too large for quick
+        exact rounds; fix-and-resolve when no valid start was given (on capacity-bound towns
+        far better than repairing the first exact answer; on models above ``PROBE_LIMIT``
+        columns, whose restricted MIPs can stall HiGHS, only when nothing else found a plan).
+        """
+        backend, run = st.backend, st.run
+        st.big = _columns(backend) > LNS_BIG
+        st.lns_done = not (st.graph is not None and self.heuristics
+                           and st.problem.n_sites > LNS_MIN_SITES)
+        if not st.lns_done and st.big and run.best is not None:
+            st.lns_done = True
+            self._neighbourhoods(st)
+            backend.fix_by_reduced_cost(run.best_obj)
+        st.fix_done = not self.heuristics or (
+            run.best is not None and _columns(backend) > PROBE_LIMIT)
+        if not st.fix_done and not st.given and backend.relaxation() is not None:
+            st.fix_done = True
+            fix_and_resolve(st)
+            if run.best is not None:
+                backend.fix_by_reduced_cost(run.best_obj)
+
+    def _exact_rounds(self, st: SolveState, max_rounds: int) -> Plan:
+        """Stage 4: exact rounds on the model without any heuristic restriction (separator
+        cuts only), each warm-started from the best valid plan, until the gap is within the
+        request; the heuristics run (once each) when a round's plan is still far off."""
+        problem, run, gap, cancel = st.problem, st.run, st.gap, st.cancel
+        fixed_at = run.best_obj
+        for _ in range(max_rounds):
+            if run.best is not None and run.gap() <= gap + 1e-12:
+                st.status = "optimal"
+                break
+            if cancel is not None and cancel():
+                st.status = "cancelled"
+                break
+            left = run.left()
+            if left is not None and left <= 0:
+                st.status = "time_limit"
+                break
+            if run.best_obj < fixed_at:
+                st.backend.fix_by_reduced_cost(run.best_obj)
+                fixed_at = run.best_obj
+            st.backend.unrestrict()
+            # until a valid plan exists, cap each round so the repair and the heuristic get
+            # their turn well before the time limit (the MIP's incumbent is good enough)
+            budget = left if run.best is not None or left is None else max(
+                FIRST_ROUND_MIN, FIRST_ROUND_SHARE * left)
+            ans = st.backend.solve(gap, budget, run.best if run.best is not None else st.hint,
+                                   cancel)
+            if ans.status == "infeasible":
+                if run.best is None:
+                    from .diagnose import explain  # Pyomo only when needed (see above)
+
+                    message = explain(problem) or ans.message
+                    return infeasible_plan(problem, message, self.solver, run.rounds,
+                                           run.history, run.build, run.elapsed())
+                run.bound = run.best_obj  # every cut and fix is valid: nothing beats the plan
+                st.status = "optimal"
+                break
+            if ans.status == "error":
+                st.message = ans.message
+                if run.best is None:
+                    return failed_plan(problem, st.message, self.solver)
+                break
+            if ans.status in ("optimal", "time_limit", "cancelled", "feasible"):
+                run.bound = max(run.bound, ans.bound)
+            n_frag, added = 0, 0
+            if ans.assignment is not None:
+                n_frag, added = self._take_answer(st, ans.assignment)
+            run.record(max(added, 0), n_frag)
+            if run.best is not None and run.gap() <= gap + 1e-12:
+                st.status = "optimal"
+                break
+            if ans.status == "cancelled":
+                st.status = "cancelled"
+                break
+            if ans.status == "time_limit" and run.left() is not None and run.left() <= 1e-3:
+                st.status = "time_limit"
+                break
+            if added == 0 and ans.assignment is not None and st.graph is not None:
+                # the MIP answer is contiguous after re-handing empty units, yet the gap
+                # is open: only the MIP's own gap is left; solving again cannot add cuts
+                if ans.status == "optimal":
+                    break
+            if st.graph is None and ans.status == "optimal":
+                break
+        else:
+            st.status = "feasible"
+        st.backend.unrestrict()
+        return run.plan(st.status, st.message, self.solver, len(self.cuts), gap)
+
+    def _take_answer(self, st: SolveState, a: np.ndarray) -> tuple[int, int]:
+        """One exact answer: kept when valid, else its cuts added and repaired into plans
+        (the heuristics run when no plan is known or, once each, when the plan is far off).
+        Returns (fragments, cuts added; -1 when the model was rebuilt)."""
+        problem, graph, run = st.problem, st.graph, st.run
+        if graph is None:
+            run.consider(a)
+            return 0, 0
+        n_frag, added = len(fragments(problem, graph, a)), 0
+        b, detached = reassign_empty(problem, graph, a)
+        if detached.any() or not run.consider(b):
+            cuts = separator_cuts(problem, graph, a, only=detached, passable=st.passable,
+                                  strict=st.relaxed)
+            added = st.backend.add_cuts(cuts)
+            self.cuts.extend(cuts)
+            if st.relaxed and added == 0:
+                added = self._rebuild_full(st)
+            fixed = repair(problem, graph, a)
+            if fixed is not None:
+                run.consider(relocate(problem, graph, fixed))
+            run.consider(make_valid(problem, graph, a))
+            far = run.best is None or (not st.fix_done and st.far())
+            if far and st.backend.relaxation() is not None:
+                st.fix_done = True
+                fix_and_resolve(st)
+        if not st.lns_done and run.best is not None and st.far():
+            st.lns_done = True
+            self._neighbourhoods(st)
+        return n_frag, added
+
+    def _rebuild_full(self, st: SolveState) -> int:
+        """Empty units must join the MIP: only cuts through them are left. Returns -1."""
+        st.relaxed, self._full, self._backend = False, True, None
+        st.backend = self._ensure_backend(None)
+        st.run.build += self.build_seconds
+        if st.backend.relaxation() is not None and st.run.best is not None:
+            st.backend.fix_by_reduced_cost(st.run.best_obj)
+        return -1
+
+    def _neighbourhoods(self, st: SolveState) -> None:
+        """Large-neighbourhood search from the best plan for at most a share of the time
+        left (most of it on a model so large that one exact round cannot finish); every
+        better plan is kept at once."""
+        left = st.run.left()
+        share = LNS_SHARE_BIG if st.big else LNS_SHARE
+        deadline = None if left is None else time.monotonic() + share * left
+        reoptimise(st.problem, st.graph, st.run.best, exact_subsolve, deadline,
+                   on_better=st.run.consider, cancel=st.cancel)
+
+    def _finish(self, plan: Plan) -> Plan:
+        self.last, self._solved = plan, self.problem
+        return plan

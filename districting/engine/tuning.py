@@ -1,0 +1,75 @@
+"""Tuning constants of the engine, named and explained in one place.
+
+None of them changes what is proven (every bound, cut and fixing stays valid); they decide
+where the time goes. The measurements behind them are in ``benchmarks/bench_engine.py``.
+"""
+
+from __future__ import annotations
+
+#: Tolerance on loads, costs and bounds (students, cost units).
+TOL = 1e-6
+
+# ---- building the model (districting.engine.formulation, highs_route)
+#: Up to this many candidate pairs the x <= y linking rows are written one per pair (the
+#: strong form); above it the capacity rows link them in aggregate (a smaller model).
+LINK_LIMIT = 300_000
+#: Columns above which HiGHS's presolve skips probing: probing grows with the binaries and
+#: overran the time limit on large models (seen: 90 s expected for 5,000 units x 25
+#: schools). Above it, too, fix-and-resolve runs only when nothing else found a plan (its
+#: restricted MIPs can stall HiGHS there).
+PROBE_LIMIT = 60_000
+
+# ---- root cutting planes (highs_route.HighsRoute.strengthen)
+#: Share of the time left, at most, for root cutting planes on the LP.
+ROOT_SHARE = 0.15
+#: Seconds, at most, for them.
+ROOT_MAX = 10.0
+#: Rounds of root cuts, at most.
+ROOT_ROUNDS = 200
+#: A round "stalls" when it closes less than this share of the gap to the best plan;
+#: three stalls running end the cutting.
+ROOT_MIN_GAIN = 0.005
+#: Root cuts that together close less than this share of the gap are taken out again (they
+#: slowed the integer rounds more than they helped on the demo town's elementary level).
+ROOT_KEEP_SHARE = 0.1
+
+# ---- large-neighbourhood search (districting.engine.neighbourhood)
+#: Fewer sites than this: the exact rounds alone (neighbourhoods hold 3-8 zones).
+LNS_MIN_SITES = 8
+#: Share of the time left, at most, for the large-neighbourhood search.
+LNS_SHARE = 0.35
+#: Columns above which one exact round takes most of a minute (HiGHS presolve alone: 45 s
+#: at 350,000 columns), so the search runs at once and gets ``LNS_SHARE_BIG`` of the time.
+LNS_BIG = 150_000
+LNS_SHARE_BIG = 0.9
+#: Zones per neighbourhood, grown in turn when a pass over every seed finds nothing.
+LNS_SIZES = (3, 5, 8)
+#: Seconds, at most, for one neighbourhood's exact solve, per zone in it.
+LNS_SECONDS_PER_ZONE = 0.4
+
+# ---- exact rounds and heuristics (districting.engine.session, heuristics)
+#: A repaired plan is "far" from the bound when its gap exceeds this many times the gap
+#: asked, and at least ``FAR_GAP_MIN`` (0.1%): then the heuristics get another turn.
+FAR_GAP_FACTOR = 10
+FAR_GAP_MIN = 1e-3
+#: Until a valid plan exists, each exact round gets at most this share of the time left
+#: (and at least ``FIRST_ROUND_MIN`` seconds), so repair and heuristics get their turn.
+FIRST_ROUND_SHARE = 0.25
+FIRST_ROUND_MIN = 2.0
+#: Fix-and-resolve: reduced-cost thresholds (relative to the LP bound) of the columns kept,
+#: widened in turn when the restricted MIP is infeasible.
+FIX_LEVELS = (2e-4, 2e-3, 2e-2, float("inf"))
+#: Gap asked of the restricted MIPs of fix-and-resolve, at least: with contiguity, and
+#: without (one answer ends the heuristic there, the exact rounds prove the rest).
+FIX_GAP = 2e-3
+FIX_GAP_FLAT = 1e-2
+#: Each restricted MIP gets at most this share of the time left, at least ``SUB_MIN`` s.
+SUB_SHARE = 0.3
+SUB_MIN = 0.05
+#: Rounds, at most, of fix-and-resolve and of the polish around the best plan.
+FIX_ROUNDS = 60
+POLISH_ROUNDS = 40
+#: Gap asked of the polish MIPs, at most.
+POLISH_GAP = 1e-4
+#: The polish stops when fewer seconds than this are left.
+POLISH_RESERVE = 0.5

@@ -1,0 +1,147 @@
+"""Zone colours: touching zones never share a colour, on the workbench map and in print.
+
+:func:`color_zones` colours the zone adjacency graph with DSATUR (D. Brelaz, "New methods
+to color the vertices of a graph", Communications of the ACM 22(4), 1979, 251-256; as
+``networkx.greedy_color(strategy="DSATUR")``) so touching zones never share a colour;
+:data:`ZONE_PALETTE` is our own qualitative palette whose grey values are spread apart.
+:func:`zone_colours` is the one colouring of a plan's zones that the packet and the
+workbench use.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Mapping, Sequence
+
+import geopandas as gpd
+import networkx as nx
+import numpy as np
+import shapely
+
+from ..intake.adjacency import default_tolerance
+from .zones import _ids
+
+__all__ = ["ZONE_PALETTE", "grey_value", "zone_color", "zone_colors", "zone_edges",
+           "color_zones", "zone_colours"]
+
+#: Qualitative zone colours of our own choosing. Lightness (Rec. 601 luma) steps by about
+#: 20 of 255 from 52 to 232, ordered so consecutive colours differ strongly in both hue and
+#: lightness; zones stay apart when printed in grey. Colour 0 (the most used by DSATUR)
+#: is the lightest.
+ZONE_PALETTE: tuple[str, ...] = (
+    "#F5E9C4",  # pale sand       luma 232
+    "#296C8E",  # deep sea blue   luma 92
+    "#E8977C",  # salmon          luma 172
+    "#452556",  # aubergine       luma 52
+    "#ABD397",  # fern            luma 192
+    "#C95E93",  # orchid          luma 132
+    "#B3E2E2",  # frost           luma 212
+    "#68411A",  # walnut          luma 72
+    "#7B9AD9",  # cornflower      luma 152
+    "#379256",  # moss            luma 112
+)
+
+
+def grey_value(color: str) -> float:
+    """Rec. 601 luma (0..255) of a ``#RRGGBB`` colour: its grey level in print."""
+    r, g, b = (int(color.lstrip("#")[k:k + 2], 16) for k in (0, 2, 4))
+    return 0.299 * r + 0.587 * g + 0.114 * b
+
+
+def zone_color(index: int) -> str:
+    """Palette colour of a colour index (cycles past the palette's end)."""
+    return ZONE_PALETTE[int(index) % len(ZONE_PALETTE)]
+
+
+def zone_edges(adjacency, assignment_ids) -> set[tuple[str, str]]:
+    """Pairs of zones (site ids, sorted) that contain adjacent units: the zone graph.
+
+    Exact and cheap when the unit :class:`~districting.intake.adjacency.Adjacency` is at hand;
+    note that barrier-cut pairs do not count, so for map colouring prefer the geometry
+    (:func:`color_zones` with a zones GeoDataFrame) or add ``adjacency.cut_edges``.
+    """
+    zone_of = _ids(assignment_ids, adjacency.n, "assignment")
+    e = np.vstack([adjacency.edges, adjacency.cut_edges])
+    za, zb = zone_of[e[:, 0]], zone_of[e[:, 1]]
+    keep = (za != zb) & (za != "") & (zb != "")
+    lo, hi = np.minimum(za[keep], zb[keep]), np.maximum(za[keep], zb[keep])
+    return set(zip(lo.tolist(), hi.tolist(), strict=True))
+
+
+def _touching_zones(zones: gpd.GeoDataFrame, tol: float) -> set[tuple[str, str]]:
+    ids = zones["site_id"].astype(str).to_numpy()
+    geoms = zones.geometry.to_numpy()
+    a, b = shapely.STRtree(geoms).query(geoms, predicate="dwithin", distance=tol)
+    keep = a < b
+    return {tuple(sorted(p)) for p in zip(ids[a[keep]], ids[b[keep]], strict=True)}
+
+
+def color_zones(
+    zones: gpd.GeoDataFrame | Iterable[tuple[str, str]],
+    *,
+    nodes: Iterable[str] | None = None,
+    tolerance: float | None = None,
+) -> dict[str, int]:
+    """Colour index per site id such that no two touching zones share one (DSATUR).
+
+    ``zones``: a zones GeoDataFrame (``site_id``, geometry; zones within ``tolerance`` of
+    each other, corners included, count as touching) or an iterable of (site_a, site_b)
+    pairs with ``nodes`` naming zones that touch nothing. Map an index to a colour with
+    :func:`zone_color`; planar zone maps need at most 4 colours in theory and DSATUR rarely
+    needs more than 5, within the palette's 10.
+    """
+    g = nx.Graph()
+    if isinstance(zones, gpd.GeoDataFrame | gpd.GeoSeries):
+        frame = zones if isinstance(zones, gpd.GeoDataFrame) else gpd.GeoDataFrame(
+            {"site_id": zones.index.astype(str)}, geometry=zones.to_numpy())
+        geoms = frame.geometry.to_numpy()
+        tol = default_tolerance(geoms) if tolerance is None else float(tolerance)
+        g.add_nodes_from(frame["site_id"].astype(str))
+        g.add_edges_from(_touching_zones(frame, tol))
+    else:
+        g.add_edges_from((str(a), str(b)) for a, b in zones if str(a) != str(b))
+    if nodes is not None:
+        g.add_nodes_from(str(u) for u in nodes)
+    ordered = nx.Graph()
+    ordered.add_nodes_from(sorted(g.nodes))  # deterministic colours for the same map
+    ordered.add_edges_from(g.edges)
+    return dict(nx.greedy_color(ordered, strategy="DSATUR"))
+
+
+def zone_colors(colors: Mapping[str, int]) -> dict[str, str]:
+    """Colour indices (from :func:`color_zones`) as palette hex strings."""
+    return {sid: zone_color(k) for sid, k in colors.items()}
+
+
+def zone_colours(adjacency, site_ids: Sequence[str], assignments: Iterable,
+                 *, spread: bool = False) -> dict[str, str]:
+    """One colour per school with a zone in any of ``assignments`` (site index per unit).
+
+    Touching zones differ in each assignment: the zone graph is the union of the
+    assignments' zone graphs (unit adjacency plus barrier-cut pairs: zones across a river
+    still touch on the map), so a school keeps its colour on every map drawn from them.
+    With ``spread``, zones two, three... steps apart get different colours too while the
+    palette lasts (the k-th power of the zone graph), so schools share a colour only when
+    there are more than the palette holds.
+    """
+    ids = np.array([*map(str, site_ids), ""], dtype=object)
+    pairs: set[tuple[str, str]] = set()
+    used: set[str] = set()
+    for a in assignments:
+        a = np.asarray(a, dtype=np.int64)
+        zone_of = ids[np.where(a >= 0, a, len(ids) - 1)]
+        pairs |= zone_edges(adjacency, zone_of)
+        used |= set(zone_of[zone_of != ""].tolist())
+    nodes = sorted(used)
+    best = color_zones(sorted(pairs), nodes=nodes)
+    if spread:
+        graph = nx.Graph(sorted(pairs))
+        graph.add_nodes_from(nodes)
+        for k in range(2, len(nodes)):  # zones k steps apart differ too, while it lasts
+            wider = nx.power(graph, k)
+            index = color_zones(sorted(tuple(sorted(e)) for e in wider.edges), nodes=nodes)
+            if max(index.values(), default=0) >= len(ZONE_PALETTE):
+                break
+            best = index
+            if wider.number_of_edges() == len(nodes) * (len(nodes) - 1) // 2:
+                break
+    return zone_colors(best)

@@ -1,0 +1,175 @@
+"""Infeasibility in words: one hand-made problem per finding, each with its own sentence."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from districting import Problem
+from districting.engine.diagnose import explain
+from districting.engine.precheck import precheck, reachable
+
+YEARS = (2027, 2028)
+
+
+def make(cost, demand, **kw) -> Problem:
+    cost = np.asarray(cost, float)
+    n, m = cost.shape
+    kw.setdefault("unit_names", [f"U{i}" for i in range(n)])
+    kw.setdefault("site_names", ["Aspen", "Birch", "Cedar", "Dogwood"][:m])
+    kw.setdefault("level", "elementary")
+    demand = np.asarray(demand, float)
+    kw.setdefault("years", YEARS[: 1 if demand.ndim == 1 else demand.shape[0]])
+    return Problem.from_arrays(cost, demand, **kw)
+
+
+def path_edges(n):
+    return [(i, i + 1) for i in range(n - 1)]
+
+
+def only(reasons, *words):
+    """The one reason holding every word (fails when none or several do)."""
+    hits = [r for r in reasons if all(w in r for w in words)]
+    assert len(hits) == 1, reasons
+    return hits[0]
+
+
+def test_feasible_problem_has_no_findings():
+    p = make([[1, 2], [2, 1], [1, 1]], [[3, 3, 3], [4, 4, 4]], capacity=[10, 10],
+             min_util=0.2, edges=path_edges(3), roots=[0, 1], max_moved=5,
+             current=[0, 1, 0], locks={2: 0})
+    assert precheck(p) == []
+
+
+def test_year_over_capacity():
+    # 2028: 27 students, 2 x 12 seats = 24.
+    p = make([[1, 2], [2, 1], [1, 1]], [[5, 5, 5], [9, 9, 9]], capacity=[12, 12])
+    msg = only(precheck(p), "2028")
+    assert msg.startswith("Elementary level: in 2028 there are 27 students")
+    assert "at most 24" in msg and "open more schools" in msg
+
+
+def test_year_over_capacity_counts_best_candidates():
+    # p = 2 of 3 sites, the two largest seat 10 + 8 = 18 < 20 students.
+    p = make([[1, 2, 3], [2, 1, 3]], [10, 10], capacity=[10, 8, 5], p=2)
+    msg = only(precheck(p), "2027")
+    assert "at most 18" in msg and "2 largest candidate sites" in msg
+
+
+def test_school_cannot_reach_its_floor():
+    # Birch may take only U1 (6 students); its floor is 50% of 20 = 10.
+    forb = np.array([[False, True], [False, False], [False, True]])
+    p = make([[1, 2], [2, 1], [1, 2]], [5, 6, 5], capacity=[30, 20], min_util=0.5,
+             forbidden=forb)
+    msg = only(precheck(p), "Birch")
+    assert "minimum utilization in 2027" in msg and "6 students" in msg
+    assert "floor of 10" in msg and "50% of 20" in msg
+
+
+def test_lock_to_closed_school():
+    p = make([[1, 2], [2, 1]], [1, 1], closed_sites=[False, True], locks={0: 1})
+    msg = only(precheck(p), "U0", "locked")
+    assert "Birch is closed" in msg and "reopen" in msg
+
+
+def test_lock_to_forbidden_pair():
+    forb = np.array([[False, True], [False, False]])
+    p = make([[1, 2], [2, 1]], [1, 1], forbidden=forb, locks={0: 1})
+    assert "also forbidden" in only(precheck(p), "U0 is locked to Birch")
+
+
+def test_lock_out_of_reach():
+    p = make([[1, np.inf], [2, 1]], [1, 1], locks={0: 1})
+    assert "out of reach" in only(precheck(p), "U0 is locked to Birch")
+
+
+def test_lock_cannot_join_its_school_zone():
+    # Path U0-U1-U2-U3, Aspen stands in U0, Birch in U3. U2 is locked to Aspen, so U1
+    # (locked to Birch) cannot reach U3 through units that may go to Birch.
+    p = make(np.ones((4, 2)), [1, 1, 1, 1], edges=path_edges(4), roots=[0, 3],
+             locks={1: 1, 2: 0})
+    msg = only(precheck(p), "U1 is locked to Birch")
+    assert "cannot be joined to Birch's zone" in msg and "U3" in msg
+
+
+def test_unit_without_any_school():
+    p = make([[1, 2], [np.inf, np.inf]], [3, 4])
+    msg = only(precheck(p), "U1")
+    assert "has 4 students but cannot go to any school" in msg
+
+
+def test_empty_unit_without_any_school_still_needs_a_zone():
+    forb = np.array([[False, False], [True, True]])
+    p = make([[1, 2], [2, 1]], [3, 0], forbidden=forb)
+    assert "no students, but every unit must belong to a zone" in only(precheck(p), "U1")
+
+
+def test_island_unit():
+    # U3 touches nothing (an island in the adjacency) and is no school's unit.
+    p = make(np.ones((4, 2)), [1, 1, 1, 1], edges=path_edges(3), roots=[0, 2])
+    msg = only(precheck(p), "U3")
+    assert "cannot be joined to any school's zone" in msg and "island" in msg
+    assert not reachable(p)[3].any()
+
+
+def test_two_open_schools_in_one_unit():
+    p = make(np.ones((3, 2)), [1, 1, 1], edges=path_edges(3), roots=[1, 1])
+    msg = only(precheck(p), "Aspen and Birch")
+    assert "all stand in U1" in msg
+
+
+def test_move_limit_below_forced_moves():
+    # Cedar closes; its 7 + 5 students must move but only 10 may.
+    p = make(np.ones((3, 3)), [7, 5, 2], closed_sites=[False, False, True],
+             current=[2, 2, 0], max_moved=10)
+    msg = only(precheck(p), "move limit")
+    assert "at least 12 students in 2027 must change school" in msg
+    assert "U0, U1" in msg and "at least 12" in msg
+
+
+def test_open_count_below_forced_open():
+    p = make(np.ones((2, 3)), [1, 1], p=1, open_sites=[True, True, False])
+    assert "at least 2" in only(precheck(p), "asks for 1 open school,")
+
+
+def test_open_school_whose_unit_may_not_join_it():
+    forb = np.array([[True, False], [False, False]])
+    p = make(np.ones((2, 2)), [1, 1], forbidden=forb, edges=[(0, 1)], roots=[0, 1])
+    msg = only(precheck(p), "Aspen must be open")
+    assert "its own unit U0" in msg
+
+
+# ---------------------------------------------------------------------------- explain
+def test_explain_names_the_floor_conflict():
+    # 10 + 1 + 1 students, two schools of 10 seats with an 80% floor (8): whichever school
+    # does not take U0 has at most 2 students. No pre-check sees it (each could reach 12).
+    p = make([[1, 2], [2, 1], [1, 2]], [10, 1, 1], capacity=[10, 10], min_util=0.8)
+    assert precheck(p) == []
+    msg = explain(p)
+    assert msg.startswith("Elementary level: no plan meets the minimum utilization")
+    assert "6 students short of its floor of 8" in msg
+    assert "lower the minimum utilization" in msg
+
+
+def test_explain_names_capacity_against_locks():
+    # U0 and U1 (6 students each) are locked to Aspen, which seats 10.
+    p = make([[1, 2], [2, 1], [1, 1]], [6, 6, 6], capacity=[10, 10], locks={0: 0, 1: 0})
+    assert precheck(p) == []
+    msg = explain(p)
+    assert "capacity limits" in msg and "Aspen in 2027 would need 2 seats over" in msg
+
+
+def test_explain_names_contiguity():
+    # Path U0-U1-U2-U3 with 1, 1, 9, 9 students; Aspen in U0, Birch in U3, 10 seats each.
+    # {U0, U2} / {U1, U3} fits but is not connected; every connected split overfills one.
+    p = make([[1, 2], [1, 2], [2, 1], [2, 1]], [1, 1, 9, 9], capacity=[10, 10],
+             edges=path_edges(4), roots=[0, 3])
+    assert precheck(p) == []
+    msg = explain(p)
+    assert "together with connected zones" in msg
+    assert "1 seat over its limit of 10" in msg
+    assert "adjacency links" in msg
+
+
+def test_explain_returns_precheck_findings_first():
+    p = make([[1, 2], [np.inf, np.inf]], [3, 4])
+    assert explain(p) == "\n".join(precheck(p))

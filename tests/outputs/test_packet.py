@@ -1,0 +1,214 @@
+"""The hearing packet: pages, sizes, tables against the metrics, the notice, colours."""
+
+from __future__ import annotations
+
+import re
+import shutil
+import subprocess
+
+import numpy as np
+import pytest
+from exports_town import make_outcome, make_town, nearest_assignment
+from matplotlib.text import Text
+from PIL import Image
+
+from districting import DRAFT_NOTICE
+from districting.outputs.colours import zone_edges
+from districting.outputs.packet import PAPER, PNG_DPI, packet_figures, write_packet
+from districting.outputs.packet_rows import OVER, pair_rows, school_rows, summary_rows
+from districting.study import RunSettings, outcome_from_assignment
+
+
+def texts(fig) -> list[str]:
+    return [t.get_text() for t in fig.findobj(Text) if t.get_text()]
+
+
+def pdf_page_count(data: bytes) -> int:
+    """Page objects in a PDF written without object streams (as matplotlib writes it)."""
+    return len(re.findall(rb"/Type\s*/Page(?![a-zA-Z])", data))
+
+
+@pytest.fixture(scope="module")
+def town(tmp_path_factory):
+    return make_town(tmp_path_factory.mktemp("town"))
+
+
+@pytest.fixture(scope="module")
+def options(town):
+    first = make_outcome(town, name="Option A")
+    a = nearest_assignment(town)
+    a[np.flatnonzero(a == 1)[:4]] = 0  # a second option: a few units to another school
+    second = outcome_from_assignment(town, RunSettings(level="elementary"), a,
+                                     {"status": "optimal", "bound": 1.0, "gap": 0.0},
+                                     name="Option B")
+    return [first, second]
+
+
+@pytest.fixture(scope="module")
+def pages(options):
+    return packet_figures(options, stamp="2027-01-15")
+
+
+@pytest.fixture(scope="module")
+def single(options):
+    return packet_figures(options[:1])
+
+
+@pytest.mark.slow
+def test_write_packet_pdf_and_pngs(options, tmp_path):
+    paths = write_packet(options, tmp_path / "packet.pdf", tmp_path / "png")
+    pdf, pngs = paths[0], paths[1:]
+    data = pdf.read_bytes()
+    assert data.startswith(b"%PDF-") and data.rstrip().endswith(b"%%EOF")
+    # summary + (map, schools, moves) per option, for this small town
+    assert pdf_page_count(data) == 7 == len(pngs)
+    assert b"DRAFT FOR DISCUSSION" in data  # document metadata carries the notice
+    w, h = PAPER["letter"]
+    for k, png in enumerate(pngs, start=1):
+        assert png.name == f"packet_p{k:02d}.png"
+        with Image.open(png) as im:
+            assert im.size == (round(w * PNG_DPI), round(h * PNG_DPI))
+            grey = np.asarray(im.convert("L"), dtype=float)
+        assert grey.std() > 5  # something is drawn on every page
+    assert not list(tmp_path.glob(".tmp-*")) and not list((tmp_path / "png").glob(".tmp-*"))
+    # an independent renderer (poppler; bash dev.sh test installs poppler-utils) reads it
+    assert shutil.which("pdftoppm"), "pdftoppm is missing: install poppler-utils"
+    subprocess.run(["pdftoppm", "-png", "-r", "40", "-f", "1", "-l", "1", str(pdf),
+                    str(tmp_path / "render")], check=True)
+    assert list(tmp_path.glob("render*.png"))
+
+
+@pytest.mark.slow
+def test_a4_single_option(options, tmp_path):
+    paths = write_packet(options[:1], tmp_path / "one.pdf", tmp_path, paper="a4")
+    assert pdf_page_count(paths[0].read_bytes()) == 3 == len(paths) - 1
+    with Image.open(paths[1]) as im:
+        w, h = PAPER["a4"]
+        assert im.size == (int(w * PNG_DPI), int(h * PNG_DPI))
+    with pytest.raises(ValueError, match="paper"):
+        packet_figures(options[:1], paper="tabloid")
+
+
+def test_pages_and_notice(pages, single):
+    assert len(pages) == 7
+    summary = " ".join(texts(pages[0]))
+    assert "Options compared" in summary
+    notice = " ".join(DRAFT_NOTICE.split())
+    for k in (0, 1, 4):  # summary and each option's map page: the notice in full
+        assert notice in " ".join(" ".join(texts(pages[k])).split())
+    for fig in pages:  # every page is marked as a draft and dated
+        joined = " ".join(texts(fig))
+        assert "DRAFT FOR DISCUSSION" in joined and "2027-01-15" in joined
+    assert len(single) == 3
+    assert "Options compared" not in " ".join(texts(single[0]))
+
+
+def test_map_page_furniture(single):
+    page = single[0]
+    found = texts(page)
+    assert "N" in found  # north arrow
+    assert any(t.endswith(" km") for t in found)  # scale bar
+    maps = [ax for ax in page.axes if ax.get_aspect() == 1.0]
+    assert len(maps) == 2
+    assert maps[0].get_xlim() == maps[1].get_xlim()  # same extent side by side
+    assert maps[0].get_ylim() == maps[1].get_ylim()
+    names = {t.get_text() for ax in maps for t in ax.texts}
+    assert {"Larkwhistle", "Tansy Hollow", "Quillmere", "Corvel Park"} <= names
+    legend = [t.get_text() for t in page.legends[0].get_texts()]
+    assert any("school changes" in t for t in legend)
+    hatched = [c for ax in maps for c in ax.collections if c.get_hatch()]
+    assert len(hatched) >= 2  # changed units hatched on both maps
+
+
+def test_school_table_equals_metrics(options, single):
+    o = options[0]
+    header, rows, flags = school_rows(o)
+    m = o.metrics
+    years = sorted(o.problem.years)
+    assert header[5:5 + len(years)] == [str(y) for y in years]
+    assert rows[-1][0] == "All schools"
+    for j, row in enumerate(rows[:-1]):  # every school is open in this town
+        assert row[0].endswith(f"({o.site_ids[j]})")
+        for k, y in enumerate(years):
+            t = list(o.problem.years).index(y)
+            students, pct = re.match(r"^(?:\S )?([\d,]+) \(([\d.]+)%\)$", row[5 + k]).groups()
+            assert int(students.replace(",", "")) == round(m.load[t, j])
+            assert float(pct) == pytest.approx(100 * m.utilization[t, j], abs=0.51)
+            over = m.load[t, j] > o.problem.max_util[j] * o.problem.capacity[j] + 1e-6
+            assert (flags[j][5 + k] == "over") == over
+            assert row[5 + k].startswith(OVER) == over
+        assert row[-4] == f"{m.moved_in[j]:,.0f}" and row[-3] == f"{m.moved_out[j]:,.0f}"
+        assert row[-2] == f"{m.mean_distance[j] / 1000:.1f}"
+        assert row[-1] == f"{m.max_distance[j] / 1000:.1f}"
+    assert rows[-1][-4] == f"{m.moved_in.sum():,.0f}"
+    assert any(f == "over" for r in flags for f in r)  # the test town has a school over
+    # what is drawn is the table: every cell text is on the schools page
+    drawn = set(texts(single[1]))
+    assert all(cell in drawn for row in rows for cell in row if cell)
+
+
+def test_moves_table_and_summary(options, pages):
+    o = options[0]
+    header, rows, areas = pair_rows(o)
+    moved = o.assignment != o.current
+    assert rows[-1][1] == "All changes"
+    assert int(rows[-1][3]) == moved.sum()
+    assert int(rows[-1][4].replace(",", "")) == round(o.metrics.students_moved)
+    ids = o.site_id_of(o.assignment)
+    cur = o.site_id_of(o.current)
+    for row, area in zip(rows[:-1], areas.itertuples(), strict=True):
+        sel = moved & (cur == area.from_site) & (ids == area.to_site)
+        assert row[1].endswith(f"({area.from_site})") and row[2].endswith(f"({area.to_site})")
+        assert int(row[3]) == sel.sum()
+        assert int(row[4].replace(",", "")) == round(o.problem.demand[0, sel].sum())
+    students = [int(r[4].replace(",", "")) for r in rows[:-1]]
+    assert students == sorted(students, reverse=True)
+
+    header, srows = summary_rows(options)
+    assert [r[0] for r in srows] == ["Option A", "Option B"]
+    for r, opt in zip(srows, options, strict=True):
+        assert r[3] == f"{opt.metrics.students_moved:,.0f}"
+        assert r[7] == str(int(opt.metrics.out_of_band.sum()))
+    assert srows[1][8] == "optimal, gap 0%"
+    summary = set(texts(pages[0]))
+    assert all(cell in summary for r in srows for cell in r[:8])
+    assert "2-4" in summary and "5-7" in summary  # where each option's pages are
+
+
+def test_touching_zones_never_share_a_colour(options):
+    from districting.outputs.packet import _drawing  # the colours the pages use
+
+    for o in options:
+        d = _drawing(o)
+        colours = d["colours"]
+        for a in (o.current, o.assignment):
+            for s, t in zone_edges(o.inputs.adjacency, o.site_id_of(a)):
+                assert colours[s] != colours[t]
+        # four schools, ten palette colours: every school keeps its own colour
+        assert len(set(colours.values())) == len(colours) == 4
+
+
+def test_long_tables_continue_on_next_pages(tmp_path):
+    from districting.outputs.packet import _table_pages  # the schools pages alone (no maps)
+
+    town = make_town(tmp_path, nx=16, ny=12, n_sites=30, seed=3)
+    o = make_outcome(town, name="Many schools")
+    header, rows, _ = school_rows(o)
+    school_pages = _table_pages(o, "letter", "2027-01-15", 3)
+    assert len(school_pages) >= 2
+    assert "(page 1 of" in school_pages[0].texts[0].get_text()
+    assert "page 4" in texts(school_pages[1])
+    drawn = [t for p in school_pages for t in texts(p)]
+    assert all(f"({sid})" in " ".join(drawn) for sid in o.site_ids)
+    assert len(rows) == 31
+
+
+def test_no_plan_is_refused(town):
+    o = make_outcome(town)
+    a = o.assignment.copy()
+    a[0] = -1
+    bad = outcome_from_assignment(town, o.settings, a, {"status": "infeasible"})
+    with pytest.raises(ValueError, match="no valid plan"):
+        packet_figures([bad])
+    with pytest.raises(ValueError, match="at least one"):
+        packet_figures([])

@@ -1,0 +1,245 @@
+"""One browser session: its store, its state and its runner, and the planner's actions.
+
+:class:`Session` keeps the :class:`~ui.state.SessionState` parameters and the
+:class:`~ui.store.Store` in step: an edit of a setting parameter is written to the store,
+a change of level or an opened option or draft is shown in the parameters, and a store
+error becomes the message on the page (never a traceback). Solves go to the
+:class:`~ui.runner.Runner`. Views hold a Session and call its actions.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+
+from .runner import Runner, Schedule
+from .state import SETTING_PARAMS, SessionState
+from .store import TODAY, Store, StoreError
+
+__all__ = ["Session"]
+
+
+class Session:
+    """The actions of one session over its store; views read ``state`` and ``store``."""
+
+    def __init__(self, store: Store, schedule: Schedule | None = None) -> None:
+        self.store = store
+        self.state = state = SessionState()
+        self.runner = Runner(store, state, schedule)
+        self._syncing = False
+        state.param.level.objects = list(store.runs)
+        state.param.plan_year.objects = list(store.inputs.settings.years)
+        self._sync_from_store()
+        state.store_problem = store.problem
+        if store.last_message and not store.problem:
+            self.notify(store.last_message, "warning")
+        state.param.watch(self._on_level, "level")
+        state.param.watch(self._on_setting, list(SETTING_PARAMS))
+
+    # ------------------------------------------------------------------ sync
+    def _sync_from_store(self) -> None:
+        """Show the store's level and its effective settings (without writing them back)."""
+        st, state = self.store, self.state
+        full = st.effective
+        sites = st.site_ids
+        self._syncing = True
+        try:
+            state.param.target_site.objects = sites
+            target = state.target_site if state.target_site in sites else (
+                sites[0] if sites else None)
+            state.param.update(
+                level=st.level,
+                plan_year=int(full.plan_year),
+                stability_weight=float(full.stability_weight or 0.0),
+                max_distance_km=float(full.max_distance or 0.0) / 1000.0,
+                max_util_pct=float(full.max_utilization) * 100.0,
+                min_util_pct=float(full.min_utilization) * 100.0,
+                gap_pct=float(full.gap) * 100.0,
+                time_limit=float(full.time_limit or 60.0),
+                target_site=target,
+                selection=[],
+            )
+        finally:
+            self._syncing = False
+
+    def _on_level(self, event) -> None:
+        if self._syncing:
+            return
+        self._guard(lambda: self.store.set_level(event.new))
+        self._sync_from_store()
+        self._bump_all()
+
+    def _on_setting(self, *events) -> None:
+        if self._syncing:
+            return
+        changes = {}
+        for ev in events:
+            field, scale = SETTING_PARAMS[ev.name]
+            changes[field] = ev.new if scale is None else float(ev.new) * scale
+        if self._guard(lambda: self.store.update_settings(**changes)):
+            self.state.edits_version += 1
+        else:
+            self._sync_from_store()
+
+    def _bump_all(self) -> None:
+        self.state.edits_version += 1
+        self.state.plan_version += 1
+        self.state.options_version += 1
+
+    # ------------------------------------------------------------------ messages
+    def notify(self, text: str, kind: str = "info") -> None:
+        self.state.param.update(message=text, message_kind=kind)
+
+    def _guard(self, action: Callable) -> bool:
+        """Run an action; a StoreError becomes the message on the page (never a traceback)."""
+        try:
+            action()
+        except StoreError as exc:
+            self.notify(str(exc), "danger")
+            return False
+        finally:
+            self.state.store_problem = self.store.problem
+        return True
+
+    # ------------------------------------------------------------------ runs
+    def rerun(self) -> None:
+        self.runner.start()
+
+    def cancel(self) -> None:
+        self.runner.cancel()
+
+    def wait(self, timeout: float | None = None) -> None:
+        """Block until a rerun finished (for tests and scripts without an event loop)."""
+        self.runner.wait(timeout)
+
+    # ------------------------------------------------------------------ locks and sites
+    def select(self, unit_ids) -> None:
+        self.state.selection = [str(u) for u in unit_ids]
+
+    def _selection_action(self, method: str, done: str, with_site: bool = True) -> None:
+        units = list(self.state.selection)
+        site = self.state.target_site
+        args = (units, site) if with_site else (units,)
+        if self._guard(lambda: getattr(self.store, method)(*args)):
+            noun = "unit" if len(units) == 1 else "units"
+            self.notify(done.format(n=len(units), noun=noun, site=site,
+                                    name=self.store.site_names().get(site, site)), "success")
+            self.state.edits_version += 1
+
+    def lock_selection(self) -> None:
+        self._selection_action("lock", "Locked {n} {noun} to {name} ({site}). Press Rerun.")
+
+    def unlock_selection(self) -> None:
+        self._selection_action("unlock", "Unlocked {n} {noun}. Press Rerun.", with_site=False)
+
+    def forbid_selection(self) -> None:
+        self._selection_action("forbid", "{name} ({site}) is forbidden for {n} {noun}. "
+                               "Press Rerun.")
+
+    def allow_selection(self) -> None:
+        self._selection_action("allow", "Removed forbids of {name} ({site}) for {n} {noun}.")
+
+    def remove_rows(self, rows) -> None:
+        if self._guard(lambda: self.store.remove(rows)):
+            self.notify(f"Removed {len(rows)} lock(s)/forbid(s). Press Rerun.", "success")
+            self.state.edits_version += 1
+
+    def edit_site(self, site_id: str, **fields) -> bool:
+        ok = self._guard(lambda: self.store.edit_site(site_id, **fields))
+        if ok:
+            self.notify(f"{site_id} changed; press Rerun to see its effect.", "info")
+        self.state.edits_version += 1  # on failure the table shows the stored value again
+        return ok
+
+    # ------------------------------------------------------------------ options
+    def save_option(self, name: str, overwrite: bool = False) -> bool:
+        ok = self._guard(lambda: self.store.save_option(name, overwrite=overwrite))
+        if ok:
+            self.notify(f"Saved option {name.strip()!r}.", "success")
+            self.state.options_version += 1
+            self.state.plan_version += 1
+        return ok
+
+    def open_option(self, name: str) -> bool:
+        ok = self._guard(lambda: self.store.open_option(name))
+        if ok:
+            self._sync_from_store()
+            self.notify(f"Showing option {name!r}; its settings and locks are in force.",
+                        "info")
+            self._bump_all()
+        return ok
+
+    def delete_option(self, name: str) -> bool:
+        ok = self._guard(lambda: self.store.delete_option(name))
+        if ok:
+            self.notify(f"Deleted option {name!r}.", "info")
+            self.state.options_version += 1
+        return ok
+
+    # ------------------------------------------------------------------ drafts and the store
+    def _continue_from_store(self, done: str, notes: list[str]) -> None:
+        self._sync_from_store()
+        self._bump_all()
+        self.state.drafts_version += 1
+        self.state.store_problem = self.store.problem
+        self.notify(done + (" " + " ".join(notes) if notes else ""), "info")
+
+    def _idle(self) -> bool:
+        running = self.state.running
+        if running:
+            self.notify("Wait for the run to finish (or cancel it) first.", "warning")
+        return not running
+
+    def reload_record(self) -> None:
+        """Continue from the record as saved now (this page's unsaved edits are dropped)."""
+        if self._idle():
+            notes = self.store.reload()
+            self._continue_from_store("Reloaded the saved work.", notes)
+
+    def keep_as_draft(self, name: str) -> bool:
+        """Write this page's edits as a new draft and continue on it."""
+        if not self._idle():
+            return False
+        ok = self._guard(lambda: self.store.keep_as_draft(name))
+        if ok:
+            self.notify(f"Your edits are kept as draft {self.store.draft!r}; this page now "
+                        "saves to it (Options tab: Drafts).", "success")
+            self.state.drafts_version += 1
+        return ok
+
+    def open_draft(self, name: str) -> bool:
+        if not self._idle():
+            return False
+        notes: list[str] = []
+        ok = self._guard(lambda: notes.extend(self.store.open_draft(name)))
+        if ok:
+            label = f"draft {name!r}" if name else "the main workbench record"
+            self._continue_from_store(f"Continuing from {label}.", notes)
+        return ok
+
+    def repair_store(self) -> bool:
+        """Set a damaged store aside, start a new one and write this page's edits to it."""
+        box: list = []
+        ok = self._guard(lambda: box.append(self.store.repair()))
+        if ok:
+            where = f" The damaged file is kept as {box[0]}." if box[0] else ""
+            self.notify("A new, empty option store is in place and your edits are written "
+                        f"to it.{where}", "success")
+            self.state.options_version += 1
+            self.state.drafts_version += 1
+        return ok
+
+    # ------------------------------------------------------------------ the change view
+    @property
+    def reference_outcome(self):
+        """What the change view compares with: today's zones or the previous result."""
+        st = self.store
+        if self.state.reference == "previous result":
+            prev = st.previous[st.level]
+            if prev is not None:
+                return prev
+        return st.today()
+
+    @property
+    def reference_label(self) -> str:
+        ref = self.reference_outcome
+        return "today's zones" if ref.name == TODAY else (ref.name or "the previous result")

@@ -1,0 +1,71 @@
+"""The Changes tab: headline figures and the units whose school differs."""
+
+from __future__ import annotations
+
+import pandas as pd
+import panel as pn
+
+from ..session import Session
+from ..state import REFERENCES
+from ..text import esc as _esc
+
+__all__ = ["ResultsView"]
+
+
+class ResultsView(pn.viewable.Viewer):
+    """Headline figures and the change view (units whose school differs)."""
+
+    def __init__(self, session: Session, **params):
+        super().__init__(**params)
+        self.session = session
+        self.state = state = session.state
+        self.summary = pn.pane.HTML("", css_classes=["results-summary"],
+                                    sizing_mode="stretch_width")
+        self.ref = pn.widgets.RadioButtonGroup.from_param(
+            state.param.reference, name="Compare with", options=list(REFERENCES),
+            css_classes=["reference-choice"])
+        self.flows = pn.widgets.Tabulator(pd.DataFrame(), name="flows-table", disabled=True,
+                                          show_index=False, height=220, pagination=None,
+                                          sizing_mode="stretch_width",
+                                          css_classes=["flows-table"])
+        self.changes = pn.widgets.Tabulator(pd.DataFrame(), name="changes-table",
+                                            disabled=True, show_index=False, height=300,
+                                            pagination=None, sizing_mode="stretch_width",
+                                            css_classes=["changes-table"])
+        state.param.watch(self._update, ["plan_version", "reference", "level",
+                                         "edits_version"])
+        self._update()
+
+    def _update(self, *events) -> None:
+        st = self.session.store
+        out = st.on_screen()
+        s = st.summary(out)
+        ref = self.session.reference_outcome
+        label = self.session.reference_label
+        ch = st.changes_frame(out, ref)
+        fl = st.flows_frame(out, ref)
+        shown = "today's zones (no plan run yet: press Rerun)" if out.name == "Today's zones" \
+            else _esc(s["option"])
+        gap = f"{s['gap']:.2%}" if s["gap"] == s["gap"] else "n/a"
+        moved_vs_ref = ch["students"].sum()
+        self.summary.object = (
+            f"<div class='summary' data-students-moved='{s['students_moved']:.0f}' "
+            f"data-status='{_esc(s['status'])}'>"
+            f"<b>On the map:</b> {shown} &middot; {_esc(s['level'])} &middot; plan year "
+            f"{s['plan_year']} &middot; status <b>{_esc(s['status'])}</b> (gap {gap})<br>"
+            f"<b>{s['students_moved']:,.0f}</b> students ({s['units_moved']:,} units) change "
+            f"school compared with today &middot; mean trip <b>{s['mean_km']:.2f} km</b>"
+            f" &middot; longest {s['max_km']:.2f} km &middot; schools outside the band: "
+            f"<b>{s['schools_out_of_band']}</b><br>"
+            f"Against {_esc(label)}: {len(ch):,} units, {moved_vs_ref:,.0f} students differ."
+            "</div>")
+        self.flows.value = fl.rename(columns={"from_name": "from", "to_name": "to"})
+        self.changes.value = ch.drop(columns=["from_name", "to_name"]).round(
+            {"km_before": 2, "km_after": 2})
+
+    def __panel__(self):
+        return pn.Column(self.summary, pn.Row(pn.pane.HTML("<b>Change view against:</b>"),
+                                              self.ref),
+                         pn.pane.HTML("<b>Students moving, by school pair</b>"), self.flows,
+                         pn.pane.HTML("<b>Units whose school differs</b>"), self.changes,
+                         sizing_mode="stretch_width")
