@@ -8,6 +8,8 @@ tests on each, and prints the share of mutants killed, with the survivors.
     .venv/bin/python benchmarks/mutation.py                 # every module below
     .venv/bin/python benchmarks/mutation.py verify diagnose # some of them
     .venv/bin/python benchmarks/mutation.py --list          # the modules and their tests
+    .venv/bin/python benchmarks/mutation.py --retest old.json --json new.json
+                                       # after adding tests: re-run the survivors only
 
 A survivor is a change no test noticed: either a missing test or an equivalent mutant
 (same behaviour); the README lists those judged harmless.
@@ -32,20 +34,21 @@ ROOT = Path(__file__).resolve().parent.parent
 #: Tests are kept fast: each mutant runs them once.
 MODULES = {
     "verify": ("districting/verify.py", "tests/test_verify.py -k 'not command'", ()),
-    "precheck": ("districting/diagnose.py",
-                 "tests/test_diagnose.py tests/test_years.py -k 'not explain'",
+    "precheck": ("districting/engine/precheck.py",
+                 "tests/engine/test_diagnose.py tests/test_years.py -k 'not explain'",
                  ("reachable", "unbuildable", "precheck", "_count_issues", "_lock_pair_issues",
                   "_no_school_issues", "_root_pair_issues", "_must_move",
                   "_forced_move_issues", "_seats", "_year_capacity_issues",
                   "_shared_root_issues", "_floor_issues", "_lock_reach_issues",
                   "_island_issues")),
-    "bands": ("districting/plan.py", "tests/test_years.py -k 'flag'", ("plan_metrics",)),
-    "connectivity": ("districting/contiguity.py", "tests/test_contiguity.py",
-                     ("zone_components", "_main_labels", "_attached", "fragments",
-                      "is_contiguous", "separator", "min_separator", "_vertex_cut",
-                      "separator_cuts", "fractional_cuts", "plan_checks")),
-    "options-names": ("districting/outputs/store/options.py", "tests/outputs/test_store.py",
-                      ("_clean_name",)),
+    "bands": ("districting/plan.py", "tests/test_years.py -k 'flag'", ("out_of_band",)),
+    "connectivity": ("districting/engine/connectivity.py", "tests/engine/test_connectivity.py",
+                     ("zone_components", "main_labels", "attached_mask", "fragments",
+                      "is_contiguous", "plan_checks")),
+    "cuts": ("districting/engine/cuts.py", "tests/engine/test_cuts.py",
+             ("separator", "min_separator", "_vertex_cut", "separator_cuts",
+              "fractional_cuts")),
+    "option-names": ("districting/names.py", "tests/test_names.py", ()),
 }
 TIMEOUT = 120.0  # seconds per mutant's test run (a mutant that loops forever is killed)
 
@@ -129,17 +132,56 @@ def run_module(name: str, keep: bool = False) -> dict:
             "seconds": time.perf_counter() - started}
 
 
+def retest(results: list[dict]) -> list[dict]:
+    """Run today's tests on the survivors of an earlier run (its --json file) only.
+
+    Mutants that were killed stay killed as long as tests are only added; a survivor that
+    the new tests kill counts as killed.
+    """
+    py = sys.executable
+    out = []
+    for res in results:
+        path, tests, _ = MODULES[res["module"]]
+        work = Path(tempfile.mkdtemp(prefix=f"mutation-{res['module']}-"))
+        copy_project(work)
+        pristine = (work / path).read_bytes()
+        env = {**os.environ, "PYTHONPATH": str(work)}
+        still = []
+        for s in res["survived"]:
+            where, operator, occurrence = s.split(" ")
+            subprocess.run([str(Path(py).parent / "cosmic-ray"), "apply", path, operator,
+                            occurrence.lstrip("#")], cwd=work, env=env, check=True,
+                           capture_output=True)
+            run = subprocess.run(f"{py} -m pytest -x -q -p no:cacheprovider -o addopts='' "
+                                 f"{tests}", shell=True, cwd=work, env=env,
+                                 capture_output=True, timeout=TIMEOUT)
+            (work / path).write_bytes(pristine)
+            if run.returncode == 0:
+                still.append(s)
+        shutil.rmtree(work, ignore_errors=True)
+        killed = res["mutants"] - len(still)
+        out.append({**res, "killed": killed, "survived": still,
+                    "score": killed / res["mutants"] if res["mutants"] else 1.0})
+    return out
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("modules", nargs="*", help=f"some of: {', '.join(MODULES)}")
     ap.add_argument("--list", action="store_true", help="print modules and their tests")
     ap.add_argument("--keep", action="store_true", help="keep the mutated copies' folders")
     ap.add_argument("--json", help="also write the results to this file")
+    ap.add_argument("--retest", metavar="JSON",
+                    help="run today's tests on the survivors of an earlier --json file only")
     args = ap.parse_args(argv)
     if args.list:
         for name, (path, tests, functions) in MODULES.items():
             scope = ", ".join(functions) if functions else "whole module"
             print(f"{name:14} {path:28} {tests}\n{'':14} mutated: {scope}")
+        return 0
+    if args.retest:
+        results = retest(json.loads(Path(args.retest).read_text()))
+        report(results, args.json)
         return 0
     names = args.modules or list(MODULES)
     unknown = [n for n in names if n not in MODULES]
@@ -151,14 +193,19 @@ def main(argv=None) -> int:
         results.append(res)
         print(f"{name}: {res['killed']}/{res['mutants']} killed "
               f"({100 * res['score']:.1f}%) in {res['seconds'] / 60:.1f} min", flush=True)
-        for s in res["survived"]:
-            print(f"    survived: {s}", flush=True)
+    report(results, args.json)
+    return 0
+
+
+def report(results: list[dict], json_path: str | None) -> None:
+    for r in results:
+        for s in r["survived"]:
+            print(f"{r['module']}: survived: {s}")
     print(f"\n{'module':14} {'mutants':>8} {'killed':>8} {'score':>7}")
     for r in results:
         print(f"{r['module']:14} {r['mutants']:8d} {r['killed']:8d} {100 * r['score']:6.1f}%")
-    if args.json:
-        Path(args.json).write_text(json.dumps(results, indent=1))
-    return 0
+    if json_path:
+        Path(json_path).write_text(json.dumps(results, indent=1))
 
 
 if __name__ == "__main__":

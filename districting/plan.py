@@ -76,13 +76,7 @@ def plan_metrics(problem: Problem, assignment: np.ndarray, open_sites=None) -> P
         open_mask = np.bincount(a[ok], minlength=m) > 0
     else:
         open_mask = np.asarray(open_sites, bool)
-    if problem.capacity is None:
-        oob = np.zeros(m, bool)
-    else:
-        tol = 1e-6
-        over = (load > problem.max_util * problem.capacity + tol).any(axis=0)
-        under = (load < problem.min_util * problem.capacity - tol).any(axis=0)
-        oob = open_mask & (over | under)
+    oob = out_of_band(problem, load, open_mask)
     total = d0[has].sum()
     return PlanMetrics(
         load=load,
@@ -97,6 +91,16 @@ def plan_metrics(problem: Problem, assignment: np.ndarray, open_sites=None) -> P
         overall_max_distance=float(np.nanmax(travel[has])) if has.any() else 0.0,
         out_of_band=oob,
     )
+
+
+def out_of_band(problem: Problem, load: np.ndarray, open_mask: np.ndarray) -> np.ndarray:
+    """(m,) bool: an open site above its cap or below its floor in any year of ``load``."""
+    if problem.capacity is None:
+        return np.zeros(problem.n_sites, bool)
+    tol = 1e-6
+    over = (load > problem.max_util * problem.capacity + tol).any(axis=0)
+    under = (load < problem.min_util * problem.capacity - tol).any(axis=0)
+    return open_mask & (over | under)
 
 
 @dataclass(frozen=True)

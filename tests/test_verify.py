@@ -61,19 +61,33 @@ def test_a_zone_in_two_pieces_is_refused():
 
 
 def test_the_piece_holding_the_school_is_the_zone_others_are_cut_off():
-    # A 1 x 7 path; A stands in unit 0 and takes 0 and 2-6; unit 1 is B's (B stands in 1).
-    # A's piece {0} is the smaller one, yet it holds the school: the five units 2-6 are the
+    # A 1 x 8 path; A stands in unit 0 and takes 0 and 2-7; unit 1 is B's (B stands in 1).
+    # A's piece {0} is the smaller one, yet it holds the school: the six units 2-7 are the
     # ones cut off, named three at a time.
-    f = PlanFacts(demand=np.ones((1, 7)), capacity=None, max_util=np.ones(2),
+    f = PlanFacts(demand=np.ones((1, 8)), capacity=None, max_util=np.ones(2),
                   min_util=np.zeros(2), must_open=np.ones(2, bool), closed=np.zeros(2, bool),
-                  edges=np.array([(k, k + 1) for k in range(6)]), roots=np.array([0, 1]))
-    found = check_plan(f, [0, 1, 0, 0, 0, 0, 0])
+                  edges=np.array([(k, k + 1) for k in range(7)]), roots=np.array([0, 1]))
+    found = check_plan(f, [0, 1, 0, 0, 0, 0, 0, 0])
     assert rules(found) == [("connected", 0, None, 2)]
     assert found[0].message == ("the zone of school 0 is in 2 pieces: unit 2, unit 3, unit 4 "
-                                "and 2 more cut off from the rest")
-    # without roots the largest piece is the zone: unit 0 is the one cut off
-    found = check_plan(dataclasses.replace(f, roots=None), [0, 1, 0, 0, 0, 0, 0])
-    assert rules(found) == [("connected", 0, None, 0)]
+                                "and 3 more cut off from the rest")
+    # the same with the school at the other end (unit 7, B in unit 6)
+    g = dataclasses.replace(f, roots=np.array([7, 6]))
+    assert rules(check_plan(g, [0, 0, 0, 0, 0, 0, 1, 0])) == [("connected", 0, None, 0)]
+    # without roots the largest piece is the zone: the smaller one is cut off
+    no_roots = dataclasses.replace(f, roots=None)
+    assert rules(check_plan(no_roots, [0, 1, 0, 0, 0, 0, 0, 0])) == [("connected", 0, None, 0)]
+    assert rules(check_plan(no_roots, [0, 0, 1, 0, 0, 0, 0, 0])) == [("connected", 0, None, 0)]
+
+
+def test_edges_in_either_direction_never_join_a_zone_through_another():
+    # path 0-1-2 written as (0, 1) and (2, 1): A takes 0 and 2, B takes 1, so A is in two
+    # pieces whichever way round the edges are written
+    f = PlanFacts(demand=np.ones((1, 3)), capacity=None, max_util=np.ones(2),
+                  min_util=np.zeros(2), must_open=np.ones(2, bool), closed=np.zeros(2, bool),
+                  edges=np.array([(0, 1), (2, 1)]))
+    assert rules(check_plan(f, [0, 1, 0])) == [("connected", 0, None, 2)]
+    assert rules(check_plan(f, [1, 0, 1])) == [("connected", 1, None, 2)]
 
 
 def test_a_zone_without_its_school_unit_is_refused():
@@ -106,6 +120,10 @@ def test_closed_school_taking_students_is_refused():
               min_util=np.zeros(2), capacity=np.array([200.0, 40.0]), edges=None)
     found = check_plan(f, GOOD)
     assert ("closed", 1, None, 2) in rules(found)
+    # closing A instead: its units 0, 1 and 3 are the finding (B's are not)
+    f = dataclasses.replace(f, must_open=np.array([False, True]), closed=np.array([True, False]))
+    assert [r for r in rules(check_plan(f, GOOD)) if r[0] == "closed"] == [("closed", 0, None, 0)]
+    assert "takes 3 unit(s)" in check_plan(f, GOOD)[0].message
 
 
 def test_open_count_is_checked():
@@ -114,6 +132,12 @@ def test_open_count_is_checked():
               capacity=np.array([80.0, 40.0]))
     assert rules(check_plan(f, GOOD)) == [("open_count", None, None, None)]
     assert check_plan(f, [0] * 6) == []  # one school open, its zone the whole grid
+    # fewer open than asked is a finding too
+    assert rules(check_plan(dataclasses.replace(f, open_count=2), [0] * 6)) == [
+        ("open_count", None, None, None)]
+    # a school with no unit of its own (-1) needs none in its zone
+    g = dataclasses.replace(f, open_count=None, roots=np.array([0, -1]))
+    assert check_plan(g, [0, 0, 0, 1, 1, 0]) == []
 
 
 def test_open_count_may_be_met_by_a_school_opened_without_students():
@@ -134,6 +158,7 @@ def test_a_broken_lock_is_refused():
     found = check_plan(facts(locks={4: 0}), GOOD)
     assert rules(found) == [("lock", 0, None, 4)]
     assert "U4 is locked to A" in found[0].message
+    assert rules(check_plan(facts(locks={1: 1}), GOOD)) == [("lock", 1, None, 1)]
 
 
 def test_a_forbidden_pair_is_refused():
@@ -163,6 +188,8 @@ def test_max_distance_applies_to_schools_without_a_unit():
                   min_util=np.zeros(2), must_open=np.ones(2, bool), closed=np.zeros(2, bool),
                   roots=np.array([0, -1]), distance=dist, max_distance=2.0)
     assert rules(check_plan(f, [0, 0, 1])) == [("distance", 1, None, 2)]
+    # the same with school 1 standing in unit 2: its own unit is spared
+    assert check_plan(dataclasses.replace(f, roots=np.array([0, 2])), [0, 0, 1]) == []
 
 
 def test_students_moved_over_the_limit_is_refused():
@@ -172,6 +199,14 @@ def test_students_moved_over_the_limit_is_refused():
     assert rules(found) == [("moved", None, 0, None)]
     assert "30 students" in found[0].message
     assert check_plan(facts(current=np.zeros(6, np.int64), max_moved=30.0), GOOD) == []
+    # today unit 0 is at B and unit 2 at A: GOOD moves both (20 students)
+    f = facts(current=np.array([1, 0, 0, 0, 1, 1]), max_moved=15.0)
+    assert "20 students" in check_plan(f, GOOD)[0].message
+    # students moved are counted in the plan year: later years' counts do not matter
+    d = facts().demand.copy()
+    d[1:, [2, 4, 5]] = 50.0
+    assert check_plan(facts(demand=d, capacity=None, current=np.zeros(6, np.int64),
+                            max_moved=30.0), GOOD) == []
     # a unit with no school today (-1, new housing) is not a student moved
     today = np.array([0, 0, -1, 0, -1, -1])
     assert check_plan(facts(current=today, max_moved=0.0), GOOD) == []
@@ -193,23 +228,68 @@ def test_report_lists_findings_or_what_was_checked():
 def test_an_unassigned_unit_is_refused():
     found = check_plan(facts(), [0, 0, 1, -1, 1, 1])
     assert rules(found) == [("assigned", None, None, 3)]
+    # a school number the problem does not have
+    assert rules(check_plan(facts(), [0, 0, 1, 2, 1, 1])) == [("assigned", None, None, 3)]
+    assert rules(check_plan(facts(), [0, 0, 1, 5, 1, 1])) == [("assigned", None, None, 3)]
 
 
 def test_a_plan_of_the_wrong_length_is_refused():
     assert rules(check_plan(facts(), [0, 0, 1])) == [("assigned", None, None, None)]
+    assert rules(check_plan(facts(), [0] * 7)) == [("assigned", None, None, None)]
+
+
+def test_a_zone_in_three_pieces_is_refused():
+    # path 0-1-2-3-4: A takes 0, 2 and 4, B takes 1 and 3 (B is in two pieces as well)
+    f = PlanFacts(demand=np.ones((1, 5)), capacity=None, max_util=np.ones(2),
+                  min_util=np.zeros(2), must_open=np.ones(2, bool), closed=np.zeros(2, bool),
+                  edges=np.array([(k, k + 1) for k in range(4)]), roots=np.array([0, 1]))
+    found = check_plan(f, [0, 1, 0, 1, 0])
+    assert rules(found) == [("connected", 0, None, 2), ("connected", 1, None, 3)]
+    assert found[0].message.startswith("the zone of school 0 is in 3 pieces: unit 2, unit 4")
 
 
 def test_facts_of_problem_reads_forbids_from_cost_and_locks():
     # an infinite cost is a pair the plan may not use; a lock allows its own pair
     cost = np.array([[0.0, np.inf], [1.0, 1.0], [np.inf, 0.0]])
+    forbidden = np.zeros((3, 2), bool)
+    forbidden[0, 1] = True  # forbidden and out of reach at once: still not allowed
     p = Problem.from_arrays(cost, np.ones(3), capacity=[3, 3], edges=[(0, 1), (1, 2)],
-                            roots=[0, 2])
+                            roots=[0, 2], forbidden=forbidden)
     f = facts_of_problem(p)
     assert check_plan(f, [0, 0, 1]) == []
     assert rules(check_plan(f, [1, 1, 1])) == [("forbid", 1, None, 0), ("root", 0, None, 0)]
+    # locks are read to any school, not only the first
+    assert facts_of_problem(p.replace(locks=np.array([1, -1, -1]))).locks == {0: 1}
+    # a lock allows its own pair though the cost table lacks it (the board decided)
+    locked = facts_of_problem(p.replace(locks=np.array([-1, -1, 0])))
+    assert rules(check_plan(locked, [0, 0, 0])) == [("root", 1, None, 2)]
+    # the capacities come along: A seating 1 with 2 students is a finding
+    small = facts_of_problem(p.replace(capacity=np.array([1.0, 3.0])))
+    assert rules(check_plan(small, [0, 0, 1])) == [("capacity", 0, 0, None)]
 
 
 # ------------------------------------------------------------------------ the CLI verb
+def test_facts_of_an_option_keep_forbids_and_the_maximum_distance(tmp_path):
+    # the invented grid town of tests/ui_town.py (200 m cells, schools M1-M4 in units 30,
+    # 39, 100, 109); a forbid of G000 at M1 and a 1,000 m limit from the run's settings
+    from ui_town import grid_inputs
+
+    from districting.study import RunSettings, outcome_from_assignment
+    from districting.verify import facts_of_outcome
+
+    inputs = grid_inputs(tmp_path)
+    rs = RunSettings(level="middle", forbids={"G000": ["M1"]}, max_distance=1000.0)
+    today = inputs.current["middle"]
+    f = facts_of_outcome(outcome_from_assignment(inputs, rs, today))
+    assert f.max_distance == 1000.0 and f.forbidden[0, 0] and f.forbidden.sum() == 1
+    found = check_plan(f, today)
+    assert ("forbid", 0, None, 0) in rules(found)
+    # G000 is 2 cells across and 2 up from M1's point (566 m), within the limit; today's
+    # zones are vertical bands 3-4 cells wide and 10 tall, so some units lie farther
+    assert ("distance", 0, None, 0) not in rules(found)
+    assert any(r[0] == "distance" for r in rules(found))
+
+
 @pytest.fixture(scope="module")
 def demo(tmp_path_factory):
     from districting.demo import copy_demo

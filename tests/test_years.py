@@ -66,6 +66,14 @@ def test_out_of_band_flag_holds_when_any_year_is_out():
     m = plan_metrics(p, np.array([0, 0, 1, 1]))
     assert m.out_of_band.tolist() == [True, True]
     np.testing.assert_allclose(m.load, [[2, 2], [2, 1.5], [3, 2]])
+    # one school under its floor in one year and over its cap in another is flagged too:
+    # site 1 seats 3, floor 50% = 1.5; loads 2, 0.5, 4 (under in the second, over in the
+    # third); site 0 holds 2 each year, inside its 3 seats
+    swing = np.array([[1, 1, 1, 1], [1, 1, 0.2, 0.3], [1, 1, 2, 2]])
+    q = Problem.from_arrays(line_cost([0, 3]), swing, capacity=[3, 3], min_util=[0, 0.5])
+    both = plan_metrics(q, np.array([0, 0, 1, 1]))
+    np.testing.assert_allclose(both.load[:, 1], [2, 0.5, 4])
+    assert both.out_of_band.tolist() == [False, True]
     # inside the band in every year: no flag
     ok = plan_metrics(p.replace(capacity=np.array([3.0, 3.0])), np.array([0, 0, 1, 1]))
     assert ok.out_of_band.tolist() == [False, False]
