@@ -23,12 +23,6 @@ from ...names import BadName, check_name, normalise
 from ...plan import PlanMetrics
 from ...study import Outcome, RunSettings, level_sites, now_iso, outcome_from_assignment
 from ..zones import dissolve_zones
-
-try:  # POSIX advisory locks; elsewhere writers are not serialised across processes
-    import fcntl
-except ImportError:  # pragma: no cover - Windows
-    fcntl = None
-
 from .storefile import (
     ASSIGNMENTS_TABLE,
     OPTIONS_TABLE,

@@ -7,12 +7,6 @@ import os
 from pathlib import Path
 
 from ...study import now_iso
-
-try:  # POSIX advisory locks; elsewhere writers are not serialised across processes
-    import fcntl
-except ImportError:  # pragma: no cover - Windows
-    fcntl = None
-
 from .storefile import (
     STATE_TABLE,
     OptionError,
