@@ -119,13 +119,13 @@ def _project(path: Path) -> Inputs:
                           "them first (nothing was changed)") from None
 
 
-def _level(inputs: Inputs, level: str) -> str:
+def _level(path: Path, inputs: Inputs, level: str) -> str:
     levels = inputs.settings.levels
     for lv in levels:
         if lv.lower() == level.strip().lower():
             return lv
-    raise EditRefused(f"level {level!r} is not one of the project's levels "
-                      f"({', '.join(levels)}); give --level {' or '.join(levels)}")
+    raise _refused(path, [f"level {level!r} is not one of the project's levels "
+                          f"({', '.join(levels)}); give --level {' or '.join(levels)}"])
 
 
 def _unit_problems(inputs: Inputs, units: list[str]) -> list[str]:
@@ -200,7 +200,7 @@ def add_entries(path: str | Path, kind: str, level: str, units: list[str],
     if kind not in KINDS:
         raise ValueError(f"kind must be one of {KINDS}")
     inputs = _project(path)
-    level = _level(inputs, level)
+    level = _level(path, inputs, level)
     site = site.strip()
     problems = _unit_problems(inputs, units)
     if (bad := _site_problem(inputs, level, site, kind)) is not None:
@@ -259,7 +259,7 @@ def remove_entries(path: str | Path, kind: str, level: str, units: list[str],
     if kind not in KINDS:
         raise ValueError(f"kind must be one of {KINDS}")
     inputs = _project(path)
-    level = _level(inputs, level)
+    level = _level(path, inputs, level)
     site = site.strip() if site else None
     word = "locked" if kind == "locks" else "forbidden"
     have = _pairs(inputs, kind, level)
