@@ -7,23 +7,15 @@ are written out by hand in each test.
 
 from __future__ import annotations
 
-import importlib.util
-import io
-from contextlib import redirect_stderr, redirect_stdout
 from pathlib import Path
 
 import geopandas as gpd
 import pandas as pd
 import pytest
+from test_cli import run_cli
 
-from districting.cli import main
 from districting.intake import load_project
 from districting.locks import EditRefused, _write
-
-DATA = Path(__file__).parents[1] / "data"
-_spec = importlib.util.spec_from_file_location("make_broken", DATA / "make_broken.py")
-town = importlib.util.module_from_spec(_spec)
-_spec.loader.exec_module(town)
 
 #: Comments, a forbid and a table after it: everything an edit must leave as it was.
 EXTRA = """
@@ -38,15 +30,8 @@ contiguity = "rook"   # rook: shared edges only
 """
 
 
-def run_cli(*argv: str) -> tuple[int, str, str]:
-    out, err = io.StringIO(), io.StringIO()
-    with redirect_stdout(out), redirect_stderr(err):
-        code = main(list(argv))
-    return code, out.getvalue(), err.getvalue()
-
-
 @pytest.fixture
-def project(tmp_path) -> Path:
+def project(tmp_path, town) -> Path:
     sites = town.town_sites()
     closed = sites.iloc[[0]].assign(site_id="E3", name="Old Mill Elementary", status="closed")
     sites = gpd.GeoDataFrame(pd.concat([sites, closed], ignore_index=True), crs=sites.crs)
