@@ -65,9 +65,9 @@ class Progress:
 def plan_summary(outcome) -> str:
     """A few lines on a plan: status, travel, moves, schools out of band."""
     plan, prob = outcome.plan, outcome.problem
-    if not plan.feasible:
-        return f"  {outcome.level}: {plan.status}, no plan\n    " + plan.message.replace(
-            "\n", "\n    ")
+    if not plan.feasible:  # the lead line, then the causes (engine.findings.no_plan_text)
+        lead, *causes = (plan.message or f"No {outcome.level} plan was found.").splitlines()
+        return "\n".join([f"  {lead}", *(f"    {line}" for line in causes)])
     m = outcome.metrics
     total = prob.demand[0].sum()
     oob = [outcome.site_ids[j] for j in range(prob.n_sites) if m.out_of_band[j]]
