@@ -114,3 +114,20 @@ def test_units_are_named_in_the_help(flag, words):
     solve = _subparsers(build_parser())["solve"]
     action = next(a for a in solve._actions if flag in a.option_strings)
     assert words in action.help % {}
+
+
+def test_solve_without_a_plan_prints_the_lead_then_the_causes(tmp_path, town):
+    # Worked by hand: the town's 12 units hold 678 + 24 x (years after 2026) elementary
+    # students; a floor of 90% of 500 seats at each of E1 and E2 needs 900: no plan.
+    project = town.write_town(tmp_path / "town")
+    code, out, err = run_cli("solve", str(project), "--level", "elementary", "--min-util",
+                             "0.9", "--time-limit", "20")
+    assert code == 1, out + err
+    lines = out.splitlines()
+    lead = next(k for k, line in enumerate(lines) if "plan meets every rule" in line)
+    assert lines[lead].startswith("  No elementary plan meets every rule: ")
+    assert "band in " in lines[lead]
+    causes = lines[lead + 1:]
+    assert causes and all(line.startswith("    - ") for line in causes), out
+    assert all("short of its floor of 450" in line for line in causes), out
+    assert "infeasible" not in out
