@@ -66,7 +66,9 @@ def plan_summary(outcome) -> str:
     """A few lines on a plan: status, travel, moves, schools out of band."""
     plan, prob = outcome.plan, outcome.problem
     if not plan.feasible:  # the lead line, then the causes (engine.findings.no_plan_text)
-        lead, *causes = (plan.message or f"No {outcome.level} plan was found.").splitlines()
+        why = {"time_limit": " before the time limit: raise --time-limit",
+               "cancelled": ": the solve was stopped"}.get(plan.status, "")
+        lead, *causes = (plan.message or f"No {outcome.level} plan was found{why}.").splitlines()
         return "\n".join([f"  {lead}", *(f"    {line}" for line in causes)])
     m = outcome.metrics
     total = prob.demand[0].sum()
