@@ -14,6 +14,7 @@ only then renamed over it: a refused edit leaves the file as it was.
 from __future__ import annotations
 
 import re
+import shlex
 import tomllib
 from dataclasses import dataclass
 from pathlib import Path
@@ -62,9 +63,9 @@ def entry_spans(lines: list[str], kind: str, count: int) -> list[tuple[int, int]
     """(first, last) line of each ``[[kind]]`` entry, in file order.
 
     An entry runs from its header to its last line that is neither blank nor a comment
-    before the next header. Each span is parsed on its own and must give the entry the
-    whole file gives at that position, else :class:`EditRefused` (the file writes the
-    entries in a form this edit does not handle, e.g. an inline list).
+    before the next header. :class:`EditRefused` when the headers found are not as many as
+    the entries (the file writes them in a form this edit does not handle, e.g. an inline
+    list); :func:`_located` checks each span against the entry the whole file gives.
     """
     heads = [k for k, line in enumerate(lines) if (m := _ENTRY.match(line)) and m[1] == kind]
     if len(heads) != count:
@@ -88,6 +89,21 @@ def _entry_of(lines: list[str], span: tuple[int, int], kind: str) -> dict:
     except (tomllib.TOMLDecodeError, KeyError, IndexError) as err:
         raise EditRefused(f"the [[{kind}]] entry on line {span[0] + 1} cannot be edited "
                           f"here ({err}); edit it by hand") from None
+
+
+def _located(path: Path, lines: list[str], kind: str,
+             entries: list[dict]) -> list[tuple[tuple[int, int], dict]]:
+    """Each entry of the file with its span, checked to be the entry the file gives."""
+    try:
+        spans = entry_spans(lines, kind, len(entries))
+        found = [(span, _entry_of(lines, span, kind)) for span in spans]
+    except EditRefused as err:
+        raise _refused(path, [str(err)]) from None
+    for (span, entry), expected in zip(found, entries, strict=True):
+        if entry != expected:
+            raise _refused(path, [f"the [[{kind}]] entry on line {span[0] + 1} reads "
+                                  "differently on its own than in the file; edit it by hand"])
+    return found
 
 
 def _block(kind: str, level: str, unit: str, site: str, newline: str) -> list[str]:
@@ -186,7 +202,7 @@ def _write(path: Path, bom: str, lines: list[str]) -> None:
 
 def _command(path: Path, verb: str, level: str, unit: str, site: str = "") -> str:
     school = f" --school {site}" if site else ""
-    return f"`districting {verb} {path} --level {level} {unit}{school}`"
+    return f"`districting {verb} {shlex.quote(str(path))} --level {level} {unit}{school}`"
 
 
 def add_entries(path: str | Path, kind: str, level: str, units: list[str],
@@ -275,11 +291,9 @@ def remove_entries(path: str | Path, kind: str, level: str, units: list[str],
         raise _refused(path, problems)
     bom, lines, _newline = _read(path)
     entries = inputs.settings.raw.get(kind, [])
-    spans = entry_spans(lines, kind, len(entries))
     wanted = set(units)
     cut, done = [], []
-    for span in spans:
-        entry = _entry_of(lines, span, kind)
+    for span, entry in _located(path, lines, kind, entries):
         if (str(entry.get("level", "")).lower() == level.lower()
                 and str(entry.get("unit")) in wanted
                 and (site is None or str(entry.get("site")) == site)):

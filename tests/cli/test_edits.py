@@ -184,3 +184,13 @@ def test_check_finds_the_folders_project_file(project, tmp_path):
     assert "notes.toml, town-2027.toml" in out + err
     code, _, err = run_cli("lock", str(other), "--level", "elementary", "U02", "--school", "E1")
     assert code == 1 and "holds no project.toml" in err
+
+
+def test_locks_written_as_an_inline_list_are_not_cut(project):
+    project.write_text('locks = [{ level = "elementary", unit = "U02", site = "E1" }]\n'
+                       + project.read_text())
+    assert pairs(project) == {("elementary", "U02", "E1")}
+    before, mtime = project.read_bytes(), project.stat().st_mtime_ns
+    code, _, err = run_cli("unlock", str(project), "--level", "elementary", "U02")
+    assert code == 1 and "write each as a [[locks]] table" in err
+    assert project.read_bytes() == before and project.stat().st_mtime_ns == mtime
