@@ -194,3 +194,6 @@ def test_locks_written_as_an_inline_list_are_not_cut(project):
     code, _, err = run_cli("unlock", str(project), "--level", "elementary", "U02")
     assert code == 1 and "write each as a [[locks]] table" in err
     assert project.read_bytes() == before and project.stat().st_mtime_ns == mtime
+    code, _, err = run_cli("lock", str(project), "--level", "elementary", "U03", "--school", "E1")
+    assert code == 1 and "the edited project would not load" in err  # TOML cannot add to it
+    assert project.read_bytes() == before and project.stat().st_mtime_ns == mtime
