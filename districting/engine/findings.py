@@ -62,6 +62,9 @@ def _years(findings: Sequence[Finding]) -> str:
     years = sorted({f.year for f in findings if f.year})
     if not years:
         return ""
+    if len(years) > 2 and all(y.isdigit() for y in years) and (
+            int(years[-1]) - int(years[0]) == len(years) - 1):
+        return f" in every year from {years[0]} to {years[-1]}"
     shown = years[0] if len(years) == 1 else ", ".join(years[:-1]) + " and " + years[-1]
     return f" in {shown}"
 

@@ -253,3 +253,14 @@ def test_several_causes_are_counted_in_the_lead():
     lead = explain(p).split("\n")[0]
     assert lead == ("No elementary plan meets every rule: 1 locked unit cannot stay with its "
                     "school; 2 other causes (below).")
+
+
+def test_the_lead_names_the_years_briefly():
+    # Worked by hand: 2 x 10 seats; 21 students in each of 2027-2029, 25 in 2031.
+    years = (2027, 2028, 2029, 2031)
+    demand = [[7, 7, 7], [7, 7, 7], [7, 7, 7], [9, 8, 8]]
+    lead = explain(make(np.ones((3, 2)), demand[:3], capacity=[10, 10], years=years[:3]))
+    assert lead.split("\n")[0].endswith("more students than seats in every year from 2027 "
+                                         "to 2029.")
+    lead = explain(make(np.ones((3, 2)), demand, capacity=[10, 10], years=years))
+    assert lead.split("\n")[0].endswith("seats in 2027, 2028, 2029 and 2031.")
