@@ -184,6 +184,8 @@ def test_check_finds_the_folders_project_file(project, tmp_path):
     assert "notes.toml, town-2027.toml" in out + err
     code, _, err = run_cli("lock", str(other), "--level", "elementary", "U02", "--school", "E1")
     assert code == 1 and "holds no project.toml" in err
+    code, _, err = run_cli("serve", str(other))  # refused before any server starts
+    assert code == 1 and "notes.toml, town-2027.toml" in err
 
 
 def test_locks_written_as_an_inline_list_are_not_cut(project):
