@@ -27,13 +27,14 @@ from .report import ProjectError, Report
 from .settings import read_settings
 from .sites import read_sites
 from .summary import check_summary
+from .tomlfile import PROJECT_FILE, project_file
 from .units import read_units
 from .zones import read_zones
 
 __all__ = [
     "Settings", "SolveSettings", "Lock", "Source", "Inputs", "Report", "ProjectError",
     "LEVELS", "load_project", "validate_project", "read_settings", "read_inputs",
-    "check_summary",
+    "check_summary", "project_file", "PROJECT_FILE",
 ]
 
 #: The steps of a reading, in order; each goes as far as the data allow.
@@ -64,8 +65,10 @@ def read_inputs(settings: Settings, report: Report) -> Inputs | None:
 def validate_project(path: str | Path) -> tuple[Inputs | None, Report]:
     """Read and check a project: (Inputs, report), Inputs None when there are errors.
 
-    Reads only (nothing is written). Every problem found is in the report at once.
+    Reads only (nothing is written). Every problem found is in the report at once. A
+    folder stands for its ``project.toml``.
     """
+    path = project_file(path)
     report = Report(path)
     settings = read_settings(path, report)
     if settings is None:
