@@ -100,7 +100,7 @@ def write_demo(folder: str | Path, seed: int = 2027, n_units: int = 1500) -> Pat
     atomic_write_text(toml_path, header + tomli_w.dumps(project_settings()))
     reach = street_reach(shapely.get_coordinates(shapely.centroid(town.units.geometry)),
                          town.streets)
-    print(f"streets: {len(town.streets)} pieces; unit centroid to the nearest walkable street: "
+    print(f"streets: {len(town.streets)} lines; unit centroid to the nearest walkable street: "
           f"median {np.median(reach):.0f} m, 95th percentile {np.percentile(reach, 95):.0f} m, "
           f"farthest {reach.max():.0f} m")
     return toml_path

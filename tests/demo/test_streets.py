@@ -132,6 +132,20 @@ def test_every_unit_is_a_short_walk_from_a_street(town):
         np.percentile(dist, 95), dist.max())
 
 
+def test_the_nearest_street_of_every_unit_and_site_is_on_its_side(town):
+    """Travel joins a point to its nearest street: that leg must not cross a barrier."""
+    streets = town["streets"]
+    walk = streets.geometry[streets["walkable"]].to_numpy()
+    lines = shapely.union_all(town["barriers"].geometry.to_numpy())
+    for layer in ("units", "sites"):
+        pts = shapely.centroid(town[layer].geometry.to_numpy())
+        for geoms in (streets.geometry.to_numpy(), walk):
+            near = geoms[shapely.STRtree(geoms).query_nearest(pts, all_matches=False)[1]]
+            leg = shapely.shortest_line(pts, near)
+            across = shapely.intersects(leg, lines)
+            assert not across.any(), f"{layer}: {int(across.sum())} legs cross a barrier"
+
+
 def test_same_seed_same_streets(small):
     again = demo.generate(seed=11, n_units=500).streets
     pd.testing.assert_frame_equal(pd.DataFrame(again.drop(columns="geometry")),
