@@ -6,8 +6,10 @@ Method (chosen by measurement against travel along the demo town's streets,
 
 1. Nodes: the unit points, the site points, the points of the crossings (a point bridge,
    or the vertices and middle of a bridge drawn as a line) and, when unit polygons are
-   given, their vertices (a vertex on a barrier line keeps no edge: every edge from it
-   meets the line). Equal coordinates are one node.
+   given, their vertices, less those within ``ON_LINE`` of a barrier (units drawn along a
+   river have vertices on it: such a node keeps no edge, as every edge from it meets the
+   line, yet it would take the place in the triangulation of the edges along the river's
+   bank). Equal coordinates are one node.
 2. Edges: the Delaunay triangulation of the nodes (``scipy.spatial.Delaunay``), each edge
    as long as the straight line between its ends.
 3. An edge that meets a barrier line is removed unless every place where it meets one lies
@@ -33,11 +35,13 @@ from scipy.sparse import coo_matrix
 from scipy.sparse.csgraph import dijkstra
 from scipy.spatial import Delaunay
 
-__all__ = ["barrier_distances", "barrier_graph", "TOLERANCE"]
+__all__ = ["barrier_distances", "barrier_graph", "TOLERANCE", "ON_LINE"]
 
 #: Metres: an edge may meet a barrier within this distance of a crossing (the half-width
 #: of a bridge deck and its approaches; a choice of ours, not a published value).
 TOLERANCE = 15.0
+#: Metres: polygon vertices this close to a barrier line are not nodes.
+ON_LINE = 1.0
 
 
 def _lines(geoms) -> object:
@@ -75,7 +79,10 @@ def barrier_graph(unit_xy: np.ndarray, site_xy: np.ndarray, barriers, crossings,
     lines = _lines(barriers)
     extra = [_crossing_points(crossings)]
     if unit_polygons is not None and len(unit_polygons):
-        extra.append(shapely.get_coordinates(np.asarray(unit_polygons, dtype=object)))
+        corners = shapely.get_coordinates(np.asarray(unit_polygons, dtype=object))
+        if lines is not None:
+            corners = corners[~shapely.dwithin(shapely.points(corners), lines, ON_LINE)]
+        extra.append(corners)
     xy = np.vstack([unit_xy, site_xy, *extra])
     points, inverse = np.unique(xy, axis=0, return_inverse=True)
     inverse = inverse.ravel()

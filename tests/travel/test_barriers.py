@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 import shapely
 
-from districting.travel.barriers import TOLERANCE, barrier_distances, barrier_graph
+from districting.travel.barriers import ON_LINE, TOLERANCE, barrier_distances, barrier_graph
 
 WALL = np.array([shapely.LineString([(0, -1000), (0, 1000)])])
 NO_GEOMETRY = np.array([], dtype=object)
@@ -79,6 +79,23 @@ def test_a_site_on_a_unit_point_is_one_node():
     units = np.array([[0.0, 0.0], [100.0, 0.0], [50.0, 80.0], [50.0, -80.0]])
     d = barrier_distances(units, units[:2], NO_GEOMETRY, NO_GEOMETRY)
     np.testing.assert_allclose(d, np.hypot(*(units[:, None] - units[None, :2]).transpose(2, 0, 1)))
+
+
+def test_polygon_vertices_on_a_barrier_are_not_nodes():
+    """Units drawn up to a wall have corners on it; those corners would be nodes without
+    edges that displace the edges along the wall, so only the crossing stays on the line."""
+    g = np.arange(-50.0, 50.0, 10.0)
+    x, y = (a.ravel() for a in np.meshgrid(g, g))
+    squares = shapely.box(x, y, x + 10, y + 10)
+    units = shapely.get_coordinates(shapely.centroid(squares))
+    points, edges, unit_node, _ = barrier_graph(
+        units, np.array([[25.0, 5.0]]), WALL, np.array([shapely.Point(0, 30)]), squares)
+    on_wall = np.abs(points[:, 0]) < ON_LINE
+    assert points[on_wall].tolist() == [[0.0, 30.0]]
+    assert len(points) > len(units) + 1  # the other corners are nodes
+    d = barrier_distances(units, np.array([[25.0, 5.0]]), WALL,
+                          np.array([shapely.Point(0, 30)]), squares)
+    assert np.isfinite(d).all()
 
 
 def random_case(rng, n=400, m=8):
