@@ -14,8 +14,8 @@ adding them changed nothing else in the town. How they are drawn (whole-array sh
 5. All lines are noded (a union at the 1 cm precision): a junction is a vertex shared by
    the streets that meet there (each street is then merged back into as few LineStrings
    as it has stretches). Pieces not joined to the main network get a short link inside their part of
-   the town, or are dropped; a unit farther than ``SPUR_FROM`` from any walkable street gets
-   a cul-de-sac to its point.
+   the town, or are dropped; a unit farther than ``SPUR_FROM`` from any walkable street, or
+   whose nearest street lies across a barrier, gets a cul-de-sac to its point.
 
 The result is one connected network (the walkable streets alone too), crossing a barrier
 only at a bridge. :func:`street_reach` measures the distance from points to the streets.
@@ -31,6 +31,7 @@ from scipy.sparse import coo_matrix
 from scipy.sparse.csgraph import connected_components
 
 from .constants import CENTRE, GRID
+from .geometry import split_pieces
 
 STREET_STREAM = 16  # second key of the streets' random stream
 CUT = 3.0  # metres: streets stop this far short of a barrier line
@@ -47,9 +48,11 @@ _LAST = ("by", "cote", "dale", "field", "ford", "gate", "holm", "ley", "mere", "
 
 
 def _words(rng: np.random.Generator) -> list[str]:
-    """Invented street words (syllable pairs) in a random order."""
-    return [_FIRST[k // len(_LAST)] + _LAST[k % len(_LAST)]
-            for k in rng.permutation(len(_FIRST) * len(_LAST))]
+    """Invented street words (syllable pairs) in a random order, taken from the end with
+    ``pop``; after all the pairs come the same with "Upper", then "Lower" before them."""
+    pairs = [_FIRST[k // len(_LAST)] + _LAST[k % len(_LAST)]
+             for k in rng.permutation(len(_FIRST) * len(_LAST))]
+    return [f"Lower {w}" for w in pairs] + [f"Upper {w}" for w in pairs] + pairs
 
 
 def _ordinal(k: int) -> str:
@@ -132,13 +135,6 @@ def _explode_lines(frame: gpd.GeoDataFrame) -> gpd.GeoDataFrame:
     out = frame.iloc[idx[keep]].reset_index(drop=True)
     out["geometry"] = parts[keep]
     return gpd.GeoDataFrame(out, geometry="geometry")
-
-
-def _faces(outline, barrier_geoms: np.ndarray) -> np.ndarray:
-    """Parts of the town between the barrier lines."""
-    noded = shapely.node(shapely.union_all([outline.exterior, *barrier_geoms]))
-    faces = shapely.get_parts(shapely.polygonize(shapely.get_parts(noded)))
-    return faces[shapely.contains(outline, shapely.point_on_surface(faces))]
 
 
 def _overshoot(line, metres: float = OVERSHOOT):
@@ -282,6 +278,13 @@ def street_reach(xy: np.ndarray, streets: gpd.GeoDataFrame, walkable: bool = Tru
     return dist
 
 
+def nearest_leg_crosses(xy: np.ndarray, streets: np.ndarray, barriers) -> np.ndarray:
+    """Per point: does the straight line to its nearest street meet a barrier?"""
+    points = shapely.points(xy)
+    nearest = shapely.STRtree(streets).query_nearest(points, all_matches=False)[1]
+    return shapely.intersects(shapely.shortest_line(points, streets[nearest]), barriers)
+
+
 def street_network(seed: int, outline, barriers: gpd.GeoDataFrame, bridges: gpd.GeoDataFrame,
                    unit_points: np.ndarray, radius: float) -> gpd.GeoDataFrame:
     """The streets layer: ``name``, ``kind`` (arterial / collector / local), ``walkable``,
@@ -290,16 +293,19 @@ def street_network(seed: int, outline, barriers: gpd.GeoDataFrame, bridges: gpd.
     words = _words(rng)
     barrier_geoms = barriers.geometry.to_numpy()
     barrier_union = shapely.union_all(barrier_geoms)
-    faces = _faces(outline, barrier_geoms)
+    faces = split_pieces(outline, list(barrier_geoms))
     frame = _raw_streets(rng, outline, radius, words)
     frame["geometry"] = shapely.difference(frame.geometry.to_numpy(),
                                            shapely.buffer(barrier_union, CUT))
     frame = _explode_lines(frame)
     rows = _bridge_streets(bridges, barriers, frame.geometry.to_numpy(), faces, barrier_union)
-    # cul-de-sacs to the unit points farthest from a walkable street
-    dist = street_reach(unit_points, frame)
-    walk = shapely.union_all(frame.geometry.to_numpy()[frame["walkable"].to_numpy(bool)])
-    for k in np.flatnonzero(dist > SPUR_FROM):
+    # cul-de-sacs to the unit points far from a walkable street, or whose nearest street
+    # lies across a barrier (a travel measure joins a point to its nearest street)
+    walkable = frame.geometry.to_numpy()[frame["walkable"].to_numpy(bool)]
+    far = street_reach(unit_points, frame) > SPUR_FROM
+    across = nearest_leg_crosses(unit_points, walkable, barrier_union)
+    walk = shapely.union_all(walkable)
+    for k in np.flatnonzero(far | across):
         p = shapely.Point(unit_points[k])
         face = faces[np.argmax(shapely.intersects(faces, p))]
         link = _link(p, walk, face, barrier_union)
