@@ -15,6 +15,9 @@ Method (chosen by measurement against travel along the demo town's streets,
 3. An edge that meets a barrier line is removed unless every place where it meets one lies
    within ``tolerance`` of a crossing: the edges are tested in one vectorised shapely call
    against the barrier lines with a gap of radius ``tolerance`` cut around each crossing.
+   A unit or site point lying on a line (within ``ON_POINT``, i.e. drawn on it) may leave
+   it to either side, so it acts as a crossing (without this it would be cut off from
+   everything); one a little off the line is on its own side.
 4. ``scipy.sparse.csgraph.dijkstra`` from every site; a unit no path reaches gets ``inf``.
 
 Why a Delaunay triangulation: without barriers, the shortest path between two of its nodes
@@ -43,13 +46,16 @@ from scipy.sparse import coo_matrix
 from scipy.sparse.csgraph import dijkstra
 from scipy.spatial import Delaunay
 
-__all__ = ["barrier_distances", "barrier_graph", "TOLERANCE", "ON_LINE"]
+__all__ = ["barrier_distances", "barrier_graph", "TOLERANCE", "ON_LINE", "ON_POINT"]
 
 #: Metres: an edge may meet a barrier within this distance of a crossing (the half-width
 #: of a bridge deck and its approaches; a choice of ours, not a published value).
 TOLERANCE = 15.0
 #: Metres: polygon vertices this close to a barrier line are not nodes.
 ON_LINE = 1.0
+#: Metres: a unit or site point this close to a barrier line is on it (drawn on it) and
+#: may step off to either side; only as far as rounding, so a crossing is never made here.
+ON_POINT = 1e-3
 
 
 def _lines(geoms) -> object:
@@ -106,6 +112,12 @@ def barrier_graph(unit_xy: np.ndarray, site_xy: np.ndarray, barriers, crossings,
         gaps = gaps[~(shapely.is_missing(gaps) | shapely.is_empty(gaps))] if len(gaps) else gaps
         blocked = (shapely.difference(lines, shapely.buffer(shapely.union_all(gaps), tolerance))
                    if len(gaps) else lines)
+        # a unit or site point on a line (a school drawn at the river's edge) would keep no
+        # edge at all: it may step off the line to either side
+        own = shapely.points(np.vstack([unit_xy, site_xy]))
+        on = own[shapely.dwithin(own, lines, ON_POINT)]
+        if len(on):
+            blocked = shapely.difference(blocked, shapely.buffer(shapely.union_all(on), ON_POINT))
         shapely.prepare(blocked)
         segments = shapely.linestrings(np.stack([points[edges[:, 0]], points[edges[:, 1]]], 1))
         edges = edges[~shapely.intersects(blocked, segments)]

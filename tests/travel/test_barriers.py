@@ -98,6 +98,12 @@ def test_polygon_vertices_on_a_barrier_are_not_nodes():
     assert np.isfinite(d).all()
 
 
+def test_a_site_on_the_wall_is_reached_from_both_sides():
+    units = np.array([[-20.0, 0.0], [20.0, 0.0], [-20.0, 40.0], [20.0, 40.0]])
+    d = barrier_distances(units, np.array([[0.0, 20.0]]), WALL, NO_GEOMETRY)[:, 0]
+    np.testing.assert_allclose(d, np.hypot(20.0, 20.0))
+
+
 def random_case(rng, n=400, m=8):
     units = rng.uniform(0, 1000, (n, 2))
     sites = rng.uniform(0, 1000, (m, 2))
