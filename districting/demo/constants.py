@@ -72,6 +72,8 @@ class DemoTown:
     - ``barriers``: ``name``, ``kind`` (river / highway / rail), ``geometry`` (LineString).
     - ``bridges``: ``name``, ``kind``, ``barrier`` (name of the line crossed), ``geometry``
       (Point on the line).
+    - ``streets``: ``name``, ``kind`` (arterial / collector / local), ``walkable`` (bool),
+      ``geometry`` (LineString pieces meeting at shared vertices; see ``demo.streets``).
     """
 
     name: str
@@ -81,6 +83,7 @@ class DemoTown:
     barriers: gpd.GeoDataFrame
     bridges: gpd.GeoDataFrame
     outline: shapely.Polygon
+    streets: gpd.GeoDataFrame
     subdivision: str = SUBDIVISION
     current_year: int = CURRENT_YEAR
     years: tuple[int, ...] = YEARS

@@ -6,6 +6,9 @@ import argparse
 import shutil
 from pathlib import Path
 
+import numpy as np
+import shapely
+
 from ..io import atomic_path, atomic_write_text
 from .constants import (
     CURRENT_YEAR,
@@ -15,15 +18,26 @@ from .constants import (
     TOWN_NAME,
     YEARS,
 )
+from .streets import street_reach
 from .town import (
     generate,
 )
+
+#: The demo's street tables: travel along its own streets by default. Kept in one place
+#: because the [streets] table and [solve] travel are declared by the travel package's
+#: schema keys; without them a project loader refuses both.
+STREET_SETTINGS = {
+    "streets": {"layer": "streets"},
+    "solve": {"travel": "streets"},
+}
+
+LAYERS = ("units", "sites", "barriers", "bridges", "streets")
 
 
 # --------------------------------------------------------------------------- files
 def project_settings(gpkg: str = "town.gpkg") -> dict:
     """The demo project file as a dict (schema: DEVELOPERS.md, "Project file")."""
-    return {
+    settings = {
         "project": {
             "name": DISTRICT_NAME,
             "current_year": CURRENT_YEAR,
@@ -60,6 +74,9 @@ def project_settings(gpkg: str = "town.gpkg") -> dict:
             "solver": "highs",
         },
     }
+    settings["streets"] = {"source": gpkg, **STREET_SETTINGS["streets"]}
+    settings["solve"].update(STREET_SETTINGS["solve"])
+    return settings
 
 
 def write_demo(folder: str | Path, seed: int = 2027, n_units: int = 1500) -> Path:
@@ -72,7 +89,7 @@ def write_demo(folder: str | Path, seed: int = 2027, n_units: int = 1500) -> Pat
     folder = Path(folder)
     town = generate(seed=seed, n_units=n_units)
     with atomic_path(folder / "town.gpkg") as tmp:
-        for layer in ("units", "sites", "barriers", "bridges"):
+        for layer in LAYERS:
             getattr(town, layer).to_file(tmp, layer=layer, driver="GPKG", engine="pyogrio")
     header = (
         f"# {TOWN_NAME} is an invented town: every name and number here is made up.\n"
@@ -81,6 +98,11 @@ def write_demo(folder: str | Path, seed: int = 2027, n_units: int = 1500) -> Pat
     )
     toml_path = folder / "project.toml"
     atomic_write_text(toml_path, header + tomli_w.dumps(project_settings()))
+    reach = street_reach(shapely.get_coordinates(shapely.centroid(town.units.geometry)),
+                         town.streets)
+    print(f"streets: {len(town.streets)} lines; unit centroid to the nearest walkable street: "
+          f"median {np.median(reach):.0f} m, 95th percentile {np.percentile(reach, 95):.0f} m, "
+          f"farthest {reach.max():.0f} m")
     return toml_path
 
 

@@ -72,13 +72,13 @@ def barrier_lines(rng: np.random.Generator, outline: shapely.Polygon, radius: fl
             lines[kind] = shapely.LineString(xy)
         if not shapely.contains(outline, np.array(list(lines.values()))).all():
             continue
-        pieces = _pieces(outline, list(lines.values()))
+        pieces = split_pieces(outline, list(lines.values()))
         if shapely.area(pieces).min() >= 5e4:
             return lines, pieces
     raise ValueError("could not draw the lines across this outline; try another seed")
 
 
-def _pieces(outline: shapely.Polygon, lines: list) -> np.ndarray:
+def split_pieces(outline: shapely.Polygon, lines: list) -> np.ndarray:
     """Faces of the outline split by the lines (``shapely.node`` + ``shapely.polygonize``)."""
     noded = shapely.node(shapely.union_all([outline.exterior, *lines]))
     faces = shapely.get_parts(shapely.polygonize(shapely.get_parts(noded)))

@@ -38,6 +38,7 @@ from .schools import (
     sites_and_zones,
     student_counts,
 )
+from .streets import street_network
 
 
 # --------------------------------------------------------------------------- the town
@@ -121,7 +122,11 @@ def generate(seed: int = 2027, n_units: int = 1500, radius: float = 6800.0) -> D
     )
     bridges = bridges.set_crs(CRS)
     outline = shapely.set_precision(outline, GRID)
-    return DemoTown(DISTRICT_NAME, seed, units, sites.set_crs(CRS), barriers, bridges, outline)
+    centroids = shapely.get_coordinates(shapely.centroid(geoms))
+    streets = street_network(seed, outline, barriers, bridges, centroids, radius)
+    return DemoTown(
+        DISTRICT_NAME, seed, units, sites.set_crs(CRS), barriers, bridges, outline, streets
+    )
 
 
 def _bridges(n, i, j, base, across, kind_of, border, blen, lines, kinds, hood_of):

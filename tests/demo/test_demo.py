@@ -23,7 +23,7 @@ from scipy.sparse.csgraph import dijkstra
 
 from districting import demo
 
-LAYERS = ("units", "sites", "barriers", "bridges")
+LAYERS = ("units", "sites", "barriers", "bridges", "streets")
 YEARS_ALL = (demo.CURRENT_YEAR, *demo.YEARS)
 TOL = 0.05  # metres: coordinates sit on a 0.01 m grid
 
@@ -147,8 +147,9 @@ def test_committed_files_are_small_and_the_project_file_follows_the_schema():
         "counts": "{level}_{year}",
     }
     assert cfg["zones"]["columns"] == {lv: f"zone_{lv}" for lv in demo.LEVELS}
-    for table in ("sites", "zones", "barriers", "bridges"):
+    for table in ("sites", "zones", "barriers", "bridges", "streets"):
         assert cfg[table]["source"] == "town.gpkg"
+    assert cfg["streets"]["layer"] == "streets"
     assert cfg["adjacency"]["contiguity"] == "rook"
     assert cfg["solve"] == {
         "max_utilization": 1.0,
@@ -157,6 +158,7 @@ def test_committed_files_are_small_and_the_project_file_follows_the_schema():
         "gap": 1e-4,
         "time_limit": 60,
         "solver": "highs",
+        "travel": "streets",
     }
     assert "locks" not in cfg and "forbids" not in cfg
     assert (folder / "README.md").read_text().lower().count("invented") >= 1

@@ -1,0 +1,1 @@
+"""Travel between planning units and school sites (the package; its modules say how)."""
