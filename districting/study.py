@@ -15,7 +15,6 @@ from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
-import shapely
 
 from . import rules
 from .engine import Session
@@ -47,6 +46,7 @@ class RunSettings:
     gap: float | None = None
     time_limit: float | None = None
     solver: str | None = None
+    travel: str | None = None  # districting.travel.MEASURES
     capacity: dict[str, float] = field(default_factory=dict)
     status: dict[str, str] = field(default_factory=dict)
     site_max_util: dict[str, float] = field(default_factory=dict)
@@ -59,8 +59,11 @@ class RunSettings:
 
     @classmethod
     def from_dict(cls, data: Mapping) -> RunSettings:
+        """Settings stored by :meth:`to_dict`. Those stored before runs named a travel
+        measure were measured in straight lines, and reopen so."""
         names = {f.name for f in dataclasses.fields(cls)}
-        return cls(**{k: v for k, v in data.items() if k in names})
+        return cls(**{"travel": "straight-line",
+                      **{k: v for k, v in data.items() if k in names}})
 
     def replace(self, **changes) -> RunSettings:
         return dataclasses.replace(self, **changes)
@@ -93,6 +96,7 @@ def resolved(inputs: Inputs, rs: RunSettings) -> RunSettings:
         gap=pick(rs.gap, d.gap),
         time_limit=pick(rs.time_limit, d.time_limit),
         solver=pick(rs.solver, d.solver),
+        travel=pick(rs.travel, d.travel),
         locks=locks,
         forbids=forbids,
     )
@@ -123,6 +127,8 @@ def build_problem(inputs: Inputs, rs: RunSettings) -> tuple[Problem, np.ndarray]
     Site status in the plan year: ``open`` and ``new`` sites are open; ``closing`` and
     ``closed`` sites take no students; ``candidate`` sites are opened by the solver when
     ``open_count`` is set (the total number of open sites), otherwise all open.
+    Travel (the reports' distance, the cost unless the project gives a travel table, and
+    what ``max_distance`` limits) is measured by the run's ``travel`` measure.
     """
     rs = resolved(inputs, rs)
     rows = level_sites(inputs, rs.level)
@@ -171,10 +177,7 @@ def build_problem(inputs: Inputs, rs: RunSettings) -> tuple[Problem, np.ndarray]
         open_sites = forced
         closed = closed | ~(forced | candidate)
 
-    points = shapely.get_coordinates(inputs.units["point"].to_numpy())
-    site_xy = shapely.get_coordinates(sites.geometry.to_numpy())
-    distance = np.hypot(points[:, None, 0] - site_xy[None, :, 0],
-                        points[:, None, 1] - site_xy[None, :, 1])
+    distance = inputs.travel_metres(rs.travel)[:, rows]
     cost = distance if inputs.travel is None else inputs.travel[:, rows]
 
     forbidden = np.zeros(distance.shape, bool)

@@ -8,7 +8,8 @@ goes through :func:`load_project` or :func:`validate_project`.
 
 The steps: :mod:`.settings` (TOML -> :class:`Settings`, checked against :mod:`.schema`),
 then one function per source over a :class:`~.reading.Reading` (:mod:`.units`,
-:mod:`.counts`, :mod:`.sites`, :mod:`.zones`, :mod:`.network`, :mod:`.limits`), each
+:mod:`.counts`, :mod:`.sites`, :mod:`.zones`, :mod:`.network`, :mod:`.limits`,
+:mod:`.streets`), each
 running the checks of :mod:`.checks`. Reads only: nothing is written.
 """
 
@@ -26,6 +27,7 @@ from .records import LEVELS, Inputs, Lock, Settings, SolveSettings, Source
 from .report import ProjectError, Report
 from .settings import read_settings
 from .sites import read_sites
+from .streets import read_streets
 from .summary import check_summary
 from .units import read_units
 from .zones import read_zones
@@ -38,7 +40,7 @@ __all__ = [
 
 #: The steps of a reading, in order; each goes as far as the data allow.
 _STEPS = (read_units, read_counts, read_sites, read_zones, read_lines, read_links,
-          build_adjacency, check_locks, read_travel, check_capacity)
+          build_adjacency, check_locks, read_travel, read_streets, check_capacity)
 
 
 def read_inputs(settings: Settings, report: Report) -> Inputs | None:
@@ -57,7 +59,8 @@ def read_inputs(settings: Settings, report: Report) -> Inputs | None:
         current=st.current,
         barriers=st.barriers if len(st.barriers) else empty,
         bridges=st.bridges if len(st.bridges) else empty,
-        adjacency=st.adjacency, report=report, travel=st.travel,
+        adjacency=st.adjacency, report=report, travel=st.travel, streets=st.streets,
+        street_travel=st.street_travel,
     )
 
 
