@@ -78,7 +78,7 @@ def plan_summary(outcome) -> str:
         f"    mean travel {m.overall_mean_distance / 1000:.2f} km, "
         f"longest {m.overall_max_distance / 1000:.2f} km; "
         f"{m.students_moved:,.0f} students ({m.units_moved} units) change school",
-        f"    rounds {plan.rounds}, cuts {plan.cuts}, "
+        f"    {outcome.travel_line}; rounds {plan.rounds}, cuts {plan.cuts}, "
         f"build {plan.build_seconds:.2f} s, solve {plan.solve_seconds:.2f} s",
     ]
     if oob:
@@ -121,6 +121,7 @@ def _run_settings(args, level: str):
         gap=args.gap,
         time_limit=args.time_limit,
         solver=args.solver,
+        travel=args.travel,
     )
 
 
@@ -286,7 +287,8 @@ def cmd_demo(args) -> int:
         for suffix, extra in variants:
             name = f"{level}-{suffix}"
             progress = Progress(name)
-            rs = RunSettings(level=level, time_limit=args.time_limit, **extra)
+            rs = RunSettings(level=level, time_limit=args.time_limit, travel=args.travel,
+                             **extra)
             outcome = run(inputs, rs, name=name, progress=progress)
             progress.done()
             print(f"option {name}:")
@@ -316,6 +318,15 @@ def _add_solve_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--gap", type=float, help="relative optimality gap to prove, e.g. 1e-4")
     p.add_argument("--time-limit", type=float, help="seconds; the best plan found is kept")
     p.add_argument("--solver", help="'highs' (default) or any solver name Pyomo drives")
+    _add_travel_option(p)
+
+
+def _add_travel_option(p: argparse.ArgumentParser) -> None:
+    from .travel.measures import MEASURES, WORDS
+
+    p.add_argument("--travel", choices=MEASURES, help="how travel is measured: "
+                   + "; ".join(f"{m}: {WORDS[m]}" for m in MEASURES)
+                   + " (default: the project's [solve] travel)")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -364,6 +375,7 @@ def build_parser() -> argparse.ArgumentParser:
                    help="weight of the 'fewer-moves' option (metres per student moved)")
     p.add_argument("--time-limit", type=float, default=60.0,
                    help="seconds per solve; the best plan found is kept, with its gap")
+    _add_travel_option(p)
     p.set_defaults(func=cmd_demo)
 
     for ep in entry_points(group="districting.commands"):

@@ -22,6 +22,7 @@ from .intake import Inputs
 from .intake.schema import RUN_KEYS, check_run
 from .plan import Plan, PlanMetrics, plan_metrics
 from .problem import Problem
+from .travel.measures import distance_note, measure_line
 
 __all__ = ["RunSettings", "Outcome", "build_problem", "run", "outcome_from_assignment"]
 
@@ -279,6 +280,16 @@ class Outcome:
         """Figures of today's zones under the same problem (students, utilization...)."""
         cur = self.problem.current
         return plan_metrics(self.problem.replace(current=cur), cur)
+
+    @property
+    def travel_line(self) -> str:
+        """How travel was measured, in one line ("Travel: along streets")."""
+        return measure_line(self.settings.travel, table=self.inputs.travel is not None)
+
+    @property
+    def distance_note(self) -> str:
+        """The packet's sentence on what its distances are."""
+        return distance_note(self.settings.travel, table=self.inputs.travel is not None)
 
     def renamed(self, name: str) -> Outcome:
         return dataclasses.replace(self, name=name)

@@ -15,13 +15,13 @@ from .network import StreetNetwork
 from .streets import street_travel
 
 __all__ = ["MEASURES", "WORDS", "TABLE_WORDS", "default_measure", "measure_words",
-           "measure_line", "straight_line", "travel_matrix", "check_measure"]
+           "measure_line", "distance_note", "straight_line", "travel_matrix", "check_measure"]
 
 MEASURES = ("streets", "barrier-aware", "straight-line")
 WORDS = {
     "streets": "along streets",
     "barrier-aware": "around barriers, crossing only at bridges",
-    "straight-line": "straight line",
+    "straight-line": "in a straight line",
 }
 #: A travel table given in the project replaces every measure.
 TABLE_WORDS = "from the project's travel table"
@@ -50,8 +50,13 @@ def measure_words(measure: str, table: bool = False) -> str:
 
 
 def measure_line(measure: str, table: bool = False) -> str:
-    """One line for a summary, an export or the packet: "Travel: along streets (metres)"."""
-    return f"Travel: {measure_words(measure, table)}" + ("" if table else " (metres)")
+    """One line for a summary or an export: "Travel: along streets"."""
+    return f"Travel: {measure_words(measure, table)}"
+
+
+def distance_note(measure: str, table: bool = False) -> str:
+    """The packet's sentence on distances: "distances are km along streets, from ..."."""
+    return f"distances are km {measure_words(measure, table)}, from a planning unit to its school"
 
 
 def straight_line(unit_xy: np.ndarray, site_xy: np.ndarray) -> np.ndarray:
