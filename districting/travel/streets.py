@@ -2,9 +2,10 @@
 
 Each point (units' and sites') joins the network at the nearest point of the nearest
 street segment; that straight access leg is counted in the travel. The joining points
-become nodes that split their segments, so two points on one segment are exactly the
-distance between them along it, and shortest paths come from scipy's Dijkstra run from
-the sites' nodes. Units on a piece of street that reaches no site get ``inf``.
+become nodes that split their chains (runs of segments between junctions, see
+:class:`StreetNetwork`), so two points on one segment or chain are exactly the distance
+between them along it, and shortest paths come from scipy's Dijkstra run from the sites'
+nodes over the junctions and the points. Units on a piece of street that reaches no site get ``inf``.
 """
 
 from __future__ import annotations
@@ -61,27 +62,27 @@ def snap(net: StreetNetwork, xy: np.ndarray) -> tuple[np.ndarray, np.ndarray, np
     return seg, offset, access
 
 
-def _split_edges(net: StreetNetwork, seg: np.ndarray, offset: np.ndarray):
-    """Edges (a, b, w) of the network with point p inserted as node ``n_nodes + p``.
+def _split_edges(net: StreetNetwork, chain: np.ndarray, pos: np.ndarray):
+    """Edges (a, b, w) of the chains with point p inserted as node ``n_nodes + p``.
 
-    Segments holding no point stay whole; a segment holding points becomes the chain
-    a -> points in order of offset -> b.
+    Chains holding no point stay whole; a chain holding points becomes the path
+    a -> points in order along it -> b.
     """
-    k, length = net.n_nodes, net.seg_length
-    whole = np.ones(len(net.seg_a), bool)
-    whole[seg] = False
-    order = np.lexsort((offset, seg))
-    s, t = seg[order], offset[order]
+    k, length = net.n_nodes, net.chain_length
+    whole = np.ones(len(length), bool)
+    whole[chain] = False
+    order = np.lexsort((pos, chain))
+    c, t = chain[order], pos[order]
     node = k + order
-    first = np.ones(len(s), bool)
-    first[1:] = s[1:] != s[:-1]
-    last = np.ones(len(s), bool)
-    last[:-1] = s[:-1] != s[1:]
-    prev_node = np.where(first, net.seg_a[s], np.roll(node, 1))
+    first = np.ones(len(c), bool)
+    first[1:] = c[1:] != c[:-1]
+    last = np.ones(len(c), bool)
+    last[:-1] = c[:-1] != c[1:]
+    prev_node = np.where(first, net.chain_a[c], np.roll(node, 1))
     prev_t = np.where(first, 0.0, np.roll(t, 1))
-    a = np.concatenate([net.seg_a[whole], prev_node, node[last]])
-    b = np.concatenate([net.seg_b[whole], node, net.seg_b[s[last]]])
-    w = np.concatenate([length[whole], t - prev_t, length[s[last]] - t[last]])
+    a = np.concatenate([net.chain_a[whole], prev_node, node[last]])
+    b = np.concatenate([net.chain_b[whole], node, net.chain_b[c[last]]])
+    w = np.concatenate([length[whole], t - prev_t, length[c[last]] - t[last]])
     return a, b, np.maximum(w, 0.0)
 
 
@@ -91,7 +92,8 @@ def street_travel(net: StreetNetwork, unit_xy: np.ndarray, site_xy: np.ndarray) 
     site_xy = np.asarray(site_xy, float).reshape(-1, 2)
     n, m = len(unit_xy), len(site_xy)
     seg, offset, access = snap(net, np.vstack([unit_xy, site_xy]))
-    a, b, w = _split_edges(net, seg, offset)
+    along_seg = np.where(net.seg_reversed[seg], net.seg_length[seg] - offset, offset)
+    a, b, w = _split_edges(net, net.seg_chain[seg], net.seg_start[seg] + along_seg)
     graph = undirected_graph(a, b, w, net.n_nodes + n + m)
     k = net.n_nodes
     along = dijkstra(graph, directed=False, indices=k + n + np.arange(m))  # (m, nodes)

@@ -190,3 +190,16 @@ def test_barrier_aware_goes_around_a_barrier():
     wall = np.array([shapely.LineString([(50, -1000), (50, 1000)])], dtype=object)
     got = travel_matrix("barrier-aware", u, s, barriers=wall, crossings=np.array([]))
     assert np.isinf(got[0, 0])
+
+
+def test_ring_road_without_junction_and_a_dead_end():
+    """Hand-worked: a closed square ring (no junction on it) and a dead-end spur: the
+    shorter way round, and the spur travelled out and back along itself."""
+    ring = shapely.LineString([(0, 0), (100, 0), (100, 100), (0, 100), (0, 0)])
+    apart = shapely.LineString([(300, 0), (400, 0), (400, 50)])  # a dead end, apart
+    net = StreetNetwork.from_lines([ring, apart])
+    r = street_travel(net, np.array([[10.0, -5.0], [390.0, 10.0]]),
+                      np.array([[0.0, 90.0], [410.0, 40.0]]))
+    assert r.metres[0, 0] == pytest.approx(5 + 10 + 90)
+    assert r.metres[1, 1] == pytest.approx(10 + 10 + 40 + 10)
+    assert np.isinf(r.metres[0, 1]) and np.isinf(r.metres[1, 0])
