@@ -96,7 +96,7 @@ def check_command(path: str | Path) -> int:
     """
     from .intake import check_summary, validate_project
 
-    inputs, report = validate_project(path)
+    inputs, report = validate_project(path, cache=False)
     print(report.format())
     if inputs is not None:
         print()

@@ -43,12 +43,13 @@ _STEPS = (read_units, read_counts, read_sites, read_zones, read_lines, read_link
           build_adjacency, check_locks, read_travel, read_streets, check_capacity)
 
 
-def read_inputs(settings: Settings, report: Report) -> Inputs | None:
+def read_inputs(settings: Settings, report: Report, *, cache: bool = True) -> Inputs | None:
     """Read every source the settings name, check it, and assemble :class:`Inputs`.
 
-    Returns None when any error was reported (the report says what and where).
+    Returns None when any error was reported (the report says what and where). ``cache``
+    False: travel is not kept in the project's disk cache (nothing is written).
     """
-    st = Reading(settings, report)
+    st = Reading(settings, report, cache=cache)
     for step in _STEPS:
         step(st)
     if report.has_errors:
@@ -64,16 +65,17 @@ def read_inputs(settings: Settings, report: Report) -> Inputs | None:
     )
 
 
-def validate_project(path: str | Path) -> tuple[Inputs | None, Report]:
+def validate_project(path: str | Path, *, cache: bool = True) -> tuple[Inputs | None, Report]:
     """Read and check a project: (Inputs, report), Inputs None when there are errors.
 
-    Reads only (nothing is written). Every problem found is in the report at once.
+    Every problem found is in the report at once. Writes nothing but, with ``cache``, the
+    travel along streets to the project's disk cache (``.districting-cache/``).
     """
     report = Report(path)
     settings = read_settings(path, report)
     if settings is None:
         return None, report
-    return read_inputs(settings, report), report
+    return read_inputs(settings, report, cache=cache), report
 
 
 def load_project(path: str | Path) -> Inputs:

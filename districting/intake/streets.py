@@ -24,11 +24,12 @@ _JOIN_FIX = ("join the pieces in the streets layer: streets meet only at a share
              "with a vertex where it meets the streets on each side")
 
 
-def street_travel_cached(settings, lines: np.ndarray, net: StreetNetwork,
+def street_travel_cached(folder, lines: np.ndarray, net: StreetNetwork,
                          unit_xy: np.ndarray, site_xy: np.ndarray) -> StreetTravel:
-    """Street travel from the project's disk cache, computed and stored on a miss."""
+    """Street travel from ``folder``'s disk cache, computed and stored on a miss (None:
+    computed, nothing stored)."""
     key = cache_key("streets", lines, unit_xy=unit_xy, site_xy=site_xy)
-    arrays = cached_arrays(settings.path.parent, key,
+    arrays = cached_arrays(folder, key,
                            lambda: street_travel(net, unit_xy, site_xy).arrays())
     return StreetTravel(**arrays)
 
@@ -71,7 +72,8 @@ def read_streets(st: Reading) -> None:
         return
     unit_xy = shapely.get_coordinates(st.units["point"].to_numpy())
     site_xy = shapely.get_coordinates(st.sites.geometry.to_numpy())
-    st.street_travel = street_travel_cached(st.settings, lines, st.streets, unit_xy, site_xy)
+    folder = st.settings.path.parent if st.cache else None
+    st.street_travel = street_travel_cached(folder, lines, st.streets, unit_xy, site_xy)
     _check_reach(st, st.street_travel)
 
 

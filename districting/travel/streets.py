@@ -5,7 +5,8 @@ street segment; that straight access leg is counted in the travel. The joining p
 become nodes that split their chains (runs of segments between junctions, see
 :class:`StreetNetwork`), so two points on one segment or chain are exactly the distance
 between them along it, and shortest paths come from scipy's Dijkstra run from the sites'
-nodes over the junctions and the points. Units on a piece of street that reaches no site get ``inf``.
+nodes over the junctions and the points. Units on a piece of street that reaches no site
+get ``inf``.
 """
 
 from __future__ import annotations

@@ -134,3 +134,14 @@ def test_runs_saved_before_travel_measures_reopen_in_straight_lines(tmp_path):
     pts = shapely.get_coordinates(inputs.units["point"].to_numpy())
     e1 = shapely.get_coordinates(inputs.sites.geometry.to_numpy())[0]
     np.testing.assert_allclose(problem.distance[:, 0], np.hypot(*(pts - e1).T))
+
+
+def test_check_writes_no_cache_and_loading_does(tmp_path, capsys):
+    from districting.cli import check_command
+
+    path = write(tmp_path, street_grid())
+    assert check_command(path) == 0
+    assert "Travel: along streets" in capsys.readouterr().out
+    assert not (tmp_path / CACHE_FOLDER).exists()
+    load_project(path)
+    assert len(list((tmp_path / CACHE_FOLDER).glob("travel-*.npz"))) == 1
