@@ -1,4 +1,5 @@
-"""The `districting` command: check, solve, options, verify, packet, demo (and serve, from ui/).
+"""The `districting` command: check, solve, options, verify, packet, export, lock, unlock,
+forbid, unforbid, demo (and serve, from ui/).
 
 Each sub-command is a thin wrapper over the engine's public functions; all the work lives
 in the modules it calls. Sub-commands from outside the engine (the workbench's ``serve``)
@@ -64,9 +65,11 @@ class Progress:
 def plan_summary(outcome) -> str:
     """A few lines on a plan: status, travel, moves, schools out of band."""
     plan, prob = outcome.plan, outcome.problem
-    if not plan.feasible:
-        return f"  {outcome.level}: {plan.status}, no plan\n    " + plan.message.replace(
-            "\n", "\n    ")
+    if not plan.feasible:  # the lead line, then the causes (engine.findings.no_plan_text)
+        why = {"time_limit": " before the time limit: raise --time-limit",
+               "cancelled": ": the solve was stopped"}.get(plan.status, "")
+        lead, *causes = (plan.message or f"No {outcome.level} plan was found{why}.").splitlines()
+        return "\n".join([f"  {lead}", *(f"    {line}" for line in causes)])
     m = outcome.metrics
     total = prob.demand[0].sum()
     oob = [outcome.site_ids[j] for j in range(prob.n_sites) if m.out_of_band[j]]
@@ -136,18 +139,30 @@ def _solve_targets(args, inputs) -> dict[str, tuple[str, Path]]:
     from .outputs.store import check_option_name
 
     levels = list(inputs.settings.levels) if args.level == "all" else [args.level]
-    out = Path(args.out) if args.out else inputs.settings.path.parent / "out"
+    out = _out_folder(args, inputs)
     if not args.save:
         return {lv: (f"{lv}-latest", path_inside(out, slug(f"{lv}-latest"))) for lv in levels}
     if len(levels) > 1:
         raise ValueError(f"--save names one option, and this project has {len(levels)} "
                          f"levels; add --level ({', '.join(levels)})")
     name = check_option_name(inputs.settings.store, args.save, overwrite=args.overwrite)
+    return {levels[0]: (name, export_folder(out, name, args.overwrite))}
+
+
+def export_folder(out: Path, name: str, overwrite: bool) -> Path:
+    """The export folder of an option (a slug of its name inside ``out``), refused when it
+    already holds files and ``overwrite`` is not given."""
+    from .names import path_inside, slug
+
     folder = path_inside(out, slug(name))
-    if not args.overwrite and folder.exists() and any(folder.iterdir()):
-        raise ValueError(f"{folder} already holds exports; choose another option name, or "
-                         "add --overwrite to replace them")
-    return {levels[0]: (name, folder)}
+    if not overwrite and folder.exists() and any(folder.iterdir()):
+        raise ValueError(f"{folder} already holds exports; choose another option name or "
+                         "folder, or add --overwrite to replace them")
+    return folder
+
+
+def _out_folder(args, inputs) -> Path:
+    return Path(args.out) if args.out else inputs.settings.path.parent / "out"
 
 
 #: Command-line settings -> the [solve] keys whose schema they obey.
@@ -307,16 +322,86 @@ def cmd_demo(args) -> int:
     return 0
 
 
+def cmd_export(args) -> int:
+    """Write the exports of a saved option again, without solving."""
+    from .names import check_name
+    from .outputs.exports import export_all
+    from .outputs.store import load_option
+
+    name = check_name(args.option)
+    inputs = _load(args.project)
+    folder = export_folder(_out_folder(args, inputs), name, args.overwrite)
+    outcome = load_option(inputs, name)
+    files = export_all(outcome.renamed(name), folder)
+    print(f"option {name!r} ({outcome.level}): wrote {len(files)} files to {folder}")
+    return 0
+
+
+def _edit(args, action) -> int:
+    """Run a lock/forbid edit and print what it did; a refused edit exits with 1."""
+    from .locks import EditRefused
+
+    try:
+        edit = action()
+    except EditRefused as err:
+        print(f"districting {args.command}: {err}", file=sys.stderr)
+        return 1
+    for line in edit.changed + edit.unchanged:
+        print(line)
+    print(f"wrote {edit.path}" if edit.wrote else f"nothing to change in {edit.path}")
+    return 0
+
+
+def cmd_lock(args) -> int:
+    from .locks import add_entries
+
+    return _edit(args, lambda: add_entries(args.project, "locks", args.level, args.units,
+                                           args.school))
+
+
+def cmd_forbid(args) -> int:
+    from .locks import add_entries
+
+    return _edit(args, lambda: add_entries(args.project, "forbids", args.level, args.units,
+                                           args.school))
+
+
+def cmd_unlock(args) -> int:
+    from .locks import remove_entries
+
+    return _edit(args, lambda: remove_entries(args.project, "locks", args.level, args.units))
+
+
+def cmd_unforbid(args) -> int:
+    from .locks import remove_entries
+
+    return _edit(args, lambda: remove_entries(args.project, "forbids", args.level, args.units,
+                                              args.school))
+
+
 # ----------------------------------------------------------------------------- parser
 def _add_solve_options(p: argparse.ArgumentParser) -> None:
-    p.add_argument("--plan-year", type=int, help="year the zones take effect")
-    p.add_argument("--max-util", type=float, help="highest share of capacity, e.g. 1.0")
-    p.add_argument("--min-util", type=float, help="lowest share of capacity, e.g. 0.7")
-    p.add_argument("--stability-weight", type=float,
-                   help="metres of travel charged per student moved from today's school")
-    p.add_argument("--max-distance", type=float, help="longest allowed travel in metres")
-    p.add_argument("--gap", type=float, help="relative optimality gap to prove, e.g. 1e-4")
-    p.add_argument("--time-limit", type=float, help="seconds; the best plan found is kept")
+    p.add_argument("--plan-year", type=int, metavar="YEAR",
+                   help="the year the new zones take effect, one of the projected years "
+                        "(default: the project's plan_year)")
+    p.add_argument("--max-util", type=float, metavar="SHARE",
+                   help="most students a school may hold, as a share of its capacity: "
+                        "0.9 for 90%% (default: the project's max_utilization)")
+    p.add_argument("--min-util", type=float, metavar="SHARE",
+                   help="fewest students an open school must hold, as a share of its "
+                        "capacity: 0.6 for 60%% (default: the project's min_utilization)")
+    p.add_argument("--stability-weight", type=float, metavar="METRES",
+                   help="metres of travel charged for each student moved away from "
+                        "today's school: higher keeps more students where they are (0: none)")
+    p.add_argument("--max-distance", type=float, metavar="METRES",
+                   help="longest trip allowed from a unit to its school, in metres "
+                        "(0: no limit)")
+    p.add_argument("--gap", type=float, metavar="SHARE",
+                   help="how close to the best possible plan the answer must be proven, as "
+                        "a share: 0.001 for 0.1%% (default: the project's gap)")
+    p.add_argument("--time-limit", type=float, metavar="SECONDS",
+                   help="seconds per level; at the limit the best valid plan found is kept "
+                        "and says how close to the best possible it is")
     p.add_argument("--solver", help="'highs' (default) or any solver name Pyomo drives")
     _add_travel_option(p)
 
@@ -329,52 +414,132 @@ def _add_travel_option(p: argparse.ArgumentParser) -> None:
                    + " (default: the project's [solve] travel)")
 
 
+def _project_arg(p: argparse.ArgumentParser) -> None:
+    p.add_argument("project", metavar="PROJECT",
+                   help="the project file (PROJECT.toml), or a folder holding project.toml")
+
+
+def _edit_args(p: argparse.ArgumentParser, school: str | None) -> None:
+    _project_arg(p)
+    p.add_argument("--level", required=True,
+                   help="the school level, as named in the project (e.g. elementary)")
+    p.add_argument("units", nargs="+", metavar="UNIT",
+                   help="planning unit ids, as in the units layer's id column")
+    if school is not None:
+        p.add_argument("--school", required=school == "required", metavar="SITE",
+                       help="the school's site id, as in the sites layer's id column"
+                            + (" (default: every school)" if school == "optional" else ""))
+
+
+_EXAMPLES = """\
+examples:
+  districting check town/                # a folder: checks town/project.toml
+  districting solve town/ --level elementary --save "Option A" --time-limit 120
+  districting lock town/ --level elementary U0412 U0413 --school E07
+  districting export town/ --option "Option A" --out exports
+  districting packet town/ --options "Option A,Option B" --out packet.pdf
+
+Distances are in metres, times in seconds, shares of capacity as 0.9 for 90%.
+Results are decision support; the board decides under its policy and law.
+"""
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="districting",
-        description="Attendance-zone options for school district planning staff.",
-        epilog="Results are decision support; the board decides under its policy and law.",
+        description="Attendance-zone options for school district planning staff: check a "
+                    "project, solve a level, lock units, save, export and print options.",
+        epilog=_EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    sub = parser.add_subparsers(dest="command", required=True)
+    sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
-    p = sub.add_parser("check", help="validate a project and print a summary")
-    p.add_argument("project")
+    p = sub.add_parser("check", help="validate a project and print a summary",
+                       description="Read every layer the project names and report every "
+                                   "problem at once (file, row or unit, and the fix). "
+                                   "Writes nothing.")
+    _project_arg(p)
     p.set_defaults(func=cmd_check)
 
-    p = sub.add_parser("solve", help="solve one level (or all) and write the plan")
-    p.add_argument("project")
-    p.add_argument("--level", default="all", help="elementary, middle, high, or all")
-    p.add_argument("--save", metavar="NAME", help="save the plan as a named option")
-    p.add_argument("--overwrite", action="store_true", help="replace an option of that name")
-    p.add_argument("--out", help="folder for the exports (default: <project>/out)")
+    p = sub.add_parser("solve", help="solve one level (or all) and write the plan",
+                       description="Compute new zones for a level, print a summary and write "
+                                   "the exports (GeoPackage, GeoJSON, Shapefile, CSV).")
+    _project_arg(p)
+    p.add_argument("--level", default="all",
+                   help="the school level to solve (e.g. elementary), or all (default)")
+    p.add_argument("--save", metavar="NAME",
+                   help="save the plan as a named option in the project's option store")
+    p.add_argument("--overwrite", action="store_true",
+                   help="replace an option of that name and its exports")
+    p.add_argument("--out", metavar="FOLDER",
+                   help="folder for the exports (default: out/ beside the project file)")
     _add_solve_options(p)
     p.set_defaults(func=cmd_solve)
 
-    p = sub.add_parser("options", help="list, delete, rename saved options; repair the store")
-    p.add_argument("project")
-    p.add_argument("--delete", metavar="NAME")
-    p.add_argument("--rename", nargs=2, metavar=("OLD", "NEW"))
+    p = sub.add_parser("options", help="list, delete, rename saved options; repair the store",
+                       description="List the saved options (level, status, students moved, "
+                                   "mean travel), or rename or delete one.")
+    _project_arg(p)
+    p.add_argument("--delete", metavar="NAME", help="delete the saved option NAME")
+    p.add_argument("--rename", nargs=2, metavar=("OLD", "NEW"),
+                   help="give the saved option OLD the name NEW")
     p.add_argument("--repair", action="store_true",
                    help="set a damaged option store aside and start a new, empty one")
     p.set_defaults(func=cmd_options)
 
-    p = sub.add_parser("verify", help="check a saved option against every rule, independently")
-    p.add_argument("project")
-    p.add_argument("--option", required=True, metavar="NAME")
+    p = sub.add_parser("verify", help="check a saved option against every rule, independently",
+                       description="Check a saved option rule by rule with a checker written "
+                                   "apart from the solver; exits with 1 when a rule is broken.")
+    _project_arg(p)
+    p.add_argument("--option", required=True, metavar="NAME", help="the saved option to check")
     p.set_defaults(func=cmd_verify)
 
-    p = sub.add_parser("packet", help="write the hearing packet (PDF + PNG pages)")
-    p.add_argument("project")
-    p.add_argument("--options", required=True, help="comma-separated option names")
-    p.add_argument("--out", default="packet.pdf")
+    p = sub.add_parser("packet", help="write the hearing packet (PDF + PNG pages)",
+                       description="Write the hearing packet comparing saved options with "
+                                   "today's zones: a PDF and a PNG copy of each page.")
+    _project_arg(p)
+    p.add_argument("--options", required=True, metavar="NAMES",
+                   help="comma-separated names of saved options, e.g. \"Option A,Option B\"")
+    p.add_argument("--out", default="packet.pdf", metavar="FILE.pdf",
+                   help="the PDF to write (default packet.pdf); the pages go beside it")
     p.set_defaults(func=cmd_packet)
 
-    p = sub.add_parser("demo", help="solve the bundled demo town and write everything")
-    p.add_argument("--out", default="out/demo", help="output folder (default out/demo)")
-    p.add_argument("--stability-weight", type=float, default=3000.0,
-                   help="weight of the 'fewer-moves' option (metres per student moved)")
-    p.add_argument("--time-limit", type=float, default=60.0,
-                   help="seconds per solve; the best plan found is kept, with its gap")
+    p = sub.add_parser("export", help="write a saved option's exports again, without solving",
+                       description="Write a saved option's GeoPackage, GeoJSON, Shapefile and "
+                                   "CSV files, as solve --save does, without solving again.")
+    _project_arg(p)
+    p.add_argument("--option", required=True, metavar="NAME", help="the saved option to export")
+    p.add_argument("--out", metavar="FOLDER",
+                   help="folder for the exports; the option's files go into a sub-folder "
+                        "named after it (default: out/ beside the project file)")
+    p.add_argument("--overwrite", action="store_true",
+                   help="replace files already in the option's export folder")
+    p.set_defaults(func=cmd_export)
+
+    for verb, kind, school, func in (
+        ("lock", "lock units to a school (the board's decision)", "required", cmd_lock),
+        ("unlock", "remove the locks of units", None, cmd_unlock),
+        ("forbid", "forbid units from going to a school", "required", cmd_forbid),
+        ("unforbid", "remove forbids of units (all, or those to one school)", "optional",
+         cmd_unforbid),
+    ):
+        p = sub.add_parser(verb, help=kind, description=kind[0].upper() + kind[1:] + " in "
+                           "the project file. Every unit and school is checked first and the "
+                           "edited file is read again before it replaces the old one; the "
+                           "rest of the file (comments, order) stays as it was.")
+        _edit_args(p, school)
+        p.set_defaults(func=func)
+
+    p = sub.add_parser("demo", help="solve the bundled demo town and write everything",
+                       description="Copy the invented demo town, solve every level twice, save "
+                                   "the options and write every export and the packets.")
+    p.add_argument("--out", default="out/demo", metavar="FOLDER",
+                   help="output folder (default out/demo)")
+    p.add_argument("--stability-weight", type=float, default=3000.0, metavar="METRES",
+                   help="metres of travel charged per student moved, for the 'fewer-moves' "
+                        "option (default 3000)")
+    p.add_argument("--time-limit", type=float, default=60.0, metavar="SECONDS",
+                   help="seconds per solve; the best plan found is kept, with how close to "
+                        "the best possible it is (default 60)")
     _add_travel_option(p)
     p.set_defaults(func=cmd_demo)
 

@@ -129,10 +129,13 @@ def _default_port(address: str) -> int:
 def serve_command(args: argparse.Namespace) -> int:
     """Start the workbench server; blocks until stopped (Ctrl+C)."""
     if args.project:
-        project = Path(args.project).expanduser().resolve()
+        from districting.intake import project_file, validate_project
+
+        # a folder stands for its project.toml, as in every other command
+        project = project_file(Path(args.project).expanduser()).resolve()
         if not project.is_file():
-            print(f"{args.project}: no such project file; give the path of a project.toml "
-                  "(or run without a project to open the demo town)", file=sys.stderr)
+            print(validate_project(project)[1].format() + "\n(or run without a project to "
+                  "open the demo town)", file=sys.stderr)
             return 1
     else:
         from districting.demo import copy_demo
@@ -179,8 +182,8 @@ def register_serve(subparsers) -> None:
     p = subparsers.add_parser(
         "serve", help="open the workbench in a browser (the demo town when no project)",
         description="Start the districting workbench (a local web page) and print its URL.")
-    p.add_argument("project", nargs="?", help="project.toml (default: a copy of the demo town "
-                   f"in ./{DEMO_FOLDER}/)")
+    p.add_argument("project", nargs="?", help="the project file, or a folder holding "
+                   f"project.toml (default: a copy of the demo town in ./{DEMO_FOLDER}/)")
     p.add_argument("--address", default="127.0.0.1", help="address to listen on "
                    "(default 127.0.0.1: this computer only)")
     p.add_argument("--port", type=int, default=0,

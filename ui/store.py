@@ -426,9 +426,10 @@ class Store(StoreRecords, PlanTables):
                        "unchanged. Raise the time limit in Settings, or remove locks and relax "
                        "the utilization band, then press Rerun.")
             else:
-                msg = ("No plan fits these settings. " + (
-                    plan.message or "Relax the utilization band, remove locks or forbids, "
-                    "or raise capacities, then press Rerun."))
+                msg = (plan.message  # engine.findings.no_plan_text: lead, then causes
+                       or "No plan fits these settings. Relax the utilization band, remove "
+                       "locks or forbids, or raise capacities.") + (
+                    "\nThe plan on screen is unchanged; change the settings, then press Rerun.")
             self.last_message = msg
             raise StoreError(msg)
         self.previous[level] = before

@@ -12,16 +12,21 @@ Springer 2008).
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 import pyomo.environ as pyo
 
 from ..problem import Problem
-from .precheck import num, plural, precheck, prefix
+from .findings import Finding, no_plan_text, plural, students
+from .precheck import precheck
 from .pyomo_route import build_model, solve_model
 
-__all__ = ["explain"]
+__all__ = ["explain", "diagnose"]
 
 _FAMILY_ORDER = ("floor", "capacity", "locks", "max_moved")
+#: family -> the rule it belongs to in the lead line (:data:`.findings.RULES`).
+_FAMILY_RULE = {"floor": "band", "capacity": "band", "locks": "lock", "max_moved": "moves"}
 _FAMILY_WORDS = {
     "floor": "the minimum utilization of schools",
     "capacity": "the capacity limits",
@@ -61,7 +66,7 @@ def _feasible(problem: Problem, contiguity: str, drop: set[str], time_limit: flo
 
 
 def _elastic_details(problem: Problem, contiguity: str, fams: list[str],
-                     time_limit: float) -> list[str]:
+                     time_limit: float) -> list[Finding]:
     """Solve with slack on ``fams`` (min total slack) and describe the rows that give."""
     m = build_model(problem, contiguity, elastic=fams)
     d0 = problem.demand[0]
@@ -88,83 +93,100 @@ def _elastic_details(problem: Problem, contiguity: str, fams: list[str],
             s = v.value or 0.0
             if s <= 1e-6:
                 continue
-            if fam == "capacity":
+            whole = math.ceil(s - 1e-6)
+            if fam in ("capacity", "floor"):
                 t, j = key
-                lim = problem.max_util[j] * cap[j]
-                out.append(f"{problem.site_label(j)} in {problem.year_label(t)} would need "
-                           f"{num(s)} {plural(s, 'seat')} over its limit of {num(lim)}")
-            elif fam == "floor":
-                t, j = key
-                fl = problem.min_util[j] * cap[j]
-                out.append(f"{problem.site_label(j)} in {problem.year_label(t)} would be "
-                           f"{num(s)} {plural(s, 'student')} short of its floor of {num(fl)}")
+                school, year = problem.site_label(j), problem.year_label(t)
+                if fam == "capacity":
+                    lim = problem.max_util[j] * cap[j]
+                    text = (f"{school} in {year} would need {students(s)} "
+                            f"{plural(whole, 'seat')} over its limit of "
+                            f"{students(lim, up=False)} (capacity x maximum utilization).")
+                else:
+                    fl = problem.min_util[j] * cap[j]
+                    text = (f"{school} in {year} would be {students(s)} "
+                            f"{plural(whole, 'student')} short of its floor of "
+                            f"{students(fl)} (capacity x minimum utilization).")
+                out.append(Finding("band", text, _FIXES[fam], school, year=year))
             elif fam == "locks":
-                j = int(problem.locks[key])
-                out.append(f"{problem.unit_label(key)} would have to leave its lock to "
-                           f"{problem.site_label(j)}")
+                school, unit = problem.site_label(int(problem.locks[key])), problem.unit_label(key)
+                out.append(Finding("lock", f"{unit} would have to leave its lock to {school}.",
+                                   _FIXES[fam], school, unit))
             elif fam == "max_moved":
-                out.append(f"the move limit of {num(problem.max_moved)} would have to rise to "
-                           f"{num(problem.max_moved + s)}")
+                out.append(Finding("moves", "The move limit of "
+                                   f"{students(problem.max_moved, up=False)} would have to "
+                                   f"rise to {students(problem.max_moved + s)}.", _FIXES[fam]))
     return out
 
 
 _FIXES = {
-    "floor": "lower the minimum utilization of those schools, or let one close",
-    "capacity": "raise capacity or the maximum utilization there, or open another school",
-    "locks": "remove or change those locks",
-    "max_moved": "raise the move limit",
-    "contiguity": "add adjacency links (bridges) or allow more units to go to those schools",
+    "floor": "lower the minimum utilization of this school, or let a school close.",
+    "capacity": "raise capacity or the maximum utilization here, or open another school.",
+    "locks": "remove or change this lock.",
+    "max_moved": "raise the move limit.",
+    "contiguity": "add adjacency links (bridges) or allow more units to go to those schools.",
 }
 
 
 def explain(problem: Problem, time_limit: float = 30.0) -> str:
-    """Which constraint families conflict, which schools and years, and what to relax.
+    """Why ``problem`` has no plan, as :func:`.findings.no_plan_text` words it.
 
     Call it when the solver proved the problem infeasible. Pre-check findings, when there
-    are any, are returned first. Otherwise families are dropped in the order floors,
-    capacity, locks, move limit (each re-solve without contiguity, then with the exact flow
-    form of contiguity when the zones must be connected); the families whose removal makes a
-    plan possible are the conflict, and an elastic solve names the rows that must give.
+    are any, are the answer. Otherwise families are dropped in the order floors, capacity,
+    locks, move limit (each re-solve without contiguity, then with the exact flow form of
+    contiguity when the zones must be connected); the families whose removal makes a plan
+    possible are the conflict, and an elastic solve names the rows that must give.
     ``time_limit`` bounds each re-solve in seconds.
     """
+    return no_plan_text(diagnose(problem, time_limit), problem.level)
+
+
+def diagnose(problem: Problem, time_limit: float = 30.0) -> list[Finding]:
+    """The causes :func:`explain` words: pre-check findings, or the conflicting rules."""
     found = precheck(problem)
     if found:
-        return "\n".join(found)
-    pre = prefix(problem)
+        return found
     fams = _present(problem)
     stages = ["none"] + (["flow"] if problem.contiguous else [])
     for contiguity in stages:
         base = _feasible(problem, contiguity, set(), time_limit)
         if base is None:
-            return (f"{pre}no plan was found within {time_limit:.0f} s and infeasibility could "
-                    "not be located in that time. Loosen the utilization band, the move "
-                    "limit or the locks, or allow more time.")
+            return [Finding("undecided", f"No plan was found within {time_limit:.0f} s and "
+                            "the conflict could not be located in that time.", "loosen the "
+                            "utilization band, the move limit or the locks, or allow more "
+                            "time.")]
         if base:
             continue
         needed = _needed(problem, contiguity, fams, time_limit)
         if needed is None and contiguity == "flow":
-            return (f"{pre}the zones cannot all be connected: every other rule can be met, "
-                    "but some units cannot join a school's zone through units that may go "
-                    "there. To fix it: " + _FIXES["contiguity"] + ".")
+            return [Finding("contiguity", "Every other rule can be met, but some units cannot "
+                            "join a school's zone through units that may go there.",
+                            _FIXES["contiguity"])]
         if needed is None:
-            return (f"{pre}no plan exists even without the utilization band, the locks and the "
-                    "move limit: the number of open schools, closures, forbidden pairs and "
-                    "the maximum distance leave some units without a school they can join. "
-                    "Allow more pairs (maximum distance, forbids) or open more schools.")
+            return [Finding("pairs", "No plan exists even without the utilization band, the "
+                            "locks and the move limit: the number of open schools, closures, "
+                            "forbidden pairs and the maximum distance leave some units "
+                            "without a school they can join.", "allow more pairs (maximum "
+                            "distance, forbids) or open more schools.")]
         details = _elastic_details(problem, contiguity, needed, time_limit)
         words = " and ".join(_FAMILY_WORDS[f] for f in needed)
-        fixes = "; ".join(_FIXES[f] for f in needed + (["contiguity"] if contiguity == "flow"
-                                                          else []))
-        where = " together with connected zones" if contiguity == "flow" else ""
-        text = f"{pre}no plan meets {words}{where}."
-        if details:
-            text += " The smallest change that allows a plan: " + "; ".join(details) + "."
-        return text + f" To fix it: {fixes}."
+        if not details:
+            details = [Finding(_FAMILY_RULE[f], f"No plan meets {words}.", _FIXES[f])
+                       for f in needed]
+        if len(needed) > 1:
+            details.insert(0, Finding("together", f"No plan meets {words} together; the "
+                                      "smallest change that allows a plan is listed below.",
+                                      "; ".join(_FIXES[f] for f in needed),
+                                      lead=f"{words} conflict"))
+        if contiguity == "flow":
+            details.append(Finding("contiguity", f"{words[0].upper()}{words[1:]} cannot be "
+                                   "met together with connected zones.", _FIXES["contiguity"]))
+        return details
     if problem.contiguous:
-        return (f"{pre}the exact flow formulation finds a plan that meets every rule, so the "
-                "problem is feasible; the infeasible answer came from a limit of the solve "
-                "loop. Re-run with more time or rounds.")
-    return f"{pre}a plan that meets every rule exists; re-run the solve."
+        return [Finding("solve", "The exact flow formulation finds a plan that meets every "
+                        "rule, so the infeasible answer came from a limit of the solve loop.",
+                        "re-run with more time or rounds.")]
+    return [Finding("solve", "A plan that meets every rule exists.", "re-run the solve.")]
 
 
 def _needed(problem: Problem, contiguity: str, fams: list[str], time_limit: float):

@@ -8,34 +8,23 @@ infeasibility the solver proved, is explained by :mod:`districting.engine.diagno
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import breadth_first_order
 
 from ..problem import Problem
+from .findings import Finding, plural, students
 
-__all__ = ["precheck", "unbuildable", "reachable", "prefix", "num", "plural"]
+__all__ = ["precheck", "unbuildable", "reachable"]
+
 
 # ---------------------------------------------------------------------------- wording
-def prefix(problem: Problem) -> str:
-    """"Middle level: " before a finding (nothing without a level name)."""
-    return f"{problem.level.capitalize()} level: " if problem.level else ""
-
-
 def _units(problem: Problem, idx, most: int = 5) -> str:
     idx = [int(i) for i in idx]
     names = ", ".join(problem.unit_label(i) for i in idx[:most])
     return names + (f" and {len(idx) - most} more" if len(idx) > most else "")
-
-
-def plural(value: float, word: str) -> str:
-    """``word`` with an s unless ``value`` is one."""
-    return word if abs(value - 1) < 1e-9 else word + "s"
-
-
-def num(value: float) -> str:
-    """A count in words: thousands separated, one decimal only when not whole."""
-    return f"{value:,.0f}" if abs(value - round(value)) < 1e-9 else f"{value:,.1f}"
 
 
 # ---------------------------------------------------------------------------- graph
@@ -69,7 +58,7 @@ def reachable(problem: Problem) -> np.ndarray:
 
 
 # ---------------------------------------------------------------------------- checks
-def unbuildable(problem: Problem) -> list[str]:
+def unbuildable(problem: Problem) -> list[Finding]:
     """Findings that leave no model to write down (the Pyomo route refuses to build then).
 
     A unit with no allowed school, a lock to a closed, forbidden or unreachable pair, an
@@ -80,8 +69,9 @@ def unbuildable(problem: Problem) -> list[str]:
             + _root_pair_issues(problem) + _forced_move_issues(problem))
 
 
-def precheck(problem: Problem) -> list[str]:
-    """Cheap reasons, in words, why ``problem`` cannot have a plan (empty: none found).
+def precheck(problem: Problem) -> list[Finding]:
+    """Cheap reasons why ``problem`` cannot have a plan (empty: none found); each names the
+    school or unit, the year and the fix (:func:`.findings.no_plan_text` words them).
 
     Besides :func:`unbuildable`: a year whose students exceed what the open schools can seat,
     a school that cannot reach its minimum utilization with every unit it may take, a locked
@@ -98,62 +88,60 @@ def precheck(problem: Problem) -> list[str]:
     return reasons
 
 
-def _count_issues(problem: Problem) -> list[str]:
+def _count_issues(problem: Problem) -> list[Finding]:
     p = problem.p
     if p is None:
         return []
     forced = int(problem.open_sites.sum())
     can_open = int((~problem.closed_sites).sum())
-    pre = prefix(problem)
     if forced > p:
-        return [f"{pre}the run asks for {p} open {plural(p, 'school')}, but {forced} must "
-                f"stay open. Raise the number of open schools to at least {forced}, or make "
-                "some of them candidates."]
+        return [Finding("open_count", f"The run asks for {p} open {plural(p, 'school')}, but "
+                        f"{forced} must stay open.", f"raise the number of open schools to at "
+                        f"least {forced}, or make some of them candidates.")]
     if can_open < p:
-        return [f"{pre}the run asks for {p} open {plural(p, 'school')}, but only {can_open} "
-                f"are not closed. Lower the number of open schools to {can_open} or add "
-                "candidate sites."]
+        return [Finding("open_count", f"The run asks for {p} open {plural(p, 'school')}, but "
+                        f"only {can_open} are not closed.", f"lower the number of open schools "
+                        f"to {can_open} or add candidate sites.")]
     return []
 
 
-def _lock_pair_issues(problem: Problem) -> list[str]:
-    pre = prefix(problem)
+def _lock_pair_issues(problem: Problem) -> list[Finding]:
     out = []
     for i in np.flatnonzero(problem.locks >= 0).tolist():
         j = int(problem.locks[i])
         unit, school = problem.unit_label(i), problem.site_label(j)
+        lock = f"{unit} is locked to {school}, but "
         if problem.closed_sites[j]:
-            out.append(f"{pre}{unit} is locked to {school}, but {school} is closed in this "
-                       "run. Remove the lock or reopen the school.")
+            out.append(Finding("lock", f"{lock}{school} is closed in this run.",
+                               "remove the lock or reopen the school.", school, unit))
         elif problem.forbidden[i, j]:
-            out.append(f"{pre}{unit} is locked to {school}, but that pair is also forbidden. "
-                       "Remove either the lock or the forbid.")
+            out.append(Finding("lock", f"{lock}that pair is also forbidden.",
+                               "remove either the lock or the forbid.", school, unit))
         elif not np.isfinite(problem.cost[i, j]):
-            out.append(f"{pre}{unit} is locked to {school}, but {school} is out of reach for "
-                       "it (beyond the maximum distance or missing from the travel matrix). "
-                       "Raise the maximum distance or remove the lock.")
+            out.append(Finding("lock", f"{lock}{school} is out of reach for it (beyond the "
+                               "maximum distance or missing from the travel matrix).",
+                               "raise the maximum distance or remove the lock.", school, unit))
     return out
 
 
-def _no_school_issues(problem: Problem) -> list[str]:
+def _no_school_issues(problem: Problem) -> list[Finding]:
     allowed = problem.allowed & ~problem.closed_sites[None, :]
-    pre = prefix(problem)
     out = []
     for i in np.flatnonzero(~allowed.any(axis=1) & (problem.locks < 0)).tolist():
-        students = problem.demand[:, i].max()
-        who = (f"has {num(students)} students but" if students > 0 else
-               "has no students, but every unit must belong to a zone, and it")
-        out.append(f"{pre}{problem.unit_label(i)} {who} cannot go to any school: every school "
-                   "is closed, forbidden or out of reach for it. Raise the maximum distance, "
-                   "remove a forbid, or open a school near it.")
+        most = problem.demand[:, i].max()
+        who = (f"has {students(most)} {plural(math.ceil(most), 'student')} but" if most > 0
+               else "has no students, but every unit must belong to a zone, and it")
+        unit = problem.unit_label(i)
+        out.append(Finding("no_school", f"{unit} {who} cannot go to any school: every school "
+                           "is closed, forbidden or out of reach for it.", "raise the maximum "
+                           "distance, remove a forbid, or open a school near it.", unit=unit))
     return out
 
 
-def _root_pair_issues(problem: Problem) -> list[str]:
+def _root_pair_issues(problem: Problem) -> list[Finding]:
     if problem.roots is None:
         return []
     allowed = problem.allowed
-    pre = prefix(problem)
     out = []
     for j in np.flatnonzero(problem.always_open).tolist():
         r = int(problem.roots[j])
@@ -161,9 +149,11 @@ def _root_pair_issues(problem: Problem) -> list[str]:
             continue
         why = ("it is locked to " + problem.site_label(int(problem.locks[r]))
                if problem.locks[r] >= 0 else "the pair is forbidden or out of reach")
-        out.append(f"{pre}{problem.site_label(j)} must be open, but its own unit "
-                   f"{problem.unit_label(r)} may not be assigned to it ({why}). Remove that "
-                   "lock or forbid, or make the school a candidate.")
+        school = problem.site_label(j)
+        out.append(Finding("own_unit", f"{school} must be open, but its own unit "
+                           f"{problem.unit_label(r)} may not be assigned to it ({why}).",
+                           "remove that lock or forbid, or make the school a candidate.",
+                           school))
     return out
 
 
@@ -176,17 +166,19 @@ def _must_move(problem: Problem) -> np.ndarray:
     return idx[~stay_ok]
 
 
-def _forced_move_issues(problem: Problem) -> list[str]:
+def _forced_move_issues(problem: Problem) -> list[Finding]:
     if problem.max_moved is None:
         return []
     idx = _must_move(problem)
     forced = float(problem.demand[0, idx].sum())
     if forced <= problem.max_moved + 1e-9:
         return []
-    return [f"{prefix(problem)}at least {num(forced)} students in {problem.year_label(0)} must "
-            "change school because their current school is closed or no longer allowed for "
-            f"their unit ({_units(problem, idx)}), but the move limit is "
-            f"{num(problem.max_moved)}. Raise the move limit to at least {num(forced)}."]
+    year = problem.year_label(0)
+    return [Finding("moves", f"At least {students(forced)} students in {year} must change "
+                    "school because their current school is closed or no longer allowed for "
+                    f"their unit ({_units(problem, idx)}), but the move limit is "
+                    f"{students(problem.max_moved, up=False)}.", "raise the move limit to at "
+                    f"least {students(forced).removeprefix('about ')}.", year=year)]
 
 
 def _seats(problem: Problem) -> np.ndarray:
@@ -195,7 +187,7 @@ def _seats(problem: Problem) -> np.ndarray:
     return np.where(problem.closed_sites, 0.0, seats)
 
 
-def _year_capacity_issues(problem: Problem) -> list[str]:
+def _year_capacity_issues(problem: Problem) -> list[Finding]:
     if problem.capacity is None:
         return []
     seats = _seats(problem)
@@ -209,16 +201,20 @@ def _year_capacity_issues(problem: Problem) -> list[str]:
     how = f", with the {extra} largest candidate sites opened" if extra else ""
     out = []
     for t in range(problem.n_years):
-        students = problem.demand[t].sum()
-        if students > best + 1e-6:
-            out.append(f"{prefix(problem)}in {problem.year_label(t)} there are "
-                       f"{num(students)} students, but the open schools can seat at most "
-                       f"{num(best)} (capacity x maximum utilization{how}). Raise capacity or "
-                       "the maximum utilization, or open more schools.")
+        total = problem.demand[t].sum()
+        if total > best + 1e-6:
+            year = problem.year_label(t)
+            short = total - best
+            out.append(Finding("seats", f"In {year} there are {students(total)} students, but "
+                               f"the open schools can seat at most {students(best, up=False)} "
+                               f"(capacity x maximum utilization{how}): {students(short)} "
+                               f"{plural(math.ceil(short - 1e-9), 'seat')} short.",
+                               "raise capacity or the maximum utilization, or open more "
+                               "schools.", year=year))
     return out
 
 
-def _shared_root_issues(problem: Problem) -> list[str]:
+def _shared_root_issues(problem: Problem) -> list[Finding]:
     if problem.roots is None:
         return []
     out = []
@@ -228,13 +224,14 @@ def _shared_root_issues(problem: Problem) -> list[str]:
     for r in values[counts > 1].tolist():
         sites = always[roots == r]
         names = " and ".join(problem.site_label(int(j)) for j in sites)
-        out.append(f"{prefix(problem)}{names} all stand in {problem.unit_label(r)}, but a "
-                   "unit belongs to one zone, so they cannot all be open. Give each school "
-                   "its own unit, or close all but one.")
+        out.append(Finding("shared_unit", f"{names} all stand in {problem.unit_label(r)}, but "
+                           "a unit belongs to one zone, so they cannot all be open.",
+                           "give each school its own unit, or close all but one.",
+                           unit=problem.unit_label(r)))
     return out
 
 
-def _floor_issues(problem: Problem, reach: np.ndarray) -> list[str]:
+def _floor_issues(problem: Problem, reach: np.ndarray) -> list[Finding]:
     if problem.capacity is None:
         return []
     out = []
@@ -243,18 +240,19 @@ def _floor_issues(problem: Problem, reach: np.ndarray) -> list[str]:
         for t in range(problem.n_years):
             most = problem.demand[t, reach[:, j]].sum()
             if most < floor - 1e-6:
-                out.append(
-                    f"{prefix(problem)}{problem.site_label(j)} cannot reach its minimum "
-                    f"utilization in {problem.year_label(t)}: even with every unit it may take "
-                    f"it would have {num(most)} students, below its floor of {num(floor)} "
-                    f"({problem.min_util[j]:.0%} of {num(problem.capacity[j])} seats). Lower "
-                    "its minimum utilization, allow it more units (maximum distance, forbids), "
-                    "or close it.")
+                school, year = problem.site_label(j), problem.year_label(t)
+                out.append(Finding(
+                    "band", f"{school} cannot reach its minimum utilization in {year}: even "
+                    f"with every unit it may take it would have {students(most, up=False)} "
+                    f"students, below its floor of {students(floor)} "
+                    f"({problem.min_util[j]:.0%} of {students(problem.capacity[j], up=False)} "
+                    "seats).", "lower its minimum utilization, allow it more units (maximum "
+                    "distance, forbids), or close it.", school, year=year))
                 break
     return out
 
 
-def _lock_reach_issues(problem: Problem, reach: np.ndarray) -> list[str]:
+def _lock_reach_issues(problem: Problem, reach: np.ndarray) -> list[Finding]:
     if not problem.contiguous or problem.roots is None:
         return []
     out = []
@@ -264,24 +262,27 @@ def _lock_reach_issues(problem: Problem, reach: np.ndarray) -> list[str]:
         r = int(problem.roots[j])
         if r < 0 or reach[i, j] or not allowed[i, j] or problem.closed_sites[j]:
             continue
-        school = problem.site_label(j)
-        out.append(f"{prefix(problem)}{problem.unit_label(i)} is locked to {school}, but it "
-                   f"cannot be joined to {school}'s zone: every path from the school's unit "
-                   f"{problem.unit_label(r)} runs through units that may not go to {school} "
-                   "(locked elsewhere, forbidden or out of reach). Remove the lock, or allow a "
-                   f"connecting unit to go to {school}.")
+        school, unit = problem.site_label(j), problem.unit_label(i)
+        out.append(Finding("lock", f"{unit} is locked to {school}, but it cannot be joined "
+                           f"to {school}'s zone: every path from the school's unit "
+                           f"{problem.unit_label(r)} runs through units that may not go to "
+                           f"{school} (locked elsewhere, forbidden or out of reach).",
+                           f"remove the lock, or allow a connecting unit to go to {school}.",
+                           school, unit))
     return out
 
 
-def _island_issues(problem: Problem, reach: np.ndarray) -> list[str]:
+def _island_issues(problem: Problem, reach: np.ndarray) -> list[Finding]:
     if not problem.contiguous:
         return []
     allowed = problem.allowed & ~problem.closed_sites[None, :]
     cut_off = allowed.any(axis=1) & ~reach.any(axis=1) & (problem.locks < 0)
     out = []
     for i in np.flatnonzero(cut_off).tolist():
-        out.append(f"{prefix(problem)}{problem.unit_label(i)} cannot be joined to any "
-                   "school's zone: in the unit adjacency it is cut off from every school it "
-                   "may attend (an island, or surrounded by units that may not go there). Add "
-                   "a link across the gap in the adjacency, or allow it a school it can reach.")
+        unit = problem.unit_label(i)
+        out.append(Finding("island", f"{unit} cannot be joined to any school's zone: in the "
+                           "unit adjacency it is cut off from every school it may attend (an "
+                           "island, or surrounded by units that may not go there).", "add a "
+                           "link across the gap in the adjacency, or allow it a school it can "
+                           "reach.", unit=unit))
     return out

@@ -119,7 +119,7 @@ def build_model(
         raise ValueError(f"elastic families must be among {ELASTIC_FAMILIES}; got {unknown}")
     reasons = unbuildable(problem)
     if reasons:
-        raise ValueError("\n".join(reasons))
+        raise ValueError("\n".join(map(str, reasons)))
 
     f = formulate(problem, elastic=elastic)
     m = pyo.ConcreteModel(name=f"districting {problem.level}".strip())

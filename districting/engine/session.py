@@ -34,6 +34,7 @@ from ..plan import Plan, Round
 from ..problem import Problem, _same_array
 from .connectivity import Cut, UnitGraph, fragments, free_units, plan_checks
 from .cuts import separator_cuts
+from .findings import no_plan_text
 from .heuristics import constructive, fix_and_resolve, prepare_start, rounded
 from .highs_route import HighsRoute
 from .improve import relocate
@@ -169,7 +170,7 @@ class Session:
             start = self.last.assignment
         reasons = precheck(problem)
         if reasons:
-            return infeasible_plan(problem, "\n".join(reasons), route)
+            return infeasible_plan(problem, no_plan_text(reasons, problem.level), route)
         graph = self._graph
         passable = free_units(problem) if graph is not None else None
         relaxed = bool(route == "highs" and passable is not None and passable.any()

@@ -29,13 +29,14 @@ from .settings import read_settings
 from .sites import read_sites
 from .streets import read_streets
 from .summary import check_summary
+from .tomlfile import PROJECT_FILE, project_file
 from .units import read_units
 from .zones import read_zones
 
 __all__ = [
     "Settings", "SolveSettings", "Lock", "Source", "Inputs", "Report", "ProjectError",
     "LEVELS", "load_project", "validate_project", "read_settings", "read_inputs",
-    "check_summary",
+    "check_summary", "project_file", "PROJECT_FILE",
 ]
 
 #: The steps of a reading, in order; each goes as far as the data allow.
@@ -68,9 +69,11 @@ def read_inputs(settings: Settings, report: Report, *, cache: bool = True) -> In
 def validate_project(path: str | Path, *, cache: bool = True) -> tuple[Inputs | None, Report]:
     """Read and check a project: (Inputs, report), Inputs None when there are errors.
 
-    Every problem found is in the report at once. Writes nothing but, with ``cache``, the
-    travel along streets to the project's disk cache (``.districting-cache/``).
+    Every problem found is in the report at once. A folder stands for its
+    ``project.toml``. Writes nothing but, with ``cache``, the travel along streets to the
+    project's disk cache (``.districting-cache/``).
     """
+    path = project_file(path)
     report = Report(path)
     settings = read_settings(path, report)
     if settings is None:

@@ -15,7 +15,10 @@ from pathlib import Path
 
 from .schema import KINDS, SCHEMA, example, table_of
 
-__all__ = ["read_toml", "syntax_fix"]
+__all__ = ["read_toml", "syntax_fix", "project_file", "PROJECT_FILE"]
+
+#: The file a command looks for when it is given a folder instead of a project file.
+PROJECT_FILE = "project.toml"
 
 _AT = re.compile(r"\s*\(at line (\d+), column (\d+)\)$|\s*\(at end of document\)$")
 
@@ -110,8 +113,26 @@ def syntax_fix(message: str, line: str = "", before: list[str] | None = None) ->
     return _GENERIC
 
 
+def project_file(path: str | Path) -> Path:
+    """The project file a command was given: ``path`` itself, or ``path/project.toml``
+    when ``path`` is a folder holding one (a folder without it is reported by
+    :func:`read_toml`)."""
+    path = Path(path)
+    if path.is_dir() and (path / PROJECT_FILE).is_file():
+        return path / PROJECT_FILE
+    return path
+
+
 def read_toml(path: Path, report) -> dict | None:
     """The parsed project file, or None after reporting why it cannot be read."""
+    if path.is_dir():
+        tomls = sorted(p.name for p in path.glob("*.toml") if p.is_file())
+        shown = (f"; its .toml files: {', '.join(tomls)}" if tomls
+                 else "; the folder has no .toml file at all")
+        report.error(path, "", f"the folder holds no {PROJECT_FILE}{shown}",
+                     "give the project file's path (FOLDER/NAME.toml), or name the project "
+                     f"file {PROJECT_FILE}")
+        return None
     if not path.is_file():
         report.error(path, "", "the project file does not exist",
                      "give the path of the project's .toml file")

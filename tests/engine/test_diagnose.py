@@ -2,10 +2,13 @@
 
 from __future__ import annotations
 
+import re
+
 import numpy as np
 
-from districting import Problem
+from districting import Problem, solve
 from districting.engine.diagnose import explain
+from districting.engine.findings import no_plan_text, students
 from districting.engine.precheck import precheck, reachable
 
 YEARS = (2027, 2028)
@@ -28,7 +31,7 @@ def path_edges(n):
 
 def only(reasons, *words):
     """The one reason holding every word (fails when none or several do)."""
-    hits = [r for r in reasons if all(w in r for w in words)]
+    hits = [str(r) for r in reasons if all(w in str(r) for w in words)]
     assert len(hits) == 1, reasons
     return hits[0]
 
@@ -44,7 +47,7 @@ def test_year_over_capacity():
     # 2028: 27 students, 2 x 12 seats = 24.
     p = make([[1, 2], [2, 1], [1, 1]], [[5, 5, 5], [9, 9, 9]], capacity=[12, 12])
     msg = only(precheck(p), "2028")
-    assert msg.startswith("Elementary level: in 2028 there are 27 students")
+    assert msg.startswith("In 2028 there are 27 students")
     assert "at most 24" in msg and "open more schools" in msg
 
 
@@ -122,7 +125,7 @@ def test_move_limit_below_forced_moves():
     p = make(np.ones((3, 3)), [7, 5, 2], closed_sites=[False, False, True],
              current=[2, 2, 0], max_moved=10)
     msg = only(precheck(p), "move limit")
-    assert "at least 12 students in 2027 must change school" in msg
+    assert "At least 12 students in 2027 must change school" in msg
     assert "U0, U1" in msg and "at least 12" in msg
 
 
@@ -145,7 +148,8 @@ def test_explain_names_the_floor_conflict():
     p = make([[1, 2], [2, 1], [1, 2]], [10, 1, 1], capacity=[10, 10], min_util=0.8)
     assert precheck(p) == []
     msg = explain(p)
-    assert msg.startswith("Elementary level: no plan meets the minimum utilization")
+    assert msg.startswith("No elementary plan meets every rule: 1 school cannot stay inside "
+                          "its band in 2027.\n- ")
     assert "6 students short of its floor of 8" in msg
     assert "lower the minimum utilization" in msg
 
@@ -155,7 +159,9 @@ def test_explain_names_capacity_against_locks():
     p = make([[1, 2], [2, 1], [1, 1]], [6, 6, 6], capacity=[10, 10], locks={0: 0, 1: 0})
     assert precheck(p) == []
     msg = explain(p)
-    assert "capacity limits" in msg and "Aspen in 2027 would need 2 seats over" in msg
+    assert msg.startswith("No elementary plan meets every rule: 1 school cannot stay inside "
+                          "its band in 2027.\n")
+    assert "- Aspen in 2027 would need 2 seats over its limit of 10" in msg
 
 
 def test_explain_names_contiguity():
@@ -172,4 +178,89 @@ def test_explain_names_contiguity():
 
 def test_explain_returns_precheck_findings_first():
     p = make([[1, 2], [np.inf, np.inf]], [3, 4])
-    assert explain(p) == "\n".join(precheck(p))
+    assert explain(p) == no_plan_text(precheck(p), "elementary")
+
+
+# ---------------------------------------------------------------------------- the message
+def test_students_are_whole_and_rounded_in_their_favour():
+    assert students(12) == "12" and students(1234.0) == "1,234"
+    assert students(11.9999999999) == "12"  # float noise is not rounding
+    assert students(4.2) == "about 5"  # what a fix must provide: up
+    assert students(4.8, up=False) == "about 4"  # what schools offer: down
+
+
+def _causes(msg: str) -> list[str]:
+    lead, *causes = msg.split("\n")
+    assert all(c.startswith("- ") for c in causes), msg
+    assert not re.search(r"\d\.\d", msg), msg  # no fractional students or seats
+    return causes
+
+
+def test_two_schools_short_of_seats_in_one_year():
+    # Worked by hand: Aspen and Birch have 10 seats each at 95%: 19 seats. 2027 has
+    # 6 + 6 + 6 = 18 students (fits); 2028 has 7.1 + 6.6 + 6.6 = 20.3 (projections are
+    # fractional): about 21 students for 19 seats, 1.3 short -> "about 2 seats short".
+    p = make([[1, 2], [2, 1], [1, 1]], [[6, 6, 6], [7.1, 6.6, 6.6]], capacity=[10, 10],
+             max_util=0.95)
+    plan = solve(p)
+    assert plan.status == "infeasible"
+    assert plan.message.split("\n")[0] == ("No elementary plan meets every rule: there are "
+                                           "more students than seats in 2028.")
+    assert _causes(plan.message) == [
+        "- In 2028 there are about 21 students, but the open schools can seat at most 19 "
+        "(capacity x maximum utilization): about 2 seats short. To fix: raise capacity or the "
+        "maximum utilization, or open more schools."]
+
+
+def test_three_schools_below_their_floor_lead_with_the_count():
+    # Worked by hand: Aspen, Birch and Cedar (20 seats, floor 50% = 10) may each take only
+    # their own unit of 4.5 students: about 4 students each, below a floor of 10. Dogwood
+    # takes the rest.
+    forb = np.zeros((4, 4), bool)
+    for j in range(3):
+        forb[:, j] = True
+        forb[j, j] = False
+    p = make(np.ones((4, 4)), [4.5, 4.5, 4.5, 30], capacity=[20, 20, 20, 60],
+             min_util=[0.5, 0.5, 0.5, 0.0], forbidden=forb)
+    msg = explain(p)
+    assert msg.split("\n")[0] == ("No elementary plan meets every rule: 3 schools cannot stay "
+                                  "inside their band in 2027.")
+    causes = _causes(msg)
+    assert len(causes) == 3
+    for school, cause in zip(("Aspen", "Birch", "Cedar"), causes, strict=True):
+        assert cause.startswith(f"- {school} cannot reach its minimum utilization in 2027: "
+                                "even with every unit it may take it would have about 4 "
+                                "students, below its floor of 10 (50% of 20 seats).")
+        assert "To fix: lower its minimum utilization" in cause
+
+
+def test_elastic_shortfall_is_whole():
+    # Worked by hand: 10 + 1.5 + 1.2 students, two schools of 10 seats with a floor of 8:
+    # the school without U0 has at most 2.7, 5.3 short -> "about 6 students short".
+    p = make([[1, 2], [2, 1], [1, 2]], [10, 1.5, 1.2], capacity=[10, 10], min_util=0.8)
+    assert precheck(p) == []
+    msg = explain(p)
+    assert msg.split("\n")[0] == ("No elementary plan meets every rule: 1 school cannot stay "
+                                  "inside its band in 2027.")
+    (cause,) = _causes(msg)
+    assert "in 2027 would be about 6 students short of its floor of 8" in cause
+
+
+def test_several_causes_are_counted_in_the_lead():
+    # A unit with no school and a lock to a closed school, with seats short in 2027.
+    p = make([[1, 2], [np.inf, np.inf], [1, 1]], [3, 4, 30], capacity=[10, 10],
+             closed_sites=[False, True], locks={0: 1})
+    lead = explain(p).split("\n")[0]
+    assert lead == ("No elementary plan meets every rule: 1 locked unit cannot stay with its "
+                    "school; 2 other causes (below).")
+
+
+def test_the_lead_names_the_years_briefly():
+    # Worked by hand: 2 x 10 seats; 21 students in each of 2027-2029, 25 in 2031.
+    years = (2027, 2028, 2029, 2031)
+    demand = [[7, 7, 7], [7, 7, 7], [7, 7, 7], [9, 8, 8]]
+    lead = explain(make(np.ones((3, 2)), demand[:3], capacity=[10, 10], years=years[:3]))
+    assert lead.split("\n")[0].endswith("more students than seats in every year from 2027 "
+                                         "to 2029.")
+    lead = explain(make(np.ones((3, 2)), demand, capacity=[10, 10], years=years))
+    assert lead.split("\n")[0].endswith("seats in 2027, 2028, 2029 and 2031.")

@@ -38,7 +38,7 @@ def test_session_state_reruns_off_thread_and_reports(inputs):
     session.rerun()
     session.wait(120)
     assert state.message_kind == "danger"
-    assert "No plan fits" in state.message or "No valid plan" in state.message
+    assert "meets every rule" in state.message or "No valid plan" in state.message
     assert state.runs_finished == 2 and not state.running  # a failed run ends too
 
 
