@@ -174,3 +174,22 @@ def test_barrier_aware_travel_on_inputs_goes_round_the_river(tmp_path):
     assert got[ids.index("U04"), 0] >= via_bridge - 1e-6  # U04 (east) to E1 (west)
     assert inputs.travel_metres("barrier-aware") is got  # once per load
     assert list((tmp_path / CACHE_FOLDER).glob("travel-*.npz"))
+
+
+def test_verify_checks_the_longest_trip_along_the_runs_measure(tmp_path):
+    """U04 -> E1 is 3 km by street and in a straight line, U08 -> E1 4 km by street but
+    3.16 km straight (worked by hand): with a 3.5 km limit the checker names U08 only."""
+    from districting.study import outcome_from_assignment
+    from districting.verify import check_plan, facts_of_outcome
+
+    inputs = load_project(write(tmp_path, street_grid()))
+    ids = inputs.units["unit_id"].tolist()
+    a = np.zeros(len(ids), np.int64)  # everyone to E1
+    rs = RunSettings(level="elementary", max_distance=3500, min_utilization=0.0,
+                     max_utilization=2.0)
+    findings = check_plan(facts_of_outcome(outcome_from_assignment(inputs, rs, a)), a)
+    far = {ids[f.unit] for f in findings if f.rule == "distance"}
+    assert "U08" in far and "U04" not in far
+    straight = rs.replace(travel="straight-line")
+    findings = check_plan(facts_of_outcome(outcome_from_assignment(inputs, straight, a)), a)
+    assert "U08" not in {ids[f.unit] for f in findings if f.rule == "distance"}
