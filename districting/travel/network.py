@@ -90,8 +90,8 @@ class StreetNetwork:
         bad = ~np.isin(kinds, [1, 5])  # LineString, MultiLineString
         if bad.any():
             first = int(np.flatnonzero(present)[np.flatnonzero(bad)[0]])
-            raise ValueError(f"feature {first + 1} is a {shapely.get_type_id(geoms[first])} "
-                             "geometry type, not a line: streets must be lines")
+            raise ValueError(f"feature {first + 1} is a {geoms[first].geom_type}, not a "
+                             "line: streets must be lines")
         line_of = np.flatnonzero(present)
         parts, part_of = shapely.get_parts(geoms[present], return_index=True)
         xy, vertex_of = shapely.get_coordinates(parts, return_index=True)

@@ -203,3 +203,11 @@ def test_ring_road_without_junction_and_a_dead_end():
     assert r.metres[0, 0] == pytest.approx(5 + 10 + 90)
     assert r.metres[1, 1] == pytest.approx(10 + 10 + 40 + 10)
     assert np.isinf(r.metres[0, 1]) and np.isinf(r.metres[1, 0])
+
+
+def test_points_are_refused_and_empty_lines_skipped():
+    with pytest.raises(ValueError, match="feature 2 is a Point"):
+        StreetNetwork.from_lines([shapely.LineString([(0, 0), (1, 1)]), shapely.Point(0, 0)])
+    net = StreetNetwork.from_lines([shapely.LineString(), None,
+                                    shapely.LineString([(0, 0), (3, 4)])])
+    assert net.n_nodes == 2 and net.seg_length.tolist() == [5.0]
