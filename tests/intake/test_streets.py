@@ -152,16 +152,8 @@ def test_barrier_aware_travel_on_inputs_goes_round_the_river(tmp_path):
     travel is never shorter than the straight line, and longer for pairs across the river
     away from the bridge (the triangle inequality through the bridge, by hand)."""
     pytest.importorskip("districting.travel.barriers")
-    x = town.X0 + 2000
-    river = gpd.GeoDataFrame(geometry=[shapely.LineString([(x, town.Y0 - 10),
-                                                           (x, town.Y0 + 3010)])], crs=town.CRS)
-    bridge = gpd.GeoDataFrame(geometry=[shapely.Point(x, town.Y0 + 1500)], crs=town.CRS)
-    town.write_layer(river, tmp_path / "river.geojson")
-    town.write_layer(bridge, tmp_path / "bridge.geojson")
-    toml = town.project_dict()
-    toml["barriers"] = {"source": "river.geojson"}
-    toml["bridges"] = {"source": "bridge.geojson"}
-    inputs = load_project(town.write_town(tmp_path, toml=toml))
+    inputs = load_project(town.write_town(tmp_path, toml=town.river_toml(tmp_path)))
+    x, y = town.RIVER_X, town.BRIDGE_Y
     assert inputs.settings.solve.travel == "barrier-aware"
     got = inputs.travel_metres("barrier-aware")
     pts = shapely.get_coordinates(inputs.units["point"].to_numpy())
@@ -169,8 +161,7 @@ def test_barrier_aware_travel_on_inputs_goes_round_the_river(tmp_path):
     straight = np.hypot(*(pts[:, None, :] - site_xy[None, :, :]).transpose(2, 0, 1))
     assert (got >= straight - 1e-6).all()
     ids = inputs.units["unit_id"].tolist()
-    via_bridge = (np.hypot(*(pts[ids.index("U04")] - (x, town.Y0 + 1500)))
-                  + np.hypot(*(site_xy[0] - (x, town.Y0 + 1500))))
+    via_bridge = np.hypot(*(pts[ids.index("U04")] - (x, y))) + np.hypot(*(site_xy[0] - (x, y)))
     assert got[ids.index("U04"), 0] >= via_bridge - 1e-6  # U04 (east) to E1 (west)
     assert inputs.travel_metres("barrier-aware") is got  # once per load
     assert list((tmp_path / CACHE_FOLDER).glob("travel-*.npz"))
