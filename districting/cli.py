@@ -81,7 +81,7 @@ def plan_summary(outcome) -> str:
         f"    mean travel {m.overall_mean_distance / 1000:.2f} km, "
         f"longest {m.overall_max_distance / 1000:.2f} km; "
         f"{m.students_moved:,.0f} students ({m.units_moved} units) change school",
-        f"    rounds {plan.rounds}, cuts {plan.cuts}, "
+        f"    {outcome.travel_line}; rounds {plan.rounds}, cuts {plan.cuts}, "
         f"build {plan.build_seconds:.2f} s, solve {plan.solve_seconds:.2f} s",
     ]
     if oob:
@@ -99,7 +99,7 @@ def check_command(path: str | Path) -> int:
     """
     from .intake import check_summary, validate_project
 
-    inputs, report = validate_project(path)
+    inputs, report = validate_project(path, cache=False)
     print(report.format())
     if inputs is not None:
         print()
@@ -124,6 +124,7 @@ def _run_settings(args, level: str):
         gap=args.gap,
         time_limit=args.time_limit,
         solver=args.solver,
+        travel=args.travel,
     )
 
 
@@ -301,7 +302,8 @@ def cmd_demo(args) -> int:
         for suffix, extra in variants:
             name = f"{level}-{suffix}"
             progress = Progress(name)
-            rs = RunSettings(level=level, time_limit=args.time_limit, **extra)
+            rs = RunSettings(level=level, time_limit=args.time_limit, travel=args.travel,
+                             **extra)
             outcome = run(inputs, rs, name=name, progress=progress)
             progress.done()
             print(f"option {name}:")
@@ -401,6 +403,15 @@ def _add_solve_options(p: argparse.ArgumentParser) -> None:
                    help="seconds per level; at the limit the best valid plan found is kept "
                         "and says how close to the best possible it is")
     p.add_argument("--solver", help="'highs' (default) or any solver name Pyomo drives")
+    _add_travel_option(p)
+
+
+def _add_travel_option(p: argparse.ArgumentParser) -> None:
+    from .travel.measures import MEASURES, WORDS
+
+    p.add_argument("--travel", choices=MEASURES, help="how travel is measured: "
+                   + "; ".join(f"{m}: {WORDS[m]}" for m in MEASURES)
+                   + " (default: the project's [solve] travel)")
 
 
 def _project_arg(p: argparse.ArgumentParser) -> None:
@@ -529,6 +540,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--time-limit", type=float, default=60.0, metavar="SECONDS",
                    help="seconds per solve; the best plan found is kept, with how close to "
                         "the best possible it is (default 60)")
+    _add_travel_option(p)
     p.set_defaults(func=cmd_demo)
 
     for ep in entry_points(group="districting.commands"):

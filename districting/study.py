@@ -15,7 +15,6 @@ from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
-import shapely
 
 from . import rules
 from .engine import Session
@@ -23,6 +22,7 @@ from .intake import Inputs
 from .intake.schema import RUN_KEYS, check_run
 from .plan import Plan, PlanMetrics, plan_metrics
 from .problem import Problem
+from .travel.measures import distance_note, measure_line
 
 __all__ = ["RunSettings", "Outcome", "build_problem", "run", "outcome_from_assignment"]
 
@@ -47,6 +47,7 @@ class RunSettings:
     gap: float | None = None
     time_limit: float | None = None
     solver: str | None = None
+    travel: str | None = None  # districting.travel.MEASURES
     capacity: dict[str, float] = field(default_factory=dict)
     status: dict[str, str] = field(default_factory=dict)
     site_max_util: dict[str, float] = field(default_factory=dict)
@@ -59,8 +60,11 @@ class RunSettings:
 
     @classmethod
     def from_dict(cls, data: Mapping) -> RunSettings:
+        """Settings stored by :meth:`to_dict`. Those stored before runs named a travel
+        measure were measured in straight lines, and reopen so."""
         names = {f.name for f in dataclasses.fields(cls)}
-        return cls(**{k: v for k, v in data.items() if k in names})
+        return cls(**{"travel": "straight-line",
+                      **{k: v for k, v in data.items() if k in names}})
 
     def replace(self, **changes) -> RunSettings:
         return dataclasses.replace(self, **changes)
@@ -93,6 +97,7 @@ def resolved(inputs: Inputs, rs: RunSettings) -> RunSettings:
         gap=pick(rs.gap, d.gap),
         time_limit=pick(rs.time_limit, d.time_limit),
         solver=pick(rs.solver, d.solver),
+        travel=pick(rs.travel, d.travel),
         locks=locks,
         forbids=forbids,
     )
@@ -123,6 +128,8 @@ def build_problem(inputs: Inputs, rs: RunSettings) -> tuple[Problem, np.ndarray]
     Site status in the plan year: ``open`` and ``new`` sites are open; ``closing`` and
     ``closed`` sites take no students; ``candidate`` sites are opened by the solver when
     ``open_count`` is set (the total number of open sites), otherwise all open.
+    Travel (the reports' distance, the cost unless the project gives a travel table, and
+    what ``max_distance`` limits) is measured by the run's ``travel`` measure.
     """
     rs = resolved(inputs, rs)
     rows = level_sites(inputs, rs.level)
@@ -171,10 +178,7 @@ def build_problem(inputs: Inputs, rs: RunSettings) -> tuple[Problem, np.ndarray]
         open_sites = forced
         closed = closed | ~(forced | candidate)
 
-    points = shapely.get_coordinates(inputs.units["point"].to_numpy())
-    site_xy = shapely.get_coordinates(sites.geometry.to_numpy())
-    distance = np.hypot(points[:, None, 0] - site_xy[None, :, 0],
-                        points[:, None, 1] - site_xy[None, :, 1])
+    distance = inputs.travel_metres(rs.travel)[:, rows]
     cost = distance if inputs.travel is None else inputs.travel[:, rows]
 
     forbidden = np.zeros(distance.shape, bool)
@@ -276,6 +280,16 @@ class Outcome:
         """Figures of today's zones under the same problem (students, utilization...)."""
         cur = self.problem.current
         return plan_metrics(self.problem.replace(current=cur), cur)
+
+    @property
+    def travel_line(self) -> str:
+        """How travel was measured, in one line ("Travel: along streets")."""
+        return measure_line(self.settings.travel, table=self.inputs.travel is not None)
+
+    @property
+    def distance_note(self) -> str:
+        """The packet's sentence on what its distances are."""
+        return distance_note(self.settings.travel, table=self.inputs.travel is not None)
 
     def renamed(self, name: str) -> Outcome:
         return dataclasses.replace(self, name=name)

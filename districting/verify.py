@@ -289,7 +289,8 @@ def facts_of_outcome(outcome) -> PlanFacts:
     """The rules of a project option (:class:`~districting.study.Outcome`), as plain data.
 
     Forbids are the run's explicit ones by unit and site id; the maximum distance is checked
-    on its own against straight-line distance, so a finding says which rule a unit breaks.
+    on its own against travel by the run's measure (along streets, around barriers or in a
+    straight line), so a finding says which rule a unit breaks.
     """
     facts = facts_of_problem(outcome.problem)
     rs = outcome.settings

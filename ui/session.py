@@ -28,6 +28,7 @@ class Session:
         self._syncing = False
         state.param.level.objects = list(store.runs)
         state.param.plan_year.objects = list(store.inputs.settings.years)
+        state.param.travel.objects = store.travel_measures()
         self._sync_from_store()
         state.store_problem = store.problem
         if store.last_message and not store.problem:
@@ -55,6 +56,7 @@ class Session:
                 min_util_pct=float(full.min_utilization) * 100.0,
                 gap_pct=float(full.gap) * 100.0,
                 time_limit=float(full.time_limit or 60.0),
+                travel=full.travel,
                 target_site=target,
                 selection=[],
             )

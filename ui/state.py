@@ -10,6 +10,8 @@ from __future__ import annotations
 
 import param
 
+from districting.travel.measures import MEASURES
+
 from .store import EDITABLE_SETTINGS
 
 __all__ = ["SessionState", "REFERENCES", "SETTING_PARAMS"]
@@ -26,6 +28,7 @@ SETTING_PARAMS = {
     "min_util_pct": ("min_utilization", 0.01),
     "gap_pct": ("gap", 0.01),
     "time_limit": ("time_limit", 1.0),
+    "travel": ("travel", None),
 }
 
 
@@ -44,6 +47,7 @@ class SessionState(param.Parameterized):
                                 doc="Lowest utilization allowed, percent of capacity")
     gap_pct = param.Number(0.01, bounds=(0.0, 50.0), doc="Optimality gap to prove, percent")
     time_limit = param.Number(60.0, bounds=(1.0, 3600.0), doc="Seconds per rerun")
+    travel = param.Selector(objects=list(MEASURES), doc="How travel is measured")
 
     selection = param.List(default=[], item_type=str, doc="Unit ids selected on the map")
     target_site = param.Selector(objects=[], allow_None=True,

@@ -43,6 +43,7 @@ from districting.study import (
     resolved,
     run,
 )
+from districting.travel.measures import MEASURES
 
 from .store_records import DRAFT_PREFIX, STATE_KEY, StoreError, StoreRecords
 from .store_tables import PlanTables
@@ -61,6 +62,7 @@ EDITABLE_SETTINGS = {
     # Utilization ranges are the project file's ([solve] in districting.intake.schema): one home.
     "max_utilization": (0.05, SCHEMA["solve"].keys["max_utilization"].high),
     "min_utilization": (0.0, SCHEMA["solve"].keys["min_utilization"].high),
+    "travel": MEASURES,  # a choice, not a range
 }
 TODAY = "Today's zones"
 
@@ -207,6 +209,12 @@ class Store(StoreRecords, PlanTables):
                                      f"{', '.join(map(str, years))}")
                 clean[name] = int(value)
                 continue
+            if name == "travel":
+                if value not in self.travel_measures():
+                    raise StoreError(f"travel {value!r} is not available here; pick one of "
+                                     f"{', '.join(self.travel_measures())}")
+                clean[name] = value
+                continue
             lo, hi = EDITABLE_SETTINGS[name]
             v = float(value)
             if not (math.isfinite(v) and lo <= v <= hi):
@@ -221,6 +229,10 @@ class Store(StoreRecords, PlanTables):
         self.runs[self.level] = new
         self._save()
         return new
+
+    def travel_measures(self) -> list[str]:
+        """The travel measures this project can use (streets only when it has them)."""
+        return [m for m in MEASURES if m != "streets" or self.inputs.street_travel is not None]
 
     def edit_site(self, site_id: str, *, capacity=None, max_util=None, min_util=None,
                   status=None) -> RunSettings:

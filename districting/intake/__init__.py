@@ -8,7 +8,8 @@ goes through :func:`load_project` or :func:`validate_project`.
 
 The steps: :mod:`.settings` (TOML -> :class:`Settings`, checked against :mod:`.schema`),
 then one function per source over a :class:`~.reading.Reading` (:mod:`.units`,
-:mod:`.counts`, :mod:`.sites`, :mod:`.zones`, :mod:`.network`, :mod:`.limits`), each
+:mod:`.counts`, :mod:`.sites`, :mod:`.zones`, :mod:`.network`, :mod:`.limits`,
+:mod:`.streets`), each
 running the checks of :mod:`.checks`. Reads only: nothing is written.
 """
 
@@ -26,6 +27,7 @@ from .records import LEVELS, Inputs, Lock, Settings, SolveSettings, Source
 from .report import ProjectError, Report
 from .settings import read_settings
 from .sites import read_sites
+from .streets import read_streets
 from .summary import check_summary
 from .tomlfile import PROJECT_FILE, project_file
 from .units import read_units
@@ -39,15 +41,16 @@ __all__ = [
 
 #: The steps of a reading, in order; each goes as far as the data allow.
 _STEPS = (read_units, read_counts, read_sites, read_zones, read_lines, read_links,
-          build_adjacency, check_locks, read_travel, check_capacity)
+          build_adjacency, check_locks, read_travel, read_streets, check_capacity)
 
 
-def read_inputs(settings: Settings, report: Report) -> Inputs | None:
+def read_inputs(settings: Settings, report: Report, *, cache: bool = True) -> Inputs | None:
     """Read every source the settings name, check it, and assemble :class:`Inputs`.
 
-    Returns None when any error was reported (the report says what and where).
+    Returns None when any error was reported (the report says what and where). ``cache``
+    False: travel is not kept in the project's disk cache (nothing is written).
     """
-    st = Reading(settings, report)
+    st = Reading(settings, report, cache=cache)
     for step in _STEPS:
         step(st)
     if report.has_errors:
@@ -58,22 +61,24 @@ def read_inputs(settings: Settings, report: Report) -> Inputs | None:
         current=st.current,
         barriers=st.barriers if len(st.barriers) else empty,
         bridges=st.bridges if len(st.bridges) else empty,
-        adjacency=st.adjacency, report=report, travel=st.travel,
+        adjacency=st.adjacency, report=report, travel=st.travel, streets=st.streets,
+        street_travel=st.street_travel,
     )
 
 
-def validate_project(path: str | Path) -> tuple[Inputs | None, Report]:
+def validate_project(path: str | Path, *, cache: bool = True) -> tuple[Inputs | None, Report]:
     """Read and check a project: (Inputs, report), Inputs None when there are errors.
 
-    Reads only (nothing is written). Every problem found is in the report at once. A
-    folder stands for its ``project.toml``.
+    Every problem found is in the report at once. A folder stands for its
+    ``project.toml``. Writes nothing but, with ``cache``, the travel along streets to the
+    project's disk cache (``.districting-cache/``).
     """
     path = project_file(path)
     report = Report(path)
     settings = read_settings(path, report)
     if settings is None:
         return None, report
-    return read_inputs(settings, report), report
+    return read_inputs(settings, report, cache=cache), report
 
 
 def load_project(path: str | Path) -> Inputs:

@@ -72,6 +72,9 @@ class Reading:
     links: pd.DataFrame | None = None
     adjacency: object = None
     travel: np.ndarray | None = None
+    streets: object = None  # districting.travel.StreetNetwork, with a [streets] table
+    street_travel: object = None  # districting.travel.StreetTravel, units x sites
+    cache: bool = True  # keep travel in the project's disk cache (check writes nothing)
     #: (level, year) or (level, None): figures with an error already reported; the
     #: capacity balance skips them rather than report a consequence as a new problem
     doubtful: set[tuple[str, int | None]] = field(default_factory=set)

@@ -9,7 +9,10 @@ from pathlib import Path
 
 import geopandas as gpd
 import numpy as np
+import shapely
 
+from ..travel.cache import cache_key, cached_arrays
+from ..travel.measures import check_measure, default_measure, travel_matrix
 from .checks import is_coverage
 from .schema import default
 
@@ -35,6 +38,8 @@ class SolveSettings:
     time_limit: float | None = default("solve", "time_limit")
     solver: str = default("solve", "solver")  # "highs" (array route) or a Pyomo solver name
     travel_matrix: Path | None = None  # CSV unit_id, site_id, cost (replaces distances)
+    #: the travel measure of runs that name none (districting.travel.MEASURES)
+    travel: str = default_measure(has_streets=False)
 
 
 @dataclass(frozen=True)
@@ -73,10 +78,12 @@ class Settings:
     locks: tuple[Lock, ...] = ()
     forbids: tuple[Lock, ...] = ()
     raw: dict = field(default_factory=dict, repr=False)  # the TOML as read
-    #: "units", "sites" and, when the file has them, "counts", "zones", "barriers", "bridges"
+    #: "units", "sites" and, when the file has them, "counts", "zones", "barriers",
+    #: "bridges", "streets"
     sources: dict[str, Source] = field(default_factory=dict)
     contiguity: str = "rook"  # [adjacency] contiguity: "rook" or "queen"
     links: Path | None = None  # [adjacency] links CSV (unit_a, unit_b, action)
+    max_access: float = default("streets", "max_access")  # metres to the nearest street
 
     @property
     def all_years(self) -> tuple[int, ...]:
@@ -101,6 +108,9 @@ class Inputs:
     - ``adjacency``: :class:`districting.intake.adjacency.Adjacency` after barrier cuts, bridges
       and manual links.
     - ``travel``: optional (n_units, n_sites) cost matrix from the travel CSV (inf = none).
+    - ``streets``, ``street_travel``: with a [streets] table, the
+      :class:`~districting.travel.StreetNetwork` and the units x sites
+      :class:`~districting.travel.StreetTravel` (access legs, pieces) read and checked.
     """
 
     settings: Settings
@@ -113,6 +123,8 @@ class Inputs:
     adjacency: object
     report: object
     travel: np.ndarray | None = None
+    streets: object = None
+    street_travel: object = None
 
     @property
     def crs(self):
@@ -125,3 +137,33 @@ class Inputs:
     def units_coverage(self) -> bool:
         """Whether the units form a valid polygon coverage (checked once per project)."""
         return is_coverage(self.units.geometry.to_numpy())
+
+    @cached_property
+    def _travel_metres(self) -> dict[str, np.ndarray]:
+        return {}
+
+    def travel_metres(self, measure: str) -> np.ndarray:
+        """(n_units, n_sites) travel in metres by ``measure`` (inf: no path), computed once
+        per load and kept on disk per project (:mod:`districting.travel.cache`)."""
+        check_measure(measure)
+        if measure not in self._travel_metres:
+            self._travel_metres[measure] = self._compute_travel(measure)
+        return self._travel_metres[measure]
+
+    def _compute_travel(self, measure: str) -> np.ndarray:
+        unit_xy = shapely.get_coordinates(self.units["point"].to_numpy())
+        site_xy = shapely.get_coordinates(self.sites.geometry.to_numpy())
+        if measure == "streets":
+            if self.street_travel is None:
+                raise ValueError("travel along streets needs a [streets] table in the "
+                                 "project; choose barrier-aware or straight-line travel")
+            return self.street_travel.metres
+        if measure == "straight-line" or not len(self.barriers):
+            return travel_matrix("straight-line", unit_xy, site_xy)
+        barriers = self.barriers.to_numpy()
+        bridges = self.bridges.to_numpy()
+        polygons = self.units.geometry.to_numpy()
+        key = cache_key(measure, barriers, bridges, polygons, unit_xy=unit_xy, site_xy=site_xy)
+        return cached_arrays(self.settings.path.parent, key, lambda: {
+            "metres": travel_matrix(measure, unit_xy, site_xy, barriers=barriers,
+                                    crossings=bridges, unit_polygons=polygons)})["metres"]

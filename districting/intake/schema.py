@@ -19,6 +19,8 @@ import unicodedata
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 
+from ..travel.measures import MEASURES
+
 __all__ = ["Key", "Table", "SCHEMA", "KINDS", "MAX_SHARE", "check_value", "suggest",
            "table_of", "reference_markdown", "default", "example"]
 
@@ -149,6 +151,13 @@ SCHEMA: dict[str, Table] = {
                       keys=_source("barrier lines")),
     "bridges": Table("points or short lines that keep a pair connected across a barrier",
                      keys=_source("bridges")),
+    "streets": Table("street centrelines (lines) for travel along streets; streets meet only "
+                     "at a shared vertex", keys={
+        **_source("street lines"),
+        "max_access": Key("number", "metres from a unit's point or a site to its nearest "
+                          "street beyond which the check names it (500: our choice, a "
+                          "few blocks)", 500.0, low=0.0),
+    }),
     "adjacency": Table("which units are neighbours", keys={
         "contiguity": Key("choice", "rook: a shared border; queen: a shared corner is enough",
                           "rook", choices=("rook", "queen")),
@@ -166,6 +175,10 @@ SCHEMA: dict[str, Table] = {
         "time_limit": Key("number", "seconds per solve; the best plan found is kept; 0 = no "
                           "limit", 60.0, low=0.0),
         "solver": Key("text", "\"highs\", or any solver name Pyomo drives", "highs"),
+        "travel": Key("choice", "how travel is measured: along streets, around barriers "
+                      "crossing only at bridges, or the straight line (default: streets "
+                      "when the project has [streets], else barrier-aware)",
+                      choices=MEASURES),
         "travel_matrix": Key("path", "CSV unit_id, site_id, cost (replaces distances)"),
         "max_moved": Key("number", "students allowed to change school; 0 = no limit", 0.0,
                          low=0.0),
@@ -182,6 +195,8 @@ SCHEMA: dict[str, Table] = {
 def example(spec: Key) -> str:
     """A value to show in a fix: the key's default when it has a telling one."""
     v = spec.default
+    if spec.choices and v is None:
+        return f'"{spec.choices[0]}"'
     if spec.kind in ("number", "int") and isinstance(v, int | float) and v:
         return repr(v)
     if spec.kind in ("text", "choice") and isinstance(v, str) and v:
@@ -305,7 +320,7 @@ def _default_text(spec: Key) -> str:
 
 #: The [solve] keys a single run may override (command-line flags, the workbench, the API).
 RUN_KEYS = ("max_utilization", "min_utilization", "stability_weight", "gap", "time_limit",
-            "max_moved")
+            "max_moved", "travel")
 
 
 def check_run(values: Mapping[str, object], where: str = "run settings") -> None:

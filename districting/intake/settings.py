@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from ..travel.measures import default_measure
 from .records import Lock, Settings, SolveSettings, Source
 from .schema import SCHEMA, check_value, default, example, suggest, table_of
 from .tomlfile import read_toml
@@ -156,7 +157,7 @@ def read_settings(path: str | Path, report) -> Settings | None:
         if not isinstance(values.tables.get(key), dict) or not get(key, "source"):
             continue
         columns = {role: get(key, role) for role in SCHEMA[key].keys
-                   if role not in ("source", "layer", "columns")}
+                   if role not in ("source", "layer", "columns", "max_access")}
         level_columns = dict(get(key, "columns")) if key == "zones" else {}
         for level in [lv for lv in level_columns if lv not in levels]:
             report.warning(path, f"[{key}] columns", f"level {level!r} is not one of the "
@@ -180,11 +181,12 @@ def read_settings(path: str | Path, report) -> Settings | None:
         plan_year=plan_year if plan_year in years else years[0], levels=levels, store=store,
         solve=solve, locks=locks, forbids=forbids, raw=data, sources=sources,
         contiguity=get("adjacency", "contiguity"), links=values.path_of("adjacency", "links"),
+        max_access=get("streets", "max_access"),
     )
 
 
 #: Tables that name a source file, in reading order.
-_SOURCES = ("units", "counts", "sites", "zones", "barriers", "bridges")
+_SOURCES = ("units", "counts", "sites", "zones", "barriers", "bridges", "streets")
 
 
 def _check_units_columns(path: Path, units: Source | None, levels, report) -> None:
@@ -236,6 +238,12 @@ def _read_solve(values: _Values, levels: tuple[str, ...], report) -> SolveSettin
             report.warning(path, f"{w} max_distance", f"max_distance for {level} is "
                            f"{metres:g} m, shorter than any trip to school",
                            f"the value is in metres: write {metres * 1000:g} for {metres:g} km")
+    travel = get("travel")
+    has_streets = isinstance(values.tables.get("streets"), dict)
+    if travel == "streets" and not has_streets:
+        report.error(path, f"{w} travel", 'travel = "streets" but the project has no '
+                     "[streets] table", "add a [streets] table naming the street lines, or "
+                     'write travel = "barrier-aware"')
     return SolveSettings(
         max_utilization=max_u,
         min_utilization=min_u,
@@ -247,4 +255,5 @@ def _read_solve(values: _Values, levels: tuple[str, ...], report) -> SolveSettin
         time_limit=get("time_limit") or None,
         solver=(get("solver") or default("solve", "solver")).lower(),
         travel_matrix=values.path_of("solve", "travel_matrix"),
+        travel=travel or default_measure(has_streets),
     )

@@ -7,6 +7,7 @@ import io as _io
 import numpy as np
 
 from .. import rules
+from ..travel.measures import measure_line
 from .records import Inputs
 from .report import plural
 
@@ -33,6 +34,11 @@ def check_summary(inputs: Inputs) -> str:
                                           f"{', '.join(map(str, sorted(sizes, reverse=True)))})")
     w(f"  {len(units)} planning units, {area:,.1f} km2; adjacency ({adj.contiguity}) "
       f"{adj.n_edges} pairs, {piece}, {len(adj.islands())} islands")
+    net = inputs.streets
+    streets = "" if net is None else (f"; streets: {len(net.seg_a):,} segments, "
+                                      f"{plural(net.n_pieces, 'piece')}")
+    w(f"  {measure_line(s.solve.travel, table=inputs.travel is not None)} (the default of "
+      f"runs){streets}")
     years = s.all_years
     head = f"  {'':<14}" + "".join(f"{y:>9}" for y in years)
     w()

@@ -67,6 +67,7 @@ def about(outcome: Outcome) -> dict[str, str]:
         "exported": now_iso(),
         "status": plan.status,
         "gap": f"{plan.gap:.4g}",
+        "travel": outcome.travel_line.removeprefix("Travel: "),
         "notice": DRAFT_NOTICE,
     }
 

@@ -367,8 +367,7 @@ def _table_pages(outcome: Outcome, paper: str, stamp: str, page: int) -> list[Fi
                 f"that year;  {UNDER} shaded, bold: below it.  Band: the share of capacity "
                 f"allowed (this option: {band}).  'Now' counts today's zones in "
                 f"{outcome.inputs.settings.current_year}.  Moved in / out and distances are "
-                f"for {outcome.settings.plan_year} students; distances are straight-line km "
-                "from a planning unit to its school unless the project gives a travel table.")
+                f"for {outcome.settings.plan_year} students; {outcome.distance_note}.")
         ax.text(0.0, bottom - 0.03, "\n".join(textwrap.wrap(note, 170)), fontsize=7.8,
                 va="top", transform=ax.transAxes)
         pages.append(fig)

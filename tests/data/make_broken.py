@@ -117,6 +117,24 @@ def write_town(folder: Path, units: gpd.GeoDataFrame | None = None,
     return path
 
 
+#: The river of the town: along x = 2 km, between the west and east halves; its bridge
+#: crosses at y = 1.5 km (between U06 and U07).
+RIVER_X, BRIDGE_Y = X0 + 2000, Y0 + 1500
+
+
+def river_toml(folder: Path) -> dict:
+    """Write the river and its bridge beside the project; the TOML naming them."""
+    river = gpd.GeoDataFrame(geometry=[shapely.LineString([(RIVER_X, Y0 - 10),
+                                                           (RIVER_X, Y0 + 3010)])], crs=CRS)
+    bridge = gpd.GeoDataFrame(geometry=[shapely.Point(RIVER_X, BRIDGE_Y)], crs=CRS)
+    write_layer(river, Path(folder) / "river.geojson")
+    write_layer(bridge, Path(folder) / "bridge.geojson")
+    toml = project_dict()
+    toml["barriers"] = {"source": "river.geojson"}
+    toml["bridges"] = {"source": "bridge.geojson"}
+    return toml
+
+
 def _unit(units: gpd.GeoDataFrame, uid: str) -> int:
     return int(np.flatnonzero(units["unit_id"].to_numpy() == uid)[0])
 

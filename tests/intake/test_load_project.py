@@ -160,16 +160,8 @@ def test_population_points_barriers_and_bridges(tmp_path):
     c = shapely.centroid(units.geometry.to_numpy())
     units["px"] = shapely.get_x(c) + 200
     units["py"] = shapely.get_y(c) - 100
-    x = town.X0 + 2000  # the line between the west and east halves
-    line = gpd.GeoDataFrame(geometry=[shapely.LineString([(x, town.Y0 - 10),
-                                                          (x, town.Y0 + 3010)])], crs=town.CRS)
-    bridge = gpd.GeoDataFrame(geometry=[shapely.Point(x, town.Y0 + 1500)], crs=town.CRS)
-    town.write_layer(line, tmp_path / "river.geojson")
-    town.write_layer(bridge, tmp_path / "bridge.geojson")
-    toml = town.project_dict()
+    toml = town.river_toml(tmp_path)  # a river between the west and east halves
     toml["units"].update(point_x="px", point_y="py")
-    toml["barriers"] = {"source": "river.geojson"}
-    toml["bridges"] = {"source": "bridge.geojson"}
     inputs = load_project(town.write_town(tmp_path, units=units, toml=toml))
     np.testing.assert_allclose(shapely.get_x(inputs.units["point"].to_numpy()),
                                units["px"].to_numpy())

@@ -134,3 +134,19 @@ def test_infeasible_rerun_keeps_the_plan_on_screen(inputs):
     with pytest.raises(StoreError, match="No plan fits|No valid plan|meets every rule"):
         st.rerun()
     assert st.outcome is first
+
+
+def test_travel_is_a_setting_the_workbench_offers(inputs):
+    """The grid town has no streets: the selector offers the two other measures, and the
+    choice reaches the problem solved (a session shows it, a page reload keeps it)."""
+    from ui.session import Session
+
+    st = new_store(inputs)
+    assert st.travel_measures() == ["barrier-aware", "straight-line"]
+    with pytest.raises(StoreError, match="not available here"):
+        st.update_settings(travel="streets")
+    page = Session(st)
+    assert page.state.param.travel.objects == ["barrier-aware", "straight-line"]
+    page.state.travel = "straight-line"
+    assert st.settings.travel == "straight-line" and st.effective.travel == "straight-line"
+    assert Session(st).state.travel == "straight-line"

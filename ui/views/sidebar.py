@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import panel as pn
 
+from districting.travel.measures import WORDS
+
 from ..session import Session
 from ..text import esc as _esc
 
@@ -11,7 +13,7 @@ __all__ = ["SettingsPanel", "RunPanel", "SelectionPanel"]
 
 
 class SettingsPanel(pn.viewable.Viewer):
-    """Level, plan year, the band, stability weight, longest trip, gap and time limit."""
+    """Level, plan year, the band, stability weight, longest trip, gap, time limit, travel."""
 
     def __init__(self, session: Session, **params):
         super().__init__(**params)
@@ -36,6 +38,8 @@ class SettingsPanel(pn.viewable.Viewer):
                                                         step=0.01),
             "time_limit": pn.widgets.FloatInput.from_param(p.time_limit,
                                                            name="Time limit (s)", step=5),
+            "travel": pn.widgets.Select.from_param(
+                p.travel, name="Travel", options={WORDS[m]: m for m in p.travel.objects}),
         }
         for key, widget in w.items():
             widget.css_classes = [f"setting-{key.replace('_', '-')}"]
