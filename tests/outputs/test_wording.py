@@ -58,7 +58,9 @@ def test_status_words_never_use_solver_words():
 
 
 def test_gap_words_round_up():
-    assert gap_words(0.003) == "0.3%"  # 0.3 exactly, not 0.4 from float noise
+    assert gap_words(0.003) == "0.3%"
+    assert gap_words(0.007) == "0.7%"  # 100 * 0.007 * 10 is 7.000000000000001 in floats
+    assert gap_words(0.035) == "3.5%"
     assert gap_words(0.0301) == "3.1%"
     assert gap_words(0.00042) == "0.05%"
     assert gap_words(0.0) == "less than 0.01%"
