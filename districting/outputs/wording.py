@@ -17,7 +17,7 @@ from ..plan import Plan
 
 __all__ = ["status_words", "solver_details", "gap_words", "int_text", "students_text",
            "km_text", "student_km_text", "percent_text", "year_text", "dash", "DASH",
-           "band_lines", "today_words", "plan_lines"]
+           "band_lines", "today_words", "plan_lines", "travel_words"]
 
 #: What a cell shows when there is no number; :func:`dash` adds the reason.
 DASH = "\u2013"
@@ -131,6 +131,13 @@ def solver_details(plan: Plan) -> str:
     return (f"solver status {plan.status}; objective {objective}; lower bound {bound}; "
             f"gap {gap}; rounds {plan.rounds}; cuts {plan.cuts}; route {plan.route}; "
             f"build {plan.build_seconds:.2f} s; solve {plan.solve_seconds:.2f} s")
+
+
+def travel_words(inputs) -> str:
+    """How travel is measured in this project, in words."""
+    if getattr(inputs, "travel", None) is not None:
+        return "travel costs from the project's travel table, per planning unit and school"
+    return "straight-line distance from each planning unit's point to its school"
 
 
 # ---------------------------------------------------------------------------- the band
