@@ -169,22 +169,24 @@ def _moves_pages(outcome: Outcome, d: dict, paper: str, stamp: str, first: int
 
 
 def _summary_page(outcomes: Sequence[Outcome], pages: list[str], paper: str,
-                  stamp: str) -> Figure:
+                  stamp: str, compared: str) -> Figure:
     fig = page(paper)
     names = sorted({o.inputs.settings.name for o in outcomes})
+    side = f"  Pages {compared}: options side by side, and where they differ." if compared \
+        else ""
     top = frame(fig, "Options compared", f"{'; '.join(names)}.  {len(outcomes)} options; "
-                "each is shown on the pages listed.", footer(None, stamp), 1,
+                f"each is shown on the pages listed.{side}", footer(None, stamp), 1,
                 full_notice=True)
     header, rows = summary_rows(outcomes, pages)
     head = [h.replace("Students moving", "Students\nmoving")
             .replace("Units moving", "Units\nmoving")
-            .replace("Schools outside the band", "Schools outside\nthe band")
+            .replace("Schools outside the band", "Schools\noutside\nthe band")
             .replace("Plan year", "Plan\nyear").replace("Longest km", "Longest\nkm")
-            for h in header]
+            .replace("Mean km", "Mean\nkm") for h in header]
     flags = [["over" if c == 7 and r[7] != "0" else "" for c in range(len(r))] for r in rows]
     ax = fig.add_axes([0.03, 0.05, 0.94, top - 0.05])
-    bottom = draw_table(ax, head, rows, [0.18, 0.07, 0.05, 0.07, 0.05, 0.05, 0.055, 0.08,
-                                         0.30, 0.06], flags=flags, font=8.5)
+    bottom = draw_table(ax, head, rows, [0.17, 0.07, 0.045, 0.065, 0.05, 0.045, 0.055, 0.065,
+                                         0.33, 0.05], flags=flags, font=8.5)
     note = ("Students moving: plan-year students whose school changes from today's zones.  "
             "Mean and Longest km: student-weighted mean and longest travel.  Schools outside "
             "the band (shaded when any): open schools above or below their utilization band "
@@ -224,6 +226,7 @@ def packet_figures(outcomes: Sequence[Outcome], paper: str = "letter",
         colours = stored_school_colours(a.inputs, a.level)
         pages.append(side_by_side_page(a, b, colours, paper, stamp, first + len(pages)))
         pages += difference_pages(a, b, colours, paper, stamp, first + len(pages))
+    compared = f"{first}-{first + len(pages) - 1}" if pages else ""
     where = []
     for o in outcomes:
         d = _drawing(o)
@@ -233,7 +236,7 @@ def packet_figures(outcomes: Sequence[Outcome], paper: str = "letter",
         pages += _moves_pages(o, d, paper, stamp, first + len(pages))
         where.append(f"{start}-{first + len(pages) - 1}")
     if len(outcomes) > 1:
-        pages.insert(0, _summary_page(outcomes, where, paper, stamp))
+        pages.insert(0, _summary_page(outcomes, where, paper, stamp, compared))
     for fig in pages:  # geopandas names the axes after the CRS; the scale bar says it all
         for ax in fig.axes:
             ax.set_xlabel("")
