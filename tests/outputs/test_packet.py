@@ -20,7 +20,13 @@ from districting import DRAFT_NOTICE
 from districting.intake.records import Source
 from districting.outputs.colours import zone_edges
 from districting.outputs.packet import PAPER, PNG_DPI, packet_figures, write_packet
-from districting.outputs.packet_rows import OVER, pair_rows, school_rows, summary_rows
+from districting.outputs.packet_rows import (
+    OVER,
+    pair_rows,
+    school_rows,
+    short_name,
+    summary_rows,
+)
 from districting.outputs.store import stored_school_colours
 from districting.outputs.tables import zones_frame
 from districting.study import RunSettings, outcome_from_assignment
@@ -265,18 +271,39 @@ def test_pages_have_no_solver_words(pages):
         assert not found, found
 
 
-def test_labels_fit_inside_their_zones_without_overlap(single):
-    page = single[0]
-    renderer = page.canvas.get_renderer()
-    for ax in [ax for ax in page.axes if ax.get_aspect() == 1.0]:
-        labels = [t for t in ax.texts if t.get_fontsize() == 6.8 and t.get_text()
-                  and not t.get_text().isdigit() and t.get_position()[1] > ax.get_ylim()[0]]
-        boxes = [t.get_window_extent(renderer) for t in labels]
-        assert len(boxes) >= 3
-        for i, box in enumerate(boxes):
-            assert not any(box.overlaps(other) for other in boxes[i + 1:])
-            assert ax.get_window_extent(renderer).contains(box.x0, box.y0)
-            assert ax.get_window_extent(renderer).contains(box.x1, box.y1)
+def test_labels_fit_inside_their_zones_without_overlap(tmp_path):
+    from districting.outputs.packet_layout import page
+    from districting.outputs.packet_maps import draw_zone_map, extent_of, map_axes
+
+    # 14 schools on a small grid: narrow zones, so some names cannot fit
+    town = make_town(tmp_path, nx=16, ny=12, n_sites=14, seed=3)
+    o = make_outcome(town, name="Crowded")
+    zones = zones_frame(o)
+    fig = page("letter")
+    ax = map_axes(fig, extent_of(o), 0.03, 0.2, 0.46, 0.6)
+    drawn = draw_zone_map(ax, o, zones, stored_school_colours(town, "elementary"))
+    renderer = fig.canvas.get_renderer()
+    to_data = ax.transData.inverted()
+    geoms = dict(zip(zones["site_id"], zones.geometry, strict=True))
+    names = dict(zip(o.site_ids, o.sites["name"].map(short_name), strict=True))
+    boxes, labelled = [], set()
+    for t in ax.texts:
+        if t.get_fontsize() != 6.8:
+            continue  # the scale bar's figures
+        box = t.get_window_extent(renderer)
+        (x0, y0), (x1, y1) = to_data.transform([[box.x0, box.y0], [box.x1, box.y1]])
+        x, y = t.get_position()
+        (sid,) = [s for s, g in geoms.items() if g.contains(shapely.Point(x, y))]
+        assert geoms[sid].contains(shapely.box(x0, y0, x1, y1)), t.get_text()
+        assert not any(box.overlaps(other) for other in boxes), t.get_text()
+        boxes.append(box)
+        labelled.add(sid)
+        if not t.get_text().isdigit():
+            assert t.get_text() == names[sid]
+    assert labelled == set(geoms)  # every zone has its name or a number
+    assert drawn["key"]  # and the numbers are keyed by name
+    assert all(re.fullmatch(r"\d+ .+ Elementary", k) for k in drawn["key"])
+
 
 
 def test_long_tables_continue_on_next_pages(tmp_path):
