@@ -14,17 +14,7 @@ import pandas as pd
 from matplotlib.figure import Figure
 
 from ..study import Outcome
-from .packet_layout import (
-    TABLE_FONT,
-    chunks,
-    draw_table,
-    footer,
-    frame,
-    more,
-    page,
-    rows_that_fit,
-    title,
-)
+from . import packet_layout as layout
 from .packet_maps import HALO, draw_zone_map, extent_of, hatch, key_text, legend, map_axes
 from .packet_rows import short_name
 from .tables import zones_frame
@@ -63,18 +53,20 @@ def moves_pages(after: Outcome, header, rows, areas: pd.DataFrame, colours: dict
     """Table of moves beside a map of the moved units (continued over pages)."""
     extent = extent_of(after)
     pages = []
-    fit = rows_that_fit(page(paper), 0.88 - 0.05, TABLE_FONT, reserve_in=0.1)
-    parts = chunks(len(rows), fit)
+    font = layout.TABLE_FONT
+    fit = layout.rows_that_fit(layout.page(paper), 0.88 - 0.05, font, reserve_in=0.1)
+    parts = layout.chunks(len(rows), fit)
     proposed = zones_frame(after)
     for k, (a, b) in enumerate(parts):
-        fig = page(paper)
-        top = frame(fig, title(after, f"{what}{more(k, len(parts))}"), subtitle,
-                    footer(after, stamp), first + k, full_notice=False)
+        fig = layout.page(paper)
+        heading = layout.title(after, f"{what}{layout.more(k, len(parts))}")
+        top = layout.frame(fig, heading, subtitle, layout.footer(after, stamp), first + k,
+                           full_notice=False)
         tax = fig.add_axes([0.03, 0.05, 0.40, top - 0.05])
         if rows:
-            draw_table(tax, header, rows[a:b], [0.06, 0.34, 0.34, 0.11, 0.15], font=TABLE_FONT,
-                       total=b == len(rows), align=["center", "left", "left", "center",
-                                                    "center"])
+            layout.draw_table(tax, header, rows[a:b], [0.06, 0.34, 0.34, 0.11, 0.15],
+                              font=font, total=b == len(rows),
+                              align=["center", "left", "left", "center", "center"])
         else:
             tax.set_axis_off()
             tax.text(0.0, 0.97, "No planning unit changes school.", fontsize=11, va="top")
@@ -100,12 +92,12 @@ def moves_pages(after: Outcome, header, rows, areas: pd.DataFrame, colours: dict
 def side_by_side_page(a: Outcome, b: Outcome, colours: dict[str, str], paper: str,
                       stamp: str, number: int) -> Figure:
     """Two options' zones side by side: the same extent and the same school colours."""
-    fig = page(paper)
-    top = frame(fig, f"{a.name or 'Unsaved option'} beside {b.name or 'unsaved option'}",
-                f"{a.inputs.settings.name}, {a.level}.  {a.name}: {status_words(a.plan)}.  "
+    fig = layout.page(paper)
+    subtitle = (f"{a.inputs.settings.name}, {a.level}.  {a.name}: {status_words(a.plan)}.  "
                 f"{b.name}: {status_words(b.plan)}.  Each school has the same colour on both "
-                "maps; dotted lines: today's zones.",
-                footer(a, stamp), number, full_notice=False)
+                "maps; dotted lines: today's zones.")
+    top = layout.frame(fig, f"{a.name or 'Unsaved option'} beside {b.name or 'unsaved option'}",
+                       subtitle, layout.footer(a, stamp), number, full_notice=False)
     extent = extent_of(a)
     today = zones_frame(a, current=True)
     drawn = []
