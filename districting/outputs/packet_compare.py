@@ -83,8 +83,9 @@ def moves_pages(after: Outcome, header, rows, areas: pd.DataFrame, colours: dict
                         weight="bold", zorder=12, path_effects=HALO)
         ax.set_title("In the colour of the school they go to, numbered as in the table; "
                      "grey: no change", fontsize=8.5, loc="left")
-        legend(fig, [drawn], {s: colours[s] for s in moved["site_id"]},
-               ax.get_position().y0 - 0.01)
+        box = ax.get_position()
+        legend(fig, [drawn], {s: colours[s] for s in moved["site_id"]}, box.y0 - 0.01,
+               x=(box.x0 + box.x1) / 2, ncol=2)
         pages.append(fig)
     return pages
 

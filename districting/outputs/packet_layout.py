@@ -56,7 +56,7 @@ def frame(fig: Figure, title: str, subtitle: str, footer: str, page: int,
         fig.text(0.97, 0.962, "DRAFT FOR DISCUSSION", ha="right", va="top", fontsize=10,
                  weight="bold", bbox={"boxstyle": "square,pad=0.3", "facecolor": "#ececec",
                                       "edgecolor": "#222222"})
-        top = 0.88
+        top = 0.88 if len(lines) < 2 else 0.865
     fig.text(0.03, 0.018, footer, fontsize=7, color="#444444")
     fig.text(0.97, 0.018, f"page {page}", fontsize=7, color="#444444", ha="right")
     return top

@@ -271,7 +271,7 @@ def key_text(ax, key: list[str]) -> None:
 
 # ---------------------------------------------------------------------------- legend
 def legend(fig: Figure, drawn: list[dict], colours: dict[str, str], y: float,
-           extra: list | None = None) -> None:
+           extra: list | None = None, x: float = 0.5, ncol: int = 3) -> None:
     """One legend for the maps of a page: every symbol drawn, none blank."""
     seen_sites = set().union(*(d["sites"] for d in drawn))
     kinds = set().union(*(d["barriers"] for d in drawn))
@@ -305,7 +305,7 @@ def legend(fig: Figure, drawn: list[dict], colours: dict[str, str], y: float,
     if any(d["streets"] for d in drawn):
         handles.append(_line_handle(STREET_LINE))
         labels.append(STREET_LINE.words)
-    fig.legend(handles=handles, labels=labels, loc="upper center", bbox_to_anchor=(0.5, y),
-               ncol=3, fontsize=8, frameon=False, handlelength=3.2, handleheight=1.4,
+    fig.legend(handles=handles, labels=labels, loc="upper center", bbox_to_anchor=(x, y),
+               ncol=ncol, fontsize=8, frameon=False, handlelength=3.2, handleheight=1.4,
                handler_map={tuple: HandlerTuple(ndivide=None, pad=0.1),
                             _Overlay: HandlerTuple(ndivide=1)})
