@@ -23,8 +23,10 @@ import pandas as pd
 
 from ..study import Outcome
 from .tables import plan_years, school_table, unit_table
+from .wording import DASH
 
-__all__ = ["school_sheet", "unit_sheet", "csv_text", "about_json", "sidecar_name"]
+__all__ = ["school_sheet", "unit_sheet", "csv_text", "about_json", "sidecar_name",
+           "for_people"]
 
 
 def _whole(values) -> pd.Series:
@@ -139,3 +141,20 @@ def about_json(record: dict[str, str], notes: dict[str, str]) -> str:
 def sidecar_name(csv_name: str) -> str:
     """``option-a_units.csv`` -> ``option-a_units.about.json``."""
     return csv_name.removesuffix(".csv") + ".about.json"
+
+
+def for_people(sheet: pd.DataFrame) -> pd.DataFrame:
+    """A sheet as text for a table on screen or paper: whole numbers with thousands
+    separators, decimals as rounded in the sheet, a dash where there is no number (the
+    column notes say why), no index column to show."""
+    out = {}
+    for column in sheet.columns:
+        values = sheet[column]
+        if pd.api.types.is_integer_dtype(values):
+            out[column] = [DASH if pd.isna(v) else f"{int(v):,}" for v in values]
+        elif pd.api.types.is_float_dtype(values):
+            places = 2 if "(km)" in column else 1
+            out[column] = [DASH if pd.isna(v) else f"{v:,.{places}f}" for v in values]
+        else:
+            out[column] = [DASH if pd.isna(v) else str(v) for v in values]
+    return pd.DataFrame(out).reset_index(drop=True)

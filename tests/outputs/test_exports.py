@@ -20,6 +20,7 @@ from exports_town import make_outcome, make_town, nearest_assignment
 from districting import DRAFT_NOTICE
 from districting.names import slug
 from districting.outputs.exports import SHAPEFILE_FIELDS, export_all, read_export_csv
+from districting.outputs.sheets import for_people, school_sheet
 from districting.outputs.store import stored_school_colours
 from districting.outputs.tables import school_table, unit_table
 from districting.study import RunSettings, outcome_from_assignment
@@ -216,6 +217,12 @@ def test_csvs_are_plain_tables(exported):
     assert list(schools["Outside the band in some year"]) == \
         ["yes" if b else "no" for b in m.out_of_band]
     assert schools["Colour"].str.fullmatch(r"#[0-9A-F]{6}").all()
+    # the same table for people: text, a dash where there is no number, never "nan"
+    people = for_people(school_sheet(outcome)[0])
+    assert list(people.loc[closing, "Mean travel (km)"]) == ["\u2013"]
+    assert not people.map(lambda v: "nan" in v.lower()).any().any()
+    assert people["Students 2027"].str.fullmatch(r"\d{1,3}(,\d{3})*").all()
+    assert list(people.index) == list(range(len(people)))
 
 
 def test_zone_features_carry_their_school_colour(exported):
