@@ -13,6 +13,7 @@ import pytest
 import shapely
 from exports_town import CRS, make_outcome, make_town, nearest_assignment
 from matplotlib.colors import to_hex
+from matplotlib.lines import Line2D
 from matplotlib.text import Text
 from PIL import Image
 
@@ -38,6 +39,16 @@ SOLVER_WORDS = re.compile(r"\b(time_limit|gap|bound|inf|infeasible|feasible|roun
 
 def texts(fig) -> list[str]:
     return [t.get_text() for t in fig.findobj(Text) if t.get_text()]
+
+
+def style(artist) -> tuple:
+    """What a legend handle looks like: colours, width, dashes, marker, hatch."""
+    if isinstance(artist, Line2D):
+        return ("line", to_hex(artist.get_color()), artist.get_linewidth(),
+                str(artist.get_linestyle()), artist.get_marker(),
+                to_hex(artist.get_markerfacecolor()))
+    return ("patch", to_hex(artist.get_facecolor()), to_hex(artist.get_edgecolor()),
+            artist.get_hatch())
 
 
 def with_barriers(town, folder):
@@ -162,10 +173,14 @@ def test_map_page_furniture(single):
                   "Today's zone boundaries", "Planning units the board has decided (locked)",
                   "School", "Attendance zone, in its school's colour"):
         assert words in legend
-    # no blank swatch: every legend handle draws something visible
+    # no blank swatch, and no two entries drawn alike (today's boundaries, the rail line,
+    # the river and the highway each have a symbol of their own)
+    signatures = []
     for handle in page.legends[0].legend_handles:
         parts = handle if isinstance(handle, tuple) else (handle,)
         assert parts and all(p.get_visible() for p in parts)
+        signatures.append(tuple(style(p) for p in parts))
+    assert len(set(signatures)) == len(signatures)
     hatched = [c for ax in maps for c in ax.collections if c.get_hatch()]
     assert len(hatched) >= 2  # changed units hatched on both maps
 
