@@ -18,6 +18,7 @@ from matplotlib.figure import Figure
 from matplotlib.legend_handler import HandlerTuple
 from matplotlib.lines import Line2D
 from matplotlib.patches import Patch, Rectangle
+from matplotlib.transforms import Bbox
 
 from .. import rules
 from ..study import Outcome
@@ -166,35 +167,57 @@ def _marker_style(sym, scale: float = 1.0) -> dict:
             "markeredgecolor": "black", "markeredgewidth": 2.0 if line_only else 1.1}
 
 
-def _labels(ax, zones, names: dict[str, str], key: list[str]) -> None:
-    """Zone names inside their zones, without overlaps; numbers (keyed in ``key``) where a
-    name does not fit."""
+def _fits(text, renderer, to_data, geom, taken) -> bool:
+    """Whether ``text`` lies inside ``geom`` and clear of every box in ``taken``."""
+    box = text.get_window_extent(renderer).expanded(1.04, 1.1)
+    (bx0, by0), (bx1, by1) = to_data.transform([[box.x0, box.y0], [box.x1, box.y1]])
+    if not shapely.contains(geom, shapely.box(bx0, by0, bx1, by1)):
+        return False
+    return not any(box.overlaps(other) for other in taken)
+
+
+def _place(text, centre, step, renderer, to_data, geom, taken) -> bool:
+    """Put ``text`` at the centre, or a step or two above, below or beside it, where it
+    fits."""
+    dx, dy = step
+    for sx, sy in ((0, 0), (0, 1), (0, -1), (1, 0), (-1, 0), (0, 2), (0, -2), (1, 1),
+                   (-1, 1), (1, -1), (-1, -1)):
+        text.set_position((centre.x + sx * dx, centre.y + sy * dy))
+        if _fits(text, renderer, to_data, geom, taken):
+            return True
+    return False
+
+
+def _labels(ax, zones, names: dict[str, str], key: list[str], markers: np.ndarray) -> None:
+    """Zone names inside their zones, clear of each other and of the site markers (at the
+    centre of the zone's largest inscribed circle, or a step away from it); a number,
+    keyed in ``key``, where the name does not fit."""
     fig = ax.figure
     renderer = fig.canvas.get_renderer()
     to_data = ax.transData.inverted()
-    placed = []
+    half = 5 * fig.dpi / 72  # a site marker's half width in pixels, with a margin
+    taken = [Bbox.from_extents(px - half, py - half, px + half, py + half)
+             for px, py in ax.transData.transform(markers)] if len(markers) else []
     geoms = zones.geometry.to_numpy()
-    order = np.argsort(-shapely.area(geoms))
     x0, x1 = ax.get_xlim()
-    tol = (x1 - x0) / 400
-    for k in order:
+    for k in np.argsort(-shapely.area(geoms)):  # the largest zones choose first
         geom, sid = geoms[k], zones["site_id"].iloc[k]
         if geom is None or geom.is_empty:
             continue
-        centre = shapely.get_point(shapely.maximum_inscribed_circle(geom, tol), 0)
+        centre = shapely.get_point(shapely.maximum_inscribed_circle(geom, (x1 - x0) / 400), 0)
         text = ax.text(centre.x, centre.y, short_name(names.get(sid, sid)), ha="center",
                        va="center", fontsize=LABEL_FONT, zorder=11, path_effects=HALO)
-        for attempt in ("name", "number"):
-            box = text.get_window_extent(renderer).expanded(1.04, 1.1)
-            (bx0, by0), (bx1, by1) = to_data.transform([[box.x0, box.y0], [box.x1, box.y1]])
-            inside = shapely.contains(geom, shapely.box(bx0, by0, bx1, by1))
-            clear = not any(box.overlaps(other) for other in placed)
-            if (inside and clear) or attempt == "number":
-                placed.append(box)
-                break
+        box = text.get_window_extent(renderer)
+        (ax0, ay0), (ax1, ay1) = to_data.transform([[0, 0], [box.width * 0.6,
+                                                              box.height * 1.3]])
+        step = (ax1 - ax0, ay1 - ay0)
+        if not _place(text, centre, step, renderer, to_data, geom, taken):
             key.append(f"{len(key) + 1} {names.get(sid, sid)}")
             text.set_text(str(len(key)))
             text.set_weight("bold")
+            if not _place(text, centre, step, renderer, to_data, geom, taken):
+                text.set_position((centre.x, centre.y))  # a number at the centre at least
+        taken.append(text.get_window_extent(renderer).expanded(1.04, 1.1))
 
 
 # ---------------------------------------------------------------------------- one map
@@ -243,11 +266,15 @@ def draw_zone_map(ax, outcome: Outcome, zones, colours: dict[str, str], *, when:
     drawn["sites"] = _draw_sites(ax, outcome, when)
     if label:
         names = dict(zip(outcome.site_ids, outcome.sites["name"].astype(str), strict=True))
-        _labels(ax, zones, names, drawn["key"])
+        status = site_status(outcome, when)
+        xy = shapely.get_coordinates(outcome.sites.geometry.to_numpy())[status != ""]
+        _labels(ax, zones, names, drawn["key"], xy)
     extent = (*ax.get_xlim(), *ax.get_ylim())
     extent = (extent[0], extent[2], extent[1], extent[3])
     scale_bar(ax, extent)
     north_arrow(ax, extent)
+    ax.set_xlabel("")  # geopandas names the axes after the CRS; the scale bar says it all
+    ax.set_ylabel("")
     return drawn
 
 

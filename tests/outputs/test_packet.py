@@ -301,7 +301,7 @@ def test_labels_fit_inside_their_zones_without_overlap(tmp_path):
     to_data = ax.transData.inverted()
     geoms = dict(zip(zones["site_id"], zones.geometry, strict=True))
     names = dict(zip(o.site_ids, o.sites["name"].map(short_name), strict=True))
-    boxes, labelled = [], set()
+    boxes, named, labelled = [], [], set()
     for t in ax.texts:
         if t.get_fontsize() != 6.8:
             continue  # the scale bar's figures
@@ -315,7 +315,12 @@ def test_labels_fit_inside_their_zones_without_overlap(tmp_path):
         labelled.add(sid)
         if not t.get_text().isdigit():
             assert t.get_text() == names[sid]
+            named.append(box)
     assert labelled == set(geoms)  # every zone has its name or a number
+    # no name covers a school's marker
+    sites = ax.transData.transform(shapely.get_coordinates(o.sites.geometry.to_numpy()))
+    for box in named:
+        assert not any(box.contains(x, y) for x, y in sites)
     assert drawn["key"]  # and the numbers are keyed by name
     assert all(re.fullmatch(r"\d+ .+ Elementary", k) for k in drawn["key"])
 
