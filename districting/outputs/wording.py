@@ -142,7 +142,14 @@ def travel_words(inputs) -> str:
 
 # ---------------------------------------------------------------------------- the band
 def band_lines(problem, load: np.ndarray, open_sites, names: Sequence[str]) -> list[str]:
-    """One line per open school outside its band, at its worst year.
+    """One line per open school outside its band, at its worst year (see
+    :func:`_band_pairs`)."""
+    return [line for _, line in _band_pairs(problem, load, open_sites, names)]
+
+
+def _band_pairs(problem, load: np.ndarray, open_sites, names: Sequence[str]
+                ) -> list[tuple[int, str]]:
+    """(site index, line) per open school outside its band, at its worst year.
 
     'Alder Hill Elementary: 112% in 2029, 12 points over the 100% limit' (also over in
     2030); 'Fern Elementary: 48% in 2027, 12 points under the 60% floor'. ``load`` is
@@ -171,9 +178,9 @@ def band_lines(problem, load: np.ndarray, open_sites, names: Sequence[str]) -> l
             also = f" (also {', '.join(map(str, others))})" if others else ""
             points = excess[worst]
             pts = f"{points:.0f}" if points >= 0.5 else "less than 1"
-            lines.append(f"{names[j]}: {percent_text(share[worst])} in {years[worst]}, "
-                         f"{pts} point{'' if pts == '1' else 's'} "
-                         f"{word.format(percent_text(limit))}{also}")
+            lines.append((int(j), f"{names[j]}: {percent_text(share[worst])} in "
+                                  f"{years[worst]}, {pts} point{'' if pts == '1' else 's'} "
+                                  f"{word.format(percent_text(limit))}{also}"))
     return lines
 
 
@@ -183,13 +190,13 @@ def today_words(outcome) -> str:
     names = outcome.sites["name"].astype(str).tolist()
     opened = np.bincount(outcome.current[outcome.current >= 0],
                          minlength=outcome.problem.n_sites) > 0
-    lines = band_lines(outcome.problem, met.load, opened, names)
-    if not lines:
+    pairs = _band_pairs(outcome.problem, met.load, opened, names)
+    if not pairs:
         return "Today's zones: every school is inside its band in every projected year."
-    n = len({ln.split(":")[0] for ln in lines})
+    n = len({j for j, _ in pairs})
     head = (f"Today's zones: {n} school{'' if n == 1 else 's'} outside "
             f"{'its' if n == 1 else 'their'} band")
-    return head + ":\n" + "\n".join(f"  {ln}" for ln in lines)
+    return head + ":\n" + "\n".join(f"  {ln}" for _, ln in pairs)
 
 
 def plan_lines(outcome) -> list[str]:

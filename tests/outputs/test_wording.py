@@ -92,3 +92,32 @@ def test_band_lines_hand_worked():
         "Fern Elementary: 55% in 2029, 5 points under the 60% floor",
     ]
     assert band_lines(prob, load, [False, False], ["a", "b"]) == []
+
+
+def test_today_words_name_the_schools_outside_the_band(tmp_path):
+    from exports_town import make_outcome, make_town
+
+    from districting.outputs.wording import plan_lines, today_words
+
+    town = make_town(tmp_path, nx=16, ny=12, n_sites=6, seed=3)  # two share a name
+    o = make_outcome(town)
+    # by hand: today's zone of each unit, students per school and year, against 60-100%
+    counts = town.counts["elementary"]
+    cur = town.current["elementary"]
+    cap = town.sites["capacity"].to_numpy()
+    outside = []
+    for j, name in enumerate(town.sites["site_id"] + " " + town.sites["name"]):
+        for year in (2027, 2028, 2029):
+            share = counts[town.settings.all_years.index(year), cur == j].sum() / cap[j]
+            if share > 1.0 + 1e-9 or share < 0.6 - 1e-9:
+                outside.append(name)
+                break
+    text = today_words(o)
+    assert outside  # the invented town has schools outside the band today
+    assert text.startswith(f"Today's zones: {len(outside)} school")
+    named = {ln.strip().split(":")[0] for ln in text.splitlines()[1:]}
+    assert named == {n.split(" ", 1)[1] for n in outside}
+    assert not [w for w in SOLVER_WORDS if w in text.lower()]
+    lines = " ".join(plan_lines(o)).lower()
+    assert "students" in lines and " km" in lines
+    assert not [w for w in ("time_limit", "gap", "bound", "rounds", "cuts") if w in lines]
