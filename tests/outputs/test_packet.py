@@ -350,3 +350,27 @@ def test_no_plan_is_refused(town):
         packet_figures([bad])
     with pytest.raises(ValueError, match="at least one"):
         packet_figures([])
+
+
+def test_streets_are_a_reference_layer_when_the_project_has_them(tmp_path):
+    from districting.outputs.packet_layout import page
+    from districting.outputs.packet_maps import draw_zone_map, extent_of, legend, map_axes
+    from districting.outputs.symbols import STREET_LINE
+
+    town = make_town(tmp_path)
+    x0, y0, x1, y1 = town.units.total_bounds
+    streets = gpd.GeoSeries([shapely.LineString([(x0, (y0 + y1) / 2), (x1, (y0 + y1) / 2)]),
+                             shapely.LineString([((x0 + x1) / 2, y0), ((x0 + x1) / 2, y1)])],
+                            crs=CRS)
+    object.__setattr__(town, "streets", streets)  # the field the travel work adds to Inputs
+    o = make_outcome(town)
+    fig = page("letter")
+    ax = map_axes(fig, extent_of(o), 0.03, 0.2, 0.46, 0.6)
+    colours = stored_school_colours(town, "elementary")
+    drawn = draw_zone_map(ax, o, zones_frame(o), colours)
+    assert drawn["streets"]
+    grey = [c for c in ax.collections if len(c.get_edgecolor())
+            and to_hex(c.get_edgecolor()[0]) == STREET_LINE.colour]
+    assert grey and len(grey[0].get_paths()) == 2
+    legend(fig, [drawn], colours, 0.15)
+    assert "Streets" in [t.get_text() for t in fig.legends[0].get_texts()]
