@@ -175,7 +175,10 @@ def _band_pairs(problem, load: np.ndarray, open_sites, names: Sequence[str]
                 continue
             worst = bad[np.argmax(excess[bad])]
             others = sorted(years[t] for t in bad if t != worst)
-            also = f" (also {', '.join(map(str, others))})" if others else ""
+            if len(others) == len(years) - 1 and len(years) > 2:
+                also = f" (outside it every year {years[0]}-{years[-1]})"
+            else:
+                also = f" (also {', '.join(map(str, others))})" if others else ""
             points = excess[worst]
             pts = f"{points:.0f}" if points >= 0.5 else "less than 1"
             lines.append((int(j), f"{names[j]}: {percent_text(share[worst])} in "
