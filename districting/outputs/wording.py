@@ -176,7 +176,7 @@ def _band_pairs(problem, load: np.ndarray, open_sites, names: Sequence[str]
             worst = bad[np.argmax(excess[bad])]
             others = sorted(years[t] for t in bad if t != worst)
             if len(others) == len(years) - 1 and len(years) > 2:
-                also = f" (outside it every year {years[0]}-{years[-1]})"
+                also = " (outside it in every projected year)"
             else:
                 also = f" (also {', '.join(map(str, others))})" if others else ""
             points = excess[worst]
