@@ -55,8 +55,8 @@ def test_solve_save_list_packet(project, tmp_path):
                            "--out", str(out_dir), "--time-limit", "60")
     assert code == 0, out
     assert "high: optimal" in out
-    units = pd.read_csv(out_dir / "high-a" / "high-a_units.csv", comment="#")
-    assert set(units["proposed"]) <= {"H01", "H02"} and len(units) == 1557
+    units = pd.read_csv(out_dir / "high-a" / "high-a_units.csv")  # a plain table
+    assert set(units["Proposed school (site id)"]) <= {"H01", "H02"} and len(units) == 1557
     zones = gpd.read_file(out_dir / "high-a" / "high-a.gpkg", layer="zones")
     assert len(zones) == 2
 

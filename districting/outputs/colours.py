@@ -6,6 +6,13 @@ to color the vertices of a graph", Communications of the ACM 22(4), 1979, 251-25
 :data:`ZONE_PALETTE` is our own qualitative palette whose grey values are spread apart.
 :func:`zone_colours` is the one colouring of a plan's zones that the packet and the
 workbench use.
+
+:func:`school_colours` gives each school of a level one display colour for every map and
+export: DSATUR on a school graph where two schools are neighbours when today's zones touch
+or their sites are Delaunay neighbours (so new and candidate schools, which have no zone
+today, get neighbours too), with colours given before (``saved``) kept as they are. The
+options store keeps the choice (:mod:`districting.outputs.store.colours`), so a school's
+colour never changes after a rerun.
 """
 
 from __future__ import annotations
@@ -21,7 +28,7 @@ from ..intake.adjacency import default_tolerance
 from .zones import _ids
 
 __all__ = ["ZONE_PALETTE", "grey_value", "zone_color", "zone_colors", "zone_edges",
-           "color_zones", "zone_colours"]
+           "color_zones", "zone_colours", "school_graph", "school_colours"]
 
 #: Qualitative zone colours of our own choosing. Lightness (Rec. 601 luma) steps by about
 #: 20 of 255 from 52 to 232, ordered so consecutive colours differ strongly in both hue and
@@ -145,3 +152,78 @@ def zone_colours(adjacency, site_ids: Sequence[str], assignments: Iterable,
             if wider.number_of_edges() == len(nodes) * (len(nodes) - 1) // 2:
                 break
     return zone_colors(best)
+
+
+# ---------------------------------------------------------------------------- per school
+def _delaunay_pairs(ids: Sequence[str], points: np.ndarray) -> set[tuple[str, str]]:
+    """Pairs of sites joined by an edge of the Delaunay triangulation of their points;
+    sites at one point are joined to each other and share that point's edges."""
+    at: dict[tuple[float, float], list[str]] = {}
+    for sid, (x, y) in zip(ids, points, strict=True):
+        at.setdefault((round(float(x), 3), round(float(y), 3)), []).append(sid)
+    pairs = {tuple(sorted((a, b))) for group in at.values() for a in group for b in group
+             if a != b}
+    if len(at) < 2:
+        return pairs
+    edges = shapely.get_parts(shapely.delaunay_triangles(
+        shapely.multipoints(np.array(list(at))), only_edges=True))
+    ends = np.round(shapely.get_coordinates(edges), 3).reshape(-1, 2, 2)
+    for (ax, ay), (bx, by) in ends:
+        for a in at.get((ax, ay), ()):
+            for b in at.get((bx, by), ()):
+                pairs.add(tuple(sorted((a, b))))
+    return pairs
+
+
+def school_graph(inputs, level: str) -> nx.Graph:
+    """The schools of ``level`` (site ids), neighbours when today's zones touch (units
+    adjacent, barrier-cut pairs included) or their sites are Delaunay neighbours."""
+    sites = inputs.sites
+    rows = np.flatnonzero(sites["level"].astype(str).to_numpy() == level)
+    ids = sites["site_id"].astype(str).to_numpy()[rows].tolist()
+    graph = nx.Graph()
+    graph.add_nodes_from(sorted(ids))
+    current = np.asarray(inputs.current.get(level, np.full(len(inputs.units), -1)))
+    all_ids = np.array([*sites["site_id"].astype(str), ""], dtype=object)
+    today = all_ids[np.where(current >= 0, current, len(all_ids) - 1)]
+    graph.add_edges_from(zone_edges(inputs.adjacency, today))
+    xy = shapely.get_coordinates(sites.geometry.to_numpy()[rows])
+    graph.add_edges_from(_delaunay_pairs(ids, xy))
+    return graph
+
+
+def _choose(graph: nx.Graph, node: str, colour: dict[str, str], uses: dict[str, int]) -> str:
+    """A palette colour for ``node``: none of its neighbours' if possible, then the fewest
+    schools two steps away, then the least used, then palette order."""
+    near = {colour[v] for v in graph[node] if v in colour}
+    two = [colour[w] for v in graph[node] for w in graph[v] if w != node and w in colour]
+    free = [c for c in ZONE_PALETTE if c not in near] or list(ZONE_PALETTE)
+    return min(free, key=lambda c: (two.count(c), uses.get(c, 0), ZONE_PALETTE.index(c)))
+
+
+def school_colours(inputs, level: str, saved: Mapping[str, str] | None = None
+                   ) -> dict[str, str]:
+    """One ``#RRGGBB`` colour per school (site id) of ``level``.
+
+    DSATUR (Brelaz 1979) on :func:`school_graph`: the school whose neighbours already show
+    the most distinct colours is coloured next (ties: more neighbours, then site id), with
+    the colour :func:`_choose` prefers, so touching zones differ and the palette's hues are
+    spread over the level. Schools in ``saved`` keep their colour; only the others are
+    chosen, each unlike its neighbours. Deterministic: the same inputs give the same colours.
+    """
+    graph = school_graph(inputs, level)
+    colour = {s: str(c).upper() for s, c in (saved or {}).items() if s in graph}
+    uses: dict[str, int] = {}
+    for c in colour.values():
+        uses[c] = uses.get(c, 0) + 1
+    left = sorted(set(graph.nodes) - set(colour))
+    while left:
+        def urgency(v: str) -> tuple:
+            seen = {colour[w] for w in graph[v] if w in colour}
+            return (-len(seen), -graph.degree(v), v)
+
+        node = min(left, key=urgency)
+        colour[node] = _choose(graph, node, colour, uses)
+        uses[colour[node]] = uses.get(colour[node], 0) + 1
+        left.remove(node)
+    return {s: colour[s] for s in sorted(colour)}

@@ -14,10 +14,15 @@
 - ``<option>_zones_shp.zip``: the zones as an ESRI Shapefile (field names of at most 10
   characters; ``.prj`` and a UTF-8 ``.cpg``) with a ``README.txt`` giving the notice and
   the field legend;
-- ``<option>_units.csv`` and ``<option>_schools.csv``: leading ``# `` lines give the option,
-  level, dates and the notice; text fields are quoted, so
-  ``pandas.read_csv(path, comment="#")`` (or :func:`read_export_csv`) reads the table and
-  a spreadsheet shows the block above the header.
+- ``<option>_units.csv`` and ``<option>_schools.csv``: plain tables a spreadsheet opens as
+  they are (header on line 1; :mod:`districting.outputs.sheets`), each with a sidecar
+  ``<option>_units.about.json`` / ``<option>_schools.about.json`` holding the option,
+  level, status in words, travel measure, dates, the notice and a note per column
+  (:func:`read_export_csv` reads both).
+
+Each zone feature (GeoPackage, GeoJSON, Shapefile) carries its school's display colour as
+``colour`` (``#RRGGBB``, :func:`districting.outputs.store.stored_school_colours`), the
+colour the packet and the workbench draw it in.
 
 The tables come from :mod:`districting.outputs.tables`, which the hearing packet and the
 workbench use too, so a figure printed or shown is the figure exported. Every file is
@@ -26,7 +31,7 @@ written through :func:`districting.io.atomic_path`.
 
 from __future__ import annotations
 
-import csv
+import json
 import os
 import tempfile
 import zipfile
@@ -41,22 +46,23 @@ from .. import DRAFT_NOTICE
 from ..io import atomic_path, atomic_write_text
 from ..names import slug
 from ..study import Outcome, now_iso
+from .sheets import about_json, csv_text, school_sheet, sidecar_name, unit_sheet
+from .store.colours import stored_school_colours
 from .tables import (
     changed_frame,
     plan_status,
     plan_years,
     require_plan,
-    school_table,
     unit_table,
     zones_frame,
 )
+from .wording import status_words, travel_words
 
 __all__ = ["export_all", "about", "read_export_csv", "SHAPEFILE_FIELDS"]
 
 def about(outcome: Outcome) -> dict[str, str]:
     """The record every export carries: option, level, dates, status and the notice."""
     s = outcome.inputs.settings
-    plan = outcome.plan
     return {
         "option": outcome.name or "(unsaved option)",
         "level": outcome.level,
@@ -65,31 +71,19 @@ def about(outcome: Outcome) -> dict[str, str]:
         "years": ", ".join(str(y) for y in plan_years(outcome)),
         "created": outcome.created,
         "exported": now_iso(),
-        "status": plan.status,
-        "gap": f"{plan.gap:.4g}",
-        "travel": outcome.travel_line.removeprefix("Travel: "),
+        "status": status_words(outcome.plan),
+        "travel measure": travel_words(outcome),
         "notice": DRAFT_NOTICE,
     }
 
 
 # ---------------------------------------------------------------------------- writers
-def _csv_text(table: pd.DataFrame, record: dict[str, str]) -> str:
-    head = [f"# {k}: {v}" for k, v in record.items()]
-    head.append('# read with pandas: pd.read_csv(path, comment="#")')
-    body = table.to_csv(index=False, quoting=csv.QUOTE_NONNUMERIC, lineterminator="\n")
-    return "\n".join(head) + "\n" + body
-
-
-def read_export_csv(path: str | os.PathLike) -> tuple[pd.DataFrame, dict[str, str]]:
-    """Read an exported CSV: the table and its ``# key: value`` header record."""
-    record = {}
-    with open(path, encoding="utf-8") as fh:
-        for line in fh:
-            if not line.startswith("# "):
-                break
-            key, _, value = line[2:].rstrip("\n").partition(": ")
-            record[key] = value
-    return pd.read_csv(path, comment="#", keep_default_na=False, na_values=[""]), record
+def read_export_csv(path: str | os.PathLike) -> tuple[pd.DataFrame, dict]:
+    """Read an exported CSV and its sidecar: the table and the record (with ``columns``,
+    a note per column)."""
+    path = Path(path)
+    record = json.loads((path.parent / sidecar_name(path.name)).read_text(encoding="utf-8"))
+    return pd.read_csv(path, keep_default_na=False, na_values=[""]), record
 
 
 def _gpkg_layer(frame, path: Path, layer: str, record: dict[str, str]) -> None:
@@ -109,7 +103,7 @@ SHAPEFILE_FIELDS = {
     "open": "open", "capacity": "capacity", "min_util": "min_util", "max_util": "max_util",
     "units": "units", "students_now": "st_now", "moved_in": "moved_in",
     "moved_out": "moved_out", "mean_distance_m": "mean_m", "max_distance_m": "max_m",
-    "out_of_band": "out_band", "n_parts": "n_parts",
+    "out_of_band": "out_band", "n_parts": "n_parts", "colour": "colour",
 }
 _SHP_PREFIX = {"students_": "st_", "util_": "ut_", "flag_": "fl_"}
 _FIELD_MEANING = {
@@ -124,6 +118,7 @@ _FIELD_MEANING = {
     "max_m": "longest travel distance of a unit with students, metres",
     "out_band": "1 if outside the utilization band in some year",
     "n_parts": "polygon parts of the zone (1 = one piece)",
+    "colour": "the school's display colour on every map (#RRGGBB)",
     "st_": "students in the proposed zone, year", "ut_": "utilization (students / capacity), year",
     "fl_": "over / under the band, year",
 }
@@ -159,7 +154,8 @@ def _write_shapefile_zip(zones: gpd.GeoDataFrame, target: Path, record: dict[str
         f"Years: {record['years']}",
         f"Project: {record['project']}",
         f"Created: {record['created']}    Exported: {record['exported']}",
-        f"Status: {record['status']} (gap {record['gap']})",
+        f"Status: {record['status']}",
+        f"Travel measure: {record['travel measure']}",
         "",
         record["notice"],
         "",
@@ -181,8 +177,9 @@ def _write_shapefile_zip(zones: gpd.GeoDataFrame, target: Path, record: dict[str
 def export_all(outcome: Outcome, folder: str | os.PathLike) -> dict[str, Path]:
     """Write every export of ``outcome`` into ``folder``; return {kind: path}.
 
-    Kinds: ``gpkg``, ``geojson``, ``shapefile`` (zip), ``units_csv``, ``schools_csv``.
-    File names start with :func:`slug` of the option name.
+    Kinds: ``gpkg``, ``geojson``, ``shapefile`` (zip), ``units_csv``, ``schools_csv``,
+    ``units_about`` and ``schools_about`` (the CSVs' sidecars). File names start with
+    :func:`slug` of the option name.
     """
     require_plan(outcome, "export")
     folder = Path(folder)
@@ -196,7 +193,11 @@ def export_all(outcome: Outcome, folder: str | os.PathLike) -> dict[str, Path]:
         "units_csv": folder / f"{stem}_units.csv",
         "schools_csv": folder / f"{stem}_schools.csv",
     }
+    paths["units_about"] = folder / sidecar_name(paths["units_csv"].name)
+    paths["schools_about"] = folder / sidecar_name(paths["schools_csv"].name)
+    colours = stored_school_colours(outcome.inputs, outcome.level)
     zones = zones_frame(outcome)
+    zones.insert(len(zones.columns) - 1, "colour", zones["site_id"].map(colours).fillna(""))
     ut = unit_table(outcome)
     units = gpd.GeoDataFrame(ut, geometry=outcome.inputs.units.geometry.to_numpy(),
                              crs=outcome.inputs.crs)
@@ -228,7 +229,9 @@ def export_all(outcome: Outcome, folder: str | os.PathLike) -> dict[str, Path]:
                                 layer_options={"RFC7946": "YES", "DESCRIPTION": description})
 
     _write_shapefile_zip(zones, paths["shapefile"], record)
-    atomic_write_text(paths["units_csv"], _csv_text(ut, record))
-    atomic_write_text(paths["schools_csv"], _csv_text(school_table(outcome), record))
+    for kind, (sheet, notes) in (("units", unit_sheet(outcome)),
+                                 ("schools", school_sheet(outcome, colours))):
+        atomic_write_text(paths[f"{kind}_csv"], csv_text(sheet))
+        atomic_write_text(paths[f"{kind}_about"], about_json(record, notes))
     return paths
 

@@ -1,7 +1,9 @@
 """The packet's tables as text: one row per school, per moved pair, per option.
 
 The figures come from :mod:`districting.outputs.tables` (the exports' tables), so a figure
-printed is the figure exported; here they are only worded (km, %, the band's arrows).
+printed is the figure exported; here they are only worded (through
+:mod:`districting.outputs.wording`: km with two decimals, whole students, whole percent,
+the band's arrows, a dash where there is no number).
 """
 
 from __future__ import annotations
@@ -14,38 +16,38 @@ import pandas as pd
 
 from ..study import Outcome
 from .tables import changed_frame, plan_years, school_table
+from .wording import DASH, int_text, km_text, percent_text, status_words, year_text
 
-__all__ = ["school_rows", "pair_rows", "summary_rows", "status_text", "short_name", "km_text",
-           "int_text", "pct_text", "OVER", "UNDER"]
+__all__ = ["school_rows", "pair_rows", "summary_rows", "status_text", "short_name", "OVER",
+           "UNDER", "NO_NUMBER_NOTE"]
 
 OVER, UNDER = "\u25b2", "\u25bc"  # up / down triangles: readable without colour
+#: What a dash in the packet's tables means (printed under each table that has one).
+NO_NUMBER_NOTE = f"{DASH}: no number (no students, or no capacity given)"
 
 
 def short_name(name: str) -> str:
     return re.sub(r"\s+(Elementary|Middle|High|School)(\s+School)?$", "", name).strip()
 
 
-def km_text(metres) -> str:
-    return "" if metres is None or not np.isfinite(metres) else f"{metres / 1000:.1f}"
+def _int(x) -> str:
+    return int_text(x) if np.isfinite(x) else DASH
 
 
-def int_text(x) -> str:
-    return "" if x is None or not np.isfinite(x) else f"{x:,.0f}"
-
-
-def pct_text(x) -> str:
-    return "" if x is None or not np.isfinite(x) else f"{100 * x:.0f}%"
+def _km(metres) -> str:
+    return km_text(metres) if np.isfinite(metres) else DASH
 
 
 def _util_text(r, y) -> str:
     """Utilization in whole percent, or to 0.1% when rounding would hide a flag (100.4%)."""
     u, flag = r[f"util_{y}"], r[f"flag_{y}"]
-    text = pct_text(u)
-    if flag and np.isfinite(u):
-        shown = round(100 * u)
-        if (flag == "over" and shown <= 100 * r["max_util"]) or (
-                flag == "under" and shown >= 100 * r["min_util"]):
-            text = f"{100 * u:.1f}%"
+    if not np.isfinite(u):
+        return DASH
+    text = percent_text(u)
+    shown = round(100 * u)
+    if flag and ((flag == "over" and shown <= 100 * r["max_util"]) or (
+            flag == "under" and shown >= 100 * r["min_util"])):
+        text = f"{100 * u:.1f}%"
     return text
 
 
@@ -60,37 +62,38 @@ def school_rows(outcome: Outcome) -> tuple[list[str], list[list[str]], list[list
     now_year = outcome.inputs.settings.current_year
     keep = t["open"].to_numpy() | (t["students_now"].to_numpy() > 0) | (t["units"] > 0)
     t = t[keep]
-    header = ["School", "Status", "Capacity", "Band", f"Now {now_year}",
-              *[str(y) for y in years], "Moved in", "Moved out", "Mean km", "Max km"]
+    header = ["School", "Status", "Capacity", "Band", f"Today {year_text(now_year)}",
+              *[year_text(y) for y in years], "Moving in", "Moving out", "Mean km",
+              "Longest km"]
     rows, flags = [], []
     for _, r in t.iterrows():
         cells = [f"{short_name(str(r['name']))} ({r['site_id']})", str(r["status"]),
-                 int_text(r["capacity"]),
+                 _int(r["capacity"]),
                  f"{100 * r['min_util']:.0f}-{100 * r['max_util']:.0f}%",
-                 int_text(r["students_now"])]
+                 _int(r["students_now"])]
         marks = [""] * len(cells)
         for y in years:
             flag = r[f"flag_{y}"]
-            text = f"{int_text(r[f'students_{y}'])} ({_util_text(r, y)})"
+            text = f"{_int(r[f'students_{y}'])} ({_util_text(r, y)})"
             if flag:
                 text = f"{OVER if flag == 'over' else UNDER} {text}"
             cells.append(text)
             marks.append(flag)
-        cells += [int_text(r["moved_in"]), int_text(r["moved_out"]), km_text(r["mean_distance_m"]),
-                  km_text(r["max_distance_m"])]
+        cells += [_int(r["moved_in"]), _int(r["moved_out"]), _km(r["mean_distance_m"]),
+                  _km(r["max_distance_m"])]
         marks += ["", "", "", ""]
         rows.append(cells)
         flags.append(marks)
     m = outcome.metrics
     opened = t["open"].to_numpy()
-    total = ["All schools", "", int_text(t.loc[opened, "capacity"].sum()), "",
-             int_text(t["students_now"].sum())]
+    total = ["All schools", "", _int(t.loc[opened, "capacity"].sum()), "",
+             _int(t["students_now"].sum())]
     for y in years:
         students = t[f"students_{y}"].sum()
         cap = t.loc[opened, "capacity"].sum()
-        total.append(f"{int_text(students)} ({pct_text(students / cap if cap else np.nan)})")
-    total += [int_text(t["moved_in"].sum()), int_text(t["moved_out"].sum()),
-              km_text(m.overall_mean_distance), km_text(m.overall_max_distance)]
+        total.append(f"{_int(students)} ({percent_text(students / cap) if cap else DASH})")
+    total += [_int(t["moved_in"].sum()), _int(t["moved_out"].sum()),
+              _km(m.overall_mean_distance), _km(m.overall_max_distance)]
     rows.append(total)
     flags.append([""] * len(total))
     return header, rows, flags
@@ -104,31 +107,30 @@ def pair_rows(outcome: Outcome) -> tuple[list[str], list[list[str]], pd.DataFram
     names = dict(zip(outcome.site_ids, outcome.sites["name"].astype(str), strict=True))
     header = ["#", "From (today)", "To (proposed)", "Units", "Students"]
     rows = [[str(k + 1), f"{short_name(names.get(r.from_site, ''))} ({r.from_site})",
-             f"{short_name(names.get(r.to_site, ''))} ({r.to_site})", int_text(r.n_units),
-             int_text(r.students)] for k, r in enumerate(areas.itertuples())]
+             f"{short_name(names.get(r.to_site, ''))} ({r.to_site})", _int(r.n_units),
+             _int(r.students)] for k, r in enumerate(areas.itertuples())]
     if rows:
-        rows.append(["", "All changes", "", int_text(areas["n_units"].sum()),
-                     int_text(areas["students"].sum())])
+        rows.append(["", "All changes", "", _int(areas["n_units"].sum()),
+                     _int(areas["students"].sum())])
     return header, rows, areas
 
 
 def status_text(outcome: Outcome) -> str:
-    plan = outcome.plan
-    gap = "" if not np.isfinite(plan.gap) else f", gap {100 * plan.gap:.3g}%"
-    return f"{plan.status}{gap}"
+    """The option's status in words (:func:`districting.outputs.wording.status_words`)."""
+    return status_words(outcome.plan)
 
 
 def summary_rows(outcomes: Sequence[Outcome], pages: Sequence[str] | None = None
                  ) -> tuple[list[str], list[list[str]]]:
     """Header and one row per option of the comparison page (``pages``: where each is)."""
-    header = ["Option", "Level", "Plan year", "Students moved", "Units moved",
-              "Mean km", "Max km", "Schools out of band", "Status", "Pages"]
+    header = ["Option", "Level", "Plan year", "Students moving", "Units moving",
+              "Mean km", "Longest km", "Schools outside the band", "Status", "Pages"]
     rows = []
     for k, o in enumerate(outcomes):
         m = o.metrics
-        rows.append([o.name or "(unsaved)", o.level, str(o.settings.plan_year),
-                     int_text(m.students_moved), str(m.units_moved),
-                     km_text(m.overall_mean_distance), km_text(m.overall_max_distance),
+        rows.append([o.name or "(unsaved)", o.level, year_text(o.settings.plan_year),
+                     _int(m.students_moved), str(m.units_moved),
+                     _km(m.overall_mean_distance), _km(m.overall_max_distance),
                      str(int(np.count_nonzero(m.out_of_band))), status_text(o),
                      pages[k] if pages else ""])
     return header, rows

@@ -14,6 +14,7 @@ import pandas as pd
 
 from .. import rules
 from ..study import Outcome
+from .wording import status_words
 from .zones import changed_areas, dissolve_zones
 
 __all__ = ["require_plan", "plan_years", "plan_status", "school_table", "unit_table",
@@ -173,6 +174,7 @@ def headline(outcome: Outcome) -> dict:
         "level": outcome.level,
         "plan_year": int(outcome.settings.plan_year),
         "status": plan.status,
+        "status_words": status_words(plan),
         "gap": float(plan.gap),
         "students_moved": float(met.students_moved),
         "units_moved": int(met.units_moved),

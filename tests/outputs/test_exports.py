@@ -2,7 +2,10 @@
 
 from __future__ import annotations
 
+import csv
+import io
 import json
+import re
 import sqlite3
 import zipfile
 
@@ -17,6 +20,8 @@ from exports_town import make_outcome, make_town, nearest_assignment
 from districting import DRAFT_NOTICE
 from districting.names import slug
 from districting.outputs.exports import SHAPEFILE_FIELDS, export_all, read_export_csv
+from districting.outputs.sheets import for_people, school_sheet
+from districting.outputs.store import stored_school_colours
 from districting.outputs.tables import school_table, unit_table
 from districting.study import RunSettings, outcome_from_assignment
 
@@ -35,7 +40,8 @@ def exported(tmp_path_factory):
 
 def test_files_and_names(exported):
     outcome, paths = exported
-    assert set(paths) == {"gpkg", "geojson", "shapefile", "units_csv", "schools_csv"}
+    assert set(paths) == {"gpkg", "geojson", "shapefile", "units_csv", "schools_csv",
+                          "units_about", "schools_about"}
     assert all(p.exists() and p.stat().st_size > 0 for p in paths.values())
     assert paths["gpkg"].name == "option-a-close-quillmere.gpkg"
     assert not list(paths["gpkg"].parent.glob(".tmp-*"))  # atomic writes leave nothing
@@ -168,29 +174,66 @@ def test_shapefile_zip(exported, tmp_path):
     assert shp["option"].iloc[0] == outcome.name  # UTF-8 text survives (Ä)
 
 
-def test_csvs_read_back(exported):
+def test_csvs_are_plain_tables(exported):
     outcome, paths = exported
-    units, record = read_export_csv(paths["units_csv"])
-    assert record["notice"] == DRAFT_NOTICE and record["option"] == outcome.name
-    plain = pd.read_csv(paths["units_csv"], comment="#")  # what the header block documents
-    assert list(plain.columns) == ["unit_id", "current", "proposed", "changed",
-                                   "students_2027", "distance_m"]
-    np.testing.assert_array_equal(plain["proposed"], outcome.site_id_of(outcome.assignment))
-    np.testing.assert_allclose(plain["students_2027"], outcome.problem.demand[0])
+    for kind in ("units_csv", "schools_csv"):
+        text = paths[kind].read_text(encoding="utf-8")
+        assert not text.startswith("#") and "\n#" not in text  # no comment lines
+        rows = list(csv.reader(io.StringIO(text)))  # the standard library's reader
+        assert len({len(r) for r in rows}) == 1  # a rectangle: header on line 1
+        assert not any(re.search(r"\d\.\d{3,}", cell) for r in rows for cell in r)
+        assert "nan" not in text.lower()
+    units = pd.read_csv(paths["units_csv"])  # pandas, no options: a spreadsheet's view
+    assert list(units.columns) == ["Unit id", "Today's school (site id)",
+                                   "Proposed school (site id)", "Proposed school",
+                                   "Changes school", "Students 2027",
+                                   "Travel to the proposed school (km)"]
+    assert units["Students 2027"].dtype.kind == "i"
+    assert units["Travel to the proposed school (km)"].dtype.kind == "f"
+    np.testing.assert_array_equal(units["Proposed school (site id)"],
+                                  outcome.site_id_of(outcome.assignment))
+    np.testing.assert_array_equal(units["Students 2027"], np.round(outcome.problem.demand[0]))
     expected = unit_table(outcome)
-    np.testing.assert_allclose(plain["distance_m"], expected["distance_m"])
-    np.testing.assert_array_equal(plain["changed"], expected["changed"])
+    np.testing.assert_allclose(units["Travel to the proposed school (km)"],
+                               expected["distance_m"] / 1000, atol=0.005)
+    assert list(units["Changes school"]) == ["yes" if c else "no" for c in expected["changed"]]
 
-    schools, record = read_export_csv(paths["schools_csv"])
-    assert record["level"] == "elementary"
-    t = school_table(outcome)
-    assert list(schools.columns) == list(t.columns)
+    schools = pd.read_csv(paths["schools_csv"])
     m = outcome.metrics
     for k, y in enumerate(outcome.problem.years):
-        np.testing.assert_allclose(schools[f"students_{y}"], m.load[k])
-    np.testing.assert_allclose(schools["moved_out"], m.moved_out)
-    np.testing.assert_allclose(schools["mean_distance_m"], m.mean_distance, equal_nan=True)
-    assert list(schools["out_of_band"]) == list(m.out_of_band)
+        assert schools[f"Students {y}"].dtype.kind == "i"
+        np.testing.assert_array_equal(schools[f"Students {y}"], np.round(m.load[k]))
+        np.testing.assert_allclose(schools[f"Utilization {y} (%)"], 100 * m.utilization[k],
+                                   atol=0.05)
+    # the closing school has no students: an empty cell, and the note says why
+    closing = schools["Status in 2027"] == "closing"
+    assert schools.loc[closing, "Mean travel (km)"].isna().all()
+    schools_read, record = read_export_csv(paths["schools_csv"])
+    assert "empty when the school has no students" in record["columns"]["Mean travel (km)"]
+    assert set(record["columns"]) == set(schools_read.columns)
+    assert record["notice"] == DRAFT_NOTICE and record["option"] == outcome.name
+    assert record["level"] == "elementary" and record["status"] == "best possible plan"
+    assert "straight-line" in record["travel measure"]
+    assert list(schools["Outside the band in some year"]) == \
+        ["yes" if b else "no" for b in m.out_of_band]
+    assert schools["Colour"].str.fullmatch(r"#[0-9A-F]{6}").all()
+    # the same table for people: text, a dash where there is no number, never "nan"
+    people = for_people(school_sheet(outcome)[0])
+    assert list(people.loc[closing, "Mean travel (km)"]) == ["\u2013"]
+    assert not people.map(lambda v: "nan" in v.lower()).any().any()
+    assert people["Students 2027"].str.fullmatch(r"\d{1,3}(,\d{3})*").all()
+    assert list(people.index) == list(range(len(people)))
+
+
+def test_zone_features_carry_their_school_colour(exported):
+    outcome, paths = exported
+    colours = stored_school_colours(outcome.inputs, outcome.level)
+    zones = gpd.read_file(paths["gpkg"], layer="zones")
+    assert list(zones["colour"]) == [colours[s] for s in zones["site_id"]]
+    doc = json.loads(paths["geojson"].read_text(encoding="utf-8"))
+    assert [f["properties"]["colour"] for f in doc["features"]] == list(zones["colour"])
+    shp = gpd.read_file(f"zip://{paths['shapefile']}")
+    assert list(shp["colour"]) == list(zones["colour"])
 
 
 def test_school_table_flags_match_the_band(exported):

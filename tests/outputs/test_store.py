@@ -18,6 +18,7 @@ from exports_town import make_outcome, make_town, nearest_assignment
 
 from districting.outputs.store import (
     ASSIGNMENTS_TABLE,
+    COLOURS_TABLE,
     OPTIONS_TABLE,
     STATE_TABLE,
     ZONES_LAYER,
@@ -116,7 +117,8 @@ def test_store_is_a_geopackage_that_gdal_lists(town):
     con.close()
     assert app_id == 0x47504B47 and version == 10300  # GeoPackage 1.3, clause 1.1.1.1
     assert kinds == {OPTIONS_TABLE: "attributes", ASSIGNMENTS_TABLE: "attributes",
-                     STATE_TABLE: "attributes", ZONES_LAYER: "features"}
+                     STATE_TABLE: "attributes", COLOURS_TABLE: "attributes",
+                     ZONES_LAYER: "features"}
     # GDAL (through pyogrio, an independent reader) sees the attribute tables as layers
     layers = {name for name, _ in pyogrio.list_layers(store)}
     assert {OPTIONS_TABLE, ASSIGNMENTS_TABLE, STATE_TABLE} <= layers

@@ -2,9 +2,10 @@
 
 :mod:`.storefile` is the store file itself (layout, atomic edits, the writer lock, a
 damaged store set aside); :mod:`.options` the named options; :mod:`.workbench` the
-workbench's state records.
+workbench's state records; :mod:`.colours` each school's display colour.
 """
 
+from .colours import load_school_colours, save_school_colours, stored_school_colours
 from .options import (
     OptionInfo,
     check_option_name,
@@ -18,6 +19,7 @@ from .options import (
 )
 from .storefile import (
     ASSIGNMENTS_TABLE,
+    COLOURS_TABLE,
     OPTIONS_TABLE,
     STATE_TABLE,
     ZONES_LAYER,
@@ -34,5 +36,6 @@ __all__ = [
     "delete_option", "rename_option", "option_settings", "save_state", "load_state",
     "state_record", "state_keys", "StateConflict", "StoreDamaged", "check_option_name",
     "store_problem", "repair_store", "tidy_store", "metrics_to_dict", "OPTIONS_TABLE",
-    "ASSIGNMENTS_TABLE", "STATE_TABLE", "ZONES_LAYER",
+    "ASSIGNMENTS_TABLE", "STATE_TABLE", "ZONES_LAYER", "COLOURS_TABLE",
+    "load_school_colours", "save_school_colours", "stored_school_colours",
 ]

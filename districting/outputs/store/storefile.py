@@ -14,6 +14,8 @@ project's layers:
 - ``districting_state``: (key, updated, state_json, revision) for the workbench; the
   revision rises by one per save, so a session that saves over a record another session
   changed since it read it is told (:class:`StateConflict`) instead of overwriting it;
+- ``districting_colours``: (level, site_id, colour, chosen): each school's display colour,
+  chosen once and kept (:mod:`.colours`);
 - ``districting_zones``: a features layer (written by GDAL through pyogrio) with the
   dissolved zones of every option (option, level, site_id, name, n_units, students,
   n_parts), so a GIS user can map any saved option straight from the store.
@@ -53,11 +55,12 @@ except ImportError:  # pragma: no cover - Windows
 
 
 __all__ = ["OptionError", "StoreDamaged", "store_problem", "repair_store", "tidy_store",
-           "OPTIONS_TABLE", "ASSIGNMENTS_TABLE", "STATE_TABLE", "ZONES_LAYER"]
+           "OPTIONS_TABLE", "ASSIGNMENTS_TABLE", "STATE_TABLE", "ZONES_LAYER", "COLOURS_TABLE"]
 
 OPTIONS_TABLE = "districting_options"
 ASSIGNMENTS_TABLE = "districting_assignments"
 STATE_TABLE = "districting_state"
+COLOURS_TABLE = "districting_colours"
 #: Features layer with the zones of every saved option (column ``option``), for GIS users.
 ZONES_LAYER = "districting_zones"
 
@@ -124,6 +127,13 @@ _TABLES = {
             updated TEXT NOT NULL, state_json TEXT NOT NULL,
             revision INTEGER NOT NULL DEFAULT 1)""",
         "Workbench state (last settings, locks and site edits), per key",
+    ),
+    COLOURS_TABLE: (
+        """CREATE TABLE IF NOT EXISTS districting_colours (
+            fid INTEGER PRIMARY KEY AUTOINCREMENT, level TEXT NOT NULL,
+            site_id TEXT NOT NULL, colour TEXT NOT NULL, chosen TEXT NOT NULL,
+            UNIQUE (level, site_id))""",
+        "Display colour of each school (#RRGGBB), chosen once per level and kept",
     ),
 }
 
