@@ -20,10 +20,10 @@ from bokeh.models import (
     LassoSelectTool,
     TapTool,
 )
-from bokeh.plotting import figure
 
 from ..mapdata import BARRIER_KINDS, MapData
 from ..session import Session
+from .mapframe import map_figure
 
 __all__ = ["MapView", "NO_ZONE_COLOR", "BARRIER_STYLE", "SITE_MARKERS"]
 
@@ -59,19 +59,9 @@ class MapView(pn.viewable.Viewer):
             "xs": [], "ys": [], "unit_id": [], "hatch": [], "line_width": []})
         self.today = ColumnDataSource(name="today-source", data={"xs": [], "ys": []})
         self.sites = ColumnDataSource(name="sites-source", data=self._site_columns())
-        bounds = mapdata.bounds
-        pad = 0.03 * max(bounds[2] - bounds[0], bounds[3] - bounds[1])
-        fig = figure(
-            name="zone-map", css_classes=["zone-map"], match_aspect=True,
-            sizing_mode="stretch_width", height=560,
-            x_range=(bounds[0] - pad, bounds[2] + pad), y_range=(bounds[1] - pad,
-                                                                  bounds[3] + pad),
-            tools="pan,wheel_zoom,reset,save", active_scroll="wheel_zoom",
-            toolbar_location="above", output_backend="canvas",
-        )
-        fig.axis.visible = False
-        fig.grid.visible = False
-        fig.background_fill_color = "#f4f4f0"
+        fig = map_figure(name="zone-map", css="zone-map", height=560,
+                         tools="pan,wheel_zoom,reset,save", active_scroll="wheel_zoom",
+                         toolbar_location="above")
         self.unit_glyphs = fig.multi_polygons(
             "xs", "ys", source=self.units, fill_color="color", fill_alpha=0.82,
             line_color="#ffffff", line_width=0.4,
@@ -204,7 +194,7 @@ class MapView(pn.viewable.Viewer):
         st = self.session.store
         out = st.on_screen()
         frame = st.units_frame(out)
-        colors = self.mapdata.zone_colors(out.site_ids, out.assignment)
+        colors = self.mapdata.school_colors(st.level)
         locked = frame["locked"].to_numpy(dtype=object) != ""
         forbidden = frame["forbidden"].to_numpy(dtype=object) != ""
         names = st.site_names()
