@@ -34,6 +34,7 @@ def create_app(project: str | Path, *, persist: bool = True):
 
     from .views import (
         DownloadsPanel,
+        HistoryPanel,
         LocksTable,
         MapView,
         MessageArea,
@@ -75,7 +76,8 @@ def create_app(project: str | Path, *, persist: bool = True):
         SettingsPanel(session),
         pn.Card(RunPanel(session), title="Run", sizing_mode="stretch_width",
                 css_classes=["run-card"]),
-        SelectionPanel(session), width=340, scroll=True, css_classes=["sidebar"])
+        SelectionPanel(session), HistoryPanel(session), width=340, scroll=True,
+        css_classes=["sidebar"])
     tabs = pn.Tabs(
         ("Schools", SitesTable(session)),
         ("Changes", ResultsView(session)),

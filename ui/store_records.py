@@ -9,6 +9,7 @@ store file. One writer at a time per store file in this process (:func:`write_lo
 
 from __future__ import annotations
 
+import copy
 import threading
 from pathlib import Path
 
@@ -101,6 +102,15 @@ class StoreRecords:
                 _options.delete_option(self.store_path, name)
             except (ValueError, KeyError) as exc:
                 raise StoreError(str(exc)) from exc
+
+    def put_edits(self, level: str, fields: dict) -> RunSettings:
+        """Put back edited fields of a level's settings (locks, forbids, site edits), as
+        undo and redo do; the other settings stay as they are."""
+        if level not in self.runs:
+            raise StoreError(f"level {level!r} is not in this project")
+        self.runs[level] = self.runs[level].replace(**copy.deepcopy(dict(fields)))
+        self._save()
+        return self.runs[level]
 
     def _overrides_of(self, full: RunSettings) -> RunSettings:
         """Resolved settings -> overrides: locks/forbids of the project file are not copied."""
