@@ -3,7 +3,8 @@
 Views only present: they read the session's state parameters and store, and call the
 session's actions. ``map`` (the zone map), ``sidebar`` (settings, run, selection),
 ``sites`` (Schools and Locks tabs), ``results`` (Changes tab), ``options`` (Options tab),
-``downloads`` (Downloads tab), ``history`` (undo, redo, the list of edits), ``messages`` (the message line and the store problem box).
+``downloads`` (Downloads tab), ``history`` (undo, redo, the list of edits), ``messages``
+(the message line and the store problem box).
 """
 
 from .downloads import DownloadsPanel

@@ -9,6 +9,9 @@ from ..text import esc as _esc
 
 __all__ = ["HistoryPanel"]
 
+DONE = "class='done'"
+UNDONE = "class='undone' style='color:#888;text-decoration:line-through'"
+
 
 class HistoryPanel(pn.viewable.Viewer):
     """Undo and Redo buttons over the list of locks and site edits, newest first."""
@@ -38,10 +41,8 @@ class HistoryPanel(pn.viewable.Viewer):
             self.list.object = ("<i style='font-size:12px'>No edits yet: locks, forbids and "
                                 "school edits appear here and can be undone.</i>")
             return
-        items = "".join(
-            f"<li class='{'done' if done else 'undone'}'"
-            f"{'' if done else ' style=\"color:#888;text-decoration:line-through\"'}>"
-            f"{_esc(text)}</li>" for text, done in lines[:30])
+        items = "".join(f"<li {DONE if done else UNDONE}>{_esc(text)}</li>"
+                        for text, done in lines[:30])
         more = f"<div>and {len(lines) - 30} earlier</div>" if len(lines) > 30 else ""
         self.list.object = (f"<ol reversed style='font-size:12px;margin:0;padding-left:22px'>"
                             f"{items}</ol>{more}")
