@@ -45,7 +45,7 @@ from districting.study import (
 )
 
 from .store_records import DRAFT_PREFIX, STATE_KEY, StoreError, StoreRecords
-from .store_tables import PlanTables
+from .store_tables import TODAY, PlanTables
 
 __all__ = ["Store", "StoreError", "LockRow", "STATE_KEY", "DRAFT_PREFIX", "EDITABLE_SETTINGS",
            "TODAY"]
@@ -62,7 +62,6 @@ EDITABLE_SETTINGS = {
     "max_utilization": (0.05, SCHEMA["solve"].keys["max_utilization"].high),
     "min_utilization": (0.0, SCHEMA["solve"].keys["min_utilization"].high),
 }
-TODAY = "Today's zones"
 
 
 @dataclass(frozen=True)

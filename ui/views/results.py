@@ -7,7 +7,9 @@ import panel as pn
 
 from ..session import Session
 from ..state import REFERENCES
+from ..store import TODAY
 from ..text import esc as _esc
+from ..text import status_text
 
 __all__ = ["ResultsView"]
 
@@ -44,15 +46,20 @@ class ResultsView(pn.viewable.Viewer):
         label = self.session.reference_label
         ch = st.changes_frame(out, ref)
         fl = st.flows_frame(out, ref)
-        shown = "today's zones (no plan run yet: press Rerun)" if out.name == "Today's zones" \
+        shown = "today's zones (no plan run yet: press Rerun)" if out.name == TODAY \
             else _esc(s["option"])
-        gap = f"{s['gap']:.2%}" if s["gap"] == s["gap"] else "n/a"
+        if out.name == TODAY:
+            oob = s["schools_out_of_band"]
+            status = (f"today's zones, {oob} school(s) outside the band" if oob
+                      else "today's zones, every school inside the band")
+        else:
+            status = status_text(out.plan)
         moved_vs_ref = ch["students"].sum()
         self.summary.object = (
             f"<div class='summary' data-students-moved='{s['students_moved']:.0f}' "
             f"data-status='{_esc(s['status'])}'>"
             f"<b>On the map:</b> {shown} &middot; {_esc(s['level'])} &middot; plan year "
-            f"{s['plan_year']} &middot; status <b>{_esc(s['status'])}</b> (gap {gap})<br>"
+            f"{s['plan_year']} &middot; <b>{_esc(status)}</b><br>"
             f"<b>{s['students_moved']:,.0f}</b> students ({s['units_moved']:,} units) change "
             f"school compared with today &middot; mean trip <b>{s['mean_km']:.2f} km</b>"
             f" &middot; longest {s['max_km']:.2f} km &middot; schools outside the band: "
