@@ -46,6 +46,7 @@ def create_app(project: str | Path, *, persist: bool = True):
         SitesTable,
         StoreProblem,
     )
+    from .views.intro import IntroNote
     from .views.project import ProjectOpener, error_page, page_header, project_info
 
     shell = pn.Column(sizing_mode="stretch_width", css_classes=["districting-app"])
@@ -87,7 +88,8 @@ def create_app(project: str | Path, *, persist: bool = True):
         ("Project", pn.Column(project_info(inputs, project), opener)),
         dynamic=True, sizing_mode="stretch_width", css_classes=["result-tabs"],
     )
-    main = pn.Column(MessageArea(session), StoreProblem(session), mapview, tabs,
+    main = pn.Column(IntroNote(session), MessageArea(session), StoreProblem(session), mapview,
+                     tabs,
                      sizing_mode="stretch_width")
     shell.objects = [*page_header(inputs),
                      pn.Row(sidebar, main, sizing_mode="stretch_width")]

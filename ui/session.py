@@ -15,6 +15,7 @@ from .history import History, describe_units
 from .runner import Runner, Schedule
 from .state import SETTING_PARAMS, SessionState
 from .store import TODAY, Store, StoreError
+from .text import restored_text
 
 __all__ = ["Session"]
 
@@ -34,6 +35,8 @@ class Session:
         state.store_problem = store.problem
         if store.last_message and not store.problem:
             self.notify(store.last_message, "warning")
+        elif store.outcome is not None and not store.problem:
+            self.notify(restored_text(store.outcome), "info")
         state.param.watch(self._on_level, "level")
         state.param.watch(self._on_setting, list(SETTING_PARAMS))
 

@@ -11,8 +11,9 @@ it as formatting either (CommonMark leaves the inside of an HTML block alone).
 from __future__ import annotations
 
 import html
+from datetime import datetime
 
-__all__ = ["esc", "text_block", "status_text", "share_text"]
+__all__ = ["esc", "text_block", "status_text", "share_text", "when_text", "restored_text"]
 
 
 def esc(text: object) -> str:
@@ -48,3 +49,24 @@ def status_text(plan) -> str:
         return f"{why}: {close}" if known else f"{why}: how close to the best is not known"
     reason = str(getattr(plan, "message", "") or "").strip()
     return f"no plan: {reason}" if reason else "no plan"
+
+
+def when_text(iso: str) -> str:
+    """An ISO 8601 time as the server's local clock reads it: '13:05 on 3 Dec 2026'."""
+    try:
+        t = datetime.fromisoformat(str(iso).replace("Z", "+00:00"))
+    except ValueError:
+        return ""
+    if t.tzinfo is not None:
+        t = t.astimezone()
+    return f"{t:%H:%M} on {t.day} {t:%b %Y}"
+
+
+def restored_text(outcome) -> str:
+    """What a page opened on the last result says about it."""
+    name = f"option {outcome.name!r}" if outcome.name else "the last result"
+    when = when_text(outcome.created)
+    solved = f", solved at {when}" if when else ""
+    return (f"Showing {name} for the {outcome.level} level{solved} "
+            f"({status_text(outcome.plan)}). Your locks and edits are as you left them; "
+            "press Rerun to solve again.")

@@ -1,0 +1,61 @@
+"""What the page says without a browser: the first-load note, the note on a restored
+result, and downloads named after the saved option (ui/views/intro.py, ui/session.py,
+ui/views/downloads.py)."""
+
+from __future__ import annotations
+
+import datetime as dt
+
+import pandas as pd
+from ui_town import new_store
+
+from ui.session import Session
+from ui.store import Store
+from ui.views.downloads import DownloadsPanel
+from ui.views.intro import IntroNote
+
+
+def test_the_first_screen_says_what_is_on_it_and_can_be_put_away(inputs):
+    note = IntroNote(Session(new_store(inputs)))
+    text = note.text.object
+    assert "today's zones" in text and "140 planning units" in text
+    assert "Rerun" in text and "undone" in text
+    assert note.box.visible
+    note._hide(None)
+    assert not note.box.visible
+
+
+def test_a_reloaded_page_says_it_shows_the_last_result(inputs):
+    st = new_store(inputs)
+    assert "Showing" not in Session(st).state.message  # nothing to restore yet
+    out = st.rerun()
+    page = Session(Store(inputs))  # the page opened again
+    assert page.store.outcome is not None
+    local = dt.datetime.fromisoformat(out.created).astimezone()
+    message = page.state.message
+    assert message.startswith("Showing the last result for the middle level, solved at "
+                              f"{local:%H:%M} on {local.day} {local:%b %Y}")
+    assert "optimal" not in message and "gap" not in message
+    st.save_option("East side")
+    assert "option 'East side'" in Session(Store(inputs)).state.message
+    assert "140 planning units" in IntroNote(page).text.object
+    assert "today's zones</b>" not in IntroNote(page).text.object
+
+
+def test_downloads_are_named_after_the_saved_option(inputs):
+    session = Session(new_store(inputs))
+    session.store.rerun()
+    session.state.plan_version += 1
+    panel = DownloadsPanel(session)
+    assert all(b.filename.startswith("unsaved-result-middle") for b in panel.buttons)
+    assert session.save_option("Hearing option B")
+    assert [b.filename for b in panel.buttons][:4] == [
+        "hearing-option-b-middle.gpkg", "hearing-option-b-middle.geojson",
+        "hearing-option-b-middle.zip", "hearing-option-b-middle-units.csv"]
+    assert "Hearing option B" in panel.note.object
+    csv = panel._make("units_csv")
+    assert "hearing-option-b" in csv
+    # the file itself names the option wherever it names one
+    text = open(csv, encoding="utf-8").read()
+    assert "(unsaved" not in text
+    assert len(pd.read_csv(csv, comment="#")) == 140
