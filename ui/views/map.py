@@ -11,7 +11,6 @@ from __future__ import annotations
 import numpy as np
 import panel as pn
 import param
-import shapely
 from bokeh.models import (
     BoxSelectTool,
     ColumnDataSource,
@@ -21,21 +20,18 @@ from bokeh.models import (
     TapTool,
 )
 
-from ..mapdata import BARRIER_KINDS, MapData
+from ..mapdata import MapData
 from ..session import Session
+from .layers import (
+    NO_ZONE_COLOR,
+    draw_barriers,
+    draw_sites,
+    site_columns,
+    zone_fill,
+)
 from .mapframe import map_figure
 
-__all__ = ["MapView", "NO_ZONE_COLOR", "BARRIER_STYLE", "SITE_MARKERS"]
-
-NO_ZONE_COLOR = "#d9d9d9"
-BARRIER_STYLE = {  # kind of ui.mapdata.BARRIER_KINDS -> (colour, width, dash)
-    "river": ("#2f6db5", 4, "solid"),
-    "highway": ("#6b3e1e", 3, "solid"),
-    "rail": ("#303030", 2, "dashed"),
-}
-SITE_MARKERS = {"open": "circle", "new": "star", "closing": "x", "candidate": "square",
-                "closed": "x"}
-
+__all__ = ["MapView"]
 
 class MapView(pn.viewable.Viewer):
     """Units coloured by proposed zone, schools, today's boundaries, barriers, locks."""
@@ -82,17 +78,8 @@ class MapView(pn.viewable.Viewer):
         self.today_glyphs = fig.multi_line("xs", "ys", source=self.today, line_color="#111111",
                                            line_width=2.2, line_dash="dashed",
                                            legend_label="today's boundaries", name="today")
-        for kind in (*BARRIER_KINDS, None):
-            if kind not in mapdata.barriers:
-                continue
-            xs, ys = mapdata.barriers[kind]
-            color, width, dash = BARRIER_STYLE.get(kind, ("#555555", 2, "solid"))
-            fig.multi_line("xs", "ys", source=ColumnDataSource({"xs": xs, "ys": ys}),
-                           line_color=color, line_width=width, line_dash=dash,
-                           legend_label=kind or "barrier", name=f"barrier-{kind or 'other'}")
-        self.site_glyphs = fig.scatter("x", "y", source=self.sites, marker="marker", size=14,
-                                       fill_color="fill", line_color="#000000",
-                                       line_width=1.5, name="sites")
+        draw_barriers(fig, mapdata)
+        self.site_glyphs = draw_sites(fig, self.sites)
         self.labels = LabelSet(x="x", y="y", text="label", source=self.sites, x_offset=8,
                                y_offset=6, text_font_size="11px", text_color="#111111",
                                background_fill_color="#ffffff", background_fill_alpha=0.75)
@@ -136,26 +123,10 @@ class MapView(pn.viewable.Viewer):
 
     def _site_columns(self) -> dict:
         st = self.session.store
-        sites = st.inputs.sites
-        sites = sites.loc[sites["level"] == st.level]
-        frame = st.sites_frame(resolved_settings=st.effective)
-        xy = shapely.get_coordinates(sites.geometry.to_numpy())
-        status = frame["status"].tolist()
-        return {
-            "x": xy[:, 0], "y": xy[:, 1], "site_id": frame["site_id"].tolist(),
-            "name": frame["name"].tolist(), "status": status,
-            "capacity": frame["capacity"].to_numpy(),
-            "marker": [SITE_MARKERS.get(s, "circle") for s in status],
-            "fill": ["#ffffff"] * len(status),
-            "label": [f"{n} ({s})" if s != "open" else n
-                      for n, s in zip(frame["name"], status, strict=True)],
-        }
+        return site_columns(st, self.mapdata.school_colors(st.level))
 
-    def _refresh_sites(self, colors: dict | None = None) -> None:
-        data = self._site_columns()
-        if colors:
-            data["fill"] = [colors.get(s, "#ffffff") for s in data["site_id"]]
-        self.sites.data = data
+    def _refresh_sites(self) -> None:
+        self.sites.data = self._site_columns()
 
     def _in_document(self, fn) -> None:
         """Run ``fn`` (which changes Bokeh models) where the page's document allows it.
@@ -208,7 +179,7 @@ class MapView(pn.viewable.Viewer):
             "distance": frame["distance_km"].to_numpy(),
             "locked": [f"{names.get(s, s)} ({s})" if s else "" for s in frame["locked"]],
             "forbidden": frame["forbidden"].tolist(),
-            "color": [colors.get(s, NO_ZONE_COLOR) for s in frame["proposed"]],
+            "color": zone_fill(frame["proposed"], colors),
         })
         xs, ys = self.mapdata.units
         idx = np.flatnonzero(locked | forbidden)
@@ -224,7 +195,7 @@ class MapView(pn.viewable.Viewer):
                        .to_numpy())
         idx = np.flatnonzero(changed)
         self.changed.data = {"xs": [xs[i] for i in idx], "ys": [ys[i] for i in idx]}
-        self._refresh_sites(colors)
+        self._refresh_sites()
         self.figure.tags = [{"plan": out.name or "unsaved", "status": out.plan.status}]
 
     # ---------------------------------------------------------- selection
