@@ -46,6 +46,7 @@ def create_app(project: str | Path, *, persist: bool = True):
         SitesTable,
         StoreProblem,
     )
+    from .views.compare import CompareMaps
     from .views.intro import IntroNote
     from .views.project import ProjectOpener, error_page, page_header, project_info
 
@@ -84,6 +85,7 @@ def create_app(project: str | Path, *, persist: bool = True):
         ("Changes", ResultsView(session)),
         ("Locks", LocksTable(session)),
         ("Options", OptionsPanel(session)),
+        ("Compare maps", CompareMaps(session)),
         ("Downloads", DownloadsPanel(session)),
         ("Project", pn.Column(project_info(inputs, project), opener)),
         dynamic=True, sizing_mode="stretch_width", css_classes=["result-tabs"],
