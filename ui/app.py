@@ -48,6 +48,7 @@ def create_app(project: str | Path, *, persist: bool = True):
     )
     from .views.compare import CompareMaps
     from .views.intro import IntroNote
+    from .views.printmap import PrintLink
     from .views.project import ProjectOpener, error_page, page_header, project_info
 
     shell = pn.Column(sizing_mode="stretch_width", css_classes=["districting-app"])
@@ -86,6 +87,7 @@ def create_app(project: str | Path, *, persist: bool = True):
         ("Locks", LocksTable(session)),
         ("Options", OptionsPanel(session)),
         ("Compare maps", CompareMaps(session)),
+        ("Print", PrintLink(session)),
         ("Downloads", DownloadsPanel(session)),
         ("Project", pn.Column(project_info(inputs, project), opener)),
         dynamic=True, sizing_mode="stretch_width", css_classes=["result-tabs"],
@@ -165,7 +167,10 @@ def serve_command(args: argparse.Namespace) -> int:
             create_app(project, persist=False).get_root()
     origins = [f"{args.address}:{port}", f"localhost:{port}", f"127.0.0.1:{port}"]
     url = f"http://{args.address}:{port}/"
-    server = pn.serve({"/": lambda: create_app(project)}, port=port, address=args.address,
+    from .views.printmap import print_page
+
+    routes = {"/": lambda: create_app(project), "/print": lambda: print_page(project)}
+    server = pn.serve(routes, port=port, address=args.address,
                       show=False, start=False, websocket_origin=origins,
                       title="districting workbench", threaded=False,
                       check_unused_sessions=2000, unused_session_lifetime=15000)

@@ -54,6 +54,7 @@ class CompareMaps(pn.viewable.Viewer):
         self.summary = pn.pane.HTML("", css_classes=["compare-summary"],
                                     sizing_mode="stretch_width")
         self.figures = []
+        self._quiet = False
         ranges = None
         for key, title in (("a", "first"), ("b", "second"), ("diff", "difference")):
             fig = map_figure(name=f"compare-map-{key}", css=f"compare-map-{key}", height=430,
@@ -81,10 +82,14 @@ class CompareMaps(pn.viewable.Viewer):
         names = self.session.store.option_names()
         options = {TODAY_CHOICE: TODAY_CHOICE, SCREEN_CHOICE: SCREEN_CHOICE,
                    **{_esc(n): n for n in names}}
-        for widget, default in ((self.first, TODAY_CHOICE), (self.second, SCREEN_CHOICE)):
-            keep = widget.value if widget.value in options.values() else default
-            widget.options = options
-            widget.value = keep
+        self._quiet = True  # one redraw for both choosers
+        try:
+            for widget, default in ((self.first, TODAY_CHOICE), (self.second, SCREEN_CHOICE)):
+                keep = widget.value if widget.value in options.values() else default
+                widget.options = options
+                widget.value = keep
+        finally:
+            self._quiet = False
         self._update()
 
     def _outcome(self, choice: str):
@@ -96,6 +101,8 @@ class CompareMaps(pn.viewable.Viewer):
         return st.load_option(choice)
 
     def _update(self, *events) -> None:
+        if self._quiet or not (self.first.value and self.second.value):
+            return
         st = self.session.store
         try:
             a, b = self._outcome(self.first.value), self._outcome(self.second.value)

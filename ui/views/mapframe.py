@@ -56,17 +56,18 @@ def keep_true_shape(fig) -> None:
 
 
 def add_scale_and_north(fig, *, font_size: str = "12px") -> None:
-    """A metric scale bar (bottom left) and a north arrow with an N (top left of the frame)."""
-    fig.add_layout(ScaleBar(name="scale-bar", range=fig.x_range, unit="m",
+    """A metric scale bar (bottom left) and a north arrow with an N (top left of the frame),
+    named after the figure (``zone-map-scale-bar``, ``zone-map-north-arrow``)."""
+    fig.add_layout(ScaleBar(name=f"{fig.name}-scale-bar", range=fig.x_range, unit="m",
                             dimensional=MetricLength(), location="bottom_left",
                             bar_length=0.2, label_text_font_size=font_size,
                             background_fill_alpha=0.8, border_line_color="#666666"))
     # Screen units count from the frame's bottom left corner; "top" is found from the
     # frame's height in the page, so the arrow sits at a fixed offset from the top.
-    arrow = Arrow(name="north-arrow", x_start=30, y_start=0, x_end=30, y_end=0,
+    arrow = Arrow(name=f"{fig.name}-north-arrow", x_start=30, y_start=0, x_end=30, y_end=0,
                   start_units="screen", end_units="screen", line_width=3,
                   line_color="#111111", end=NormalHead(size=14, fill_color="#111111"))
-    label = Label(name="north-label", x=30, y=0, x_units="screen", y_units="screen",
+    label = Label(name=f"{fig.name}-north-label", x=30, y=0, x_units="screen", y_units="screen",
                   text="N", text_font_size="16px", text_font_style="bold",
                   text_align="center", text_baseline="bottom")
     place = CustomJS(args={"plot": fig, "arrow": arrow, "label": label}, code="""
@@ -88,10 +89,12 @@ if (arrow.y_end !== top) {
 def map_figure(*, name: str, css: str, height: int | None = 560, ranges=None, **kwargs):
     """A Bokeh figure for a map in metres: equal scale on both axes, fitted to its glyphs,
     no axes or grid, scale bar and north arrow. ``ranges`` = (x, y) shares another map's
-    ranges (linked pan and zoom); ``height=None`` leaves the size to ``kwargs``."""
+    ranges (linked pan and zoom); ``height=None``: a fixed size, ``width`` and ``height_px``
+    in ``kwargs``."""
     if ranges is None:  # fitted to the glyphs (no start/end: those would defeat the aspect)
         ranges = (DataRange1d(range_padding=0.04), DataRange1d(range_padding=0.04))
-    size = {"height": height, "sizing_mode": "stretch_width"} if height else {}
+    size = {"height": height, "sizing_mode": "stretch_width"} if height else {
+        "height": kwargs.pop("height_px")}
     fig = figure(name=name, css_classes=[css], match_aspect=True, aspect_scale=1,
                  x_range=ranges[0], y_range=ranges[1], output_backend="canvas",
                  **{**size, **kwargs})
