@@ -16,10 +16,15 @@ from ui.views.intro import IntroNote
 
 
 def test_the_first_screen_says_what_is_on_it_and_can_be_put_away(inputs):
-    note = IntroNote(Session(new_store(inputs)))
+    session = Session(new_store(inputs))
+    note = IntroNote(session)
     text = note.text.object
-    assert "today's zones" in text and "140 planning units" in text
+    assert "today's zones</b>" in text and "140 planning units" in text
     assert "Rerun" in text and "undone" in text
+    session.store.rerun()
+    session.state.plan_version += 1  # what the runner does when a plan arrives
+    assert "today's zones</b>" not in note.text.object
+    assert "the last result</b>" in note.text.object
     assert note.box.visible
     note._hide(None)
     assert not note.box.visible

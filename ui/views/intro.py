@@ -52,6 +52,11 @@ class IntroNote(pn.viewable.Viewer):
                              styles={"background": "#eef4fb", "border": "1px solid #9bb8d9",
                                      "border-radius": "4px", "padding": "4px 10px"})
         self.dismiss.on_click(self._hide)
+        session.state.param.watch(self._update, ["plan_version", "level"])
+
+    def _update(self, *events) -> None:
+        if self.box.visible:
+            self.text.object = intro_html(self.session)
 
     def _hide(self, event) -> None:
         self.box.visible = False

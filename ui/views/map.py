@@ -52,7 +52,9 @@ class MapView(pn.viewable.Viewer):
             "xs": xs, "ys": ys, "unit_id": st.unit_ids, **self._unit_columns(n)})
         self.changed = ColumnDataSource(name="changed-source", data={"xs": [], "ys": []})
         self.marked = ColumnDataSource(name="locked-source", data={
-            "xs": [], "ys": [], "unit_id": [], "hatch": [], "line_width": []})
+            "xs": [], "ys": [], "unit_id": []})
+        self.forbidden = ColumnDataSource(name="forbidden-source", data={
+            "xs": [], "ys": [], "unit_id": []})
         self.today = ColumnDataSource(name="today-source", data={"xs": [], "ys": []})
         self.sites = ColumnDataSource(name="sites-source", data=self._site_columns())
         fig = map_figure(name="zone-map", css="zone-map", height=560,
@@ -66,11 +68,13 @@ class MapView(pn.viewable.Viewer):
         )
         # Locked and forbidden units: a small layer of their own (hatching every unit
         # would slow the page down for nothing).
-        fig.multi_polygons(
-            "xs", "ys", source=self.marked, fill_alpha=0, line_color="#000000",
-            line_width="line_width", hatch_pattern="hatch", hatch_color="#111111",
-            hatch_alpha=0.6, hatch_scale=8, name="locked-units",
-            legend_label="locked (hatched) / forbidden (dots)")
+        # (constant styles: a legend swatch drawn from a per-unit column would be blank)
+        for source, hatch, width, label, name in (
+                (self.marked, "/", 2.5, "locked (hatched)", "locked-units"),
+                (self.forbidden, ".", 1.0, "a school forbidden (dots)", "forbidden-units")):
+            fig.multi_polygons("xs", "ys", source=source, fill_alpha=0, line_color="#000000",
+                               line_width=width, hatch_pattern=hatch, hatch_color="#111111",
+                               hatch_alpha=0.6, hatch_scale=8, name=name, legend_label=label)
         self.change_glyphs = fig.multi_polygons(
             "xs", "ys", source=self.changed, fill_alpha=0, line_color="#c0392b",
             line_width=2, line_dash="dotted", name="changed-units",
@@ -169,7 +173,6 @@ class MapView(pn.viewable.Viewer):
         locked = frame["locked"].to_numpy(dtype=object) != ""
         forbidden = frame["forbidden"].to_numpy(dtype=object) != ""
         names = st.site_names()
-        hatch = np.where(locked, "/", ".")
         self.units.data.update({
             "students": frame["students"].to_numpy(),
             "current": frame["current"].tolist(),
@@ -182,11 +185,11 @@ class MapView(pn.viewable.Viewer):
             "color": zone_fill(frame["proposed"], colors),
         })
         xs, ys = self.mapdata.units
-        idx = np.flatnonzero(locked | forbidden)
-        self.marked.data = {
-            "xs": [xs[i] for i in idx], "ys": [ys[i] for i in idx],
-            "unit_id": frame["unit_id"].to_numpy()[idx].tolist(),
-            "hatch": hatch[idx].tolist(), "line_width": np.where(locked[idx], 2.5, 1.0)}
+        uid = frame["unit_id"].to_numpy()
+        for source, mask in ((self.marked, locked), (self.forbidden, forbidden & ~locked)):
+            idx = np.flatnonzero(mask)
+            source.data = {"xs": [xs[i] for i in idx], "ys": [ys[i] for i in idx],
+                           "unit_id": uid[idx].tolist()}
         ref = self.session.reference_outcome
         if out is ref:
             changed = np.zeros(len(frame), bool)
