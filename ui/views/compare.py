@@ -38,9 +38,7 @@ class CompareMaps(pn.viewable.Viewer):
 
     def __init__(self, session: Session, **params):
         super().__init__(**params)
-        self.session = session
-        self.state = state = session.state
-        st = session.store
+        self.session, st = session, session.store
         self.mapdata = mapdata = MapData.of(st.inputs)
         xs, ys = mapdata.units
         n = len(xs)
@@ -74,8 +72,8 @@ class CompareMaps(pn.viewable.Viewer):
                       for f in self.figures]
         self.first.param.watch(self._update, "value")
         self.second.param.watch(self._update, "value")
-        state.param.watch(self._choices, ["options_version", "level", "plan_version",
-                                          "edits_version"])
+        session.state.param.watch(self._choices, ["options_version", "level", "plan_version",
+                                                  "edits_version"])
         self._choices()
 
     def _choices(self, *events) -> None:
