@@ -19,7 +19,7 @@ NO_ZONE_COLOR = "#d9d9d9"
 BARRIER_STYLE = {  # kind of ui.mapdata.BARRIER_KINDS -> (colour, width, dash)
     "river": ("#2f6db5", 4, "solid"),
     "highway": ("#6b3e1e", 3, "solid"),
-    "rail": ("#303030", 2, "dashed"),
+    "rail": ("#303030", 3, "dotdash"),  # apart from the dashed line of today's boundaries
 }
 OTHER_BARRIER = ("#555555", 2, "solid")
 SITE_MARKERS = {"open": "circle", "new": "star", "closing": "x", "candidate": "square",

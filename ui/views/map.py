@@ -17,6 +17,7 @@ from bokeh.models import (
     HoverTool,
     LabelSet,
     LassoSelectTool,
+    LegendItem,
     TapTool,
 )
 
@@ -68,13 +69,19 @@ class MapView(pn.viewable.Viewer):
         )
         # Locked and forbidden units: a small layer of their own (hatching every unit
         # would slow the page down for nothing).
-        # (constant styles: a legend swatch drawn from a per-unit column would be blank)
+        # Bokeh draws no legend swatch for an empty layer, so each legend entry also holds
+        # a one-row layer with nothing to draw on the map (its ring is not a number).
+        swatch = {"xs": [[[[np.nan]]]], "ys": [[[[np.nan]]]]}
+        lock_items = []
         for source, hatch, width, label, name in (
                 (self.marked, "/", 2.5, "locked (hatched)", "locked-units"),
                 (self.forbidden, ".", 1.0, "a school forbidden (dots)", "forbidden-units")):
-            fig.multi_polygons("xs", "ys", source=source, fill_alpha=0, line_color="#000000",
-                               line_width=width, hatch_pattern=hatch, hatch_color="#111111",
-                               hatch_alpha=0.6, hatch_scale=8, name=name, legend_label=label)
+            style = {"fill_alpha": 0, "line_color": "#000000", "line_width": width,
+                     "hatch_pattern": hatch, "hatch_color": "#111111", "hatch_alpha": 0.6,
+                     "hatch_scale": 8}
+            key = fig.multi_polygons("xs", "ys", source=ColumnDataSource(swatch), **style)
+            layer = fig.multi_polygons("xs", "ys", source=source, name=name, **style)
+            lock_items.append(LegendItem(label=label, renderers=[key, layer]))
         self.change_glyphs = fig.multi_polygons(
             "xs", "ys", source=self.changed, fill_alpha=0, line_color="#c0392b",
             line_width=2, line_dash="dotted", name="changed-units",
@@ -102,6 +109,7 @@ class MapView(pn.viewable.Viewer):
             LassoSelectTool(renderers=[self.unit_glyphs]),
         )
         legend = fig.legend[0]
+        legend.items = [*lock_items, *legend.items]
         fig.add_layout(legend, "right")  # beside the map, never over the town
         fig.legend.click_policy = "hide"
         fig.legend.background_fill_alpha = 0.8
