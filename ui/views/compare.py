@@ -79,7 +79,7 @@ class CompareMaps(pn.viewable.Viewer):
     def _choices(self, *events) -> None:
         names = self.session.store.option_names()
         options = {TODAY_CHOICE: TODAY_CHOICE, SCREEN_CHOICE: SCREEN_CHOICE,
-                   **{_esc(n): n for n in names}}
+                   **{n: n for n in names}}  # a Select shows its labels as text
         self._quiet = True  # one redraw for both choosers
         try:
             for widget, default in ((self.first, TODAY_CHOICE), (self.second, SCREEN_CHOICE)):
