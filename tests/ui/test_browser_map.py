@@ -72,6 +72,8 @@ def test_maps_keep_their_true_shape(tmp_path):
 
     project = copy_demo(tmp_path / "demo")
     with running_server(project, tmp_path) as url, chromium_page() as page:
+        errors: list[str] = []
+        page.on("pageerror", lambda e: errors.append(str(e)))
         page.goto(url)
         page.wait_for_function("() => window.Bokeh && Bokeh.documents.length && "
                                "Bokeh.documents[0].get_model_by_name('zone-map')",
@@ -114,4 +116,5 @@ def test_maps_keep_their_true_shape(tmp_path):
         page.pdf(path=str(pdf), landscape=True)
         assert pdf.read_bytes()[:5] == b"%PDF-" and pdf.stat().st_size > 50_000
         shot(page, "print-map")
+        assert not errors, errors
 

@@ -30,7 +30,8 @@ KEEP_TRUE_SHAPE = """
 if (plot.__true_shape) { return; }
 plot.__true_shape = true;
 const fix = () => {
-  const w = plot.inner_width, h = plot.inner_height;
+  let w, h;
+  try { w = plot.inner_width; h = plot.inner_height; } catch (e) { return; }  // not laid out
   const xr = plot.x_range, yr = plot.y_range;
   if (!(w > 0 && h > 0) || !(xr.end > xr.start) || !(yr.end > yr.start)) { return; }
   const per_px = (xr.end - xr.start) / w;
@@ -71,7 +72,8 @@ def add_scale_and_north(fig, *, font_size: str = "12px") -> None:
                   text="N", text_font_size="16px", text_font_style="bold",
                   text_align="center", text_baseline="bottom")
     place = CustomJS(args={"plot": fig, "arrow": arrow, "label": label}, code="""
-const h = plot.inner_height;
+let h;
+try { h = plot.inner_height; } catch (e) { return; }  // a plot not laid out yet (hidden tab)
 if (!(h > 0)) { return; }
 const top = h - 30;
 if (arrow.y_end !== top) {
