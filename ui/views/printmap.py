@@ -39,6 +39,7 @@ __all__ = ["print_page", "PrintLink", "print_url"]
 
 MAP_WIDTH, MAP_HEIGHT = 760, 620  # the largest map frame in px (fits A4 / Letter landscape)
 MARKER_SIGNS = {"circle": "&#9711;", "star": "&#9734;", "x": "&#10005;", "square": "&#9633;"}
+CSS_DASH = {"dotdash": "dotted", "dashdot": "dotted"}  # Bokeh dash -> CSS border style
 NO_PRINT = "<style>@media print { .no-print { display: none !important; } }</style>"
 
 
@@ -78,7 +79,8 @@ def _legend(store: Store, out, colors: dict[str, str]) -> str:
         lines.append((kind or "barrier", color, width, dash))
     rows += "".join(
         f"<div><span style='display:inline-block;width:26px;margin-right:6px;"
-        f"vertical-align:middle;border-top:{w}px {dash} {c}'></span>{_esc(label)}</div>"
+        f"vertical-align:middle;border-top:{w}px {CSS_DASH.get(dash, dash)} {c}'></span>"
+        f"{_esc(label)}</div>"
         for label, c, w, dash in lines)
     statuses = sorted(set(store.sites_frame(resolved_settings=store.effective)["status"]))
     rows += "".join(f"<div><span style='display:inline-block;width:26px'>"
