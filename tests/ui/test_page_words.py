@@ -64,3 +64,21 @@ def test_downloads_are_named_after_the_saved_option(inputs):
     text = open(csv, encoding="utf-8").read()
     assert "(unsaved" not in text
     assert len(pd.read_csv(csv, comment="#")) == 140
+
+
+def test_the_schools_table_has_no_nan_and_plain_titles(inputs):
+    from ui.views.sites import SitesTable
+
+    session = Session(new_store(inputs))
+    st = session.store
+    session.edit_site(st.site_ids[3], status="closed")  # no students: no mean trip
+    for sid in st.site_ids[:3]:
+        session.edit_site(sid, capacity=1200)
+    st.rerun()
+    table = SitesTable(session)
+    km = table.table.value.set_index("site_id")["mean km"]
+    assert km[st.site_ids[3]] == "- (no students)"
+    assert all(v.replace(".", "").isdigit() for v in km.drop(st.site_ids[3]))
+    titles = table.table.titles
+    assert titles["use 2027 %"] == "2027 use (%)" and titles["today"] == (
+        "2027 students, today's zones")
