@@ -82,3 +82,15 @@ def test_the_schools_table_has_no_nan_and_plain_titles(inputs):
     titles = table.table.titles
     assert titles["use 2027 %"] == "2027 use (%)" and titles["today"] == (
         "2027 students, today's zones")
+
+
+def test_todays_zones_name_the_schools_outside_the_band_and_by_how_much():
+    from ui.views.results import outside_band
+
+    sites = pd.DataFrame({  # worked by hand: A is over in 2028 most, B under in 2027
+        "site_id": ["A", "B", "C"], "name": ["Alder", "Birch", "Cedar"],
+        "min_util": [0.6, 0.6, 0.6], "max_util": [1.0, 1.0, 1.0],
+        "util_2027": [1.02, 0.50, 0.80], "util_2028": [1.10, 0.58, 0.81],
+        "flag": ["over 100% in 2027, 2028", "under 60% in 2027, 2028", ""]})
+    assert outside_band(sites) == ["Alder (A) 110% in 2028, over its 100% limit",
+                                   "Birch (B) 50% in 2027, under its 60% floor"]

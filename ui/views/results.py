@@ -11,7 +11,28 @@ from ..store import TODAY
 from ..text import esc as _esc
 from ..text import status_text
 
-__all__ = ["ResultsView"]
+__all__ = ["ResultsView", "outside_band"]
+
+
+def outside_band(sites: pd.DataFrame) -> list[str]:
+    """Per flagged school, its worst year in words: 'Quillmarsh (E02) 55% in 2027, under
+    its 60% floor' (from the store's sites table: util_<year>, min_util, max_util, flag)."""
+    years = [c[len("util_"):] for c in sites.columns if c.startswith("util_")]
+    out = []
+    for _, row in sites.loc[sites["flag"] != ""].iterrows():
+        use = {y: row[f"util_{y}"] for y in years if row[f"util_{y}"] == row[f"util_{y}"]}
+        if not use:
+            out.append(f"{row['name']} ({row['site_id']}): {row['flag']}")
+            continue
+        over = {y: u - row["max_util"] for y, u in use.items()}
+        under = {y: row["min_util"] - u for y, u in use.items()}
+        y_over, y_under = max(over, key=over.get), max(under, key=under.get)
+        if over[y_over] >= under[y_under]:
+            words = f"{use[y_over]:.0%} in {y_over}, over its {row['max_util']:.0%} limit"
+        else:
+            words = f"{use[y_under]:.0%} in {y_under}, under its {row['min_util']:.0%} floor"
+        out.append(f"{row['name']} ({row['site_id']}) {words}")
+    return out
 
 
 class ResultsView(pn.viewable.Viewer):
@@ -49,9 +70,10 @@ class ResultsView(pn.viewable.Viewer):
         shown = "today's zones (no plan run yet: press Rerun)" if out.name == TODAY \
             else _esc(s["option"])
         if out.name == TODAY:
-            oob = s["schools_out_of_band"]
-            status = (f"today's zones, {oob} school(s) outside the band" if oob
-                      else "today's zones, every school inside the band")
+            worst = outside_band(st.sites_frame(out))
+            status = (f"today's zones: {len(worst)} school(s) outside the band, "
+                      + "; ".join(worst) if worst else
+                      "today's zones: every school inside the band")
         else:
             status = status_text(out.plan)
         moved_vs_ref = ch["students"].sum()
