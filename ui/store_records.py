@@ -44,6 +44,9 @@ class StoreError(ValueError):
 class StoreRecords:
     """Options and the draft record of a store (reads ``inputs``, ``runs``, ``outcomes``...)."""
 
+    #: the planner put the page's first-load note away (kept with the record)
+    intro_dismissed: bool = False
+
     # ------------------------------------------------------------------ options
     def save_option(self, name: str, overwrite: bool = False) -> None:
         """Save the plan on screen as a named option in the project's store."""
@@ -103,6 +106,10 @@ class StoreRecords:
             except (ValueError, KeyError) as exc:
                 raise StoreError(str(exc)) from exc
 
+    def set_intro_dismissed(self, dismissed: bool) -> None:
+        self.intro_dismissed = bool(dismissed)
+        self._save()
+
     def put_edits(self, level: str, fields: dict) -> RunSettings:
         """Put back edited fields of a level's settings (locks, forbids, site edits), as
         undo and redo do; the other settings stay as they are."""
@@ -149,6 +156,7 @@ class StoreRecords:
             "level": self.level,
             "runs": {lv: rs.to_dict() for lv, rs in self.runs.items()},
             "plans": plans,
+            "intro_dismissed": bool(self.intro_dismissed),
         }
 
     @property
@@ -264,6 +272,7 @@ class StoreRecords:
                                                              if s})
         if data.get("level") in self.runs:
             self.level = data["level"]
+        self.intro_dismissed = bool(data.get("intro_dismissed", False))
         for lv, p in data.get("plans", {}).items():
             if lv not in self.runs:
                 continue

@@ -25,9 +25,13 @@ def test_the_first_screen_says_what_is_on_it_and_can_be_put_away(inputs):
     session.state.plan_version += 1  # what the runner does when a plan arrives
     assert "today's zones</b>" not in note.text.object
     assert "the last result</b>" in note.text.object
-    assert note.box.visible
+    assert note.box.visible and not note.reopen.visible
     note._hide(None)
-    assert not note.box.visible
+    assert not note.box.visible and note.reopen.visible
+    again = IntroNote(Session(Store(inputs)))  # the page opened again: put away
+    assert not again.box.visible and again.reopen.visible
+    again._show(None)
+    assert again.box.visible and IntroNote(Session(Store(inputs))).box.visible
 
 
 def test_a_reloaded_page_says_it_shows_the_last_result(inputs):

@@ -39,7 +39,8 @@ def intro_html(session: Session) -> str:
 
 
 class IntroNote(pn.viewable.Viewer):
-    """The first-load explanation, with a button that puts it away for this page."""
+    """The first-load explanation, with a button that puts it away (remembered with the
+    workbench record) and one that brings it back."""
 
     def __init__(self, session: Session, **params):
         super().__init__(**params)
@@ -52,14 +53,30 @@ class IntroNote(pn.viewable.Viewer):
                              styles={"background": "#eef4fb", "border": "1px solid #9bb8d9",
                                      "border-radius": "4px", "padding": "4px 10px"})
         self.dismiss.on_click(self._hide)
+        self.reopen = pn.widgets.Button(name="What is on this page?", css_classes=["intro-show"],
+                                        button_type="light", width=180)
+        self.reopen.on_click(self._show)
+        self._set_visible(not session.store.intro_dismissed)
         session.state.param.watch(self._update, ["plan_version", "level"])
 
     def _update(self, *events) -> None:
         if self.box.visible:
             self.text.object = intro_html(self.session)
 
+    def _set_visible(self, shown: bool) -> None:
+        self.box.visible = shown
+        self.reopen.visible = not shown
+        if shown:
+            self.text.object = intro_html(self.session)
+
     def _hide(self, event) -> None:
-        self.box.visible = False
+        """Put the note away, on this page and on the next pages of this record."""
+        self._set_visible(False)
+        self.session.store.set_intro_dismissed(True)
+
+    def _show(self, event) -> None:
+        self._set_visible(True)
+        self.session.store.set_intro_dismissed(False)
 
     def __panel__(self):
-        return self.box
+        return pn.Column(self.box, self.reopen, sizing_mode="stretch_width")
