@@ -34,6 +34,7 @@ def create_app(project: str | Path, *, persist: bool = True):
 
     from .views import (
         DownloadsPanel,
+        HistoryPanel,
         LocksTable,
         MapView,
         MessageArea,
@@ -45,6 +46,9 @@ def create_app(project: str | Path, *, persist: bool = True):
         SitesTable,
         StoreProblem,
     )
+    from .views.compare import CompareMaps
+    from .views.intro import IntroNote
+    from .views.printmap import PrintLink
     from .views.project import ProjectOpener, error_page, page_header, project_info
 
     shell = pn.Column(sizing_mode="stretch_width", css_classes=["districting-app"])
@@ -75,17 +79,21 @@ def create_app(project: str | Path, *, persist: bool = True):
         SettingsPanel(session),
         pn.Card(RunPanel(session), title="Run", sizing_mode="stretch_width",
                 css_classes=["run-card"]),
-        SelectionPanel(session), width=340, scroll=True, css_classes=["sidebar"])
+        SelectionPanel(session), HistoryPanel(session), width=340, scroll=True,
+        css_classes=["sidebar"])
     tabs = pn.Tabs(
         ("Schools", SitesTable(session)),
         ("Changes", ResultsView(session)),
         ("Locks", LocksTable(session)),
         ("Options", OptionsPanel(session)),
+        ("Compare maps", CompareMaps(session)),
+        ("Print", PrintLink(session)),
         ("Downloads", DownloadsPanel(session)),
         ("Project", pn.Column(project_info(inputs, project), opener)),
         dynamic=True, sizing_mode="stretch_width", css_classes=["result-tabs"],
     )
-    main = pn.Column(MessageArea(session), StoreProblem(session), mapview, tabs,
+    main = pn.Column(IntroNote(session), MessageArea(session), StoreProblem(session), mapview,
+                     tabs,
                      sizing_mode="stretch_width")
     shell.objects = [*page_header(inputs),
                      pn.Row(sidebar, main, sizing_mode="stretch_width")]
@@ -162,7 +170,10 @@ def serve_command(args: argparse.Namespace) -> int:
             create_app(project, persist=False).get_root()
     origins = [f"{args.address}:{port}", f"localhost:{port}", f"127.0.0.1:{port}"]
     url = f"http://{args.address}:{port}/"
-    server = pn.serve({"/": lambda: create_app(project)}, port=port, address=args.address,
+    from .views.printmap import print_page
+
+    routes = {"/": lambda: create_app(project), "/print": lambda: print_page(project)}
+    server = pn.serve(routes, port=port, address=args.address,
                       show=False, start=False, websocket_origin=origins,
                       title="districting workbench", threaded=False,
                       check_unused_sessions=2000, unused_session_lifetime=15000)

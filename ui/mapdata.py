@@ -132,6 +132,7 @@ class MapData:
         self.bounds = tuple(float(v) for v in inputs.units.total_bounds)
         self.barriers: dict[str | None, Paths] = barrier_paths(inputs)
         self._today: dict[str, Paths] = {}
+        self._colors: dict[str, dict[str, str]] = {}
         self._lock = threading.Lock()
 
     @classmethod
@@ -158,8 +159,30 @@ class MapData:
                 self._today[level] = line_paths(np.asarray(zones.geometry, dtype=object))
             return self._today[level]
 
-    def zone_colors(self, site_ids: list[str], assignment: np.ndarray) -> dict[str, str]:
-        """Colour per site id of a plan; touching zones differ."""
-        from districting.outputs.colours import zone_colours
+    def school_colors(self, level: str) -> dict[str, str]:
+        """The display colour of every school of a level: the same on every map of the
+        workbench (plan on screen, compare maps, print), whatever the plan.
 
-        return zone_colours(self.inputs.adjacency, site_ids, [assignment])
+        The one place the workbench picks zone colours. Until the project stores its own
+        colours, they come from today's zones (touching zones differ, and zones a few steps
+        apart too while the palette lasts); a school with no zone today takes the palette
+        colour used least so far.
+        """
+        with self._lock:
+            if level not in self._colors:
+                from districting.outputs.colours import ZONE_PALETTE, zone_colours
+
+                sites = self.inputs.sites
+                ids = sites.loc[sites["level"] == level, "site_id"].astype(str).tolist()
+                rows = {s: k for k, s in enumerate(sites["site_id"].astype(str))}
+                level_of = np.array([rows[s] for s in ids])
+                cur = self.inputs.current[level]  # row of inputs.sites per unit, or -1
+                pos = {int(r): j for j, r in enumerate(level_of)}
+                today = np.array([pos.get(int(c), -1) for c in cur], dtype=np.int64)
+                colors = zone_colours(self.inputs.adjacency, ids, [today], spread=True)
+                for sid in ids:
+                    if sid not in colors:
+                        used = list(colors.values())
+                        colors[sid] = min(ZONE_PALETTE, key=used.count)
+                self._colors[level] = colors
+            return dict(self._colors[level])

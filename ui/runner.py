@@ -15,6 +15,7 @@ from collections.abc import Callable
 
 from .state import SessionState
 from .store import Store, StoreError
+from .text import share_text, status_text
 
 __all__ = ["Runner", "round_text", "result_text"]
 
@@ -123,13 +124,9 @@ class Runner:
 def result_text(out, s: dict, elapsed: float) -> tuple[str, str, str]:
     """The progress line, the message and its kind for a finished run's outcome."""
     plan = out.plan
-    head = {"optimal": "Best plan found (proven within the gap).",
-            "feasible": "A valid plan; not proven best within the gap.",
-            "time_limit": "Time limit reached: showing the best plan found.",
-            "cancelled": "Cancelled: showing the best plan found so far."}.get(
-                plan.status, plan.status)
-    gap = f", gap {plan.gap:.2%}" if plan.gap == plan.gap else ""
-    progress = (f"Done in {elapsed:.1f} s{gap}. {s['students_moved']:,.0f} students "
+    words = status_text(plan)
+    head = f"{words[0].upper()}{words[1:]}."
+    progress = (f"Done in {elapsed:.1f} s. {s['students_moved']:,.0f} students "
                 f"change school; mean trip {s['mean_km']:.2f} km.")
     kind = "success" if plan.status == "optimal" else "warning"
     oob = s["schools_out_of_band"]
@@ -138,8 +135,11 @@ def result_text(out, s: dict, elapsed: float) -> tuple[str, str, str]:
 
 
 def round_text(rnd) -> str:
-    """One line of progress for a solve round."""
-    best = (f"best plan so far on the map ({rnd.objective / 1000.0:,.0f} student-km)"
-            if rnd.objective < float("inf") else "no valid plan yet")
-    gap = f"gap {rnd.gap:.2%}" if rnd.gap < float("inf") else "gap not known yet"
-    return f"Round {rnd.number}: {rnd.seconds:.1f} s, {best}, {gap}; still solving"
+    """One line of progress while the solver works (no solver words: the round number,
+    cuts and bound stay in the log)."""
+    if not rnd.objective < float("inf"):
+        return f"Still solving ({rnd.seconds:.0f} s): no valid plan yet"
+    close = (f"within {share_text(rnd.gap)} of the best possible" if rnd.gap < float("inf")
+             else "how close to the best is not known yet")
+    return (f"Still solving ({rnd.seconds:.0f} s): the best plan so far is on the map, "
+            f"{rnd.objective / 1000.0:,.0f} student-km of travel, {close}")

@@ -11,9 +11,11 @@ from __future__ import annotations
 
 from collections.abc import Callable
 
+from .history import History, describe_units
 from .runner import Runner, Schedule
 from .state import SETTING_PARAMS, SessionState
 from .store import TODAY, Store, StoreError
+from .text import restored_text
 
 __all__ = ["Session"]
 
@@ -25,6 +27,7 @@ class Session:
         self.store = store
         self.state = state = SessionState()
         self.runner = Runner(store, state, schedule)
+        self.history = History()
         self._syncing = False
         state.param.level.objects = list(store.runs)
         state.param.plan_year.objects = list(store.inputs.settings.years)
@@ -33,6 +36,8 @@ class Session:
         state.store_problem = store.problem
         if store.last_message and not store.problem:
             self.notify(store.last_message, "warning")
+        elif store.outcome is not None and not store.problem:
+            self.notify(restored_text(store.outcome), "info")
         state.param.watch(self._on_level, "level")
         state.param.watch(self._on_setting, list(SETTING_PARAMS))
 
@@ -117,40 +122,91 @@ class Session:
     def select(self, unit_ids) -> None:
         self.state.selection = [str(u) for u in unit_ids]
 
-    def _selection_action(self, method: str, done: str, with_site: bool = True) -> None:
-        units = list(self.state.selection)
-        site = self.state.target_site
-        args = (units, site) if with_site else (units,)
-        if self._guard(lambda: getattr(self.store, method)(*args)):
-            noun = "unit" if len(units) == 1 else "units"
-            self.notify(done.format(n=len(units), noun=noun, site=site,
-                                    name=self.store.site_names().get(site, site)), "success")
-            self.state.edits_version += 1
+    def _edit(self, action: Callable, words: str, message: str, kind: str = "success") -> bool:
+        """Run an edit of the current level; a done edit goes into the history as ``words``."""
+        st = self.store
+        level, before = st.level, st.settings
+        ok = self._guard(action)
+        if ok:
+            self.history.record(words, level, before, st.settings)
+            self.notify(message, kind)
+        self.state.edits_version += 1  # on failure the tables show the stored values again
+        return ok
+
+    def _site_label(self, site) -> str:
+        return f"{self.store.site_names().get(site, site)} ({site})"
 
     def lock_selection(self) -> None:
-        self._selection_action("lock", "Locked {n} {noun} to {name} ({site}). Press Rerun.")
+        units, site = list(self.state.selection), self.state.target_site
+        words = f"locked {describe_units(units)} to {self._site_label(site)}"
+        self._edit(lambda: self.store.lock(units, site), words, f"{words[0].upper()}"
+                   f"{words[1:]}. Press Rerun.")
 
     def unlock_selection(self) -> None:
-        self._selection_action("unlock", "Unlocked {n} {noun}. Press Rerun.", with_site=False)
+        units = list(self.state.selection)
+        words = f"unlocked {describe_units(units)}"
+        self._edit(lambda: self.store.unlock(units), words, f"U{words[1:]}. Press Rerun.")
 
     def forbid_selection(self) -> None:
-        self._selection_action("forbid", "{name} ({site}) is forbidden for {n} {noun}. "
-                               "Press Rerun.")
+        units, site = list(self.state.selection), self.state.target_site
+        words = f"forbade {self._site_label(site)} for {describe_units(units)}"
+        self._edit(lambda: self.store.forbid(units, site), words,
+                   f"{self._site_label(site)} is forbidden for {describe_units(units)}. "
+                   "Press Rerun.")
 
     def allow_selection(self) -> None:
-        self._selection_action("allow", "Removed forbids of {name} ({site}) for {n} {noun}.")
+        units, site = list(self.state.selection), self.state.target_site
+        words = f"allowed {self._site_label(site)} again for {describe_units(units)}"
+        self._edit(lambda: self.store.allow(units, site), words, f"A{words[1:]}.")
 
     def remove_rows(self, rows) -> None:
-        if self._guard(lambda: self.store.remove(rows)):
-            self.notify(f"Removed {len(rows)} lock(s)/forbid(s). Press Rerun.", "success")
-            self.state.edits_version += 1
+        rows = list(rows)
+        if len(rows) == 1:
+            r = rows[0]
+            what = "lock" if r.kind == "lock" else "forbid"
+            words = f"removed the {what} of unit {r.unit} to {self._site_label(r.site)}"
+        else:
+            words = f"removed {len(rows)} locks and forbids"
+        self._edit(lambda: self.store.remove(rows), words, f"R{words[1:]}. Press Rerun.")
 
     def edit_site(self, site_id: str, **fields) -> bool:
-        ok = self._guard(lambda: self.store.edit_site(site_id, **fields))
-        if ok:
-            self.notify(f"{site_id} changed; press Rerun to see its effect.", "info")
-        self.state.edits_version += 1  # on failure the table shows the stored value again
-        return ok
+        label = self._site_label(site_id)
+        parts = []
+        for key, value in fields.items():
+            if value is None:
+                continue
+            if key == "capacity":
+                parts.append(f"the capacity of {label} to {float(value):,.0f} seats")
+            elif key == "status":
+                parts.append(f"the status of {label} to {value}")
+            else:
+                which = "highest" if key == "max_util" else "lowest"
+                parts.append(f"the {which} utilization of {label} to {float(value):.0%}")
+        words = "set " + "; ".join(parts) if parts else f"edited {label}"
+        return self._edit(lambda: self.store.edit_site(site_id, **fields), words,
+                          f"{site_id} changed; press Rerun to see its effect.", "info")
+
+    # ------------------------------------------------------------------ undo and redo
+    def undo(self) -> bool:
+        return self._step_back_or_forth(undo=True)
+
+    def redo(self) -> bool:
+        return self._step_back_or_forth(undo=False)
+
+    def _step_back_or_forth(self, undo: bool) -> bool:
+        if not self._idle():
+            return False
+        step = self.history.undo() if undo else self.history.redo()
+        if step is None:
+            self.notify(f"Nothing to {'undo' if undo else 'redo'}.", "info")
+            return False
+        fields = step.before if undo else step.after
+        if not self._guard(lambda: self.store.put_edits(step.level, fields)):
+            self.history.position += 1 if undo else -1  # not applied: the step stays
+            return False
+        self.notify(f"{'Undone' if undo else 'Redone'}: {step.text}. Press Rerun.", "info")
+        self.state.edits_version += 1
+        return True
 
     # ------------------------------------------------------------------ options
     def save_option(self, name: str, overwrite: bool = False) -> bool:
@@ -164,6 +220,7 @@ class Session:
     def open_option(self, name: str) -> bool:
         ok = self._guard(lambda: self.store.open_option(name))
         if ok:
+            self.history.clear()
             self._sync_from_store()
             self.notify(f"Showing option {name!r}; its settings and locks are in force.",
                         "info")
@@ -179,6 +236,7 @@ class Session:
 
     # ------------------------------------------------------------------ drafts and the store
     def _continue_from_store(self, done: str, notes: list[str]) -> None:
+        self.history.clear()  # the steps were taken on edits that are no longer in force
         self._sync_from_store()
         self._bump_all()
         self.state.drafts_version += 1

@@ -46,7 +46,7 @@ from districting.study import (
 from districting.travel.measures import MEASURES
 
 from .store_records import DRAFT_PREFIX, STATE_KEY, StoreError, StoreRecords
-from .store_tables import PlanTables
+from .store_tables import TODAY, PlanTables
 
 __all__ = ["Store", "StoreError", "LockRow", "STATE_KEY", "DRAFT_PREFIX", "EDITABLE_SETTINGS",
            "TODAY"]
@@ -64,7 +64,6 @@ EDITABLE_SETTINGS = {
     "min_utilization": (0.0, SCHEMA["solve"].keys["min_utilization"].high),
     "travel": MEASURES,  # a choice, not a range
 }
-TODAY = "Today's zones"
 
 
 @dataclass(frozen=True)

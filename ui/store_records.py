@@ -9,6 +9,7 @@ store file. One writer at a time per store file in this process (:func:`write_lo
 
 from __future__ import annotations
 
+import copy
 import threading
 from pathlib import Path
 
@@ -42,6 +43,9 @@ class StoreError(ValueError):
 
 class StoreRecords:
     """Options and the draft record of a store (reads ``inputs``, ``runs``, ``outcomes``...)."""
+
+    #: the planner put the page's first-load note away (kept with the record)
+    intro_dismissed: bool = False
 
     # ------------------------------------------------------------------ options
     def save_option(self, name: str, overwrite: bool = False) -> None:
@@ -102,6 +106,19 @@ class StoreRecords:
             except (ValueError, KeyError) as exc:
                 raise StoreError(str(exc)) from exc
 
+    def set_intro_dismissed(self, dismissed: bool) -> None:
+        self.intro_dismissed = bool(dismissed)
+        self._save()
+
+    def put_edits(self, level: str, fields: dict) -> RunSettings:
+        """Put back edited fields of a level's settings (locks, forbids, site edits), as
+        undo and redo do; the other settings stay as they are."""
+        if level not in self.runs:
+            raise StoreError(f"level {level!r} is not in this project")
+        self.runs[level] = self.runs[level].replace(**copy.deepcopy(dict(fields)))
+        self._save()
+        return self.runs[level]
+
     def _overrides_of(self, full: RunSettings) -> RunSettings:
         """Resolved settings -> overrides: locks/forbids of the project file are not copied."""
         file_locks = {lk.unit: lk.site for lk in self.inputs.settings.locks
@@ -139,6 +156,7 @@ class StoreRecords:
             "level": self.level,
             "runs": {lv: rs.to_dict() for lv, rs in self.runs.items()},
             "plans": plans,
+            "intro_dismissed": bool(self.intro_dismissed),
         }
 
     @property
@@ -254,6 +272,7 @@ class StoreRecords:
                                                              if s})
         if data.get("level") in self.runs:
             self.level = data["level"]
+        self.intro_dismissed = bool(data.get("intro_dismissed", False))
         for lv, p in data.get("plans", {}).items():
             if lv not in self.runs:
                 continue

@@ -15,8 +15,12 @@ from districting.outputs import tables
 from districting.study import Outcome, RunSettings
 
 from .store_records import StoreError
+from .text import status_text
 
-__all__ = ["PlanTables"]
+#: The name of today's zones as an outcome.
+TODAY = "Today's zones"
+
+__all__ = ["PlanTables", "TODAY"]
 
 
 class PlanTables:
@@ -135,8 +139,7 @@ class PlanTables:
         for out in outcomes:
             s = self.summary(out)
             col = {
-                "status": s["status"],
-                "gap": f"{s['gap']:.3%}" if np.isfinite(s["gap"]) else "",
+                "status": status_text(out.plan) if out.name != TODAY else "today's zones",
                 "students moved": f"{s['students_moved']:,.0f}",
                 "units moved": f"{s['units_moved']:,}",
                 "mean travel (km)": f"{s['mean_km']:.2f}",

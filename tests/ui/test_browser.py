@@ -141,7 +141,7 @@ def test_planner_job_in_the_browser(tmp_path):
                  what="the typed unit to be selected")
         page.select_option(".target-school select", value=_option_value(page, target))
         page.click(".lock-button button")
-        wait_for(lambda: "Locked 1 unit" in message(page), 15, what="the lock message")
+        wait_for(lambda: f"Locked unit {unit} to" in message(page), 15, what="the lock message")
         wait_for(lambda: source_columns(page, "locked-source", ("unit_id",))["unit_id"]
                  == [unit], 15, what="the locked unit hatched on the map")
         shot(page, "03-locked")

@@ -120,10 +120,19 @@ def test_todays_outlines_are_dissolved_once_per_level(inputs, monkeypatch):
     assert {min(p) for p in ys} == {5_000_000.0} and {max(p) for p in ys} == {5_002_000.0}
 
 
-def test_touching_zones_get_different_colours(inputs):
+def test_each_school_keeps_one_colour_and_touching_zones_differ(inputs):
     data = MapData.of(inputs)
     site_ids = inputs.sites["site_id"].astype(str).tolist()
-    colours = data.zone_colors(site_ids, inputs.current[LEVEL])
+    colours = data.school_colors(LEVEL)
     assert set(colours) == set(site_ids)
     for a, b in zip(site_ids[:-1], site_ids[1:], strict=True):  # bands k and k+1 touch
         assert colours[a] != colours[b]
+    assert data.school_colors(LEVEL) == colours  # the same on every map, every call
+
+
+def test_a_school_without_a_zone_today_still_gets_a_colour(inputs):
+    current = dict(inputs.current)
+    current[LEVEL] = np.where(inputs.current[LEVEL] == 3, 2, inputs.current[LEVEL])
+    colours = MapData(dataclasses.replace(inputs, current=current)).school_colors(LEVEL)
+    assert set(colours) == {"M1", "M2", "M3", "M4"}  # M4 has no zone today
+    assert colours["M4"] not in {colours["M1"], colours["M2"], colours["M3"]}

@@ -63,7 +63,8 @@ def test_the_store_session_runner_and_map_data_load_no_ui_library():
     root = str(Path(__file__).resolve().parents[2])
     env = {**os.environ, "PYTHONPATH": os.pathsep.join(
         [root, *filter(None, [os.environ.get("PYTHONPATH")])])}
-    code = ("import sys, ui.store, ui.session, ui.runner, ui.mapdata, ui.projects; "
+    code = ("import sys, ui.store, ui.session, ui.runner, ui.mapdata, ui.projects, ui.history, "
+            "ui.text; "
             "print(sorted({m.split('.')[0] for m in sys.modules} & {'panel', 'bokeh'}))")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          check=True, cwd=root, env=env)

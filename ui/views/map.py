@@ -11,31 +11,28 @@ from __future__ import annotations
 import numpy as np
 import panel as pn
 import param
-import shapely
 from bokeh.models import (
     BoxSelectTool,
     ColumnDataSource,
     HoverTool,
     LabelSet,
     LassoSelectTool,
+    LegendItem,
     TapTool,
 )
-from bokeh.plotting import figure
 
-from ..mapdata import BARRIER_KINDS, MapData
+from ..mapdata import MapData
 from ..session import Session
+from .layers import (
+    NO_ZONE_COLOR,
+    draw_barriers,
+    draw_sites,
+    site_columns,
+    zone_fill,
+)
+from .mapframe import map_figure
 
-__all__ = ["MapView", "NO_ZONE_COLOR", "BARRIER_STYLE", "SITE_MARKERS"]
-
-NO_ZONE_COLOR = "#d9d9d9"
-BARRIER_STYLE = {  # kind of ui.mapdata.BARRIER_KINDS -> (colour, width, dash)
-    "river": ("#2f6db5", 4, "solid"),
-    "highway": ("#6b3e1e", 3, "solid"),
-    "rail": ("#303030", 2, "dashed"),
-}
-SITE_MARKERS = {"open": "circle", "new": "star", "closing": "x", "candidate": "square",
-                "closed": "x"}
-
+__all__ = ["MapView"]
 
 class MapView(pn.viewable.Viewer):
     """Units coloured by proposed zone, schools, today's boundaries, barriers, locks."""
@@ -56,22 +53,14 @@ class MapView(pn.viewable.Viewer):
             "xs": xs, "ys": ys, "unit_id": st.unit_ids, **self._unit_columns(n)})
         self.changed = ColumnDataSource(name="changed-source", data={"xs": [], "ys": []})
         self.marked = ColumnDataSource(name="locked-source", data={
-            "xs": [], "ys": [], "unit_id": [], "hatch": [], "line_width": []})
+            "xs": [], "ys": [], "unit_id": []})
+        self.forbidden = ColumnDataSource(name="forbidden-source", data={
+            "xs": [], "ys": [], "unit_id": []})
         self.today = ColumnDataSource(name="today-source", data={"xs": [], "ys": []})
         self.sites = ColumnDataSource(name="sites-source", data=self._site_columns())
-        bounds = mapdata.bounds
-        pad = 0.03 * max(bounds[2] - bounds[0], bounds[3] - bounds[1])
-        fig = figure(
-            name="zone-map", css_classes=["zone-map"], match_aspect=True,
-            sizing_mode="stretch_width", height=560,
-            x_range=(bounds[0] - pad, bounds[2] + pad), y_range=(bounds[1] - pad,
-                                                                  bounds[3] + pad),
-            tools="pan,wheel_zoom,reset,save", active_scroll="wheel_zoom",
-            toolbar_location="above", output_backend="canvas",
-        )
-        fig.axis.visible = False
-        fig.grid.visible = False
-        fig.background_fill_color = "#f4f4f0"
+        fig = map_figure(name="zone-map", css="zone-map", height=560,
+                         tools="pan,wheel_zoom,reset,save", active_scroll="wheel_zoom",
+                         toolbar_location="above")
         self.unit_glyphs = fig.multi_polygons(
             "xs", "ys", source=self.units, fill_color="color", fill_alpha=0.82,
             line_color="#ffffff", line_width=0.4,
@@ -80,11 +69,19 @@ class MapView(pn.viewable.Viewer):
         )
         # Locked and forbidden units: a small layer of their own (hatching every unit
         # would slow the page down for nothing).
-        fig.multi_polygons(
-            "xs", "ys", source=self.marked, fill_alpha=0, line_color="#000000",
-            line_width="line_width", hatch_pattern="hatch", hatch_color="#111111",
-            hatch_alpha=0.6, hatch_scale=8, name="locked-units",
-            legend_label="locked (hatched) / forbidden (dots)")
+        # Bokeh draws no legend swatch for an empty layer, so each legend entry also holds
+        # a one-row layer with nothing to draw on the map (its ring is not a number).
+        swatch = {"xs": [[[[np.nan]]]], "ys": [[[[np.nan]]]]}
+        lock_items = []
+        for source, hatch, width, label, name in (
+                (self.marked, "/", 2.5, "locked (hatched)", "locked-units"),
+                (self.forbidden, ".", 1.0, "a school forbidden (dots)", "forbidden-units")):
+            style = {"fill_alpha": 0, "line_color": "#000000", "line_width": width,
+                     "hatch_pattern": hatch, "hatch_color": "#111111", "hatch_alpha": 0.6,
+                     "hatch_scale": 8}
+            key = fig.multi_polygons("xs", "ys", source=ColumnDataSource(swatch), **style)
+            layer = fig.multi_polygons("xs", "ys", source=source, name=name, **style)
+            lock_items.append(LegendItem(label=label, renderers=[key, layer]))
         self.change_glyphs = fig.multi_polygons(
             "xs", "ys", source=self.changed, fill_alpha=0, line_color="#c0392b",
             line_width=2, line_dash="dotted", name="changed-units",
@@ -92,17 +89,8 @@ class MapView(pn.viewable.Viewer):
         self.today_glyphs = fig.multi_line("xs", "ys", source=self.today, line_color="#111111",
                                            line_width=2.2, line_dash="dashed",
                                            legend_label="today's boundaries", name="today")
-        for kind in (*BARRIER_KINDS, None):
-            if kind not in mapdata.barriers:
-                continue
-            xs, ys = mapdata.barriers[kind]
-            color, width, dash = BARRIER_STYLE.get(kind, ("#555555", 2, "solid"))
-            fig.multi_line("xs", "ys", source=ColumnDataSource({"xs": xs, "ys": ys}),
-                           line_color=color, line_width=width, line_dash=dash,
-                           legend_label=kind or "barrier", name=f"barrier-{kind or 'other'}")
-        self.site_glyphs = fig.scatter("x", "y", source=self.sites, marker="marker", size=14,
-                                       fill_color="fill", line_color="#000000",
-                                       line_width=1.5, name="sites")
+        draw_barriers(fig, mapdata)
+        self.site_glyphs = draw_sites(fig, self.sites)
         self.labels = LabelSet(x="x", y="y", text="label", source=self.sites, x_offset=8,
                                y_offset=6, text_font_size="11px", text_color="#111111",
                                background_fill_color="#ffffff", background_fill_alpha=0.75)
@@ -121,6 +109,7 @@ class MapView(pn.viewable.Viewer):
             LassoSelectTool(renderers=[self.unit_glyphs]),
         )
         legend = fig.legend[0]
+        legend.items = [*lock_items, *legend.items]
         fig.add_layout(legend, "right")  # beside the map, never over the town
         fig.legend.click_policy = "hide"
         fig.legend.background_fill_alpha = 0.8
@@ -146,26 +135,10 @@ class MapView(pn.viewable.Viewer):
 
     def _site_columns(self) -> dict:
         st = self.session.store
-        sites = st.inputs.sites
-        sites = sites.loc[sites["level"] == st.level]
-        frame = st.sites_frame(resolved_settings=st.effective)
-        xy = shapely.get_coordinates(sites.geometry.to_numpy())
-        status = frame["status"].tolist()
-        return {
-            "x": xy[:, 0], "y": xy[:, 1], "site_id": frame["site_id"].tolist(),
-            "name": frame["name"].tolist(), "status": status,
-            "capacity": frame["capacity"].to_numpy(),
-            "marker": [SITE_MARKERS.get(s, "circle") for s in status],
-            "fill": ["#ffffff"] * len(status),
-            "label": [f"{n} ({s})" if s != "open" else n
-                      for n, s in zip(frame["name"], status, strict=True)],
-        }
+        return site_columns(st, self.mapdata.school_colors(st.level))
 
-    def _refresh_sites(self, colors: dict | None = None) -> None:
-        data = self._site_columns()
-        if colors:
-            data["fill"] = [colors.get(s, "#ffffff") for s in data["site_id"]]
-        self.sites.data = data
+    def _refresh_sites(self) -> None:
+        self.sites.data = self._site_columns()
 
     def _in_document(self, fn) -> None:
         """Run ``fn`` (which changes Bokeh models) where the page's document allows it.
@@ -204,11 +177,10 @@ class MapView(pn.viewable.Viewer):
         st = self.session.store
         out = st.on_screen()
         frame = st.units_frame(out)
-        colors = self.mapdata.zone_colors(out.site_ids, out.assignment)
+        colors = self.mapdata.school_colors(st.level)
         locked = frame["locked"].to_numpy(dtype=object) != ""
         forbidden = frame["forbidden"].to_numpy(dtype=object) != ""
         names = st.site_names()
-        hatch = np.where(locked, "/", ".")
         self.units.data.update({
             "students": frame["students"].to_numpy(),
             "current": frame["current"].tolist(),
@@ -218,14 +190,14 @@ class MapView(pn.viewable.Viewer):
             "distance": frame["distance_km"].to_numpy(),
             "locked": [f"{names.get(s, s)} ({s})" if s else "" for s in frame["locked"]],
             "forbidden": frame["forbidden"].tolist(),
-            "color": [colors.get(s, NO_ZONE_COLOR) for s in frame["proposed"]],
+            "color": zone_fill(frame["proposed"], colors),
         })
         xs, ys = self.mapdata.units
-        idx = np.flatnonzero(locked | forbidden)
-        self.marked.data = {
-            "xs": [xs[i] for i in idx], "ys": [ys[i] for i in idx],
-            "unit_id": frame["unit_id"].to_numpy()[idx].tolist(),
-            "hatch": hatch[idx].tolist(), "line_width": np.where(locked[idx], 2.5, 1.0)}
+        uid = frame["unit_id"].to_numpy()
+        for source, mask in ((self.marked, locked), (self.forbidden, forbidden & ~locked)):
+            idx = np.flatnonzero(mask)
+            source.data = {"xs": [xs[i] for i in idx], "ys": [ys[i] for i in idx],
+                           "unit_id": uid[idx].tolist()}
         ref = self.session.reference_outcome
         if out is ref:
             changed = np.zeros(len(frame), bool)
@@ -234,7 +206,7 @@ class MapView(pn.viewable.Viewer):
                        .to_numpy())
         idx = np.flatnonzero(changed)
         self.changed.data = {"xs": [xs[i] for i in idx], "ys": [ys[i] for i in idx]}
-        self._refresh_sites(colors)
+        self._refresh_sites()
         self.figure.tags = [{"plan": out.name or "unsaved", "status": out.plan.status}]
 
     # ---------------------------------------------------------- selection

@@ -7,6 +7,7 @@ import panel as pn
 
 from ..session import Session
 from ..text import esc as _esc
+from ..text import status_text
 
 __all__ = ["OptionsPanel"]
 
@@ -69,7 +70,7 @@ class OptionsPanel(pn.viewable.Viewer):
         self.table.value = pd.DataFrame({
             "option": [o.name for o in infos],
             "plan year": [o.plan_year for o in infos],
-            "status": [o.status for o in infos],
+            "status": [status_text(o) for o in infos],
             "students moved": [round(o.students_moved) for o in infos],
             "mean km": [round(o.mean_distance / 1000.0, 2) for o in infos],
             "out of band": [o.out_of_band for o in infos],

@@ -7,9 +7,32 @@ import panel as pn
 
 from ..session import Session
 from ..state import REFERENCES
+from ..store import TODAY
 from ..text import esc as _esc
+from ..text import status_text
 
-__all__ = ["ResultsView"]
+__all__ = ["ResultsView", "outside_band"]
+
+
+def outside_band(sites: pd.DataFrame) -> list[str]:
+    """Per flagged school, its worst year in words: 'Quillmarsh (E02) 55% in 2027, under
+    its 60% floor' (from the store's sites table: util_<year>, min_util, max_util, flag)."""
+    years = [c[len("util_"):] for c in sites.columns if c.startswith("util_")]
+    out = []
+    for _, row in sites.loc[sites["flag"] != ""].iterrows():
+        use = {y: row[f"util_{y}"] for y in years if row[f"util_{y}"] == row[f"util_{y}"]}
+        if not use:
+            out.append(f"{row['name']} ({row['site_id']}): {row['flag']}")
+            continue
+        over = {y: u - row["max_util"] for y, u in use.items()}
+        under = {y: row["min_util"] - u for y, u in use.items()}
+        y_over, y_under = max(over, key=over.get), max(under, key=under.get)
+        if over[y_over] >= under[y_under]:
+            words = f"{use[y_over]:.0%} in {y_over}, over its {row['max_util']:.0%} limit"
+        else:
+            words = f"{use[y_under]:.0%} in {y_under}, under its {row['min_util']:.0%} floor"
+        out.append(f"{row['name']} ({row['site_id']}) {words}")
+    return out
 
 
 class ResultsView(pn.viewable.Viewer):
@@ -44,15 +67,21 @@ class ResultsView(pn.viewable.Viewer):
         label = self.session.reference_label
         ch = st.changes_frame(out, ref)
         fl = st.flows_frame(out, ref)
-        shown = "today's zones (no plan run yet: press Rerun)" if out.name == "Today's zones" \
+        shown = "today's zones (no plan run yet: press Rerun)" if out.name == TODAY \
             else _esc(s["option"])
-        gap = f"{s['gap']:.2%}" if s["gap"] == s["gap"] else "n/a"
+        if out.name == TODAY:
+            worst = outside_band(st.sites_frame(out))
+            status = (f"today's zones: {len(worst)} school(s) outside the band, "
+                      + "; ".join(worst) if worst else
+                      "today's zones: every school inside the band")
+        else:
+            status = status_text(out.plan)
         moved_vs_ref = ch["students"].sum()
         self.summary.object = (
             f"<div class='summary' data-students-moved='{s['students_moved']:.0f}' "
             f"data-status='{_esc(s['status'])}'>"
             f"<b>On the map:</b> {shown} &middot; {_esc(s['level'])} &middot; plan year "
-            f"{s['plan_year']} &middot; status <b>{_esc(s['status'])}</b> (gap {gap})<br>"
+            f"{s['plan_year']} &middot; <b>{_esc(status)}</b><br>"
             f"<b>{s['students_moved']:,.0f}</b> students ({s['units_moved']:,} units) change "
             f"school compared with today &middot; mean trip <b>{s['mean_km']:.2f} km</b>"
             f" &middot; longest {s['max_km']:.2f} km &middot; schools outside the band: "

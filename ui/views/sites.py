@@ -96,7 +96,9 @@ class SitesTable(pn.viewable.Viewer):
             out[f"students {y}"] = df[f"students_{y}"]
         out["moved in"] = df["moved_in"]
         out["moved out"] = df["moved_out"]
-        out["mean km"] = df["mean_km"]
+        students = df[[c for c in df.columns if c.startswith("students_")]].sum(axis=1)
+        out["mean km"] = [f"{v:.2f}" if v == v else ("- (no students)" if s == 0 else "-")
+                          for v, s in zip(df["mean_km"], students, strict=True)]
         return out
 
     def _update(self, *events) -> None:
@@ -115,18 +117,19 @@ class SitesTable(pn.viewable.Viewer):
                                                       "capacity")}
         fmt.update({c: {"type": "money", "precision": 0, "symbol": "", "thousand": ","}
                     for c in df.columns if c.startswith("use ") or c.endswith("_pct")})
-        fmt["mean km"] = {"type": "money", "precision": 2}
         self.table.formatters = fmt
+        year = self.session.store.effective.plan_year
         self.table.titles = {"site_id": "id", "max_pct": "max %", "min_pct": "min %",
-                             "today": "today (plan yr)"}
+                             "today": f"{year} students, today's zones",
+                             **{c: f"{c[4:-2]} use (%)" for c in df.columns
+                                if c.startswith("use ")}}
         self.table.value = df
         self.table.style.apply(self._style, axis=1)
         n = int((df["flag"] != "").sum())
         self.legend.object = (
             "<div style='font-size:12px'>Edit <b>capacity</b>, <b>max %</b>, <b>min %</b> "
             "and <b>status</b> in the table, then press Rerun. Red cells are outside the band "
-            f"in that year ({n} school(s) flagged); <i>today</i> is the plan-year count under "
-            "today's zones.</div>")
+            f"in that year ({n} school(s) flagged).</div>")
 
     def _style(self, row: pd.Series) -> list[str]:
         styles = []
