@@ -16,7 +16,7 @@ import numpy as np
 from ..plan import Plan
 from ..travel.measures import measure_words
 
-__all__ = ["status_words", "status_words_of", "solver_details", "gap_words", "int_text", "students_text",
+__all__ = ["status_words", "status_words_of", "no_plan_error", "solver_details", "gap_words", "int_text", "students_text",
            "km_text", "student_km_text", "percent_text", "year_text", "dash", "DASH",
            "band_lines", "today_words", "plan_lines", "travel_words"]
 
@@ -137,6 +137,17 @@ def status_words(plan: Plan) -> str:
     """
     return status_words_of(plan.status, plan.gap, plan.message,
                            bound_known=_finite(plan.bound), feasible=plan.feasible)
+
+
+def no_plan_error(subject: str, message: str, fix: str) -> str:
+    """Why a thing without a valid plan is refused, on lines: '<subject> has no valid plan:
+    <lead line>', then one cause per line (the no-plan message's own lines, as
+    :func:`districting.engine.findings.no_plan_text` writes them), then ``fix``."""
+    lines = [ln.strip() for ln in (message or "").splitlines() if ln.strip()]
+    lead, causes = (lines[0].rstrip("."), lines[1:]) if lines else ("", [])
+    head = f"{subject} has no valid plan" + (f": {lead}" if lead else "")
+    bullets = [f"  {c}" if c.startswith("-") else f"  - {c}" for c in causes]
+    return "\n".join([f"{head}.", *bullets, fix])
 
 
 def solver_details(plan: Plan) -> str:

@@ -258,8 +258,12 @@ def test_no_plan_is_refused(tmp_path):
     bad = make_outcome(town)
     a = bad.assignment.copy()
     a[3] = -1
+    # the no-plan message as districting.engine.findings.no_plan_text writes it
+    message = "No plan: too few seats.\n- Alder: 40 students over\n- Birch: 12 students over"
     broken = outcome_from_assignment(town, bad.settings, a, {"status": "infeasible",
-                                                             "message": "too few seats"})
-    with pytest.raises(ValueError, match="no valid plan.*too few seats"):
+                                                             "message": message})
+    with pytest.raises(ValueError, match="no valid plan: No plan: too few seats") as err:
         export_all(broken, tmp_path / "out")
+    lines = str(err.value).splitlines()  # the lead line, then one cause per line
+    assert lines[1:3] == ["  - Alder: 40 students over", "  - Birch: 12 students over"]
     assert not (tmp_path / "out").exists() or not list((tmp_path / "out").iterdir())

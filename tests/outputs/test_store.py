@@ -173,6 +173,19 @@ def test_name_errors_list_the_options(town):
     assert list_options(town.settings.store)[0].name == "Alpha"
 
 
+def test_no_plan_is_not_saved_and_says_why_on_lines(town):
+    out = make_outcome(town)
+    a = out.assignment.copy()
+    a[0] = -1
+    message = "No plan: too few seats in 2029.\n- Alder: 40 students over its limit"
+    bad = outcome_from_assignment(town, out.settings, a, {"status": "infeasible",
+                                                          "message": message})
+    with pytest.raises(OptionError, match="'Nope' has no valid plan: No plan: too few") as err:
+        save_option(town, bad, "Nope")
+    assert str(err.value).splitlines()[1] == "  - Alder: 40 students over its limit"
+    assert list_options(town.settings.store) == []
+
+
 def test_overwrite_rename_delete(town):
     out = make_outcome(town)
     save_option(town, out, "Alpha")
