@@ -161,28 +161,17 @@ class MapData:
 
     def school_colors(self, level: str) -> dict[str, str]:
         """The display colour of every school of a level: the same on every map of the
-        workbench (plan on screen, compare maps, print), whatever the plan.
+        workbench (plan on screen, compare maps, print), in the exports and the packet,
+        whatever the plan.
 
-        The one place the workbench picks zone colours. Until the project stores its own
-        colours, they come from today's zones (touching zones differ, and zones a few steps
-        apart too while the palette lasts); a school with no zone today takes the palette
-        colour used least so far.
+        The one place the workbench gets zone colours: the project's stored colours
+        (:func:`districting.outputs.store.stored_school_colours`, chosen once and kept in
+        the options store; a store that cannot be read or written only means they are not
+        kept). Read once per level by this process.
         """
         with self._lock:
             if level not in self._colors:
-                from districting.outputs.colours import ZONE_PALETTE, zone_colours
+                from districting.outputs.store import stored_school_colours
 
-                sites = self.inputs.sites
-                ids = sites.loc[sites["level"] == level, "site_id"].astype(str).tolist()
-                rows = {s: k for k, s in enumerate(sites["site_id"].astype(str))}
-                level_of = np.array([rows[s] for s in ids])
-                cur = self.inputs.current[level]  # row of inputs.sites per unit, or -1
-                pos = {int(r): j for j, r in enumerate(level_of)}
-                today = np.array([pos.get(int(c), -1) for c in cur], dtype=np.int64)
-                colors = zone_colours(self.inputs.adjacency, ids, [today], spread=True)
-                for sid in ids:
-                    if sid not in colors:
-                        used = list(colors.values())
-                        colors[sid] = min(ZONE_PALETTE, key=used.count)
-                self._colors[level] = colors
+                self._colors[level] = stored_school_colours(self.inputs, level)
             return dict(self._colors[level])

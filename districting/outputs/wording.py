@@ -16,8 +16,9 @@ import numpy as np
 from ..plan import Plan
 from ..travel.measures import measure_words
 
-__all__ = ["status_words", "status_words_of", "no_plan_error", "solver_details", "gap_words", "int_text", "students_text",
-           "km_text", "student_km_text", "percent_text", "year_text", "dash", "DASH",
+__all__ = ["status_words", "status_words_of", "no_plan_error", "solver_details", "gap_words",
+           "int_text", "students_text", "km_text", "student_km_text", "percent_text",
+           "year_text", "dash", "DASH",
            "band_lines", "today_words", "plan_lines", "travel_words"]
 
 #: What a cell shows when there is no number; :func:`dash` adds the reason.

@@ -8,9 +8,9 @@ import pytest
 from districting.outputs.wording import (
     band_lines,
     gap_words,
-    no_plan_error,
     int_text,
     km_text,
+    no_plan_error,
     percent_text,
     solver_details,
     status_words,

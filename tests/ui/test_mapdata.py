@@ -136,3 +136,24 @@ def test_a_school_without_a_zone_today_still_gets_a_colour(inputs):
     colours = MapData(dataclasses.replace(inputs, current=current)).school_colors(LEVEL)
     assert set(colours) == {"M1", "M2", "M3", "M4"}  # M4 has no zone today
     assert colours["M4"] not in {colours["M1"], colours["M2"], colours["M3"]}
+
+
+def test_workbench_colours_are_the_projects_stored_colours(inputs):
+    """The workbench takes its colours from the options store, as the exports and the
+    packet do: a colour stored before (by an export, say) is the one the map shows."""
+    from districting.outputs.store import load_school_colours, save_school_colours
+
+    store = inputs.settings.store
+    save_school_colours(store, LEVEL, {"M2": "#123456"})  # chosen earlier, elsewhere
+    colours = MapData(inputs).school_colors(LEVEL)
+    assert colours["M2"] == "#123456"
+    assert load_school_colours(store, LEVEL) == colours  # the others are kept too
+
+
+def test_a_damaged_store_only_means_colours_are_not_kept(inputs):
+    store = inputs.settings.store
+    store.write_bytes(b"not a GeoPackage")
+    with pytest.warns(UserWarning, match="not kept"):
+        colours = MapData(inputs).school_colors(LEVEL)
+    assert set(colours) == {"M1", "M2", "M3", "M4"}
+    assert store.read_bytes() == b"not a GeoPackage"
