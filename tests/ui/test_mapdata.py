@@ -16,7 +16,7 @@ import pytest
 import shapely
 from ui_town import CELL, CRS, LEVEL
 
-import districting.intake.layers
+import districting.outputs.reference
 import districting.outputs.zones
 from districting.intake import Source
 from ui.mapdata import MapData, line_paths, polygon_paths
@@ -93,15 +93,16 @@ def barred(inputs, tmp_path):
 
 
 def test_barrier_layer_is_read_once_and_grouped_by_kind(barred, monkeypatch):
-    reads = count_calls(monkeypatch, districting.intake.layers, "read_layer")
+    reads = count_calls(monkeypatch, districting.outputs.reference.pyogrio, "read_dataframe")
     data = MapData.of(barred)
     assert MapData.of(barred) is data  # every session's map shares it
     assert len(reads) == 1
-    assert set(data.barriers) == {"river", "rail", None}  # "fence" is no known kind
+    assert set(data.barriers) == {"river", "rail", "barrier"}  # "fence" is no known kind
     assert data.barriers["river"][0] == [[400_600.0, 400_600.0]]
     assert data.barriers["rail"][1] == [[5_001_000.0, 5_001_000.0]]
-    assert data.barriers[None][0] == [[401_800.0, 401_800.0]]
+    assert data.barriers["barrier"][0] == [[401_800.0, 401_800.0]]
     assert "highway" not in data.barriers
+    assert data.streets is None  # the grid town has no streets
 
 
 def test_todays_outlines_are_dissolved_once_per_level(inputs, monkeypatch):
