@@ -2,7 +2,7 @@
 
 :meth:`MapData.of` gives one :class:`MapData` per project Inputs: the units' polygons as
 Bokeh paths, the barrier lines grouped by kind (the barrier layer is read from disk at
-most once, for its ``kind`` column), the streets when the project has them and, per
+most once, for its ``kind`` column), the bridges, the streets when the project has them and, per
 level, the outlines of today's zones (dissolved once per level). Views only read these;
 a plan change sends colours and attributes, never shapes. No Panel or Bokeh import here:
 paths are plain lists.
@@ -16,7 +16,8 @@ import weakref
 import numpy as np
 import shapely
 
-__all__ = ["MapData", "polygon_paths", "line_paths", "barrier_paths", "street_paths"]
+__all__ = ["MapData", "polygon_paths", "line_paths", "barrier_paths", "street_paths",
+           "bridge_points"]
 
 Paths = tuple[list, list]
 
@@ -100,6 +101,16 @@ def street_paths(inputs) -> Paths | None:
     return None if lines is None else line_paths(np.asarray(lines.geometry, dtype=object))
 
 
+def bridge_points(inputs) -> tuple[list, list]:
+    """x and y of each bridge or overpass (the centre of a short line)."""
+    bridges = getattr(inputs, "bridges", None)
+    if bridges is None or not len(bridges):
+        return [], []
+    xy = np.round(shapely.get_coordinates(shapely.centroid(
+        np.asarray(bridges.geometry, dtype=object))), 1)
+    return xy[:, 0].tolist(), xy[:, 1].tolist()
+
+
 class MapData:
     """Shapes of one project's map: built once per Inputs, read by every session."""
 
@@ -112,6 +123,7 @@ class MapData:
         self.bounds = tuple(float(v) for v in inputs.units.total_bounds)
         self.barriers: dict[str, Paths] = barrier_paths(inputs)
         self.streets: Paths | None = street_paths(inputs)
+        self.bridges: tuple[list, list] = bridge_points(inputs)
         self._today: dict[str, Paths] = {}
         self._colors: dict[str, dict[str, str]] = {}
         self._lock = threading.Lock()

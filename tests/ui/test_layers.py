@@ -10,7 +10,7 @@ import geopandas as gpd
 import shapely
 from ui_town import CELL, CRS, new_store
 
-from districting.outputs.symbols import SITE_SYMBOLS, STREET_LINE, TODAY_LINE
+from districting.outputs.symbols import BRIDGE_SYMBOL, SITE_SYMBOLS, STREET_LINE, TODAY_LINE
 from ui.session import Session
 from ui.views.layers import PX_PER_PT, line_style, site_columns
 from ui.views.map import MapView
@@ -36,11 +36,13 @@ def test_line_style_turns_points_into_pixels():
     assert PX_PER_PT == 96 / 72
 
 
-def test_streets_are_a_faint_layer_with_a_legend_entry(inputs):
+def test_streets_and_bridges_are_drawn_with_their_legend_entries(inputs):
     x0, y0 = 400_000.0, 5_000_000.0
     streets = gpd.GeoSeries([shapely.LineString([(x0, y0 + CELL / 2),
                                                  (x0 + CELL * 14, y0 + CELL / 2)])], crs=CRS)
-    with_streets = dataclasses.replace(inputs, streets=streets)
+    bridge = gpd.GeoSeries([shapely.LineString([(x0 + 100, y0 + 300), (x0 + 140, y0 + 300)])],
+                           crs=CRS)
+    with_streets = dataclasses.replace(inputs, streets=streets, bridges=bridge)
     view = MapView(Session(new_store(with_streets)))
     lines = [r for r in view.figure.renderers if r.name == "streets"]
     assert len(lines) == 1
@@ -48,6 +50,9 @@ def test_streets_are_a_faint_layer_with_a_legend_entry(inputs):
     assert lines[0].data_source.data["xs"] == [[x0, x0 + CELL * 14]]
     labels = {item.label["value"] for item in view.figure.legend[0].items}
     assert STREET_LINE.words in labels and TODAY_LINE.words in labels
+    bridges = [r for r in view.figure.renderers if r.name == "bridges"]
+    assert list(bridges[0].data_source.data["x"]) == [x0 + 120]  # the line's centre
+    assert bridges[0].glyph.marker == BRIDGE_SYMBOL.bokeh and BRIDGE_SYMBOL.words in labels
     plain = MapView(Session(new_store(inputs)))  # no streets: no layer, no legend entry
     assert not [r for r in plain.figure.renderers if r.name == "streets"]
     assert STREET_LINE.words not in {i.label["value"] for i in plain.figure.legend[0].items}

@@ -13,6 +13,7 @@ from bokeh.models import ColumnDataSource
 
 from districting.outputs.symbols import (
     BARRIER_SYMBOLS,
+    BRIDGE_SYMBOL,
     STREET_LINE,
     TODAY_LINE,
     LineSymbol,
@@ -22,8 +23,8 @@ from districting.outputs.symbols import (
 from ..mapdata import MapData
 
 __all__ = ["NO_ZONE_COLOR", "PX_PER_PT", "MARKER_PX_PER_PT", "line_style", "draw_line",
-           "draw_barriers", "draw_streets", "draw_today", "site_columns", "draw_sites",
-           "zone_fill"]
+           "draw_barriers", "draw_bridges", "draw_streets", "draw_today", "site_columns",
+           "draw_sites", "zone_fill"]
 
 NO_ZONE_COLOR = "#d9d9d9"
 #: Screen pixels per point of the paper symbols (CSS: 96 px and 72 pt to the inch).
@@ -59,10 +60,24 @@ def draw_line(fig, source: ColumnDataSource, sym: LineSymbol, *, name: str,
 
 
 def draw_barriers(fig, mapdata: MapData, *, legend: bool = True) -> None:
-    """The barrier lines, one styled layer per kind (in the legend when ``legend``)."""
+    """The barrier lines, one styled layer per kind, and the bridges over them (in the
+    legend when ``legend``)."""
     for kind, (xs, ys) in mapdata.barriers.items():
         draw_line(fig, ColumnDataSource({"xs": xs, "ys": ys}), BARRIER_SYMBOLS[kind],
                   name=f"barrier-{kind}", legend=legend)
+    draw_bridges(fig, mapdata, legend=legend)
+
+
+def draw_bridges(fig, mapdata: MapData, *, legend: bool = True,
+                 scale: float = MARKER_PX_PER_PT):
+    """The bridges and overpasses, one marker each (none when the project has none)."""
+    xs, ys = mapdata.bridges
+    if not xs:
+        return None
+    extra = {"legend_label": BRIDGE_SYMBOL.words} if legend else {}
+    return fig.scatter(xs, ys, marker=BRIDGE_SYMBOL.bokeh, size=BRIDGE_SYMBOL.size * scale,
+                       fill_color="#000000" if BRIDGE_SYMBOL.filled else "#ffffff",
+                       line_color="#000000", name="bridges", **extra)
 
 
 def draw_streets(fig, mapdata: MapData, *, legend: bool = True) -> list:

@@ -99,7 +99,7 @@ def _legend(store: Store, out, colors: dict[str, str]) -> str:
     if mapdata.streets is not None:
         lines.append(STREET_LINE)
     rows += "".join(f"<div>{_line_sign(sym)}{_esc(sym.words)}</div>" for sym in lines)
-    if len(store.inputs.bridges):
+    if mapdata.bridges[0]:
         rows += (f"<div><span style='display:inline-block;width:26px'>"
                  f"{MARKER_SIGNS[BRIDGE_SYMBOL.bokeh]}</span>{_esc(BRIDGE_SYMBOL.words)}</div>")
     statuses = sorted(set(store.sites_frame(resolved_settings=store.effective)["status"]))
