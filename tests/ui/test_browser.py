@@ -165,7 +165,7 @@ def test_planner_job_in_the_browser(tmp_path):
         assert "Done in" in status, status
         row = _site_row(page, site)
         assert float(row["capacity"].replace(",", "")) == cap
-        assert float(row["use 2027 %"].replace(",", "")) <= 100.0 + 1e-6
+        assert float(row["Utilization 2027 (%)"].replace(",", "")) <= 100.0 + 1e-6
         shot(page, "05-capped")
 
         # Save an option.
@@ -243,11 +243,11 @@ def _cut_busiest(page) -> tuple[str, float]:
             "cs => cs.map(c => [c.getAttribute('tabulator-field'), c.textContent])"))
         if fields.get("status") not in ("open", "new"):
             continue
-        use = float(fields["use 2027 %"].replace(",", "") or 0)
+        use = float(fields["Utilization 2027 (%)"].replace(",", "") or 0)
         if best is None or use > best[0]:
             best = (use, k, fields)
     _use, k, fields = best
-    cap = float(round(float(fields["students 2027"].replace(",", "")) * 0.9))
+    cap = float(round(float(fields["Students 2027"].replace(",", "")) * 0.9))
     cell = rows.nth(k).locator(".tabulator-cell[tabulator-field='capacity']")
     cell.click()
     editor = cell.locator("input")

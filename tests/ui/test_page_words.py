@@ -80,12 +80,19 @@ def test_the_schools_table_has_no_nan_and_plain_titles(inputs):
         session.edit_site(sid, capacity=1200)
     st.rerun()
     table = SitesTable(session)
-    km = table.table.value.set_index("site_id")["mean km"]
-    assert km[st.site_ids[3]] == "- (no students)"
-    assert all(v.replace(".", "").isdigit() for v in km.drop(st.site_ids[3]))
+    value = table.table.value.set_index("site_id")
+    km = value["Mean travel (km)"]
+    assert km[st.site_ids[3]] == "\u2013" and "no students" in table.notes["Mean travel (km)"]
+    assert all(v.replace(".", "").isdigit() and len(v.split(".")[1]) == 2
+               for v in km.drop(st.site_ids[3]))
+    assert not value.isna().any().any() and "nan" not in value.astype(str).to_numpy()
+    # the screen shows what the schools CSV holds
+    csv = pd.read_csv(st.export("schools_csv")).set_index("Site id")
+    for column in ("Students 2027", "Students moving in (2027)", "Utilization 2027 (%)"):
+        for sid in st.site_ids[:3]:
+            assert float(value.loc[sid, column].replace(",", "")) == csv.loc[sid, column]
     titles = table.table.titles
-    assert titles["use 2027 %"] == "2027 use (%)" and titles["today"] == (
-        "2027 students, today's zones")
+    assert titles["capacity"] == "Capacity (edit)"
 
 
 def test_todays_zones_name_the_schools_outside_the_band_and_by_how_much():
