@@ -105,3 +105,24 @@ def test_todays_zones_name_the_schools_outside_the_band_and_by_how_much():
         "flag": ["over 100% in 2027, 2028", "under 60% in 2027, 2028", ""]})
     assert outside_band(sites) == ["Alder (A) 110% in 2028, over its 100% limit",
                                    "Birch (B) 50% in 2027, under its 60% floor"]
+
+
+def test_the_change_tables_read_as_the_sheets_do(inputs):
+    from ui.views.results import ResultsView
+
+    session = Session(new_store(inputs))
+    st = session.store
+    st.rerun()
+    session.state.plan_version += 1
+    view = ResultsView(session)
+    changes = view.changes.value
+    frame = st.changes_frame(st.on_screen(), st.today())
+    assert len(changes) == len(frame) > 0
+    assert "Students 2027" in changes.columns and "index" not in changes.columns
+    # whole students with thousands separators, km with two decimals, never NaN
+    total = sum(int(v.replace(",", "")) for v in changes["Students 2027"])
+    assert total == round(frame["students"].round().sum())
+    assert all(len(v.split(".")[1]) == 2 for v in changes["Travel after (km)"])
+    assert "nan" not in changes.astype(str).to_numpy()
+    flows = view.flows.value
+    assert sum(int(v.replace(",", "")) for v in flows["Planning units"]) == len(frame)
