@@ -5,6 +5,7 @@ ui/views/downloads.py)."""
 from __future__ import annotations
 
 import datetime as dt
+import json
 
 import pandas as pd
 from ui_town import new_store
@@ -68,6 +69,12 @@ def test_downloads_are_named_after_the_saved_option(inputs):
     text = open(csv, encoding="utf-8").read()
     assert "(unsaved" not in text
     assert len(pd.read_csv(csv, comment="#")) == 140
+    # each CSV's sidecar sits beside it, under the CSV's name (districting.outputs.sheets)
+    names = {b.filename for b in panel.buttons}
+    for table in ("units", "schools"):
+        assert f"hearing-option-b-middle-{table}.about.json" in names
+        about = json.loads(open(panel._make(f"{table}_about"), encoding="utf-8").read())
+        assert about["option"] == "Hearing option B" and about["columns"]
 
 
 def test_the_schools_table_has_no_nan_and_plain_titles(inputs):
