@@ -87,7 +87,7 @@ class MapView(pn.viewable.Viewer):
             lock_items.append(LegendItem(label=label, renderers=[key, layer]))
         self.change_glyphs = fig.multi_polygons(
             "xs", "ys", source=self.changed, fill_alpha=0, line_color="#c0392b",
-            line_width=2, line_dash="dotted", name="changed-units",
+            line_width=2, line_dash="dashed", name="changed-units",
             legend_label="changes school")
         self.today_glyphs = draw_today(fig, self.today)
         draw_barriers(fig, mapdata)
