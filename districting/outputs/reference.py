@@ -2,13 +2,15 @@
 
 ``Inputs`` keep the barriers' geometry only; :func:`barrier_kinds` reads the barrier
 layer's ``kind`` column (river, highway, rail...) back from the file the project names.
-:func:`streets` is the project's street lines when it has them (``inputs.streets``).
+:func:`streets` is the project's street lines when it has them (from ``inputs.streets``).
 """
 
 from __future__ import annotations
 
+import geopandas as gpd
 import numpy as np
 import pyogrio
+import shapely
 
 from .symbols import BARRIER_SYMBOLS
 
@@ -35,6 +37,20 @@ def barrier_kinds(inputs) -> np.ndarray:
 
 
 def streets(inputs):
-    """The project's street lines (a GeoSeries) or None."""
-    lines = getattr(inputs, "streets", None)
-    return lines if lines is not None and len(lines) else None
+    """The project's street lines (a GeoSeries in the project's CRS) or None.
+
+    ``inputs.streets`` is the :class:`~districting.travel.StreetNetwork` read from the
+    project's street layer: its segments, merged into one line per run between junctions
+    (``shapely.line_merge``), are the lines drawn. A GeoSeries of lines is taken as it is.
+    """
+    net = getattr(inputs, "streets", None)
+    if net is None:
+        return None
+    if not hasattr(net, "seg_a"):
+        return net if len(net) else None
+    if not len(net.seg_a):
+        return None
+    segments = shapely.linestrings(np.stack([net.nodes[net.seg_a], net.nodes[net.seg_b]],
+                                            axis=1))
+    merged = shapely.line_merge(shapely.multilinestrings(segments))
+    return gpd.GeoSeries(shapely.get_parts(merged), crs=inputs.crs)

@@ -356,13 +356,15 @@ def test_streets_are_a_reference_layer_when_the_project_has_them(tmp_path):
     from districting.outputs.packet_layout import page
     from districting.outputs.packet_maps import draw_zone_map, extent_of, legend, map_axes
     from districting.outputs.symbols import STREET_LINE
+    from districting.travel import StreetNetwork
 
     town = make_town(tmp_path)
     x0, y0, x1, y1 = town.units.total_bounds
     streets = gpd.GeoSeries([shapely.LineString([(x0, (y0 + y1) / 2), (x1, (y0 + y1) / 2)]),
                              shapely.LineString([((x0 + x1) / 2, y0), ((x0 + x1) / 2, y1)])],
                             crs=CRS)
-    object.__setattr__(town, "streets", streets)  # the field the travel work adds to Inputs
+    # Inputs hold the network read from the street layer (districting.intake's streets reader)
+    object.__setattr__(town, "streets", StreetNetwork.from_lines(streets.to_numpy()))
     o = make_outcome(town)
     fig = page("letter")
     ax = map_axes(fig, extent_of(o), 0.03, 0.2, 0.46, 0.6)
