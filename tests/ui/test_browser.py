@@ -145,9 +145,11 @@ def test_planner_job_in_the_browser(tmp_path):
         wait_for(lambda: source_columns(page, "locked-source", ("unit_id",))["unit_id"]
                  == [unit], 15, what="the locked unit hatched on the map")
         shot(page, "03-locked")
-        rerun(page)
-        second = source_columns(page, "units-source", ("proposed",))["proposed"]
-        assert second[unit_ids.index(unit)] == target
+        status = rerun(page)
+        # the map's columns arrive after the run's count: wait for them
+        wait_for(lambda: source_columns(page, "units-source", ("proposed",))["proposed"]
+                 [unit_ids.index(unit)] == target, 20,
+                 what=f"the locked unit in its school on the map after the rerun ({status})")
         open_tab(page, "Changes")
         page.click(".reference-choice button:has-text('previous result')")
         wait_for(lambda: unit in table_text(page, "changes-table"), 15,
