@@ -110,7 +110,8 @@ class Inputs:
     - ``travel``: optional (n_units, n_sites) cost matrix from the travel CSV (inf = none).
     - ``streets``, ``street_travel``: with a [streets] table, the
       :class:`~districting.travel.StreetNetwork` and the units x sites
-      :class:`~districting.travel.StreetTravel` (access legs, pieces) read and checked.
+      :class:`~districting.travel.StreetTravel` (access legs, pieces) read and checked;
+      ``street_lines`` the lines themselves (for maps).
     """
 
     settings: Settings
@@ -124,6 +125,7 @@ class Inputs:
     report: object
     travel: np.ndarray | None = None
     streets: object = None
+    street_lines: np.ndarray | None = None  # the street lines read, for maps
     street_travel: object = None
 
     @property

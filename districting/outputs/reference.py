@@ -2,11 +2,12 @@
 
 ``Inputs`` keep the barriers' geometry only; :func:`barrier_kinds` reads the barrier
 layer's ``kind`` column (river, highway, rail...) back from the file the project names.
-:func:`streets` is the project's street lines when it has them (``inputs.streets``).
+:func:`streets` is the project's street lines when it has them (``inputs.street_lines``).
 """
 
 from __future__ import annotations
 
+import geopandas as gpd
 import numpy as np
 import pyogrio
 
@@ -36,5 +37,7 @@ def barrier_kinds(inputs) -> np.ndarray:
 
 def streets(inputs):
     """The project's street lines (a GeoSeries) or None."""
-    lines = getattr(inputs, "streets", None)
-    return lines if lines is not None and len(lines) else None
+    lines = inputs.street_lines
+    if lines is None or not len(lines):
+        return None
+    return gpd.GeoSeries(lines, crs=inputs.crs)
