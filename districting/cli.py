@@ -10,6 +10,7 @@ the UI.
 from __future__ import annotations
 
 import argparse
+import logging
 import sys
 import time
 from collections.abc import Sequence
@@ -19,6 +20,9 @@ from pathlib import Path
 from . import DRAFT_NOTICE
 
 __all__ = ["main"]
+
+#: Solver detail (rounds, cuts, bound) goes to this log, never to the summary people read.
+_log = logging.getLogger("districting")
 
 
 # ----------------------------------------------------------------------------- helpers
@@ -46,14 +50,17 @@ class Progress:
         self.label = label
 
     def __call__(self, rnd) -> None:
+        from .outputs.wording import gap_words
+
         if not self.live:
             return
-        best = "-" if rnd.objective == float("inf") else f"{rnd.objective:,.0f}"
-        gap = "-" if rnd.gap == float("inf") else f"{100 * rnd.gap:.3f}%"
-        self.stream.write(
-            f"\r{self.label}: round {rnd.number}  best {best}  bound {rnd.bound:,.0f}  "
-            f"gap {gap}  {rnd.seconds:.1f} s   "
-        )
+        if rnd.objective == float("inf"):
+            where = "looking for a first plan"
+        elif rnd.gap == float("inf"):
+            where = "a plan found; how close to the best is not known yet"
+        else:
+            where = f"best plan so far within {gap_words(max(rnd.gap, 0.0))} of the best possible"
+        self.stream.write(f"\r{self.label}: {where}, {rnd.seconds:.0f} s   ")
         self.stream.flush()
 
     def done(self) -> None:
@@ -64,30 +71,20 @@ class Progress:
 
 def plan_summary(outcome) -> str:
     """A few lines on a plan: status, travel, moves, schools out of band."""
-    plan, prob = outcome.plan, outcome.problem
+    from .outputs.wording import plan_lines, solver_details
+
+    plan = outcome.plan
     if not plan.feasible:  # the lead line, then the causes (engine.findings.no_plan_text)
         why = {"time_limit": " before the time limit: raise --time-limit",
                "cancelled": ": the solve was stopped"}.get(plan.status, "")
         lead, *causes = (plan.message or f"No {outcome.level} plan was found{why}.").splitlines()
         return "\n".join([f"  {lead}", *(f"    {line}" for line in causes)])
-    m = outcome.metrics
-    total = prob.demand[0].sum()
-    oob = [outcome.site_ids[j] for j in range(prob.n_sites) if m.out_of_band[j]]
-    opened = int(plan.open_sites.sum())
-    lines = [
-        f"  {outcome.level}: {plan.status}"
-        + (f" (gap {100 * plan.gap:.3f}%)" if plan.gap == plan.gap else "")
-        + f", {opened} schools open, {total:,.0f} students in {prob.years[0]}",
-        f"    mean travel {m.overall_mean_distance / 1000:.2f} km, "
-        f"longest {m.overall_max_distance / 1000:.2f} km; "
-        f"{m.students_moved:,.0f} students ({m.units_moved} units) change school",
-        f"    {outcome.travel_line}; rounds {plan.rounds}, cuts {plan.cuts}, "
-        f"build {plan.build_seconds:.2f} s, solve {plan.solve_seconds:.2f} s",
-    ]
-    if oob:
-        lines.append(f"    outside the utilization band in some year: {', '.join(oob)}")
+    lines = [f"  {line}" if k == 0 else f"    {line}"
+             for k, line in enumerate(plan_lines(outcome))]
+    lines.append(f"    {outcome.travel_line}")
     if plan.message:
         lines.append("    " + plan.message.replace("\n", "\n    "))
+    _log.info("%s %s: %s", outcome.level, outcome.name or "(unsaved)", solver_details(plan))
     return "\n".join(lines)
 
 
@@ -381,6 +378,9 @@ def cmd_unforbid(args) -> int:
 
 # ----------------------------------------------------------------------------- parser
 def _add_solve_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--details", action="store_true",
+                   help="also print the solver's own account of each plan (rounds, cuts, "
+                        "lower bound, times) for technical review")
     p.add_argument("--plan-year", type=int, metavar="YEAR",
                    help="the year the new zones take effect, one of the projected years "
                         "(default: the project's plan_year)")
@@ -555,6 +555,12 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv: Sequence[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
+    handler = None
+    if getattr(args, "details", False):
+        handler = logging.StreamHandler(sys.stdout)
+        handler.setFormatter(logging.Formatter("    solver detail: %(message)s"))
+        _log.addHandler(handler)
+        _log.setLevel(logging.INFO)
     try:
         return int(args.func(args) or 0)
     except KeyboardInterrupt:
@@ -563,6 +569,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     except ValueError as err:  # bad settings from the command line, named in the message
         print(f"districting {args.command}: {err}", file=sys.stderr)
         return 2
+    finally:
+        if handler is not None:
+            _log.removeHandler(handler)
 
 
 if __name__ == "__main__":

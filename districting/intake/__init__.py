@@ -62,6 +62,7 @@ def read_inputs(settings: Settings, report: Report, *, cache: bool = True) -> In
         barriers=st.barriers if len(st.barriers) else empty,
         bridges=st.bridges if len(st.bridges) else empty,
         adjacency=st.adjacency, report=report, travel=st.travel, streets=st.streets,
+        street_lines=st.street_lines,
         street_travel=st.street_travel,
     )
 

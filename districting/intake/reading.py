@@ -73,6 +73,7 @@ class Reading:
     adjacency: object = None
     travel: np.ndarray | None = None
     streets: object = None  # districting.travel.StreetNetwork, with a [streets] table
+    street_lines: object = None  # the street lines read (array of shapely geometries)
     street_travel: object = None  # districting.travel.StreetTravel, units x sites
     cache: bool = True  # keep travel in the project's disk cache (check writes nothing)
     #: (level, year) or (level, None): figures with an error already reported; the

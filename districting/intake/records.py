@@ -110,7 +110,8 @@ class Inputs:
     - ``travel``: optional (n_units, n_sites) cost matrix from the travel CSV (inf = none).
     - ``streets``, ``street_travel``: with a [streets] table, the
       :class:`~districting.travel.StreetNetwork` and the units x sites
-      :class:`~districting.travel.StreetTravel` (access legs, pieces) read and checked.
+      :class:`~districting.travel.StreetTravel` (access legs, pieces) read and checked;
+      ``street_lines`` the lines themselves (for maps).
     """
 
     settings: Settings
@@ -124,6 +125,7 @@ class Inputs:
     report: object
     travel: np.ndarray | None = None
     streets: object = None
+    street_lines: np.ndarray | None = None  # the street lines read, for maps
     street_travel: object = None
 
     @property
@@ -162,8 +164,9 @@ class Inputs:
             return travel_matrix("straight-line", unit_xy, site_xy)
         barriers = self.barriers.to_numpy()
         bridges = self.bridges.to_numpy()
-        polygons = self.units.geometry.to_numpy()
-        key = cache_key(measure, barriers, bridges, polygons, unit_xy=unit_xy, site_xy=site_xy)
+        # Unit polygons are left out of the triangulation: on the demo they made paths 0.6%
+        # less like the streets and the build 8 times slower (bench_travel_measures.py).
+        key = cache_key(measure, barriers, bridges, unit_xy=unit_xy, site_xy=site_xy)
         return cached_arrays(self.settings.path.parent, key, lambda: {
             "metres": travel_matrix(measure, unit_xy, site_xy, barriers=barriers,
-                                    crossings=bridges, unit_polygons=polygons)})["metres"]
+                                    crossings=bridges)})["metres"]

@@ -68,6 +68,7 @@ def read_streets(st: Reading) -> None:
     if lines is None:
         return
     st.streets = StreetNetwork.from_lines(lines)
+    st.street_lines = lines
     if not st.units_ok or st.units is None or st.sites is None:
         return
     unit_xy = shapely.get_coordinates(st.units["point"].to_numpy())

@@ -2,7 +2,7 @@
 
 ``Inputs`` keep the barriers' geometry only; :func:`barrier_kinds` reads the barrier
 layer's ``kind`` column (river, highway, rail...) back from the file the project names.
-:func:`streets` is the project's street lines when it has them (from ``inputs.streets``).
+:func:`streets` is the project's street lines when it has them (``inputs.street_lines``).
 """
 
 from __future__ import annotations
@@ -10,7 +10,6 @@ from __future__ import annotations
 import geopandas as gpd
 import numpy as np
 import pyogrio
-import shapely
 
 from .symbols import BARRIER_SYMBOLS
 
@@ -37,20 +36,8 @@ def barrier_kinds(inputs) -> np.ndarray:
 
 
 def streets(inputs):
-    """The project's street lines (a GeoSeries in the project's CRS) or None.
-
-    ``inputs.streets`` is the :class:`~districting.travel.StreetNetwork` read from the
-    project's street layer: its segments, merged into one line per run between junctions
-    (``shapely.line_merge``), are the lines drawn. A GeoSeries of lines is taken as it is.
-    """
-    net = getattr(inputs, "streets", None)
-    if net is None:
+    """The project's street lines (a GeoSeries) or None."""
+    lines = inputs.street_lines
+    if lines is None or not len(lines):
         return None
-    if not hasattr(net, "seg_a"):
-        return net if len(net) else None
-    if not len(net.seg_a):
-        return None
-    segments = shapely.linestrings(np.stack([net.nodes[net.seg_a], net.nodes[net.seg_b]],
-                                            axis=1))
-    merged = shapely.line_merge(shapely.multilinestrings(segments))
-    return gpd.GeoSeries(shapely.get_parts(merged), crs=inputs.crs)
+    return gpd.GeoSeries(lines, crs=inputs.crs)

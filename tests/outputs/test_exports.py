@@ -213,7 +213,9 @@ def test_csvs_are_plain_tables(exported):
     assert set(record["columns"]) == set(schools_read.columns)
     assert record["notice"] == DRAFT_NOTICE and record["option"] == outcome.name
     assert record["level"] == "elementary" and record["status"] == "best possible plan"
-    assert "straight-line" in record["travel measure"]
+    assert record["travel measure"] == {"straight-line": "in a straight line",
+                                        "barrier-aware": "around barriers, crossing only at "
+                                        "bridges"}[outcome.settings.travel]
     assert list(schools["Outside the band in some year"]) == \
         ["yes" if b else "no" for b in m.out_of_band]
     assert schools["Colour"].str.fullmatch(r"#[0-9A-F]{6}").all()

@@ -81,10 +81,12 @@ def town(tmp_path_factory):
 
 @pytest.fixture(scope="module")
 def options(town):
-    first = make_outcome(town, name="Option A", locks={"U0000": "E01"})
+    # straight-line travel: the hand-made plans join the nearest school, across the wall
+    first = make_outcome(town, name="Option A", locks={"U0000": "E01"}, travel="straight-line")
     a = nearest_assignment(town)
     a[np.flatnonzero(a == 1)[:4]] = 0  # a second option: a few units to another school
-    second = outcome_from_assignment(town, RunSettings(level="elementary"), a,
+    second = outcome_from_assignment(town, RunSettings(level="elementary",
+                                                       travel="straight-line"), a,
                                      {"status": "optimal", "bound": 1.0, "gap": 0.0},
                                      name="Option B")
     return [first, second]
@@ -356,15 +358,12 @@ def test_streets_are_a_reference_layer_when_the_project_has_them(tmp_path):
     from districting.outputs.packet_layout import page
     from districting.outputs.packet_maps import draw_zone_map, extent_of, legend, map_axes
     from districting.outputs.symbols import STREET_LINE
-    from districting.travel import StreetNetwork
 
     town = make_town(tmp_path)
     x0, y0, x1, y1 = town.units.total_bounds
-    streets = gpd.GeoSeries([shapely.LineString([(x0, (y0 + y1) / 2), (x1, (y0 + y1) / 2)]),
-                             shapely.LineString([((x0 + x1) / 2, y0), ((x0 + x1) / 2, y1)])],
-                            crs=CRS)
-    # Inputs hold the network read from the street layer (districting.intake's streets reader)
-    object.__setattr__(town, "streets", StreetNetwork.from_lines(streets.to_numpy()))
+    streets = np.array([shapely.LineString([(x0, (y0 + y1) / 2), (x1, (y0 + y1) / 2)]),
+                        shapely.LineString([((x0 + x1) / 2, y0), ((x0 + x1) / 2, y1)])])
+    town = dataclasses.replace(town, street_lines=streets)  # as intake reads [streets]
     o = make_outcome(town)
     fig = page("letter")
     ax = map_axes(fig, extent_of(o), 0.03, 0.2, 0.46, 0.6)

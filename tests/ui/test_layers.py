@@ -11,7 +11,6 @@ import shapely
 from ui_town import CELL, CRS, new_store
 
 from districting.outputs.symbols import BRIDGE_SYMBOL, SITE_SYMBOLS, STREET_LINE, TODAY_LINE
-from districting.travel import StreetNetwork
 from ui.session import Session
 from ui.views.layers import PX_PER_PT, line_style, site_columns
 from ui.views.map import MapView
@@ -43,9 +42,8 @@ def test_streets_and_bridges_are_drawn_with_their_legend_entries(inputs):
                                                  (x0 + CELL * 14, y0 + CELL / 2)])], crs=CRS)
     bridge = gpd.GeoSeries([shapely.LineString([(x0 + 100, y0 + 300), (x0 + 140, y0 + 300)])],
                            crs=CRS)
-    # Inputs hold the network read from the street layer (districting.intake's streets reader)
-    with_streets = dataclasses.replace(inputs, streets=StreetNetwork.from_lines(streets),
-                                       bridges=bridge)
+    # as intake reads [streets]: the lines themselves, kept for maps
+    with_streets = dataclasses.replace(inputs, street_lines=streets.to_numpy(), bridges=bridge)
     view = MapView(Session(new_store(with_streets)))
     lines = [r for r in view.figure.renderers if r.name == "streets"]
     assert len(lines) == 1
