@@ -121,8 +121,8 @@ class SitesTable(pn.viewable.Viewer):
                for c in ("max_pct", "min_pct")}}
         self.table.titles = {"site_id": "Site id", "school": "School",
                              "status": "Status (edit)", "capacity": "Capacity (edit)",
-                             "max_pct": "Highest utilization allowed (%, edit)",
-                             "min_pct": "Lowest utilization allowed (%, edit)"}
+                             "max_pct": "Max utilization % (edit)",
+                             "min_pct": "Min utilization % (edit)"}
         self.table.value = df
         self.table.style.apply(self._style, axis=1)
         n = int((df[OUTSIDE] == "yes").sum())
