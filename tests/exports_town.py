@@ -116,3 +116,17 @@ def make_outcome(inputs: Inputs, name: str = "Option A", **rs_fields) -> Outcome
         {"status": "feasible", "bound": 0.0, "gap": 1.0, "rounds": 3, "message": "test plan"},
         name=name,
     )
+
+
+#: A no-plan message as districting.engine.findings.no_plan_text writes it: the lead line,
+#: then one cause per line.
+NO_PLAN_MESSAGE = "No plan: too few seats.\n- Alder: 40 students over\n- Birch: 12 students over"
+
+
+def no_plan_outcome(inputs: Inputs, message: str = NO_PLAN_MESSAGE) -> Outcome:
+    """An outcome without a valid plan (one unit unassigned, status infeasible)."""
+    out = make_outcome(inputs)
+    a = out.assignment.copy()
+    a[3] = -1
+    return outcome_from_assignment(inputs, out.settings, a, {"status": "infeasible",
+                                                             "message": message})

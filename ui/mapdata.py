@@ -2,9 +2,10 @@
 
 :meth:`MapData.of` gives one :class:`MapData` per project Inputs: the units' polygons as
 Bokeh paths, the barrier lines grouped by kind (the barrier layer is read from disk at
-most once, for its ``kind`` column) and, per level, the outlines of today's zones
-(dissolved once per level). Views only read these; a plan change sends colours and
-attributes, never shapes. No Panel or Bokeh import here: paths are plain lists.
+most once, for its ``kind`` column), the bridges, the streets when the project has them and, per
+level, the outlines of today's zones (dissolved once per level). Views only read these;
+a plan change sends colours and attributes, never shapes. No Panel or Bokeh import here:
+paths are plain lists.
 """
 
 from __future__ import annotations
@@ -15,10 +16,8 @@ import weakref
 import numpy as np
 import shapely
 
-__all__ = ["MapData", "BARRIER_KINDS", "polygon_paths", "line_paths", "barrier_kinds"]
-
-#: Barrier kinds the map draws in a style of their own; others are drawn as "barrier".
-BARRIER_KINDS = ("river", "highway", "rail")
+__all__ = ["MapData", "polygon_paths", "line_paths", "barrier_paths", "street_paths",
+           "bridge_points"]
 
 Paths = tuple[list, list]
 
@@ -78,46 +77,38 @@ def line_paths(geoms) -> Paths:
 
 
 # ---------------------------------------------------------------------- project data
-def barrier_kinds(inputs) -> np.ndarray | None:
-    """The ``kind`` column of the project's barrier layer (river, highway...), if it has one.
-
-    Inputs keep barrier geometry only; the kinds are read back from the layer the project
-    names, and used only when it has one row per barrier.
-    """
-    frame = inputs.barriers if hasattr(inputs.barriers, "columns") else None
-    if frame is None:
-        src = getattr(inputs.settings, "sources", {}).get("barriers")
-        if src is not None:
-            try:
-                from districting.intake.layers import read_layer
-
-                frame = read_layer(src.path, src.layer, what="barriers")
-            except Exception:  # noqa: BLE001 - kinds only style the lines
-                frame = None
-    if frame is not None and "kind" in frame.columns and len(frame) == len(inputs.barriers):
-        return frame["kind"].astype(str).str.strip().str.lower().to_numpy()
-    return None
-
-
-def barrier_paths(inputs) -> dict[str | None, Paths]:
-    """Barrier lines per kind of :data:`BARRIER_KINDS`, and of no known kind under None;
-    kinds with no line are left out."""
+def barrier_paths(inputs) -> dict[str, Paths]:
+    """Barrier lines per kind (a key of :data:`districting.outputs.symbols.BARRIER_SYMBOLS`,
+    from :func:`districting.outputs.reference.barrier_kinds`: "barrier" for a line of no
+    known kind); kinds with no line are left out."""
     bars = inputs.barriers
     if bars is None or not len(bars):
         return {}
+    from districting.outputs.reference import barrier_kinds
+    from districting.outputs.symbols import BARRIER_SYMBOLS
+
     geoms = np.asarray(bars.geometry if hasattr(bars, "geometry") else bars, dtype=object)
     kinds = barrier_kinds(inputs)
-    out: dict[str | None, Paths] = {}
-    for kind in (*BARRIER_KINDS, None):
-        if kinds is None:
-            mask = np.full(len(geoms), kind is None)
-        elif kind is None:
-            mask = ~np.isin(kinds, list(BARRIER_KINDS))
-        else:
-            mask = kinds == kind
-        if mask.any():
-            out[kind] = line_paths(geoms[mask])
-    return out
+    return {kind: line_paths(geoms[kinds == kind]) for kind in BARRIER_SYMBOLS
+            if (kinds == kind).any()}
+
+
+def street_paths(inputs) -> Paths | None:
+    """The project's street lines (:func:`districting.outputs.reference.streets`), or None."""
+    from districting.outputs.reference import streets
+
+    lines = streets(inputs)
+    return None if lines is None else line_paths(np.asarray(lines.geometry, dtype=object))
+
+
+def bridge_points(inputs) -> tuple[list, list]:
+    """x and y of each bridge or overpass (the centre of a short line)."""
+    bridges = getattr(inputs, "bridges", None)
+    if bridges is None or not len(bridges):
+        return [], []
+    xy = np.round(shapely.get_coordinates(shapely.centroid(
+        np.asarray(bridges.geometry, dtype=object))), 1)
+    return xy[:, 0].tolist(), xy[:, 1].tolist()
 
 
 class MapData:
@@ -130,7 +121,9 @@ class MapData:
         self.inputs = inputs
         self.units: Paths = polygon_paths(inputs.units.geometry.to_numpy())
         self.bounds = tuple(float(v) for v in inputs.units.total_bounds)
-        self.barriers: dict[str | None, Paths] = barrier_paths(inputs)
+        self.barriers: dict[str, Paths] = barrier_paths(inputs)
+        self.streets: Paths | None = street_paths(inputs)
+        self.bridges: tuple[list, list] = bridge_points(inputs)
         self._today: dict[str, Paths] = {}
         self._colors: dict[str, dict[str, str]] = {}
         self._lock = threading.Lock()
@@ -161,28 +154,17 @@ class MapData:
 
     def school_colors(self, level: str) -> dict[str, str]:
         """The display colour of every school of a level: the same on every map of the
-        workbench (plan on screen, compare maps, print), whatever the plan.
+        workbench (plan on screen, compare maps, print), in the exports and the packet,
+        whatever the plan.
 
-        The one place the workbench picks zone colours. Until the project stores its own
-        colours, they come from today's zones (touching zones differ, and zones a few steps
-        apart too while the palette lasts); a school with no zone today takes the palette
-        colour used least so far.
+        The one place the workbench gets zone colours: the project's stored colours
+        (:func:`districting.outputs.store.stored_school_colours`, chosen once and kept in
+        the options store; a store that cannot be read or written only means they are not
+        kept). Read once per level by this process.
         """
         with self._lock:
             if level not in self._colors:
-                from districting.outputs.colours import ZONE_PALETTE, zone_colours
+                from districting.outputs.store import stored_school_colours
 
-                sites = self.inputs.sites
-                ids = sites.loc[sites["level"] == level, "site_id"].astype(str).tolist()
-                rows = {s: k for k, s in enumerate(sites["site_id"].astype(str))}
-                level_of = np.array([rows[s] for s in ids])
-                cur = self.inputs.current[level]  # row of inputs.sites per unit, or -1
-                pos = {int(r): j for j, r in enumerate(level_of)}
-                today = np.array([pos.get(int(c), -1) for c in cur], dtype=np.int64)
-                colors = zone_colours(self.inputs.adjacency, ids, [today], spread=True)
-                for sid in ids:
-                    if sid not in colors:
-                        used = list(colors.values())
-                        colors[sid] = min(ZONE_PALETTE, key=used.count)
-                self._colors[level] = colors
+                self._colors[level] = stored_school_colours(self.inputs, level)
             return dict(self._colors[level])

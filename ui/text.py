@@ -13,6 +13,10 @@ from __future__ import annotations
 import html
 from datetime import datetime
 
+import numpy as np
+
+from districting.outputs.wording import status_words_of
+
 __all__ = ["esc", "text_block", "status_text", "share_text", "when_text", "restored_text"]
 
 
@@ -34,21 +38,16 @@ def share_text(share: float) -> str:
 
 def status_text(plan) -> str:
     """A plan's status in words for people: anything with ``status``, ``gap`` (and
-    ``message``): a Plan, or a saved option's listing. Solver words never reach the page.
+    ``message``, ``bound``, ``feasible`` when it has them): a Plan, or a saved option's
+    listing. The words are :func:`districting.outputs.wording.status_words_of`'s, the same
+    as in the exports and the packet; solver words never reach the page.
     """
-    status = str(getattr(plan, "status", ""))
-    gap = float(getattr(plan, "gap", float("nan")))
-    known = gap == gap and gap != float("inf")
-    close = f"within {share_text(gap)} of the best possible" if known else ""
-    if status == "optimal":
-        return "best possible plan" if known and gap <= 1e-6 else close or "best possible plan"
-    if status == "feasible":
-        return f"a valid plan, {close}" if known else "a valid plan (not compared with the best)"
-    if status in ("time_limit", "cancelled"):
-        why = "stopped at the time limit" if status == "time_limit" else "cancelled"
-        return f"{why}: {close}" if known else f"{why}: how close to the best is not known"
-    reason = str(getattr(plan, "message", "") or "").strip()
-    return f"no plan: {reason}" if reason else "no plan"
+    bound = getattr(plan, "bound", None)
+    return status_words_of(
+        getattr(plan, "status", ""), getattr(plan, "gap", float("nan")),
+        str(getattr(plan, "message", "") or ""),
+        bound_known=None if bound is None else bool(np.isfinite(float(bound))),
+        feasible=getattr(plan, "feasible", None))
 
 
 def when_text(iso: str) -> str:

@@ -4,8 +4,6 @@
 to color the vertices of a graph", Communications of the ACM 22(4), 1979, 251-256; as
 ``networkx.greedy_color(strategy="DSATUR")``) so touching zones never share a colour;
 :data:`ZONE_PALETTE` is our own qualitative palette whose grey values are spread apart.
-:func:`zone_colours` is the one colouring of a plan's zones that the packet and the
-workbench use.
 
 :func:`school_colours` gives each school of a level one display colour for every map and
 export: DSATUR on a school graph where two schools are neighbours when today's zones touch
@@ -27,8 +25,8 @@ import shapely
 from ..intake.adjacency import default_tolerance
 from .zones import _ids
 
-__all__ = ["ZONE_PALETTE", "grey_value", "zone_color", "zone_colors", "zone_edges",
-           "color_zones", "zone_colours", "school_graph", "school_colours"]
+__all__ = ["ZONE_PALETTE", "grey_value", "zone_color", "zone_edges",
+           "color_zones", "school_graph", "school_colours"]
 
 #: Qualitative zone colours of our own choosing. Lightness (Rec. 601 luma) steps by about
 #: 20 of 255 from 52 to 232, ordered so consecutive colours differ strongly in both hue and
@@ -112,46 +110,6 @@ def color_zones(
     ordered.add_nodes_from(sorted(g.nodes))  # deterministic colours for the same map
     ordered.add_edges_from(g.edges)
     return dict(nx.greedy_color(ordered, strategy="DSATUR"))
-
-
-def zone_colors(colors: Mapping[str, int]) -> dict[str, str]:
-    """Colour indices (from :func:`color_zones`) as palette hex strings."""
-    return {sid: zone_color(k) for sid, k in colors.items()}
-
-
-def zone_colours(adjacency, site_ids: Sequence[str], assignments: Iterable,
-                 *, spread: bool = False) -> dict[str, str]:
-    """One colour per school with a zone in any of ``assignments`` (site index per unit).
-
-    Touching zones differ in each assignment: the zone graph is the union of the
-    assignments' zone graphs (unit adjacency plus barrier-cut pairs: zones across a river
-    still touch on the map), so a school keeps its colour on every map drawn from them.
-    With ``spread``, zones two, three... steps apart get different colours too while the
-    palette lasts (the k-th power of the zone graph), so schools share a colour only when
-    there are more than the palette holds.
-    """
-    ids = np.array([*map(str, site_ids), ""], dtype=object)
-    pairs: set[tuple[str, str]] = set()
-    used: set[str] = set()
-    for a in assignments:
-        a = np.asarray(a, dtype=np.int64)
-        zone_of = ids[np.where(a >= 0, a, len(ids) - 1)]
-        pairs |= zone_edges(adjacency, zone_of)
-        used |= set(zone_of[zone_of != ""].tolist())
-    nodes = sorted(used)
-    best = color_zones(sorted(pairs), nodes=nodes)
-    if spread:
-        graph = nx.Graph(sorted(pairs))
-        graph.add_nodes_from(nodes)
-        for k in range(2, len(nodes)):  # zones k steps apart differ too, while it lasts
-            wider = nx.power(graph, k)
-            index = color_zones(sorted(tuple(sorted(e)) for e in wider.edges), nodes=nodes)
-            if max(index.values(), default=0) >= len(ZONE_PALETTE):
-                break
-            best = index
-            if wider.number_of_edges() == len(nodes) * (len(nodes) - 1) // 2:
-                break
-    return zone_colors(best)
 
 
 # ---------------------------------------------------------------------------- per school

@@ -25,11 +25,11 @@ from ..study import Outcome
 from .tables import plan_years, school_table, unit_table
 from .wording import DASH
 
-__all__ = ["school_sheet", "unit_sheet", "csv_text", "about_json", "sidecar_name",
+__all__ = ["school_sheet", "unit_sheet", "csv_text", "about_json", "sidecar_name", "whole_numbers",
            "for_people"]
 
 
-def _whole(values) -> pd.Series:
+def whole_numbers(values) -> pd.Series:
     """Whole numbers (nullable integers: an empty cell where there is no value)."""
     return pd.Series(np.round(np.asarray(values, dtype=float))).astype("Int64")
 
@@ -53,11 +53,11 @@ def school_sheet(outcome: Outcome, colours: dict[str, str] | None = None
         "School": t["name"],
         f"Status in {plan_year}": t["status"],
         "Open in the plan": _yes(t["open"]),
-        "Capacity (students)": _whole(t["capacity"]),
+        "Capacity (students)": whole_numbers(t["capacity"]),
         "Lowest utilization allowed (%)": _decimals(100 * t["min_util"], 1),
         "Highest utilization allowed (%)": _decimals(100 * t["max_util"], 1),
-        "Planning units in the zone": _whole(t["units"]),
-        f"Students {s.current_year}, today's zones": _whole(t["students_now"]),
+        "Planning units in the zone": whole_numbers(t["units"]),
+        f"Students {s.current_year}, today's zones": whole_numbers(t["students_now"]),
     })
     notes = {
         "Site id": "the school site's id in the project",
@@ -72,7 +72,7 @@ def school_sheet(outcome: Outcome, colours: dict[str, str] | None = None
             f"students in {s.current_year} living in the school's zone today",
     }
     for y in plan_years(outcome):
-        sheet[f"Students {y}"] = _whole(t[f"students_{y}"])
+        sheet[f"Students {y}"] = whole_numbers(t[f"students_{y}"])
         notes[f"Students {y}"] = f"students in the proposed zone in {y}"
         sheet[f"Utilization {y} (%)"] = _decimals(100 * t[f"util_{y}"], 1)
         notes[f"Utilization {y} (%)"] = (f"students {y} / capacity, percent; empty when the "
@@ -80,8 +80,8 @@ def school_sheet(outcome: Outcome, colours: dict[str, str] | None = None
         sheet[f"Band {y}"] = t[f"flag_{y}"].map({"over": "over the limit",
                                                  "under": "under the floor"}).fillna("")
         notes[f"Band {y}"] = f"whether the school is outside its band in {y}; empty if inside"
-    sheet[f"Students moving in ({plan_year})"] = _whole(t["moved_in"])
-    sheet[f"Students moving out ({plan_year})"] = _whole(t["moved_out"])
+    sheet[f"Students moving in ({plan_year})"] = whole_numbers(t["moved_in"])
+    sheet[f"Students moving out ({plan_year})"] = whole_numbers(t["moved_out"])
     sheet["Mean travel (km)"] = _decimals(t["mean_distance_m"] / 1000, 2)
     sheet["Longest travel (km)"] = _decimals(t["max_distance_m"] / 1000, 2)
     sheet["Outside the band in some year"] = _yes(t["out_of_band"])
@@ -112,7 +112,7 @@ def unit_sheet(outcome: Outcome) -> tuple[pd.DataFrame, dict[str, str]]:
         "Proposed school (site id)": u["proposed"],
         "Proposed school": [names.get(s, "") for s in u["proposed"]],
         "Changes school": _yes(u["changed"]),
-        f"Students {plan_year}": _whole(u[f"students_{plan_year}"]),
+        f"Students {plan_year}": whole_numbers(u[f"students_{plan_year}"]),
         "Travel to the proposed school (km)": _decimals(u["distance_m"] / 1000, 2),
     })
     notes = {

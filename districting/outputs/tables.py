@@ -14,7 +14,7 @@ import pandas as pd
 
 from .. import rules
 from ..study import Outcome
-from .wording import status_words
+from .wording import no_plan_error, status_words
 from .zones import changed_areas, dissolve_zones
 
 __all__ = ["require_plan", "plan_years", "plan_status", "school_table", "unit_table",
@@ -26,11 +26,9 @@ _TOL = rules.TOLERANCE  # students: a load within this of a band edge is on the 
 def require_plan(outcome: Outcome, what: str) -> None:
     """Raise a clear ValueError when ``outcome`` has no valid plan to show."""
     if not outcome.plan.feasible:
-        msg = f": {outcome.plan.message}" if outcome.plan.message else ""
-        raise ValueError(
-            f"{what}: option {outcome.name or '(unsaved)'!r} ({outcome.level}) has no valid "
-            f"plan (status {outcome.plan.status}{msg}); run it again with other settings"
-        )
+        raise ValueError(no_plan_error(
+            f"{what}: option {outcome.name or '(unsaved)'!r} ({outcome.level})",
+            outcome.plan.message, "Run it again with other settings."))
 
 
 def plan_years(outcome: Outcome) -> list[int]:

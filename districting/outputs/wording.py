@@ -16,8 +16,9 @@ import numpy as np
 from ..plan import Plan
 from ..travel.measures import measure_words
 
-__all__ = ["status_words", "solver_details", "gap_words", "int_text", "students_text",
-           "km_text", "student_km_text", "percent_text", "year_text", "dash", "DASH",
+__all__ = ["status_words", "status_words_of", "no_plan_error", "solver_details", "gap_words",
+           "int_text", "students_text", "km_text", "student_km_text", "percent_text",
+           "year_text", "dash", "DASH",
            "band_lines", "today_words", "plan_lines", "travel_words"]
 
 #: What a cell shows when there is no number; :func:`dash` adds the reason.
@@ -92,9 +93,9 @@ def gap_words(gap: float) -> str:
     return f"{math.ceil(pct * 10 - 1e-9) / 10:.1f}%"
 
 
-def _how_close(plan: Plan) -> str:
-    if _finite(plan.gap) and _finite(plan.bound):
-        return f"within {gap_words(max(plan.gap, 0.0))} of the best possible"
+def _how_close(gap, bound_known: bool) -> str:
+    if _finite(gap) and bound_known:
+        return f"within {gap_words(max(float(gap), 0.0))} of the best possible"
     return "a valid plan; how close to the best is not known"
 
 
@@ -104,6 +105,30 @@ def _reason(message: str) -> str:
     return first.rstrip(".") or "the rules cannot all be met at once"
 
 
+def status_words_of(status: str, gap, message: str = "", *, bound_known: bool | None = None,
+                    feasible: bool | None = None) -> str:
+    """A status in plain words from its parts: the solver's status code, the gap and the
+    no-plan message (a Plan, or a saved option's listing that has no full Plan).
+
+    ``bound_known``: whether the plan has a finite lower bound (default: the gap is
+    finite, as it is only computed from one); ``feasible``: whether there is a valid plan
+    (default: the status is one a plan can have). See :func:`status_words` for the words.
+    """
+    status = str(status or "")
+    if feasible is None:
+        feasible = status in ("optimal", "feasible", "time_limit", "cancelled")
+    if status == "infeasible" or not feasible:
+        return f"no plan: {_reason(message)}"
+    if status == "optimal":
+        return "best possible plan"
+    close = _how_close(gap, _finite(gap) if bound_known is None else bound_known)
+    if status == "time_limit":
+        return f"stopped at the time limit: {close}"
+    if status == "cancelled":
+        return f"stopped on request: {close}"
+    return close
+
+
 def status_words(plan: Plan) -> str:
     """A plan's status in plain words.
 
@@ -111,16 +136,19 @@ def status_words(plan: Plan) -> str:
     within 3.3% of the best possible'; 'stopped at the time limit: a valid plan; how close
     to the best is not known'; 'stopped on request: ...'; 'no plan: <reason>'.
     """
-    status = plan.status
-    if status == "infeasible" or not plan.feasible:
-        return f"no plan: {_reason(plan.message)}"
-    if status == "optimal":
-        return "best possible plan"
-    if status == "time_limit":
-        return f"stopped at the time limit: {_how_close(plan)}"
-    if status == "cancelled":
-        return f"stopped on request: {_how_close(plan)}"
-    return _how_close(plan)
+    return status_words_of(plan.status, plan.gap, plan.message,
+                           bound_known=_finite(plan.bound), feasible=plan.feasible)
+
+
+def no_plan_error(subject: str, message: str, fix: str) -> str:
+    """Why a thing without a valid plan is refused, on lines: '<subject> has no valid plan:
+    <lead line>', then one cause per line (the no-plan message's own lines, as
+    :func:`districting.engine.findings.no_plan_text` writes them), then ``fix``."""
+    lines = [ln.strip() for ln in (message or "").splitlines() if ln.strip()]
+    lead, causes = (lines[0].rstrip("."), lines[1:]) if lines else ("", [])
+    head = f"{subject} has no valid plan" + (f": {lead}" if lead else "")
+    bullets = [f"  {c}" if c.startswith("-") else f"  - {c}" for c in causes]
+    return "\n".join([f"{head}.", *bullets, fix])
 
 
 def solver_details(plan: Plan) -> str:

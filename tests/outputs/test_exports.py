@@ -15,7 +15,7 @@ import pandas as pd
 import pyogrio
 import pytest
 import shapely
-from exports_town import make_outcome, make_town, nearest_assignment
+from exports_town import make_town, nearest_assignment, no_plan_outcome
 
 from districting import DRAFT_NOTICE
 from districting.names import slug
@@ -256,12 +256,9 @@ def test_school_table_flags_match_the_band(exported):
 
 
 def test_no_plan_is_refused(tmp_path):
-    town = make_town(tmp_path)
-    bad = make_outcome(town)
-    a = bad.assignment.copy()
-    a[3] = -1
-    broken = outcome_from_assignment(town, bad.settings, a, {"status": "infeasible",
-                                                             "message": "too few seats"})
-    with pytest.raises(ValueError, match="no valid plan.*too few seats"):
+    broken = no_plan_outcome(make_town(tmp_path))
+    with pytest.raises(ValueError, match="no valid plan: No plan: too few seats") as err:
         export_all(broken, tmp_path / "out")
+    lines = str(err.value).splitlines()  # the lead line, then one cause per line
+    assert lines[1:3] == ["  - Alder: 40 students over", "  - Birch: 12 students over"]
     assert not (tmp_path / "out").exists() or not list((tmp_path / "out").iterdir())

@@ -14,7 +14,7 @@ from pathlib import Path
 import numpy as np
 import pyogrio
 import pytest
-from exports_town import make_outcome, make_town, nearest_assignment
+from exports_town import make_outcome, make_town, nearest_assignment, no_plan_outcome
 
 from districting.outputs.store import (
     ASSIGNMENTS_TABLE,
@@ -171,6 +171,14 @@ def test_name_errors_list_the_options(town):
     with pytest.raises(OptionError, match="name is empty"):
         save_option(town, out, "   ")
     assert list_options(town.settings.store)[0].name == "Alpha"
+
+
+def test_no_plan_is_not_saved_and_says_why_on_lines(town):
+    with pytest.raises(OptionError, match="'Nope' has no valid plan: No plan: too few") as err:
+        save_option(town, no_plan_outcome(town), "Nope")
+    assert str(err.value).splitlines()[1:3] == ["  - Alder: 40 students over",
+                                                "  - Birch: 12 students over"]
+    assert list_options(town.settings.store) == []
 
 
 def test_overwrite_rename_delete(town):

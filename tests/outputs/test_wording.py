@@ -10,6 +10,7 @@ from districting.outputs.wording import (
     gap_words,
     int_text,
     km_text,
+    no_plan_error,
     percent_text,
     solver_details,
     status_words,
@@ -126,3 +127,13 @@ def test_today_words_name_the_schools_outside_the_band(tmp_path):
     lines = " ".join(plan_lines(o)).lower()
     assert "students" in lines and " km" in lines
     assert not [w for w in ("time_limit", "gap", "bound", "rounds", "cuts") if w in lines]
+
+
+def test_no_plan_error_keeps_the_lead_and_the_causes_on_lines():
+    # the message as districting.engine.findings.no_plan_text writes it
+    message = "The middle level lacks 120 seats in 2029.\n- M01: 70 students over\n- M02: 50"
+    text = no_plan_error("option 'A'", message, "Run it again.")
+    assert text.splitlines() == ["option 'A' has no valid plan: The middle level lacks 120 "
+                                 "seats in 2029.", "  - M01: 70 students over", "  - M02: 50",
+                                 "Run it again."]
+    assert no_plan_error("x", "", "Fix.") == "x has no valid plan.\nFix."

@@ -145,9 +145,11 @@ def test_planner_job_in_the_browser(tmp_path):
         wait_for(lambda: source_columns(page, "locked-source", ("unit_id",))["unit_id"]
                  == [unit], 15, what="the locked unit hatched on the map")
         shot(page, "03-locked")
-        rerun(page)
-        second = source_columns(page, "units-source", ("proposed",))["proposed"]
-        assert second[unit_ids.index(unit)] == target
+        status = rerun(page)
+        # the map's columns arrive after the run's count: wait for them
+        wait_for(lambda: source_columns(page, "units-source", ("proposed",))["proposed"]
+                 [unit_ids.index(unit)] == target, 20,
+                 what=f"the locked unit in its school on the map after the rerun ({status})")
         open_tab(page, "Changes")
         page.click(".reference-choice button:has-text('previous result')")
         wait_for(lambda: unit in table_text(page, "changes-table"), 15,
@@ -165,7 +167,7 @@ def test_planner_job_in_the_browser(tmp_path):
         assert "Done in" in status, status
         row = _site_row(page, site)
         assert float(row["capacity"].replace(",", "")) == cap
-        assert float(row["use 2027 %"].replace(",", "")) <= 100.0 + 1e-6
+        assert float(row["Utilization 2027 (%)"].replace(",", "")) <= 100.0 + 1e-6
         shot(page, "05-capped")
 
         # Save an option.
@@ -243,11 +245,11 @@ def _cut_busiest(page) -> tuple[str, float]:
             "cs => cs.map(c => [c.getAttribute('tabulator-field'), c.textContent])"))
         if fields.get("status") not in ("open", "new"):
             continue
-        use = float(fields["use 2027 %"].replace(",", "") or 0)
+        use = float(fields["Utilization 2027 (%)"].replace(",", "") or 0)
         if best is None or use > best[0]:
             best = (use, k, fields)
     _use, k, fields = best
-    cap = float(round(float(fields["students 2027"].replace(",", "")) * 0.9))
+    cap = float(round(float(fields["Students 2027"].replace(",", "")) * 0.9))
     cell = rows.nth(k).locator(".tabulator-cell[tabulator-field='capacity']")
     cell.click()
     editor = cell.locator("input")

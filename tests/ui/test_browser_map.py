@@ -15,6 +15,7 @@ import pytest
 from browser_support import CHROMIUM, chromium_page, deep_text, running_server, shot, wait_for
 
 from districting import DRAFT_NOTICE
+from districting.outputs.symbols import TODAY_LINE
 
 pytestmark = pytest.mark.browser
 
@@ -111,7 +112,7 @@ def test_maps_keep_their_true_shape(tmp_path):
         assert printed["w"] > 500
         text = deep_text(page, ".print-page")
         assert "Brindlemoor" in text and DRAFT_NOTICE in text
-        assert "Attendance zones" in text and "today's boundaries" in text
+        assert "Attendance zones" in text and TODAY_LINE.words in text
         pdf = tmp_path / "map.pdf"
         page.pdf(path=str(pdf), landscape=True)
         assert pdf.read_bytes()[:5] == b"%PDF-" and pdf.stat().st_size > 50_000

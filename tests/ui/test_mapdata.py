@@ -16,7 +16,7 @@ import pytest
 import shapely
 from ui_town import CELL, CRS, LEVEL
 
-import districting.intake.layers
+import districting.outputs.reference
 import districting.outputs.zones
 from districting.intake import Source
 from ui.mapdata import MapData, line_paths, polygon_paths
@@ -93,15 +93,16 @@ def barred(inputs, tmp_path):
 
 
 def test_barrier_layer_is_read_once_and_grouped_by_kind(barred, monkeypatch):
-    reads = count_calls(monkeypatch, districting.intake.layers, "read_layer")
+    reads = count_calls(monkeypatch, districting.outputs.reference.pyogrio, "read_dataframe")
     data = MapData.of(barred)
     assert MapData.of(barred) is data  # every session's map shares it
     assert len(reads) == 1
-    assert set(data.barriers) == {"river", "rail", None}  # "fence" is no known kind
+    assert set(data.barriers) == {"river", "rail", "barrier"}  # "fence" is no known kind
     assert data.barriers["river"][0] == [[400_600.0, 400_600.0]]
     assert data.barriers["rail"][1] == [[5_001_000.0, 5_001_000.0]]
-    assert data.barriers[None][0] == [[401_800.0, 401_800.0]]
+    assert data.barriers["barrier"][0] == [[401_800.0, 401_800.0]]
     assert "highway" not in data.barriers
+    assert data.streets is None  # the grid town has no streets
 
 
 def test_todays_outlines_are_dissolved_once_per_level(inputs, monkeypatch):
@@ -136,3 +137,24 @@ def test_a_school_without_a_zone_today_still_gets_a_colour(inputs):
     colours = MapData(dataclasses.replace(inputs, current=current)).school_colors(LEVEL)
     assert set(colours) == {"M1", "M2", "M3", "M4"}  # M4 has no zone today
     assert colours["M4"] not in {colours["M1"], colours["M2"], colours["M3"]}
+
+
+def test_workbench_colours_are_the_projects_stored_colours(inputs):
+    """The workbench takes its colours from the options store, as the exports and the
+    packet do: a colour stored before (by an export, say) is the one the map shows."""
+    from districting.outputs.store import load_school_colours, save_school_colours
+
+    store = inputs.settings.store
+    save_school_colours(store, LEVEL, {"M2": "#123456"})  # chosen earlier, elsewhere
+    colours = MapData(inputs).school_colors(LEVEL)
+    assert colours["M2"] == "#123456"
+    assert load_school_colours(store, LEVEL) == colours  # the others are kept too
+
+
+def test_a_damaged_store_only_means_colours_are_not_kept(inputs):
+    store = inputs.settings.store
+    store.write_bytes(b"not a GeoPackage")
+    with pytest.warns(UserWarning, match="not kept"):
+        colours = MapData(inputs).school_colors(LEVEL)
+    assert set(colours) == {"M1", "M2", "M3", "M4"}
+    assert store.read_bytes() == b"not a GeoPackage"

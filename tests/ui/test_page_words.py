@@ -5,6 +5,7 @@ ui/views/downloads.py)."""
 from __future__ import annotations
 
 import datetime as dt
+import json
 
 import pandas as pd
 from ui_town import new_store
@@ -68,6 +69,12 @@ def test_downloads_are_named_after_the_saved_option(inputs):
     text = open(csv, encoding="utf-8").read()
     assert "(unsaved" not in text
     assert len(pd.read_csv(csv, comment="#")) == 140
+    # each CSV's sidecar sits beside it, under the CSV's name (districting.outputs.sheets)
+    names = {b.filename for b in panel.buttons}
+    for table in ("units", "schools"):
+        assert f"hearing-option-b-middle-{table}.about.json" in names
+        about = json.loads(open(panel._make(f"{table}_about"), encoding="utf-8").read())
+        assert about["option"] == "Hearing option B" and about["columns"]
 
 
 def test_the_schools_table_has_no_nan_and_plain_titles(inputs):
@@ -80,12 +87,19 @@ def test_the_schools_table_has_no_nan_and_plain_titles(inputs):
         session.edit_site(sid, capacity=1200)
     st.rerun()
     table = SitesTable(session)
-    km = table.table.value.set_index("site_id")["mean km"]
-    assert km[st.site_ids[3]] == "- (no students)"
-    assert all(v.replace(".", "").isdigit() for v in km.drop(st.site_ids[3]))
+    value = table.table.value.set_index("site_id")
+    km = value["Mean travel (km)"]
+    assert km[st.site_ids[3]] == "\u2013" and "no students" in table.notes["Mean travel (km)"]
+    assert all(v.replace(".", "").isdigit() and len(v.split(".")[1]) == 2
+               for v in km.drop(st.site_ids[3]))
+    assert not value.isna().any().any() and "nan" not in value.astype(str).to_numpy()
+    # the screen shows what the schools CSV holds
+    csv = pd.read_csv(st.export("schools_csv")).set_index("Site id")
+    for column in ("Students 2027", "Students moving in (2027)", "Utilization 2027 (%)"):
+        for sid in st.site_ids[:3]:
+            assert float(value.loc[sid, column].replace(",", "")) == csv.loc[sid, column]
     titles = table.table.titles
-    assert titles["use 2027 %"] == "2027 use (%)" and titles["today"] == (
-        "2027 students, today's zones")
+    assert titles["capacity"] == "Capacity (edit)"
 
 
 def test_todays_zones_name_the_schools_outside_the_band_and_by_how_much():
@@ -98,3 +112,24 @@ def test_todays_zones_name_the_schools_outside_the_band_and_by_how_much():
         "flag": ["over 100% in 2027, 2028", "under 60% in 2027, 2028", ""]})
     assert outside_band(sites) == ["Alder (A) 110% in 2028, over its 100% limit",
                                    "Birch (B) 50% in 2027, under its 60% floor"]
+
+
+def test_the_change_tables_read_as_the_sheets_do(inputs):
+    from ui.views.results import ResultsView
+
+    session = Session(new_store(inputs))
+    st = session.store
+    st.rerun()
+    session.state.plan_version += 1
+    view = ResultsView(session)
+    changes = view.changes.value
+    frame = st.changes_frame(st.on_screen(), st.today())
+    assert len(changes) == len(frame) > 0
+    assert "Students 2027" in changes.columns and "index" not in changes.columns
+    # whole students with thousands separators, km with two decimals, never NaN
+    total = sum(int(v.replace(",", "")) for v in changes["Students 2027"])
+    assert total == round(frame["students"].round().sum())
+    assert all(len(v.split(".")[1]) == 2 for v in changes["Travel after (km)"])
+    assert "nan" not in changes.astype(str).to_numpy()
+    flows = view.flows.value
+    assert sum(int(v.replace(",", "")) for v in flows["Planning units"]) == len(frame)

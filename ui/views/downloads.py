@@ -13,14 +13,19 @@ __all__ = ["DownloadsPanel"]
 
 
 class DownloadsPanel(pn.viewable.Viewer):
-    """Files of the plan on screen: GeoPackage, GeoJSON, Shapefile, CSVs, the PDF packet."""
+    """Files of the plan on screen: GeoPackage, GeoJSON, Shapefile, CSVs with their
+    sidecars (``*.about.json``: the option, its status and a note per column), the PDF
+    packet; each named after the saved option."""
 
     KINDS = (
         ("gpkg", "GeoPackage (zones, units, sites, changes)", "gpkg"),
         ("geojson", "GeoJSON zones (lon/lat)", "geojson"),
         ("shapefile", "Shapefile zones (.zip)", "zip"),
         ("units_csv", "CSV: unit -> school", "csv"),
+        ("units_about", "About the unit CSV: its columns and the option (JSON)", "about.json"),
         ("schools_csv", "CSV: per-school summary", "csv"),
+        ("schools_about", "About the school CSV: its columns and the option (JSON)",
+         "about.json"),
         ("packet", "Hearing packet (PDF)", "pdf"),
     )
 
@@ -44,8 +49,8 @@ class DownloadsPanel(pn.viewable.Viewer):
         base = "no-plan" if out is None else _file_label(
             f"{out.name or 'unsaved-result'}-{out.level}")
         for (kind, _label, ext), b in zip(self.KINDS, self.buttons, strict=True):
-            suffix = {"units_csv": "-units", "schools_csv": "-schools",
-                      "packet": "-packet"}.get(kind, "")
+            suffix = {"units_csv": "-units", "units_about": "-units", "schools_csv": "-schools",
+                      "schools_about": "-schools", "packet": "-packet"}.get(kind, "")
             b.filename = f"{base}{suffix}.{ext}"
             b.disabled = out is None
         self.note.object = (

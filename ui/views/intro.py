@@ -27,7 +27,7 @@ def intro_html(session: Session) -> str:
         "<b>What you see.</b> The map shows the "
         f"{n_units:,} planning units of {_esc(st.inputs.settings.name)}, each coloured by the "
         "school it would attend. Every school keeps one colour on every map, and its marker "
-        f"has its zone's colour. {now} Dashed black lines are today's boundaries, red dotted "
+        f"has its zone's colour. {now} Dotted black lines are today's boundaries, red dashed "
         "outlines mark units that change school, hatched units are locked; the bar at the "
         "bottom left gives the scale and the arrow points north.<br>"
         "<b>What you can do next.</b> Choose the level and the rules on the left; click units "

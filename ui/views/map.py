@@ -27,6 +27,8 @@ from .layers import (
     NO_ZONE_COLOR,
     draw_barriers,
     draw_sites,
+    draw_streets,
+    draw_today,
     site_columns,
     zone_fill,
 )
@@ -67,6 +69,7 @@ class MapView(pn.viewable.Viewer):
             selection_line_color="#d400d4", selection_line_width=3, selection_fill_alpha=0.95,
             nonselection_fill_alpha=0.55, name="units",
         )
+        self.street_glyphs = draw_streets(fig, mapdata)  # a faint reference layer
         # Locked and forbidden units: a small layer of their own (hatching every unit
         # would slow the page down for nothing).
         # Bokeh draws no legend swatch for an empty layer, so each legend entry also holds
@@ -84,11 +87,9 @@ class MapView(pn.viewable.Viewer):
             lock_items.append(LegendItem(label=label, renderers=[key, layer]))
         self.change_glyphs = fig.multi_polygons(
             "xs", "ys", source=self.changed, fill_alpha=0, line_color="#c0392b",
-            line_width=2, line_dash="dotted", name="changed-units",
+            line_width=2, line_dash="dashed", name="changed-units",
             legend_label="changes school")
-        self.today_glyphs = fig.multi_line("xs", "ys", source=self.today, line_color="#111111",
-                                           line_width=2.2, line_dash="dashed",
-                                           legend_label="today's boundaries", name="today")
+        self.today_glyphs = draw_today(fig, self.today)
         draw_barriers(fig, mapdata)
         self.site_glyphs = draw_sites(fig, self.sites)
         self.labels = LabelSet(x="x", y="y", text="label", source=self.sites, x_offset=8,

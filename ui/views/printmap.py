@@ -18,6 +18,13 @@ import panel as pn
 from bokeh.models import ColumnDataSource, LabelSet
 
 from districting import DRAFT_NOTICE
+from districting.outputs.symbols import (
+    BARRIER_SYMBOLS,
+    BRIDGE_SYMBOL,
+    STREET_LINE,
+    TODAY_LINE,
+    site_symbol,
+)
 
 from ..mapdata import MapData
 from ..session import Session
@@ -25,11 +32,11 @@ from ..store import TODAY, Store, StoreError
 from ..text import esc as _esc
 from ..text import status_text, when_text
 from .layers import (
-    BARRIER_STYLE,
-    OTHER_BARRIER,
-    SITE_MARKERS,
     draw_barriers,
     draw_sites,
+    draw_streets,
+    draw_today,
+    line_style,
     site_columns,
     zone_fill,
 )
@@ -38,8 +45,9 @@ from .mapframe import map_figure
 __all__ = ["print_page", "PrintLink", "print_url"]
 
 MAP_WIDTH, MAP_HEIGHT = 760, 620  # the largest map frame in px (fits A4 / Letter landscape)
-MARKER_SIGNS = {"circle": "&#9711;", "star": "&#9734;", "x": "&#10005;", "square": "&#9633;"}
-CSS_DASH = {"dotdash": "dotted", "dashdot": "dotted"}  # Bokeh dash -> CSS border style
+MARKER_SIGNS = {"circle": "&#9711;", "star": "&#9733;", "x": "&#10005;", "square": "&#9632;",
+                "diamond": "&#9671;"}  # Bokeh marker -> the nearest character, for the legend
+SITE_SCALE = 12 / 7  # marker px per point on the printed page
 NO_PRINT = "<style>@media print { .no-print { display: none !important; } }</style>"
 
 
@@ -66,6 +74,19 @@ def _frame_size(bounds) -> tuple[int, int]:
     return int(dx * scale), int(dy * scale)
 
 
+def _line_sign(sym) -> str:
+    """A legend swatch of a line symbol: its base line, with its top line centred on it."""
+    base = line_style(sym)
+    styles = [base, line_style(sym, top=True)] if sym.top_colour else [base]
+    inner = "".join(
+        f"<span style='position:absolute;left:0;width:26px;"
+        f"top:{5 + (base['line_width'] - st['line_width']) / 2:.1f}px;"
+        f"border-top:{st['line_width']:.1f}px {'dashed' if st.get('line_dash') else 'solid'} "
+        f"{st['line_color']}'></span>" for st in styles)
+    return (f"<span style='display:inline-block;position:relative;width:26px;height:12px;"
+            f"margin-right:6px;vertical-align:middle'>{inner}</span>")
+
+
 def _legend(store: Store, out, colors: dict[str, str]) -> str:
     names = store.site_names()
     used = sorted(set(out.site_id_of(out.assignment).tolist()) - {""})
@@ -73,19 +94,19 @@ def _legend(store: Store, out, colors: dict[str, str]) -> str:
         f"<div><span style='display:inline-block;width:14px;height:14px;margin-right:6px;"
         f"vertical-align:middle;border:1px solid #555;background:{colors.get(s, '#fff')}'>"
         f"</span>{_esc(names.get(s, s))} ({_esc(s)})</div>" for s in used)
-    lines = [("today's boundaries", "#111111", 2, "dashed")]
-    for kind in MapData.of(store.inputs).barriers:
-        color, width, dash = BARRIER_STYLE.get(kind, OTHER_BARRIER)
-        lines.append((kind or "barrier", color, width, dash))
-    rows += "".join(
-        f"<div><span style='display:inline-block;width:26px;margin-right:6px;"
-        f"vertical-align:middle;border-top:{w}px {CSS_DASH.get(dash, dash)} {c}'></span>"
-        f"{_esc(label)}</div>"
-        for label, c, w, dash in lines)
+    mapdata = MapData.of(store.inputs)
+    lines = [TODAY_LINE, *(BARRIER_SYMBOLS[k] for k in mapdata.barriers)]
+    if mapdata.streets is not None:
+        lines.append(STREET_LINE)
+    rows += "".join(f"<div>{_line_sign(sym)}{_esc(sym.words)}</div>" for sym in lines)
+    if mapdata.bridges[0]:
+        rows += (f"<div><span style='display:inline-block;width:26px'>"
+                 f"{MARKER_SIGNS[BRIDGE_SYMBOL.bokeh]}</span>{_esc(BRIDGE_SYMBOL.words)}</div>")
     statuses = sorted(set(store.sites_frame(resolved_settings=store.effective)["status"]))
+    symbols = dict.fromkeys(site_symbol(s) for s in statuses)  # closing and closed share one
     rows += "".join(f"<div><span style='display:inline-block;width:26px'>"
-                    f"{MARKER_SIGNS.get(SITE_MARKERS.get(s, 'circle'), '')}</span>school: "
-                    f"{_esc(s)}</div>" for s in statuses)
+                    f"{MARKER_SIGNS.get(sym.bokeh, '')}</span>{_esc(sym.words)}</div>"
+                    for sym in symbols)
     return (f"<div class='print-legend' style='font-size:12px;line-height:1.6'>"
             f"<b>Attendance zones</b> (each school's colour){rows}</div>")
 
@@ -117,12 +138,12 @@ def print_page(project, args: dict | None = None):
     fig.multi_polygons("xs", "ys", source=ColumnDataSource({
         "xs": xs, "ys": ys, "fill": zone_fill(out.site_id_of(out.assignment), colors)}),
         fill_color="fill", fill_alpha=0.85, line_color="#ffffff", line_width=0.3)
+    draw_streets(fig, mapdata, legend=False)
     txs, tys = mapdata.today(out.level)
-    fig.multi_line("xs", "ys", source=ColumnDataSource({"xs": txs, "ys": tys}),
-                   line_color="#111111", line_width=2, line_dash="dashed")
+    draw_today(fig, ColumnDataSource({"xs": txs, "ys": tys}), legend=False)
     draw_barriers(fig, mapdata, legend=False)
-    sites = ColumnDataSource(site_columns(store, colors))
-    draw_sites(fig, sites, size=12)
+    sites = ColumnDataSource(site_columns(store, colors, scale=SITE_SCALE))
+    draw_sites(fig, sites)
     fig.add_layout(LabelSet(x="x", y="y", text="label", source=sites, x_offset=7, y_offset=5,
                             text_font_size="10px", background_fill_color="#ffffff",
                             background_fill_alpha=0.75))

@@ -5,6 +5,8 @@ from __future__ import annotations
 import pandas as pd
 import panel as pn
 
+from districting.outputs.sheets import for_people, whole_numbers
+
 from ..session import Session
 from ..state import REFERENCES
 from ..store import TODAY
@@ -88,9 +90,17 @@ class ResultsView(pn.viewable.Viewer):
             f"<b>{s['schools_out_of_band']}</b><br>"
             f"Against {_esc(label)}: {len(ch):,} units, {moved_vs_ref:,.0f} students differ."
             "</div>")
-        self.flows.value = fl.rename(columns={"from_name": "from", "to_name": "to"})
-        self.changes.value = ch.drop(columns=["from_name", "to_name"]).round(
-            {"km_before": 2, "km_after": 2})
+        year = s["plan_year"]
+        self.flows.value = for_people(pd.DataFrame({
+            "From": fl["from_name"], "To": fl["to_name"],
+            "Planning units": whole_numbers(fl["units"]),
+            f"Students {year}": whole_numbers(fl["students"])}))
+        self.changes.value = for_people(pd.DataFrame({
+            "Unit id": ch["unit_id"], f"Students {year}": whole_numbers(ch["students"]),
+            "From (site id)": ch["from"], "From": ch["from_name"],
+            "To (site id)": ch["to"], "To": ch["to_name"],
+            "Travel before (km)": ch["km_before"].round(2),
+            "Travel after (km)": ch["km_after"].round(2)}))
 
     def __panel__(self):
         return pn.Column(self.summary, pn.Row(pn.pane.HTML("<b>Change view against:</b>"),

@@ -5,7 +5,8 @@ from __future__ import annotations
 import pandas as pd
 import panel as pn
 
-from districting import rules
+from districting.outputs.sheets import for_people, school_sheet
+from districting.outputs.wording import DASH
 from districting.rules import SITE_STATUSES
 
 from ..session import Session
@@ -56,6 +57,12 @@ class LocksTable(pn.viewable.Viewer):
         return pn.Column(self.table, pn.Row(self.remove, self.note), sizing_mode="stretch_width")
 
 
+#: The sheet's columns the table shows as the edits in force instead (editable numbers).
+SHOWN_AS_EDITS = ("Site id", "School", "Capacity (students)",
+                  "Lowest utilization allowed (%)", "Highest utilization allowed (%)")
+OUTSIDE = "Outside the band in some year"
+
+
 def _pct(v) -> float:
     return float(v) * 100.0 if v == v else float("nan")
 
@@ -80,26 +87,22 @@ class SitesTable(pn.viewable.Viewer):
         self._update()
 
     def frame(self) -> pd.DataFrame:
+        """The edits in force (numbers, editable) beside the plan's figures as the schools'
+        CSV has them (:func:`districting.outputs.sheets.school_sheet`, as text by
+        :func:`~districting.outputs.sheets.for_people`), so screen and spreadsheet agree."""
         st = self.session.store
-        df = st.sites_frame()
-        years = [c[len("students_"):] for c in df.columns if c.startswith("students_")]
+        edits = st.sites_frame(resolved_settings=st.effective)
         out = pd.DataFrame({
-            "site_id": df["site_id"], "school": df["name"], "status": df["status"],
-            "capacity": df["capacity"],
-            "max_pct": df["max_util"].map(_pct), "min_pct": df["min_util"].map(_pct),
+            "site_id": edits["site_id"], "school": edits["name"], "status": edits["status"],
+            "capacity": edits["capacity"],
+            "max_pct": edits["max_util"].map(_pct), "min_pct": edits["min_util"].map(_pct),
         })
-        for y in years:
-            out[f"use {y} %"] = df[f"util_{y}"].map(_pct)
-        out["flag"] = df["flag"]
-        out["today"] = df["today"]
-        for y in years:
-            out[f"students {y}"] = df[f"students_{y}"]
-        out["moved in"] = df["moved_in"]
-        out["moved out"] = df["moved_out"]
-        students = df[[c for c in df.columns if c.startswith("students_")]].sum(axis=1)
-        out["mean km"] = [f"{v:.2f}" if v == v else ("- (no students)" if s == 0 else "-")
-                          for v, s in zip(df["mean_km"], students, strict=True)]
-        return out
+        sheet, self.notes = school_sheet(st.on_screen())
+        shown = for_people(sheet.drop(columns=[c for c in sheet.columns if c in SHOWN_AS_EDITS
+                                               or c.startswith("Status in ")]))
+        shown.index = sheet["Site id"].astype(str).to_numpy()
+        return pd.concat([out, shown.reindex(out["site_id"].astype(str)).reset_index(drop=True)
+                          .fillna(DASH)], axis=1)
 
     def _update(self, *events) -> None:
         df = self.frame()
@@ -112,34 +115,33 @@ class SitesTable(pn.viewable.Viewer):
             "status": {"type": "list", "values": list(SITE_STATUSES)},
         })
         self.table.editors = editors
-        fmt = {c: {"type": "money", "precision": 0, "thousand": ","} for c in df.columns
-               if c.startswith("students") or c in ("today", "moved in", "moved out",
-                                                      "capacity")}
-        fmt.update({c: {"type": "money", "precision": 0, "symbol": "", "thousand": ","}
-                    for c in df.columns if c.startswith("use ") or c.endswith("_pct")})
-        self.table.formatters = fmt
-        year = self.session.store.effective.plan_year
-        self.table.titles = {"site_id": "id", "max_pct": "max %", "min_pct": "min %",
-                             "today": f"{year} students, today's zones",
-                             **{c: f"{c[4:-2]} use (%)" for c in df.columns
-                                if c.startswith("use ")}}
+        self.table.formatters = {
+            "capacity": {"type": "money", "precision": 0, "symbol": "", "thousand": ","},
+            **{c: {"type": "money", "precision": 0, "symbol": "", "thousand": ","}
+               for c in ("max_pct", "min_pct")}}
+        self.table.titles = {"site_id": "Site id", "school": "School",
+                             "status": "Status (edit)", "capacity": "Capacity (edit)",
+                             "max_pct": "Max utilization % (edit)",
+                             "min_pct": "Min utilization % (edit)"}
         self.table.value = df
         self.table.style.apply(self._style, axis=1)
-        n = int((df["flag"] != "").sum())
+        n = int((df[OUTSIDE] == "yes").sum())
         self.legend.object = (
-            "<div style='font-size:12px'>Edit <b>capacity</b>, <b>max %</b>, <b>min %</b> "
-            "and <b>status</b> in the table, then press Rerun. Red cells are outside the band "
-            f"in that year ({n} school(s) flagged).</div>")
+            "<div style='font-size:12px'>Edit <b>capacity</b>, the <b>highest</b> and "
+            "<b>lowest utilization</b> and the <b>status</b> in the table, then press Rerun. "
+            "The other columns are the plan's, as in the schools CSV; red cells are outside "
+            f"the band in that year ({n} school(s) flagged).</div>")
 
     def _style(self, row: pd.Series) -> list[str]:
+        """Red where the plan is outside the band: a year's utilization, and the flag."""
         styles = []
         for col, v in row.items():
             bad = False
-            if (isinstance(col, str) and col.startswith("use ") and v == v
-                    and bool(rules.takes_students(row["status"]))):
-                bad = v > row["max_pct"] + 1e-6 or (v < row["min_pct"] - 1e-6 and v > 0)
-            if col == "flag" and v:
-                bad = True
+            if isinstance(col, str) and col.startswith("Utilization ") and col.endswith(" (%)"):
+                year = col[len("Utilization "):-len(" (%)")]
+                bad = str(row.get(f"Band {year}", "")) not in ("", DASH)
+            elif col == OUTSIDE:
+                bad = v == "yes"
             styles.append("background-color:#f5b7b1;font-weight:bold" if bad else "")
         return styles
 

@@ -22,6 +22,7 @@ from ...intake import Inputs
 from ...names import BadName, check_name, normalise
 from ...plan import PlanMetrics
 from ...study import Outcome, RunSettings, level_sites, now_iso, outcome_from_assignment
+from ..wording import no_plan_error
 from ..zones import dissolve_zones
 from .storefile import (
     ASSIGNMENTS_TABLE,
@@ -146,11 +147,9 @@ def save_option(inputs: Inputs, outcome: Outcome, name: str, overwrite: bool = F
     store = Path(inputs.settings.store)
     name = check_option_name(store, name, overwrite)
     if not outcome.plan.feasible:
-        raise OptionError(
-            f"option {name!r} has no valid plan (status {outcome.plan.status}"
-            f"{': ' + outcome.plan.message if outcome.plan.message else ''}); change the "
-            "settings and run it again before saving"
-        )
+        raise OptionError(no_plan_error(
+            f"option {name!r}", outcome.plan.message,
+            "Change the settings and run it again before saving."))
     if len(outcome.unit_ids) != len(inputs.units):
         raise OptionError(
             f"option {name!r} has {len(outcome.unit_ids)} units but the project has "
