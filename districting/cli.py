@@ -218,6 +218,7 @@ def cmd_solve(args) -> int:
 
 def cmd_options(args) -> int:
     from .outputs.store import delete_option, list_options, rename_option, repair_store, tidy_store
+    from .outputs.wording import status_words_of
 
     inputs = _load(args.project)
     store = inputs.settings.store
@@ -239,10 +240,12 @@ def cmd_options(args) -> int:
     if not infos:
         print(f"no saved options in {store}")
         return 0
-    print(f"{'name':24} {'level':11} {'created':20} {'status':10} {'moved':>8} {'mean km':>8}")
+    print(f"{'name':24} {'level':11} {'created (UTC)':20} {'students moved':>14} "
+          f"{'mean km':>8}  status")
     for o in infos:
-        print(f"{o.name[:24]:24} {o.level:11} {o.created[:19]:20} {o.status:10} "
-              f"{o.students_moved:8,.0f} {o.mean_distance / 1000:8.2f}")
+        print(f"{o.name[:24]:24} {o.level:11} {o.created[:19].replace('T', ' '):20} "
+              f"{o.students_moved:14,.0f} {o.mean_distance / 1000:8.2f}  "
+              f"{status_words_of(o.status, o.gap)}")
     return 0
 
 
