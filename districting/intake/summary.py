@@ -30,13 +30,19 @@ def check_summary(inputs: Inputs) -> str:
     w(f"  CRS {crs_text}; plan year {s.plan_year}; years {', '.join(map(str, s.years))}")
     comps = adj.n_components
     sizes = np.bincount(adj.components()) if adj.n else np.zeros(0, int)
-    piece = "1 piece" if comps == 1 else (f"{comps} pieces (sizes "
-                                          f"{', '.join(map(str, sorted(sizes, reverse=True)))})")
-    w(f"  {len(units)} planning units, {area:,.1f} km2; adjacency ({adj.contiguity}) "
-      f"{adj.n_edges} pairs, {piece}, {len(adj.islands())} islands")
+    touch = {"rook": "sharing a stretch of border", "queen": "sharing a border or a corner"}
+    joined = ("all joined into one town" if comps == 1 else
+              f"in {comps} separate groups of {', '.join(map(str, sorted(sizes, reverse=True)))}"
+              " units")
+    islands = len(adj.islands())
+    alone = f"{plural(islands, 'unit')} with no neighbour" if islands else "none alone"
+    w(f"  {len(units):,} planning units, {area:,.1f} km2")
+    w(f"  {adj.n_edges:,} pairs of neighbouring units "
+      f"({touch.get(adj.contiguity, adj.contiguity)}), {joined}; {alone}")
     net = inputs.streets
-    streets = "" if net is None else (f"; streets: {len(net.seg_a):,} segments, "
-                                      f"{plural(net.n_pieces, 'piece')}")
+    streets = "" if net is None else (
+        f"; streets: {len(net.seg_a):,} segments, "
+        + ("all joined" if net.n_pieces == 1 else f"in {net.n_pieces} separate pieces"))
     w(f"  {measure_line(s.solve.travel, table=inputs.travel is not None)} (the default of "
       f"runs){streets}")
     years = s.all_years

@@ -37,7 +37,7 @@ def difference_rows(before: Outcome, after: Outcome, reference_label: str):
     def school(sid: str) -> str:
         return f"{short_name(names.get(sid, ''))} ({sid})" if sid else DASH
 
-    header = ["#", f"From ({reference_label})", f"To ({after.name or 'this option'})",
+    header = ["#", f"From\n{_clip(reference_label)}", f"To\n{_clip(after.name or 'this option')}",
               "Units", "Students"]
     rows = [[str(k + 1), school(r.from_site), school(r.to_site), int_text(r.n_units),
              int_text(r.students)] for k, r in enumerate(areas.itertuples())]
@@ -45,6 +45,11 @@ def difference_rows(before: Outcome, after: Outcome, reference_label: str):
         rows.append(["", "All changes", "", int_text(areas["n_units"].sum()),
                      int_text(areas["students"].sum())])
     return header, rows, areas
+
+
+def _clip(label: str, most: int = 22) -> str:
+    """An option's name short enough for a table heading (it is in full in the subtitle)."""
+    return label if len(label) <= most else label[: most - 1].rstrip() + "\u2026"
 
 
 def moves_pages(after: Outcome, header, rows, areas: pd.DataFrame, colours: dict[str, str],

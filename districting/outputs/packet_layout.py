@@ -18,8 +18,8 @@ from matplotlib.patches import Rectangle
 from .. import DRAFT_NOTICE
 from ..study import Outcome
 
-__all__ = ["PAPER", "PNG_DPI", "TABLE_FONT", "page", "frame", "footer", "title", "draw_table",
-           "rows_that_fit", "chunks", "more"]
+__all__ = ["PAPER", "PNG_DPI", "TABLE_FONT", "page", "frame", "footer", "title", "title_fit",
+           "draw_table", "rows_that_fit", "chunks", "more"]
 
 PAPER = {"letter": (11.0, 8.5), "a4": (11.69, 8.27)}
 PNG_DPI = 110
@@ -42,7 +42,7 @@ def page(paper: str) -> Figure:
 def frame(fig: Figure, title: str, subtitle: str, footer: str, page: int,
            full_notice: bool) -> float:
     """Title, notice and footer; returns the top of the free area (figure fraction)."""
-    fig.text(0.03, 0.962, title, fontsize=15, weight="bold", va="top")
+    title_fit(fig.text(0.03, 0.962, title, fontsize=15, weight="bold", va="top"))
     lines = textwrap.wrap(subtitle, 170)
     fig.text(0.03, 0.918, "\n".join(lines[:2]), fontsize=9.5 if len(lines) < 2 else 8.6,
              va="top", color="#333333")
@@ -60,6 +60,26 @@ def frame(fig: Figure, title: str, subtitle: str, footer: str, page: int,
     fig.text(0.03, 0.018, footer, fontsize=7, color="#444444")
     fig.text(0.97, 0.018, f"page {page}", fontsize=7, color="#444444", ha="right")
     return top
+
+
+def title_fit(text, share: float = 0.74) -> None:
+    """Shrink a drawn title (15 pt down to 8 pt) until it fits ``share`` of the page width,
+    left of the notice box, measured by the figure's renderer; a title too long even at
+    8 pt is cut with an ellipsis (the names it holds are written out in the subtitle)."""
+    fig = text.figure
+    renderer = fig.canvas.get_renderer()
+    room = share * fig.get_figwidth() * fig.dpi  # pixels
+
+    def width() -> float:
+        return text.get_window_extent(renderer).width
+
+    if width() > room:
+        text.set_fontsize(max(8.0, text.get_fontsize() * room / width() * 0.98))
+    full = text.get_text()
+    keep = len(full)
+    while width() > room and keep > 1:
+        keep = max(1, int(keep * room / width()) - 1)
+        text.set_text(full[:keep].rstrip() + "\u2026")
 
 
 def footer(outcome: Outcome | None, stamp: str) -> str:

@@ -221,7 +221,7 @@ def test_summary_shows_students_sites_capacity_and_graph(tmp_path):
     inputs = load_project(town.write_town(tmp_path))
     text = check_summary(inputs)
     total = _count_table(town.town_units()).sum(axis=1)
-    assert "12 planning units, 12.0 km2" in text and "1 piece, 0 islands" in text
+    assert "12 planning units, 12.0 km2" in text and "all joined into one town; none alone" in text
     assert "".join(f"{v:>9,.0f}" for v in total) in text
     assert "2 sites (2 open); capacity open 1,000" in text
     assert f"{100 * total[1] / 1000:>8.0f}%" in text

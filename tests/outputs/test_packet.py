@@ -375,3 +375,22 @@ def test_streets_are_a_reference_layer_when_the_project_has_them(tmp_path):
     assert grey and len(grey[0].get_paths()) == 2
     legend(fig, [drawn], colours, 0.15)
     assert "Streets" in [t.get_text() for t in fig.legends[0].get_texts()]
+
+
+@pytest.mark.parametrize("name", ["Option A", "elementary-fewer-moves: where it differs from "
+                                  "elementary-shortest-travel", "W" * 80 + ": beside " + "M" * 80])
+def test_page_titles_stay_clear_of_the_notice_box(name):
+    """Measured by matplotlib's own renderer: the title ends left of the notice box."""
+    from districting.outputs.packet_layout import frame, page
+
+    fig = page("letter")
+    frame(fig, name, "subtitle", "footer", 1, full_notice=False)
+    fig.canvas.draw()  # lays out the notice's box
+    renderer = fig.canvas.get_renderer()
+    title = fig.texts[0]  # frame() writes the title first
+    notice = next(t for t in fig.texts if t.get_text() == "DRAFT FOR DISCUSSION")
+    box = notice.get_bbox_patch().get_window_extent(renderer)
+    assert title.get_window_extent(renderer).x1 < box.x0
+    assert title.get_fontsize() >= 8
+    if len(name) < 40:
+        assert title.get_text() == name and title.get_fontsize() == 15
