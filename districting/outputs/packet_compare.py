@@ -47,7 +47,7 @@ def difference_rows(before: Outcome, after: Outcome, reference_label: str):
     return header, rows, areas
 
 
-def _clip(label: str, most: int = 22) -> str:
+def _clip(label: str, most: int = 19) -> str:
     """An option's name short enough for a table heading (it is in full in the subtitle)."""
     return label if len(label) <= most else label[: most - 1].rstrip() + "\u2026"
 
