@@ -34,7 +34,7 @@ from ..problem import Problem
 from .answer import Answer
 from .formulation import formulate
 
-__all__ = ["FlowRoute", "flow_size"]
+__all__ = ["FlowRoute", "flow_size", "tree_flows"]
 
 
 def _arcs(problem: Problem, colmap: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -50,6 +50,37 @@ def _arcs(problem: Problem, colmap: np.ndarray) -> tuple[np.ndarray, np.ndarray,
         heads.append(both[ok, 1])
         sites.append(np.full(int(ok.sum()), j, np.int64))
     return np.concatenate(tails), np.concatenate(heads), np.concatenate(sites)
+
+
+def tree_flows(problem: Problem, a: np.ndarray, sites, roots=None):
+    """Flows of a plan on a BFS tree of each zone from its root: (tail, head, site, amount),
+    each tree arc carrying the units of its subtree. A zone whose tree does not reach all
+    its units (a disconnected zone) gets no flows. ``roots`` defaults to the problem's."""
+    roots = problem.roots if roots is None else roots
+    adj: list[list[int]] = [[] for _ in range(problem.n_units)]
+    for u, v in np.asarray(problem.edges).tolist():
+        adj[u].append(v)
+        adj[v].append(u)
+    out = []
+    for j in sites:
+        r = int(roots[j])
+        if a[r] != j:
+            continue
+        parent, order, queue = {r: -1}, [], deque([r])
+        while queue:
+            u = queue.popleft()
+            order.append(u)
+            for v in adj[u]:
+                if v not in parent and a[v] == j:
+                    parent[v] = u
+                    queue.append(v)
+        if len(order) != int((a == j).sum()):
+            continue
+        size = dict.fromkeys(order, 1)
+        for u in reversed(order[1:]):
+            size[parent[u]] += size[u]
+            out.append((parent[u], u, j, size[u]))
+    return out
 
 
 def flow_size(problem: Problem) -> int | None:
@@ -133,24 +164,8 @@ class FlowRoute:
         x[c[c >= 0]] = 1.0
         opened = np.bincount(a, minlength=p.n_sites) > 0
         x[self.ycol[opened & (self.ycol >= 0)]] = 1.0
-        adj = [[] for _ in range(p.n_units)]
-        for u, v in np.asarray(p.edges).tolist():
-            adj[u].append(v)
-            adj[v].append(u)
-        for j in np.flatnonzero(opened).tolist():
-            r = int(p.roots[j])
-            parent, order, queue = {r: -1}, [], deque([r])
-            while queue:
-                u = queue.popleft()
-                order.append(u)
-                for v in adj[u]:
-                    if v not in parent and a[v] == j:
-                        parent[v] = u
-                        queue.append(v)
-            size = dict.fromkeys(order, 1)
-            for u in reversed(order[1:]):
-                size[parent[u]] += size[u]
-                x[self.arc_of[(parent[u], u, j)]] = size[u]
+        for u, v, j, amount in tree_flows(p, a, np.flatnonzero(opened).tolist()):
+            x[self.arc_of[(u, v, j)]] = amount
         return x
 
     def solve(self, gap: float, time_left: float | None, start: np.ndarray | None,
