@@ -9,11 +9,11 @@ search, which could re-solve the zones, runs only from ``LNS_MIN_SITES`` zones. 
 formulation (:class:`~districting.engine.flow_route.FlowRoute`) needs no repair: its answers
 are connected plans, and its bound is a valid lower bound of the same problem.
 
-The stage runs (once, from the exact rounds, when a repaired plan is still far above the
-bound) when the problem has at most ``FLOW_MAX_SITES`` sites and ``FLOW_MAX_ARCS``
-flow arcs, warm-started from the best plan, for a share ``FLOW_SHARE`` of the time left; its
-plan is kept when better (checked by the independent connectivity check like every plan)
-and its bound when tighter. The exact rounds then use the rest of the time.
+The stage runs once, when the best plan is still far above the bound before the first
+exact round or after a repair, and only on problems with at most ``FLOW_MAX_SITES`` sites and
+``FLOW_MAX_ARCS`` flow arcs: warm-started from the best plan, for a share ``FLOW_SHARE`` of
+the time left; its plan is kept when better (checked by the independent connectivity check
+like every plan) and its bound when tighter. The exact rounds then use the rest of the time.
 """
 
 from __future__ import annotations

@@ -17,8 +17,9 @@ Stages of :meth:`Session.solve`, passing a :class:`~districting.engine.run.Solve
    each answer is repaired into a plan (an upper bound; the MIP bound is a lower bound as
    every cut is valid) and its violated separator cuts are added (Validi, Buchanan &
    Lykhovyd, Operations Research 70(2), 2022), until the gap is within the request. When a
-   repaired plan stays far above the bound on a problem with few sites, the exact flow
-   formulation (:mod:`~districting.engine.flow_stage`) is raced once from the best plan.
+   plan stays far above the bound on a problem with few sites (before the first round or
+   after a repair), the exact flow formulation (:mod:`~districting.engine.flow_stage`) is
+   raced once from the best plan.
 
 Columns are removed only with a proof: a pair whose students exceed the site's upper
 capacity in some year is never a column, and after a valid plan of cost UB is known,
@@ -162,6 +163,7 @@ class Session:
             return self._finish(st)
         self._lp_bound(st)
         self._first_heuristics(st)
+        self._race_flow(st)
         return self._finish(self._exact_rounds(st, max_rounds))
 
     # ------------------------------------------------------------------ stages
@@ -344,11 +346,16 @@ class Session:
         if not st.lns_done and run.best is not None and st.far():
             st.lns_done = True
             self._neighbourhoods(st)
-        if (not st.flow_done and self.heuristics and self.solver == "highs" and st.far()
-                and flow_applies(st)):
+        self._race_flow(st)
+        return n_frag, added
+
+    def _race_flow(self, st: SolveState) -> None:
+        """The exact flow formulation, once, when the best plan is far above the bound on a
+        problem with few sites (:mod:`~districting.engine.flow_stage`)."""
+        if (not st.flow_done and self.heuristics and self.solver == "highs"
+                and st.run.best is not None and st.far() and flow_applies(st)):
             st.flow_done = True
             flow_stage(st)
-        return n_frag, added
 
     def _rebuild_full(self, st: SolveState) -> int:
         """Empty units must join the MIP: only cuts through them are left. Returns -1."""
