@@ -13,7 +13,9 @@ from flow_milp import flow_optimum
 from hypothesis import HealthCheck, given, settings
 from test_contiguous_optimum import columbus, towns
 
+from districting.engine import Session
 from districting.engine.flow_route import FlowRoute, flow_size
+from districting.engine.flow_stage import flow_applies, flow_stage
 from districting.verify import check_plan, facts_of_problem
 
 
@@ -60,3 +62,19 @@ def test_columbus_two_schools():
 def test_no_route_without_a_root_for_every_site():
     p = columbus(2, 0.55, 0.6)
     assert flow_size(p.replace(roots=np.array([p.roots[0], -1]))) is None
+
+
+def test_flow_stage_takes_the_optimum_and_its_bound():
+    # the stage inside a real solve state (Session's first stage: pre-checks, a valid start,
+    # the model): before any bound is known the start is "far", and the stage must leave
+    # the flow model's optimum as the best plan and its bound as the run's bound (here the
+    # start made valid lies 0.8% above the optimum: 2,919.0 against 2,897.1)
+    p = columbus(2, 0.51, 0.45)
+    want, _ = flow_optimum(p, 30.0)
+    st = Session(p)._start(0.0, 30.0, None, None, None)
+    assert st.run.best is not None and flow_applies(st)
+    assert st.run.best_obj > want * (1 + 1e-3)
+    flow_stage(st)
+    assert st.run.best_obj == pytest.approx(want, rel=1e-7)
+    assert want - 1e-6 <= st.run.bound + 1e-6 * want and st.run.bound <= want + 1e-6
+    assert check_plan(facts_of_problem(p), st.run.best) == []
