@@ -10,7 +10,10 @@ the UI.
 from __future__ import annotations
 
 import argparse
+import functools
+import json
 import logging
+import math
 import sys
 import time
 from collections.abc import Sequence
@@ -198,22 +201,46 @@ def cmd_solve(args) -> int:
     inputs = _load(args.project)
     tidy_store(inputs.settings.store)
     targets = _solve_targets(args, inputs)
+    # with --json, stdout holds one JSON object per level and nothing else
+    say = functools.partial(print, file=sys.stderr) if args.json else print
     status = 0
     for level, (name, folder) in targets.items():
         progress = Progress(level)
         outcome = run(inputs, _run_settings(args, level), name=name if args.save else "",
                       progress=progress)
         progress.done()
-        print(plan_summary(outcome))
+        say(plan_summary(outcome))
+        if args.json:
+            print(json.dumps(solve_record(outcome)), flush=True)
         if not outcome.plan.feasible:
             status = 1
             continue
         if args.save:  # the store first: a name taken meanwhile leaves no exports behind
             save_option(inputs, outcome, name, overwrite=args.overwrite)
-            print(f"    saved as option {name!r} in {inputs.settings.store}")
+            say(f"    saved as option {name!r} in {inputs.settings.store}")
         files = export_all(outcome.renamed(name), folder)
-        print(f"    wrote {len(files)} files to {folder}")
+        say(f"    wrote {len(files)} files to {folder}")
     return status
+
+
+def _finite(value: float) -> float | None:
+    """A number for JSON: None for an infinite or missing one (strict JSON has no inf)."""
+    return float(value) if value is not None and math.isfinite(value) else None
+
+
+def solve_record(outcome) -> dict:
+    """One level's result for scripts (`solve --json`): the engine's status code, the
+    objective and the proven bound (cost units), the gap as a fraction, seconds, and
+    students moved against today's zones. ``students_moved_vs_option`` is None: the
+    command always starts from today's zones, never from a saved option."""
+    plan = outcome.plan
+    moved = plan.metrics.students_moved if plan.feasible and plan.metrics else None
+    return {"level": outcome.level, "status": plan.status,
+            "objective": _finite(plan.objective), "bound": _finite(plan.bound),
+            "gap": _finite(plan.gap),
+            "seconds": round(plan.build_seconds + plan.solve_seconds, 3),
+            "students_moved_vs_today": _finite(moved),
+            "students_moved_vs_option": None}
 
 
 def cmd_options(args) -> int:
@@ -475,6 +502,13 @@ def build_parser() -> argparse.ArgumentParser:
                    help="replace an option of that name and its exports")
     p.add_argument("--out", metavar="FOLDER",
                    help="folder for the exports (default: out/ beside the project file)")
+    p.add_argument("--json", action="store_true",
+                   help="for scripts: print one JSON object per level on standard output "
+                        "(level, status, objective, bound, gap as a fraction, seconds, "
+                        "students_moved_vs_today, students_moved_vs_option) and send every "
+                        "other message to standard error; students_moved_vs_option is "
+                        "always null, as this command starts from today's zones, not from "
+                        "a saved option")
     _add_solve_options(p)
     p.set_defaults(func=cmd_solve)
 

@@ -7,10 +7,10 @@ possible at all. Added to a model built by :func:`districting.engine.pyomo_route
 
 from __future__ import annotations
 
-from collections import deque
-
 import numpy as np
 import pyomo.environ as pyo
+
+from .flow_route import tree_flows
 
 __all__ = ["contiguity_flow", "set_start_flow"]
 
@@ -102,34 +102,14 @@ def set_start_flow(m: pyo.ConcreteModel, a: np.ndarray) -> None:
         var.set_value(0)
     for var in list(m.source.values()) + list(m.supply.values()):
         var.set_value(0)
-    adj: dict[int, list[int]] = {}
-    for u, v in prob.edges.tolist():
-        adj.setdefault(u, []).append(v)
-        adj.setdefault(v, []).append(u)
     roots_arr = prob.roots if prob.roots is not None else np.full(prob.n_sites, -1)
-    for j in m.J:
-        zone = np.flatnonzero(a == j).tolist()
-        if not zone:
-            continue
-        r = int(roots_arr[j]) if roots_arr[j] >= 0 else zone[0]
-        if a[r] != j:
-            continue
-        parent, order, seen = {r: -1}, [], {r}
-        queue = deque([r])
-        while queue:
-            u = queue.popleft()
-            order.append(u)
-            for v in adj.get(u, ()):
-                if v not in seen and a[v] == j:
-                    seen.add(v)
-                    parent[v] = u
-                    queue.append(v)
-        if len(order) != len(zone):
-            continue  # the start zone is not connected: leave the solver to find flows
-        size = dict.fromkeys(order, 1)
-        for u in reversed(order[1:]):
-            size[parent[u]] += size[u]
-            m.f[parent[u], u, j].set_value(size[u])
-        if roots_arr[j] < 0:
-            m.source[r, j].set_value(1)
-            m.supply[r, j].set_value(len(zone))
+    a = np.asarray(a, np.int64)
+    firsts = {j: int(np.flatnonzero(a == j)[0]) for j in m.J if (a == j).any()}
+    roots = np.array([roots_arr[j] if roots_arr[j] >= 0 else firsts.get(j, 0)
+                      for j in range(prob.n_sites)])
+    for u, v, j, amount in tree_flows(prob, a, list(firsts), roots):
+        m.f[u, v, j].set_value(amount)
+    for j in firsts:
+        if roots_arr[j] < 0:  # the source chosen: the zone's first unit
+            m.source[int(roots[j]), j].set_value(1)
+            m.supply[int(roots[j]), j].set_value(int((a == j).sum()))

@@ -129,6 +129,7 @@ class SolveState:
     big: bool = False
     lns_done: bool = True
     fix_done: bool = True
+    flow_done: bool = False
     parents: np.ndarray | None = None
     status: str = "feasible"
     message: str = ""

@@ -16,7 +16,10 @@ Stages of :meth:`Session.solve`, passing a :class:`~districting.engine.run.Solve
 4. ``_exact_rounds`` -- the MIP with the cuts so far, warm-started from the best valid plan;
    each answer is repaired into a plan (an upper bound; the MIP bound is a lower bound as
    every cut is valid) and its violated separator cuts are added (Validi, Buchanan &
-   Lykhovyd, Operations Research 70(2), 2022), until the gap is within the request.
+   Lykhovyd, Operations Research 70(2), 2022), until the gap is within the request. When a
+   plan stays far above the bound on a problem with few sites (before the first round or
+   after a repair), the exact flow formulation (:mod:`~districting.engine.flow_stage`) is
+   raced once from the best plan.
 
 Columns are removed only with a proof: a pair whose students exceed the site's upper
 capacity in some year is never a column, and after a valid plan of cost UB is known,
@@ -35,6 +38,7 @@ from ..problem import Problem, _same_array
 from .connectivity import Cut, UnitGraph, fragments, free_units, plan_checks
 from .cuts import separator_cuts
 from .findings import no_plan_text
+from .flow_stage import flow_applies, flow_stage
 from .heuristics import constructive, fix_and_resolve, prepare_start, rounded
 from .highs_route import HighsRoute
 from .improve import relocate
@@ -159,6 +163,7 @@ class Session:
             return self._finish(st)
         self._lp_bound(st)
         self._first_heuristics(st)
+        self._race_flow(st)
         return self._finish(self._exact_rounds(st, max_rounds))
 
     # ------------------------------------------------------------------ stages
@@ -341,7 +346,16 @@ class Session:
         if not st.lns_done and run.best is not None and st.far():
             st.lns_done = True
             self._neighbourhoods(st)
+        self._race_flow(st)
         return n_frag, added
+
+    def _race_flow(self, st: SolveState) -> None:
+        """The exact flow formulation, once, when the best plan is far above the bound on a
+        problem with few sites (:mod:`~districting.engine.flow_stage`)."""
+        if (not st.flow_done and self.heuristics and self.solver == "highs"
+                and st.run.best is not None and st.far() and flow_applies(st)):
+            st.flow_done = True
+            flow_stage(st)
 
     def _rebuild_full(self, st: SolveState) -> int:
         """Empty units must join the MIP: only cuts through them are left. Returns -1."""

@@ -73,3 +73,14 @@ POLISH_ROUNDS = 40
 POLISH_GAP = 1e-4
 #: The polish stops when fewer seconds than this are left.
 POLISH_RESERVE = 0.5
+
+# ---- the exact flow formulation (districting.engine.flow_stage)
+#: Sites, at most, for the flow stage. Measured on the demo town (benchmarks/bench_proof.py,
+#: straight-line travel): two schools (high, fewer moves) the flow model proves the optimum
+#: in about 25 s where the cut loop stays 11% above it; four (middle) it found no better
+#: plan in 60 s, with a weaker bound than the cut loop's after 10 s.
+FLOW_MAX_SITES = 2
+#: Flow arcs, at most (the demo's high level: 17,168 arcs for 1,557 units, 2 schools).
+FLOW_MAX_ARCS = 60_000
+#: Share of the time left given to it; the exact rounds get the rest.
+FLOW_SHARE = 0.8

@@ -1,0 +1,116 @@
+"""Is the gap the plan or the bound? The engine held against independent references.
+
+For each travel measure given (straight line and along streets by default), each demo level
+and both demo options (shortest travel; fewer moves, stability weight 3000), prints:
+
+- engine plan, engine bound, engine gap: ``districting.engine.solve`` within the limit;
+- flow optimum: the exact single-commodity flow formulation written in the tests alone
+  (``tests/flow_milp.py``, scipy.optimize.milp, no engine code: the independent one), run
+  where the level has at most ``--flow-sites`` schools, within ``--flow-time``;
+  "not within" when it did not prove an optimum in time;
+- free optimum: the same problem without contiguity solved to optimality, a valid lower
+  bound on every contiguous plan (relaxing a rule never raises the optimum);
+- plan above ref: engine plan over the best reference lower bound (the flow optimum when
+  known, else the free optimum): how much of the gap is the plan;
+- bound below ref: how far the engine's bound lies below the flow optimum (when known).
+
+``--old`` runs the engine without the flow stage too (``tuning.FLOW_MAX_SITES = 0``), so
+both routes stand side by side (only on levels where the stage applies). Speed is measured
+here, never asserted in tests.
+
+Usage: ``.venv/bin/python benchmarks/bench_proof.py [--time-limit 60] [--flow-time 60]
+[--travel straight-line streets] [--levels high middle elementary] [--old]``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parent.parent
+sys.path[:0] = [str(ROOT), str(ROOT / "tests")]
+
+from flow_milp import flow_optimum  # noqa: E402
+
+from districting.engine import solve, tuning  # noqa: E402
+from districting.intake import validate_project  # noqa: E402
+from districting.study import RunSettings, build_problem  # noqa: E402
+
+OPTIONS = (("shortest travel", 0.0), ("fewer moves", 3000.0))
+
+
+def _reference(problem, limit: float) -> tuple[float, float]:
+    """(flow optimum or nan, seconds)."""
+    started = time.perf_counter()
+    try:
+        value, _ = flow_optimum(problem, time_limit=limit)
+    except AssertionError:  # no optimum proven within the limit
+        value = float("nan")
+    return (float("nan") if value is None else value), time.perf_counter() - started
+
+
+def _engine(problem, limit: float, flow: bool):
+    keep = tuning.FLOW_MAX_SITES
+    if not flow:
+        from districting.engine import flow_stage
+
+        flow_stage.FLOW_MAX_SITES = 0
+    try:
+        return solve(problem, gap=1e-4, time_limit=limit)
+    finally:
+        from districting.engine import flow_stage
+
+        flow_stage.FLOW_MAX_SITES = keep
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--time-limit", type=float, default=60.0, help="engine, s per case")
+    ap.add_argument("--flow-time", type=float, default=60.0, help="flow reference, s")
+    ap.add_argument("--flow-sites", type=int, default=4,
+                    help="run the flow reference up to this many schools")
+    ap.add_argument("--travel", nargs="+", default=["straight-line", "streets"])
+    ap.add_argument("--levels", nargs="+", default=["high", "middle", "elementary"])
+    ap.add_argument("--old", action="store_true", help="also the engine without flow stage")
+    ap.add_argument("--data", default=str(ROOT / "data" / "demo"))
+    args = ap.parse_args()
+    inputs, report = validate_project(args.data, cache=True)
+    if inputs is None:
+        raise SystemExit(report.format())
+    routes = [("new", True)] + ([("old", False)] if args.old else [])
+    print(f"{'travel':14} {'case':30} {'route':5} {'engine s':>8} {'status':>10} "
+          f"{'engine plan':>13} {'engine bound':>13} {'gap %':>8} {'flow opt':>13} "
+          f"{'flow s':>7} {'free opt':>13} {'plan above ref %':>16} {'bound below %':>13}",
+          flush=True)
+    for travel in args.travel:
+        for level in args.levels:
+            for label, weight in OPTIONS:
+                rs = RunSettings(level=level, travel=travel, stability_weight=weight)
+                problem, _ = build_problem(inputs, rs)
+                free = solve(problem.replace(edges=None), gap=1e-7, time_limit=args.flow_time)
+                ref, ref_s = float("nan"), float("nan")
+                if problem.n_sites <= args.flow_sites:
+                    ref, ref_s = _reference(problem, args.flow_time)
+                low = ref if np.isfinite(ref) else free.objective
+                for name, flow in routes:
+                    if not flow and problem.n_sites > tuning.FLOW_MAX_SITES:
+                        continue  # the flow stage does not apply: both routes are one
+                    plan = _engine(problem, args.time_limit, flow)
+                    seconds = plan.build_seconds + plan.solve_seconds
+                    above = 100 * (plan.objective / low - 1)
+                    below = 100 * (1 - plan.bound / ref) if np.isfinite(ref) else float("nan")
+                    flow_txt = f"{ref:13,.0f}" if np.isfinite(ref) else (
+                        f"{'not within':>13}" if problem.n_sites <= args.flow_sites
+                        else f"{'-':>13}")
+                    print(f"{travel:14} {level + ', ' + label:30} {name:5} {seconds:8.1f} "
+                          f"{plan.status:>10} {plan.objective:13,.0f} {plan.bound:13,.0f} "
+                          f"{100 * plan.gap:8.4f} {flow_txt} {ref_s:7.1f} "
+                          f"{free.objective:13,.0f} {above:16.4f} {below:13.4f}", flush=True)
+
+
+if __name__ == "__main__":
+    main()
