@@ -35,7 +35,7 @@ def test_check_demo_is_clean(project):
     code, out, _ = run_cli("check", str(project))
     assert code == 0
     assert "no problems found" in out
-    assert "1557 planning units" in out
+    assert "1,557 planning units" in out
 
 
 def test_check_names_the_problem_and_fails(tmp_path):
