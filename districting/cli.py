@@ -13,7 +13,6 @@ import argparse
 import functools
 import json
 import logging
-import math
 import sys
 import time
 from collections.abc import Sequence
@@ -42,53 +41,6 @@ def _load(path: str):
     except FileNotFoundError as err:
         print(f"{path}: {err}", file=sys.stderr)
         raise SystemExit(1) from None
-
-
-class Progress:
-    """One status line per round on a terminal; silent when output is not a terminal."""
-
-    def __init__(self, label: str, stream=None):
-        self.stream = stream or sys.stderr
-        self.live = self.stream.isatty()
-        self.label = label
-
-    def __call__(self, rnd) -> None:
-        from .outputs.wording import gap_words
-
-        if not self.live:
-            return
-        if rnd.objective == float("inf"):
-            where = "looking for a first plan"
-        elif rnd.gap == float("inf"):
-            where = "a plan found; how close to the best is not known yet"
-        else:
-            where = f"best plan so far within {gap_words(max(rnd.gap, 0.0))} of the best possible"
-        self.stream.write(f"\r{self.label}: {where}, {rnd.seconds:.0f} s   ")
-        self.stream.flush()
-
-    def done(self) -> None:
-        if self.live:
-            self.stream.write("\n")
-            self.stream.flush()
-
-
-def plan_summary(outcome) -> str:
-    """A few lines on a plan: status, travel, moves, schools out of band."""
-    from .outputs.wording import plan_lines, solver_details
-
-    plan = outcome.plan
-    if not plan.feasible:  # the lead line, then the causes (engine.findings.no_plan_text)
-        why = {"time_limit": " before the time limit: raise --time-limit",
-               "cancelled": ": the solve was stopped"}.get(plan.status, "")
-        lead, *causes = (plan.message or f"No {outcome.level} plan was found{why}.").splitlines()
-        return "\n".join([f"  {lead}", *(f"    {line}" for line in causes)])
-    lines = [f"  {line}" if k == 0 else f"    {line}"
-             for k, line in enumerate(plan_lines(outcome))]
-    lines.append(f"    {outcome.travel_line}")
-    if plan.message:
-        lines.append("    " + plan.message.replace("\n", "\n    "))
-    _log.info("%s %s: %s", outcome.level, outcome.name or "(unsaved)", solver_details(plan))
-    return "\n".join(lines)
 
 
 # ----------------------------------------------------------------------------- commands
@@ -191,6 +143,7 @@ def check_flags(args) -> None:
 
 def cmd_solve(args) -> int:
     from .names import check_name
+    from .outputs.console import Progress, plan_summary, solve_record
     from .outputs.exports import export_all
     from .outputs.store import save_option, tidy_store
     from .study import run
@@ -221,26 +174,6 @@ def cmd_solve(args) -> int:
         files = export_all(outcome.renamed(name), folder)
         say(f"    wrote {len(files)} files to {folder}")
     return status
-
-
-def _finite(value: float) -> float | None:
-    """A number for JSON: None for an infinite or missing one (strict JSON has no inf)."""
-    return float(value) if value is not None and math.isfinite(value) else None
-
-
-def solve_record(outcome) -> dict:
-    """One level's result for scripts (`solve --json`): the engine's status code, the
-    objective and the proven bound (cost units), the gap as a fraction, seconds, and
-    students moved against today's zones. ``students_moved_vs_option`` is None: the
-    command always starts from today's zones, never from a saved option."""
-    plan = outcome.plan
-    moved = plan.metrics.students_moved if plan.feasible and plan.metrics else None
-    return {"level": outcome.level, "status": plan.status,
-            "objective": _finite(plan.objective), "bound": _finite(plan.bound),
-            "gap": _finite(plan.gap),
-            "seconds": round(plan.build_seconds + plan.solve_seconds, 3),
-            "students_moved_vs_today": _finite(moved),
-            "students_moved_vs_option": None}
 
 
 def cmd_options(args) -> int:
@@ -304,6 +237,7 @@ def cmd_packet(args) -> int:
 
 
 def cmd_demo(args) -> int:
+    from .outputs.console import Progress, plan_summary
     """Solve the demo town for every level, save two options, export, write the packets."""
     from .demo import copy_demo
     from .intake import check_summary, load_project

@@ -14,8 +14,9 @@ import pandas as pd
 import pytest
 
 from districting import DRAFT_NOTICE
-from districting.cli import Progress, main
+from districting.cli import main
 from districting.demo import copy_demo
+from districting.outputs.console import Progress
 from districting.plan import Round
 
 
