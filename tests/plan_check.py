@@ -36,8 +36,16 @@ def assert_plan_valid(problem, plan) -> None:
     a = np.asarray(plan.assignment)
     used = np.zeros(problem.n_sites, bool)
     used[a] = True
-    np.testing.assert_array_equal(plan.open_sites, used | facts.must_open,
-                                  err_msg="the plan's open schools are not those it uses")
+    needed = used | facts.must_open
+    opened = np.asarray(plan.open_sites, bool)
+    assert not (needed & ~opened).any(), "a school the plan uses is not open"
+    extra = opened & ~needed
+    if extra.any():  # the p-median model may open a site empty to meet the count (p)
+        assert facts.open_count is not None and int(opened.sum()) == facts.open_count, (
+            "the plan opens schools it does not use, beyond the count")
+        assert not np.asarray(facts.closed)[extra].any(), "an empty open school is closed"
+        if facts.roots is not None:
+            assert (np.asarray(facts.roots)[extra] < 0).all(), "an empty open school has a root"
     if np.isfinite(plan.objective):
         want = plain_cost(problem, a)
         assert abs(plan.objective - want) <= 1e-6 * max(1.0, abs(want)), (
