@@ -43,7 +43,7 @@ def frame(fig: Figure, title: str, subtitle: str, footer: str, page: int,
            full_notice: bool) -> float:
     """Title, notice and footer; returns the top of the free area (figure fraction)."""
     title_fit(fig.text(0.03, 0.962, title, fontsize=15, weight="bold", va="top"))
-    lines = textwrap.wrap(subtitle, 170)
+    lines = textwrap.wrap(subtitle, 150)  # 9.5 pt over the page width
     fig.text(0.03, 0.918, "\n".join(lines[:2]), fontsize=9.5 if len(lines) < 2 else 8.6,
              va="top", color="#333333")
     if full_notice:
