@@ -65,6 +65,7 @@ class HighsRoute:
         self.upper = upper.copy()  # permanent bounds (reduced-cost fixing lowers them)
         self._temp: np.ndarray | None = None  # columns a heuristic turned off for a while
         self._lp: tuple[float, np.ndarray, np.ndarray] | None = None
+        self._lp_tried = False
         self._cut_lp: tuple[float, np.ndarray, np.ndarray] | None = None  # after strengthen
         self._tree: np.ndarray | None = None  # rows of the heuristic's site trees
         self._tree_off = np.zeros(0, np.int64)
@@ -169,16 +170,20 @@ class HighsRoute:
         msg = "" if status != "error" else f"HiGHS stopped: {h.modelStatusToString(st)}"
         return Answer(status, a, obj, bound if np.isfinite(bound) else -np.inf, msg)
 
-    def relaxation(self) -> tuple[float, np.ndarray, np.ndarray] | None:
+    def relaxation(self, time_limit: float | None = None) -> tuple[float, np.ndarray,
+                                                                   np.ndarray] | None:
         """The LP relaxation of the model as built (no integrality): (z_LP, x, rc).
 
         Solved once and kept: rows added later (cuts) only cut the LP's feasible set, so
-        z_LP stays a lower bound and the reduced-cost test below stays valid.
+        z_LP stays a lower bound and the reduced-cost test below stays valid. The first
+        call may set a ``time_limit``; an LP that does not finish in it is not tried again
+        (the stages that need it are skipped, the integer rounds do not need it).
         """
-        if self._lp is not None or self.infeasible_reason:
+        if self._lp is not None or self._lp_tried or self.infeasible_reason:
             return self._lp
+        self._lp_tried = True
         with self._continuous():
-            self._lp = self._run_lp(np.inf)
+            self._lp = self._run_lp(np.inf if time_limit is None else max(time_limit, 0.1))
         return self._lp
 
     @contextmanager

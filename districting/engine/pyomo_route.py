@@ -386,7 +386,7 @@ class PyomoRoute:
         msg = getattr(r, "message", "") or ("" if status != "error" else f"{self.name}: error")
         return Answer(status, a, obj, bound, msg)
 
-    def relaxation(self) -> None:
+    def relaxation(self, time_limit: float | None = None) -> None:
         """No LP pass on this route: its bound comes from the solver's own answers."""
         return None
 

@@ -39,6 +39,7 @@ from .connectivity import Cut, UnitGraph, fragments, free_units, plan_checks
 from .cuts import separator_cuts
 from .findings import no_plan_text
 from .flow_stage import flow_applies, flow_stage
+from .greedy import median_start
 from .heuristics import constructive, fix_and_resolve, prepare_start, rounded
 from .highs_route import HighsRoute
 from .improve import relocate
@@ -53,9 +54,12 @@ from .tuning import (
     LNS_MIN_SITES,
     LNS_SHARE,
     LNS_SHARE_BIG,
+    LP_SHARE,
     PROBE_LIMIT,
     ROOT_MAX,
     ROOT_SHARE,
+    START_MAX,
+    START_SHARE,
 )
 
 __all__ = ["Session", "exact_subsolve"]
@@ -70,6 +74,22 @@ def _make_backend(problem: Problem, solver: str, drop: np.ndarray | None = None)
     from .pyomo_route import PyomoRoute
 
     return PyomoRoute(problem, solver)
+
+
+def _lp_loads(problem: Problem, backend) -> np.ndarray | None:
+    """(m,) students per site in the LP relaxation (plan year), or None without an LP."""
+    lp = backend.relaxation()
+    if lp is None:
+        return None
+    xv = lp[1]
+    return np.bincount(backend.xj, weights=xv * problem.demand[0, backend.xi],
+                       minlength=problem.n_sites)
+
+
+def _start_seconds(run) -> float:
+    """Seconds for the start's local search: a tenth of the time left, at most START_MAX."""
+    left = run.left()
+    return START_MAX if left is None else max(0.0, min(START_MAX, START_SHARE * left))
 
 
 def _columns(backend) -> int:
@@ -187,6 +207,9 @@ class Session:
         cand = prepare_start(problem, graph, start)
         if cand is not None:
             run.consider(cand)
+        if run.best is None and graph is None and self.heuristics:
+            # zones without contiguity: a first plan before any model is built
+            run.consider(median_start(problem, None, _start_seconds(run)))
         if run.best is None and graph is not None:
             # insurance for the time limit: today's zones (or nearest schools) made valid
             # by local search, when that succeeds; the heuristics below still run
@@ -211,7 +234,8 @@ class Session:
         """Stage 2: the LP bound, the LP's own plan made valid, root cutting planes, and
         reduced-cost fixing against the best plan."""
         backend, run, graph = st.backend, st.run, st.graph
-        lp = backend.relaxation()
+        left = run.left()
+        lp = backend.relaxation(None if left is None else LP_SHARE * left)
         if lp is not None and graph is not None and self.heuristics:
             # the LP's own choice per unit, made valid: often far better than today's zones
             run.consider(make_valid(st.problem, graph, rounded(st.problem, backend)))
@@ -222,6 +246,11 @@ class Session:
             self.cuts.extend(backend.strengthen(graph, st.passable if st.relaxed else None,
                                                 time.monotonic() + budget, run.best_obj))
             lp = backend.strongest()
+        if graph is None and self.heuristics:
+            # zones without contiguity: an incumbent at once (HiGHS alone can run a minute
+            # without one on tight capacitated instances)
+            run.consider(median_start(st.problem, _lp_loads(st.problem, backend),
+                                      _start_seconds(run)))
         if lp is not None:
             run.bound = max(run.bound, lp[0])
             if run.best is not None:
@@ -242,7 +271,7 @@ class Session:
             self._neighbourhoods(st)
             backend.fix_by_reduced_cost(run.best_obj)
         st.fix_done = not self.heuristics or (
-            run.best is not None and _columns(backend) > PROBE_LIMIT)
+            run.best is not None and _columns(backend) > PROBE_LIMIT and st.graph is not None)
         if not st.fix_done and not st.given and backend.relaxation() is not None:
             st.fix_done = True
             fix_and_resolve(st)

@@ -19,6 +19,12 @@ LINK_LIMIT = 300_000
 #: restricted MIPs can stall HiGHS there).
 PROBE_LIMIT = 60_000
 
+#: Share of the time left, at most, for the first LP relaxation (its bound, the LP's own
+#: plan, reduced costs). On Lorena & Senne's SJC4a (402 x 402 pairs) it took over 100 s
+#: (HiGHS's presolve checks the clock rarely there: the limit is a request, not a promise);
+#: the integer rounds solve their own root LP and need none of it.
+LP_SHARE = 0.5
+
 # ---- root cutting planes (highs_route.HighsRoute.strengthen)
 #: Share of the time left, at most, for root cutting planes on the LP.
 ROOT_SHARE = 0.15
@@ -73,6 +79,11 @@ POLISH_ROUNDS = 40
 POLISH_GAP = 1e-4
 #: The polish stops when fewer seconds than this are left.
 POLISH_RESERVE = 0.5
+
+# ---- the first plan without contiguity (districting.engine.greedy)
+#: Seconds, at most, and share of the time left for its moves and swaps.
+START_MAX = 2.0
+START_SHARE = 0.1
 
 # ---- the exact flow formulation (districting.engine.flow_stage)
 #: Sites, at most, for the flow stage. Measured on the demo town (benchmarks/bench_proof.py,

@@ -152,10 +152,11 @@ def test_lorena_senne_sjc1_optimum():
 
 
 # ---------------------------------------------------------------------- slow group
-# The larger published instances, each with a time limit. A proof must give the published
-# optimum; a plan stopped by the limit must have a bound at or below the optimum and a cost
-# at or above it (and, like every plan in the tests, pass the independent checker).
-SLOW_LIMIT = 90.0  # seconds per instance
+# A sample of the larger published instances, each with a time limit (the whole set, with 90 s
+# each, is `benchmarks/bench_published.py`: a measurement, not a test). A proof must give the
+# published optimum; a plan stopped by the limit must have a bound at or below the optimum and
+# a cost at or above it (and, like every plan in the tests, pass the independent checker).
+SLOW_LIMIT = 30.0  # seconds per instance
 
 
 def against_published(plan, cost: float, optimum: float, tol: float) -> None:
@@ -171,20 +172,18 @@ def against_published(plan, cost: float, optimum: float, tol: float) -> None:
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("k", range(11, 21))
+@pytest.mark.parametrize("k", [11, 20])
 def test_osman_christofides_11_to_20(k):
-    # Osman & Christofides (1994) instances 11-20 (n=100, p=10): published optima
+    # Osman & Christofides (1994) instances 11 and 20 (n=100, p=10): published optima
     dist, dem, p, q, opt = osman_instance(k)
     n = len(dem)
     plan = solve(capacitated(dist, dem, p, q), gap=1e-6, time_limit=SLOW_LIMIT)
     against_published(plan, float(dist[np.arange(n), plan.assignment].sum()), opt, 1e-6)
 
 
-@pytest.mark.slow
-@pytest.mark.parametrize("name", ["SJC2", "SJC3a", "SJC3b", "SJC4a", "SJC4b"])
-def test_lorena_senne_sjc_larger(name):
-    # Lorena & Senne (2004) SJC2-SJC4b (n=200-402): the published optimum is the "fo" of the
-    # published optimal assignment, which re-costs to it here
+def sjc_instance(name: str):
+    """Lorena & Senne (2004) instance ``name`` and its published optimum: the "fo" of the
+    published optimal assignment, which must re-cost to it and fit the capacity."""
     dist, dem, p, cap = read_sjc(DATA / "lorena_senne_sjc" / f"{name}.dat")
     lit = next((DATA / "lorena_senne_sjc" / "solutions_lit").glob(f"solOPT.{name}_*.json"))
     opt = float(json.loads(lit.read_text())["fo"])
@@ -192,16 +191,38 @@ def test_lorena_senne_sjc_larger(name):
     n = len(dem)
     assert dist[np.arange(n), pub].sum() == pytest.approx(opt, abs=0.01)
     assert np.bincount(pub, weights=dem, minlength=n).max() <= cap.max()
+    return dist, dem, p, cap, opt
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("name", ["SJC2", "SJC4a"])
+def test_lorena_senne_sjc_larger(name):
+    # Lorena & Senne (2004) SJC2 (n=200) and SJC4a (n=402, the hardest: HiGHS alone found no
+    # plan within 90 s on a CI machine)
+    dist, dem, p, cap, opt = sjc_instance(name)
+    n = len(dem)
     plan = solve(capacitated(dist, dem, p, cap), gap=1e-7, time_limit=SLOW_LIMIT)
     against_published(plan, float(dist[np.arange(n), plan.assignment].sum()), opt, 0.01)
 
 
+def test_a_first_plan_within_seconds_on_a_tight_capacitated_instance():
+    # Lorena & Senne (2004) SJC4a: 402 points, 30 medians, every point a candidate. Within a
+    # 6 s limit the engine must return a valid plan (the independent checker sees it) at or
+    # above the published optimum, and not far above: the greedy-add medians, regret
+    # assignment and moves measured 5.9% above it (benchmarks/bench_published.py).
+    dist, dem, p, cap, opt = sjc_instance("SJC4a")
+    n = len(dem)
+    plan = solve(capacitated(dist, dem, p, cap), gap=1e-7, time_limit=6.0)
+    assert plan.feasible, plan.message
+    cost = float(dist[np.arange(n), plan.assignment].sum())
+    assert opt - 0.01 <= cost <= 1.10 * opt
+    assert np.bincount(plan.assignment, weights=dem, minlength=n).max() <= cap.max() + 1e-9
+
+
 @pytest.mark.slow
-@pytest.mark.parametrize("k", [11, 16, 21])
-def test_orlib_pmed_sample_300_to_500(k):
-    # Beasley (1985), OR-Library pmed11/16/21 (n=300/400/500, p=5): pmedopt.txt. (pmed26,
-    # n=600, is left out: on 2 cores the engine found no plan at all within 90 s.)
-    cost, p = read_pmed(DATA / "orlib_pmed" / f"pmed{k}.txt")
+def test_orlib_pmed_sample_300():
+    # Beasley (1985), OR-Library pmed11 (n=300, p=5): pmedopt.txt
+    cost, p = read_pmed(DATA / "orlib_pmed" / "pmed11.txt")
     plan = solve(Problem.from_arrays(cost, np.ones(len(cost)), p=p), gap=1e-6,
                  time_limit=SLOW_LIMIT)
-    against_published(plan, plan.objective, float(pmed_optimum(f"pmed{k}")), 0.5)
+    against_published(plan, plan.objective, float(pmed_optimum("pmed11")), 0.5)
