@@ -96,6 +96,10 @@ RULES = {
     "undecided": lambda fs: "the reason could not be found in the time given",
     "solve": lambda fs: "the solve stopped short of a plan, though one exists",
     "together": lambda fs: "some rules cannot hold together",
+    "feeder": lambda fs: (f"{_counted(len(fs), 'lower zone')} cannot go whole to one "
+                          "school"),
+    "nested": lambda fs: (f"{_counted(_units(fs), 'unit')} cannot stay inside "
+                          f"{'its' if _units(fs) == 1 else 'their'} upper zone"),
 }
 
 

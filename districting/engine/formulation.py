@@ -32,7 +32,8 @@ from ..problem import Problem
 from .connectivity import Cut
 from .tuning import LINK_LIMIT, TOL
 
-__all__ = ["RowBlock", "Formulation", "formulate", "separator_rows", "ELASTIC_FAMILIES"]
+__all__ = ["RowBlock", "Formulation", "formulate", "separator_rows", "feeder_rows",
+           "ELASTIC_FAMILIES"]
 
 #: Families that can be built with a slack (``elastic=``).
 ELASTIC_FAMILIES = ("capacity", "floor", "locks", "max_moved")
@@ -331,6 +332,38 @@ def lock_rows(f: Formulation) -> RowBlock:
                   li[ok].tolist())
 
 
+def feeder_rows(f: Formulation) -> RowBlock:
+    """Whole feeding (feeder rule "whole", ``g`` the lower zone of each unit):
+    x[i, j] - x[r_g, j] = 0 for every unit i of lower zone g other than its first unit r_g
+    in the model, and every site j that either pair may use (a pair without a column is 0
+    in every plan): all units of one lower zone go to the same site.
+
+    The "nested" rule needs no row: it removes the pairs that leave the upper zone of the
+    site's root (:attr:`Problem.allowed`).
+    """
+    p = f.problem
+    g = p.feeder_groups
+    if p.feeder_rule != "whole" or g is None:
+        return _block("feeder", [])
+    units = np.flatnonzero((g >= 0) & ~f.drop)
+    order = np.argsort(g[units], kind="stable")
+    units = units[order]
+    gu = g[units]
+    first = np.r_[True, gu[1:] != gu[:-1]] if len(gu) else np.zeros(0, bool)
+    reps = units[first][np.cumsum(first) - 1]
+    others, reps = units[~first], reps[~first]
+    ci, cr = f.colmap[others], f.colmap[reps]
+    k, j = np.nonzero((ci >= 0) | (cr >= 0))
+    a, b = ci[k, j], cr[k, j]
+    rows = np.arange(len(k))
+    row = np.concatenate([rows[a >= 0], rows[b >= 0]])
+    col = np.concatenate([a[a >= 0], b[b >= 0]])
+    coef = np.concatenate([np.ones(int((a >= 0).sum())), -np.ones(int((b >= 0).sum()))])
+    zero = np.zeros(len(k))
+    return RowBlock("feeder", row, col, coef, zero, zero.copy(),
+                    tuple(zip(others[k].tolist(), j.tolist(), strict=True)))
+
+
 def separator_rows(f: Formulation, cuts: Sequence[Cut]) -> RowBlock:
     """x[i, j] (+ x[a, j] - 1) - sum_{s in S} x[s, j] <= 0 for each unit i of each cut.
 
@@ -365,5 +398,5 @@ def formulate(problem: Problem, drop: np.ndarray | None = None,
     f = columns(problem, drop, elastic)
     f.blocks = [assignment_rows(f), linking_rows(f), count_row(f), root_rows(f),
                 band_rows(f, upper_side=True), band_rows(f, upper_side=False), cover_rows(f),
-                max_moved_row(f), lock_rows(f)]
+                max_moved_row(f), lock_rows(f), feeder_rows(f)]
     return f

@@ -35,6 +35,12 @@ def rooted_problem() -> Problem:
                                stability_weight=0.5, max_moved=12.0)
 
 
+def whole_feeding_problem() -> Problem:
+    """The rooted case with whole feeding from three lower zones (rows x[i, j] = x[r_g, j])."""
+    groups = np.array([0, 0, 1, 1, 0, 2, 2, 1, 0, 2, 2, 1])
+    return rooted_problem().replace(feeder_groups=groups, feeder_rule="whole")
+
+
 def highs_rows(route: HighsRoute):
     """(dense A, row lower, row upper, cost, col lower, col upper) as highspy holds them."""
     lp = route.h.getLp()
@@ -79,7 +85,7 @@ def pyomo_rows(model, route: HighsRoute):
     return np.array(rows), np.array(lo), np.array(hi), cost, lb, ub
 
 
-@pytest.mark.parametrize("make", [rich_problem, rooted_problem])
+@pytest.mark.parametrize("make", [rich_problem, rooted_problem, whole_feeding_problem])
 def test_highs_and_pyomo_routes_hold_the_same_matrix(make):
     problem = make()
     route = HighsRoute(problem)
@@ -97,6 +103,15 @@ def test_every_family_is_written_on_the_rooted_case():
     fams = {b.family for b in f.blocks if b.n_rows}
     assert fams == {"assignment", "linking", "count", "roots", "capacity", "floor", "cover",
                     "max_moved"}
+
+
+def test_whole_feeding_rows_tie_each_unit_to_its_zone_representative():
+    f = formulate(whole_feeding_problem())
+    block = next(b for b in f.blocks if b.family == "feeder")
+    # 12 units in 3 zones: 9 units besides the representatives, each with a row per site
+    # either pair may use (all 3 here)
+    assert block.n_rows == 27
+    assert (block.lo == 0).all() and (block.hi == 0).all()
 
 
 def test_separator_rows_are_the_same_in_both_routes():

@@ -1,0 +1,123 @@
+"""The feeder rule on a plan: which lower zones are split, which zones leave their upper zone.
+
+Two forms, against the neighbouring level's zones held fixed (``Problem.feeder_groups``):
+
+- ``whole`` (solving the upper level): every unit of one lower zone goes to the same site;
+  a lower zone whose units go to two or more sites is a split feeder.
+- ``nested`` (solving the lower level): each zone lies inside one upper zone, the one its
+  site's root unit lies in; the rule removes every other pair (``Problem.allowed``).
+
+Units without a neighbouring zone (group -1) are free. Pure numpy; the model's rows are in
+:func:`districting.engine.formulation.feeder_rows`.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..problem import Problem
+from .findings import Finding, plural, students
+
+__all__ = ["split_groups", "stray_sites", "feeder_breaks", "whole_findings", "nested_findings"]
+
+
+def split_groups(groups: np.ndarray, assignment: np.ndarray) -> np.ndarray:
+    """Groups (>= 0) whose units take two or more different sites in ``assignment``."""
+    g = np.asarray(groups, np.int64)
+    a = np.asarray(assignment, np.int64)
+    keep = g >= 0
+    pairs = np.unique(np.column_stack([g[keep], a[keep]]), axis=0)
+    ids, counts = np.unique(pairs[:, 0], return_counts=True)
+    return ids[counts > 1]
+
+
+def stray_sites(problem: Problem, assignment: np.ndarray) -> np.ndarray:
+    """Sites (with a root) whose zone holds a unit of another group than the root's."""
+    g, r = problem.feeder_groups, problem.roots
+    if g is None or r is None:
+        return np.zeros(0, np.int64)
+    a = np.asarray(assignment, np.int64)
+    root_g = np.where(r >= 0, g[np.maximum(r, 0)], -1)
+    ok = (a >= 0) & (a < problem.n_sites)
+    off = ok & (g >= 0) & (root_g[np.where(ok, a, 0)] >= 0) & (g != root_g[np.where(ok, a, 0)])
+    return np.unique(a[off])
+
+
+def feeder_breaks(problem: Problem, assignment: np.ndarray) -> str:
+    """What ``assignment`` breaks of the problem's feeder rule, in short words ("" if none)."""
+    if problem.feeder_groups is None:
+        return ""
+    if problem.feeder_rule == "whole":
+        bad = split_groups(problem.feeder_groups, assignment)
+        return f"{len(bad)} lower zones split between schools" if len(bad) else ""
+    if problem.feeder_rule == "nested":
+        bad = stray_sites(problem, assignment)
+        return f"{len(bad)} zones reach outside their upper zone" if len(bad) else ""
+    return ""
+
+
+# ---------------------------------------------------------------------- why no plan
+def _group_name(problem: Problem, g: int) -> str:
+    names = problem.feeder_names
+    return str(names[g]) if 0 <= g < len(names) else f"lower zone {g}"
+
+
+def whole_findings(problem: Problem, reach: np.ndarray) -> list[Finding]:
+    """Lower zones that cannot go whole to one school: no school every unit of the zone may
+    join (``reach``: the pairs a zone may hold), or more students in some year than the
+    largest such school's upper limit (by how many)."""
+    g = problem.feeder_groups
+    if problem.feeder_rule != "whole" or g is None:
+        return []
+    level = problem.level or "upper-level"
+    seats = (np.full(problem.n_sites, np.inf) if problem.capacity is None
+             else problem.max_util * problem.capacity)
+    out = []
+    for k in np.unique(g[g >= 0]).tolist():
+        units = np.flatnonzero(g == k)
+        common = np.logical_and.reduce(reach[units], axis=0)
+        name = _group_name(problem, k)
+        if not common.any():
+            out.append(Finding(
+                "feeder", f"No {level} school may take every unit of the zone of {name} "
+                f"({len(units)} {plural(len(units), 'unit')}): forbids, locks, the maximum "
+                "distance or the zones' connection keep them apart.",
+                "lift the forbid, lock or distance limit that splits it, or solve this "
+                "level without whole feeding.", school=name))
+            continue
+        load = problem.demand[:, units].sum(axis=1)
+        room = float(seats[common].max())
+        t = int(np.argmax(load))
+        if load[t] > room + 1e-6:
+            best = problem.site_label(int(np.flatnonzero(common)[np.argmax(seats[common])]))
+            out.append(Finding(
+                "feeder", f"The zone of {name} has {students(load[t])} students in "
+                f"{problem.year_label(t)}, and the largest {level} school it may feed whole, "
+                f"{best}, takes at most {students(room, up=False)}: "
+                f"{students(load[t] - room)} too many.",
+                "raise that school's capacity or highest utilization, or solve this level "
+                "without whole feeding.", school=name, year=problem.year_label(t)))
+    return out
+
+
+def nested_findings(problem: Problem) -> list[Finding]:
+    """Units that the nested rule leaves without a school: their upper zone holds no open
+    or candidate school of this level."""
+    g = problem.feeder_groups
+    if problem.feeder_rule != "nested" or g is None:
+        return []
+    plain = problem.replace(feeder_rule="").allowed
+    lost = np.flatnonzero(~problem.allowed.any(axis=1) & plain.any(axis=1))
+    out = []
+    for k in np.unique(g[lost]).tolist():
+        units = lost[g[lost] == k]
+        name = _group_name(problem, k)
+        shown = ", ".join(problem.unit_label(int(i)) for i in units[:5])
+        more = f" and {len(units) - 5} more" if len(units) > 5 else ""
+        out.append(Finding(
+            "nested", f"{len(units)} {plural(len(units), 'unit')} ({shown}{more}) lie in the "
+            f"zone of {name}, where no {problem.level or 'lower-level'} school stands that "
+            "may take them, so they cannot stay inside it.",
+            f"open a school inside the zone of {name}, or solve this level without nesting.",
+            school=name, unit=problem.unit_label(int(units[0]))))
+    return out

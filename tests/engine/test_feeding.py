@@ -1,0 +1,94 @@
+"""Feeder rules in the engine, on a four-unit town worked by hand.
+
+The town: units U0 - U1 - U2 - U3 in a row (each touching the next), 10 students each,
+travel = the number of steps along the row (a unit costs 10 students x its steps). Two schools
+of the level being solved stand in U0 and U3, each with 30 seats.
+
+The neighbouring level's zones (held fixed): zone A = {U0, U1, U2}, zone B = {U3}.
+
+- Without a feeder rule the cheapest plan sends U0, U1 to the school in U0 (0 + 10) and U2,
+  U3 to the school in U3 (10 + 0): cost 20, and zone A is split between the two schools.
+- Whole feeding (zone A feeds one school): A cannot go to the school in U3 (40 students,
+  30 seats), so A goes to the school in U0 (0 + 10 + 20) and U3 stays (0): cost 30; the
+  rule moves one unit, U2.
+- Nesting (the schools solved are the lower level, A and B upper zones): the school in U3
+  stands in B, so its zone stays inside B; U2 (in A) goes to the school in U0: the same
+  plan, cost 30.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+import districting
+from districting import Problem
+from districting.engine.connectivity import plan_checks
+from districting.engine.precheck import precheck
+from districting.verify import check_plan, facts_of_problem
+
+ZONES = np.array([0, 0, 0, 1])  # A = {U0, U1, U2}, B = {U3}
+
+
+def town(rule: str = "", seats: float = 30.0, groups=ZONES) -> Problem:
+    steps = np.abs(np.arange(4)[:, None] - np.array([0, 3])[None, :]).astype(float)
+    return Problem.from_arrays(
+        steps, np.full(4, 10.0), capacity=[seats, seats], edges=[(0, 1), (1, 2), (2, 3)],
+        roots=[0, 3], unit_names=["U0", "U1", "U2", "U3"],
+        site_names=["West (S0)", "East (S1)"], level="middle",
+        feeder_groups=groups if rule else None, feeder_rule=rule,
+        feeder_names=["Ash Elementary (A)", "Birch Elementary (B)"])
+
+
+@pytest.mark.parametrize("solver", ["highs", "appsi_highs"])
+def test_whole_feeding_moves_the_split_unit(solver):
+    free = districting.solve(town(), solver=solver)
+    assert free.objective == pytest.approx(20.0)  # worked above
+    assert free.assignment.tolist() == [0, 0, 1, 1]  # zone A split
+    whole = districting.solve(town("whole"), solver=solver)
+    assert whole.status == "optimal"
+    assert whole.assignment.tolist() == [0, 0, 0, 1]
+    assert whole.objective == pytest.approx(30.0)
+
+
+@pytest.mark.parametrize("solver", ["highs", "appsi_highs"])
+def test_nesting_keeps_each_zone_inside_its_upper_zone(solver):
+    plan = districting.solve(town("nested"), solver=solver)
+    assert plan.assignment.tolist() == [0, 0, 0, 1]
+    assert plan.objective == pytest.approx(30.0)
+
+
+def test_engine_checks_refuse_a_split_feeder():
+    assert plan_checks(town("whole"), np.array([0, 0, 1, 1])) == [
+        "1 lower zones split between schools"]
+    assert plan_checks(town("whole"), np.array([0, 0, 0, 1])) == []
+    assert plan_checks(town("nested"), np.array([0, 0, 1, 1]))  # U2 may not join S1
+
+
+def test_independent_checker_names_the_split_zone_and_the_stray_zone():
+    split = check_plan(facts_of_problem(town("whole")), [0, 0, 1, 1])
+    assert [f.rule for f in split] == ["feeder"]
+    assert "Ash Elementary (A)" in split[0].message and "2 schools" in split[0].message
+    assert check_plan(facts_of_problem(town("whole")), [0, 0, 0, 1]) == []
+    # nesting: the zone of S1 (its own unit U3 in B) holds U2 of A
+    stray = [f for f in check_plan(facts_of_problem(town("nested")), [0, 0, 1, 1])
+             if f.rule == "nested"]
+    assert len(stray) == 1 and stray[0].site == 1 and stray[0].unit == 2
+
+
+def test_a_lower_zone_too_big_for_any_school_is_explained_with_the_amount():
+    # zone A holds 30 students; with 25 seats per school neither takes it whole: 5 too many
+    plan = districting.solve(town("whole", seats=25.0))
+    assert not plan.feasible
+    assert "Ash Elementary (A) has 30 students" in plan.message
+    assert "5 too many" in plan.message
+    assert "cannot go whole to one school" in plan.message.splitlines()[0]
+
+
+def test_a_unit_whose_upper_zone_holds_no_school_is_named():
+    # U1 alone in upper zone 2, where no school stands: nesting leaves it without a school
+    # (and so U2, in A, is cut off from the school in U0 behind it)
+    groups = np.array([0, 2, 0, 1])
+    findings = precheck(town("nested", groups=groups))
+    assert [f.rule for f in findings] == ["nested", "island"]
+    assert "U1" in findings[0].text and "U2" in findings[1].text
