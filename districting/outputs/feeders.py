@@ -22,8 +22,8 @@ from ..study import Outcome
 from .sheets import whole_numbers
 from .store import OptionError, option_zones
 
-__all__ = ["given_zones", "level_zones", "feeder_table", "split_feeders", "feeder_sheet",
-           "feeder_words"]
+__all__ = ["given_zones", "feeder_run", "level_zones", "feeder_table", "split_feeders",
+           "feeder_sheet", "feeder_words"]
 
 
 def given_zones(inputs: Inputs, level: str) -> tuple[dict[str, str], str]:
@@ -50,6 +50,42 @@ def given_zones(inputs: Inputs, level: str) -> tuple[dict[str, str], str]:
                          f" fix: name a saved {level} option, or remove it to use today's "
                          f"{level} zones")
     return zones, name
+
+
+def feeder_run(inputs: Inputs, level: str, feeding: str | None = None,
+               given: str | None = None) -> dict:
+    """The :class:`~districting.study.RunSettings` fields of a run's feeder rule.
+
+    ``feeding`` is "whole", "nested" or "none" (None: the project's ``[feeders]``);
+    ``given`` names a saved option of the neighbouring level whose zones stay fixed (None:
+    the one ``[feeders] zones`` names, else today's zones, which the study fills in).
+    """
+    for named in inputs.settings.feeders.zones:  # every named option refused up front
+        given_zones(inputs, named)
+    rule = inputs.settings.feeders.rule(level) if feeding is None else (
+        "" if feeding == "none" else feeding)
+    if not rule:
+        if given:
+            raise ValueError(f"--given {given!r} names the zones a feeder rule holds fixed, "
+                             f"and the {level} run has no feeder rule; fix: add --feeding "
+                             "whole or --feeding nested, or leave out --given")
+        return {"feeding": ""}
+    other = neighbour(inputs.settings.levels, level, rule)
+    if other is None:  # the study refuses it, naming the levels
+        return {"feeding": rule}
+    if not given:
+        zones, name = given_zones(inputs, other)
+        return {"feeding": rule, "given": zones, "given_name": name}
+    try:
+        saved_level, zones = option_zones(inputs.settings.store, given)
+    except OptionError as exc:
+        raise ValueError(f"--given {given!r}: {exc}; fix: name a saved {other} option "
+                         "(`districting options` lists them)") from None
+    if saved_level != other:
+        raise ValueError(f"--given {given!r} is a {saved_level} option, and {rule} feeding "
+                         f"of {level} holds the {other} zones fixed; fix: name a saved "
+                         f"{other} option")
+    return {"feeding": rule, "given": zones, "given_name": given}
 
 
 def level_zones(inputs: Inputs, level: str) -> tuple[np.ndarray, str]:
