@@ -104,3 +104,27 @@ def test_a_named_option_that_is_not_saved_names_the_key_and_the_fix(tmp_path):
     text = str(err.value)
     assert "project.toml: [feeders] zones, elementary = 'Plan Z'" in text
     assert "no option named 'Plan Z'" in text and "fix:" in text
+
+
+def test_whole_feeding_nests_the_zones_on_the_map(tmp_path):
+    """Solved for real: with Alder's zone U0-U3 today, the cheapest middle plan splits it
+    at U2 | U3 (each unit to its nearer school); whole feeding sends U3 with the rest of
+    Alder's zone, and each elementary zone's dissolved polygon lies inside one middle
+    zone's polygon (shapely's within, on the zones as the exports draw them)."""
+    from districting.outputs.zones import dissolve_zones
+    from districting.study import run
+
+    inputs = feeder_town(tmp_path)
+    inputs.current["elementary"][:] = [0, 0, 0, 0, 1, 1]
+    free = run(inputs, RunSettings(level="middle", feeding=""))
+    assert free.assignment.tolist() == [0, 0, 0, 1, 1, 1]
+    assert split_feeders(feeder_table(free)) == 1
+    whole = run(inputs, RunSettings(level="middle", feeding="whole"))
+    assert whole.plan.status == "optimal"
+    assert whole.assignment.tolist() == [0, 0, 0, 0, 1, 1]
+    assert split_feeders(feeder_table(whole)) == 0
+    ids = inputs.sites["site_id"].to_numpy()
+    lower = dissolve_zones(inputs.units, ids[inputs.current["elementary"]])
+    upper = dissolve_zones(inputs.units, whole.site_id_of(whole.assignment))
+    for poly in lower.geometry:
+        assert sum(poly.within(u.buffer(1e-6)) for u in upper.geometry) == 1
