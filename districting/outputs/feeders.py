@@ -71,8 +71,13 @@ def feeder_run(inputs: Inputs, level: str, feeding: str | None = None,
                              "whole or --feeding nested, or leave out --given")
         return {"feeding": ""}
     other = neighbour(inputs.settings.levels, level, rule)
-    if other is None:  # the study refuses it, naming the levels
-        return {"feeding": rule}
+    if other is None:
+        where = "below" if rule == "whole" else "above"
+        raise ValueError(f"--feeding {rule}: {level} has no level {where} it (levels: "
+                         f"{', '.join(inputs.settings.levels)}); fix: "
+                         + ("use --feeding nested to keep its zones inside those above"
+                            if rule == "whole" else
+                            "use --feeding whole to have the level below feed it whole"))
     if not given:
         zones, name = given_zones(inputs, other)
         return {"feeding": rule, "given": zones, "given_name": name}
