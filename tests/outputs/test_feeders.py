@@ -128,3 +128,20 @@ def test_whole_feeding_nests_the_zones_on_the_map(tmp_path):
     upper = dissolve_zones(inputs.units, whole.site_id_of(whole.assignment))
     for poly in lower.geometry:
         assert sum(poly.within(u.buffer(1e-6)) for u in upper.geometry) == 1
+
+
+def test_the_packet_prints_the_feeder_table_as_exported(tmp_path):
+    from matplotlib.text import Text
+
+    from districting.outputs.packet_feeders import feeder_pages
+
+    (fig,) = feeder_pages(middle_option(feeder_town(tmp_path)), "letter", "today", 7)
+    texts = [t.get_text() for t in fig.findobj(Text)]
+    assert "Alder Elementary (E1)" in texts and "Dunmore Middle (M2)" in texts
+    assert texts.count("50.0%") == 2 and texts.count("100.0%") == 1
+    assert texts.count("yes") == 2 and "page 7" in texts
+    assert any("1 of 2 elementary schools split" in " ".join(t.split()) for t in texts)
+    # a level whose neighbours have no zones gets no page
+    lone = feeder_town(tmp_path)
+    lone.current["elementary"][:] = -1
+    assert feeder_pages(middle_option(lone), "letter", "today", 7) == []
