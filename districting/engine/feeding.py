@@ -18,7 +18,8 @@ import numpy as np
 from ..problem import Problem
 from .findings import Finding, plural, students
 
-__all__ = ["split_groups", "stray_sites", "feeder_breaks", "whole_findings", "nested_findings"]
+__all__ = ["split_groups", "stray_sites", "feeder_breaks", "whole_findings", "nested_findings",
+           "nested_seat_findings"]
 
 
 def split_groups(groups: np.ndarray, assignment: np.ndarray) -> np.ndarray:
@@ -97,6 +98,36 @@ def whole_findings(problem: Problem, reach: np.ndarray) -> list[Finding]:
                 f"{students(load[t] - room)} too many.",
                 "raise that school's capacity or highest utilization, or solve this level "
                 "without whole feeding.", school=name, year=problem.year_label(t)))
+    return out
+
+
+def nested_seat_findings(problem: Problem) -> list[Finding]:
+    """Upper zones whose students outnumber, in some year, the seats of the schools that
+    may take them under nesting: the schools standing in that zone (every school that is
+    not closed, candidates included) and those standing in no upper zone."""
+    g, roots = problem.feeder_groups, problem.roots
+    if problem.feeder_rule != "nested" or g is None or roots is None or problem.capacity is None:
+        return []
+    seats = np.where(problem.closed_sites, 0.0, problem.max_util * problem.capacity)
+    root_g = np.where(roots >= 0, g[np.maximum(roots, 0)], -1)
+    free_seats = float(seats[root_g < 0].sum())
+    level = problem.level or "lower-level"
+    out = []
+    for k in np.unique(g[g >= 0]).tolist():
+        if not ((root_g == k) & ~problem.closed_sites).any():
+            continue  # no school inside it at all: nested_findings names its units
+        load = problem.demand[:, g == k].sum(axis=1)
+        room = float(seats[root_g == k].sum()) + free_seats
+        t = int(np.argmax(load - room))
+        if load[t] > room + 1e-6:
+            name = _group_name(problem, k)
+            out.append(Finding(
+                "nested", f"The zone of {name} holds {students(load[t])} {level} students in "
+                f"{problem.year_label(t)}, and the {level} schools inside it seat at most "
+                f"{students(room, up=False)}: {students(load[t] - room)} too many to stay "
+                "inside it.", f"raise the capacity of a {level} school inside the zone of "
+                f"{name}, or solve this level without nesting.", school=name,
+                year=problem.year_label(t)))
     return out
 
 

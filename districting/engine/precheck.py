@@ -15,7 +15,7 @@ import scipy.sparse as sp
 from scipy.sparse.csgraph import breadth_first_order
 
 from ..problem import Problem
-from .feeding import nested_findings, whole_findings
+from .feeding import nested_findings, nested_seat_findings, whole_findings
 from .findings import Finding, plural, students
 
 __all__ = ["precheck", "unbuildable", "reachable"]
@@ -78,7 +78,8 @@ def precheck(problem: Problem) -> list[Finding]:
     Besides :func:`unbuildable`: a year whose students exceed what the open schools can seat,
     a school that cannot reach its minimum utilization with every unit it may take, a locked
     unit that cannot be joined to its school's zone, a unit cut off from every school it may
-    attend, and two open schools standing in the same unit.
+    attend, two open schools standing in the same unit, and the feeder rules: a lower zone
+    that no school may take whole, an upper zone whose students its schools cannot seat.
     """
     reasons = unbuildable(problem)
     reasons += _year_capacity_issues(problem)
@@ -87,7 +88,7 @@ def precheck(problem: Problem) -> list[Finding]:
     reasons += _floor_issues(problem, reach)
     reasons += _lock_reach_issues(problem, reach)
     reasons += _island_issues(problem, reach)
-    reasons += whole_findings(problem, reach)
+    reasons += whole_findings(problem, reach) + nested_seat_findings(problem)
     return reasons
 
 

@@ -92,3 +92,14 @@ def test_a_unit_whose_upper_zone_holds_no_school_is_named():
     findings = precheck(town("nested", groups=groups))
     assert [f.rule for f in findings] == ["nested", "island"]
     assert "U1" in findings[0].text and "U2" in findings[1].text
+
+
+def test_an_upper_zone_its_schools_cannot_seat_is_explained_with_the_amount():
+    # nesting: zone A (U0-U2, 30 students) may use only the school in U0 (25 seats): 5 too
+    # many; zone B (U3, 10 students) fits the school in U3
+    plan = districting.solve(town("nested", seats=25.0))
+    assert not plan.feasible
+    lead, *causes = plan.message.splitlines()
+    assert "cannot all stay inside the zones of the level above" in lead
+    assert any("Ash Elementary (A) holds 30 middle students" in c and "5 too many" in c
+               for c in causes)
