@@ -91,6 +91,7 @@ class Problem:
     feeder_groups: np.ndarray | None = None  # (n,) g[i]: the neighbouring zone, -1 none
     feeder_rule: str = ""  # "", "whole" or "nested"
     feeder_names: tuple = ()  # names of the groups, for messages
+    feeder_splits: int = 0  # "whole" only: each lower zone may feed 1 + this many sites
 
     # ------------------------------------------------------------------ constructors
     @classmethod
@@ -120,6 +121,7 @@ class Problem:
         feeder_groups=None,
         feeder_rule: str = "",
         feeder_names: Iterable = (),
+        feeder_splits: int = 0,
     ) -> Problem:
         """Make a problem from arrays.
 
@@ -132,7 +134,8 @@ class Problem:
         must be connected in that graph and hold its site's root unit; ``roots`` defaults
         to ``arange(n)`` when units and sites are the same points (n_units == n_sites).
         ``feeder_groups`` (n,) and ``feeder_rule`` ("whole" or "nested") state the feeder
-        rule against the neighbouring level's zones (see the class fields).
+        rule against the neighbouring level's zones (see the class fields); with
+        ``feeder_splits`` N > 0, "whole" lets each lower zone feed at most N + 1 sites.
         """
         cost = np.array(cost, dtype=float)
         if cost.ndim != 2:
@@ -209,6 +212,7 @@ class Problem:
             feeder_groups=groups,
             feeder_rule=feeder_rule if groups is not None else "",
             feeder_names=tuple(feeder_names),
+            feeder_splits=max(int(feeder_splits), 0),
         )
         prob._freeze()
         return prob
@@ -305,7 +309,8 @@ class Problem:
         """
         if (self.cost.shape != other.cost.shape or self.demand.shape != other.demand.shape
                 or self.p != other.p or self.contiguous != other.contiguous
-                or self.feeder_rule != other.feeder_rule):
+                or self.feeder_rule != other.feeder_rule
+                or self.feeder_splits > other.feeder_splits):
             return False
         if not _same_array(self.feeder_groups, other.feeder_groups):
             return False

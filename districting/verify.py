@@ -78,6 +78,7 @@ class PlanFacts:
     feeder_groups: np.ndarray | None = None
     feeder_rule: str = ""
     feeder_names: Sequence[str] = ()
+    feeder_splits: int = 0  # whole feeding: a lower zone may feed 1 + this many schools
 
     @property
     def n_units(self) -> int:
@@ -273,11 +274,14 @@ def _feeding(facts: PlanFacts, a: np.ndarray) -> list[Finding]:
         for i, g in enumerate(groups):
             if g >= 0:
                 schools.setdefault(g, set()).add(int(a[i]))
+        most = 1 + max(int(facts.feeder_splits), 0)
         for g, js in sorted(schools.items()):
-            if len(js) > 1:
+            if len(js) > most:
                 names = ", ".join(facts.site(j) for j in sorted(js))
+                rule = ("whole feeding sends it to one" if most == 1 else
+                        f"at most {most} are allowed")
                 out.append(Finding("feeder", f"the zone of {_group(facts, g)} is split between "
-                                   f"{len(js)} schools ({names}); whole feeding sends it to one"))
+                                   f"{len(js)} schools ({names}); {rule}"))
         return out
     if facts.roots is None:
         return [Finding("nested", "nesting needs each school's own unit, and none is given")]
@@ -330,6 +334,7 @@ def facts_of_problem(problem) -> PlanFacts:
                        else np.array(problem.feeder_groups)),
         feeder_rule=problem.feeder_rule,
         feeder_names=tuple(problem.feeder_names),
+        feeder_splits=int(problem.feeder_splits),
     )
 
 
@@ -373,7 +378,8 @@ def report(findings: list[Finding], facts: PlanFacts, label: str = "the plan") -
     if facts.max_moved is not None:
         checked.append("the limit on students moved holds")
     if facts.feeder_groups is not None and facts.feeder_rule == "whole":
-        checked.append("every lower zone goes whole to one school")
+        checked.append("every lower zone goes whole to one school" if not facts.feeder_splits
+                       else f"no lower zone feeds more than {facts.feeder_splits + 1} schools")
     if facts.feeder_groups is not None and facts.feeder_rule == "nested":
         checked.append("every zone lies inside one upper zone")
     return f"{label} is valid: " + "; ".join(checked) + "."

@@ -22,14 +22,14 @@ __all__ = ["split_groups", "stray_sites", "feeder_breaks", "whole_findings", "ne
            "nested_seat_findings"]
 
 
-def split_groups(groups: np.ndarray, assignment: np.ndarray) -> np.ndarray:
-    """Groups (>= 0) whose units take two or more different sites in ``assignment``."""
+def split_groups(groups: np.ndarray, assignment: np.ndarray, splits: int = 0) -> np.ndarray:
+    """Groups (>= 0) whose units take more than ``splits`` + 1 different sites."""
     g = np.asarray(groups, np.int64)
     a = np.asarray(assignment, np.int64)
     keep = g >= 0
     pairs = np.unique(np.column_stack([g[keep], a[keep]]), axis=0)
     ids, counts = np.unique(pairs[:, 0], return_counts=True)
-    return ids[counts > 1]
+    return ids[counts > 1 + splits]
 
 
 def stray_sites(problem: Problem, assignment: np.ndarray) -> np.ndarray:
@@ -49,8 +49,12 @@ def feeder_breaks(problem: Problem, assignment: np.ndarray) -> str:
     if problem.feeder_groups is None:
         return ""
     if problem.feeder_rule == "whole":
-        bad = split_groups(problem.feeder_groups, assignment)
-        return f"{len(bad)} lower zones split between schools" if len(bad) else ""
+        n = problem.feeder_splits
+        bad = split_groups(problem.feeder_groups, assignment, n)
+        if not len(bad):
+            return ""
+        return (f"{len(bad)} lower zones split between schools" if not n else
+                f"{len(bad)} lower zones feed more than {n + 1} schools")
     if problem.feeder_rule == "nested":
         bad = stray_sites(problem, assignment)
         return f"{len(bad)} zones reach outside their upper zone" if len(bad) else ""
@@ -73,6 +77,8 @@ def whole_findings(problem: Problem, reach: np.ndarray) -> list[Finding]:
     level = problem.level or "upper-level"
     seats = (np.full(problem.n_sites, np.inf) if problem.capacity is None
              else problem.max_util * problem.capacity)
+    if problem.feeder_splits > 0:
+        return _shared_findings(problem, reach, seats)
     out = []
     for k in np.unique(g[g >= 0]).tolist():
         units = np.flatnonzero(g == k)
@@ -98,6 +104,30 @@ def whole_findings(problem: Problem, reach: np.ndarray) -> list[Finding]:
                 f"{students(load[t] - room)} too many.",
                 "raise that school's capacity or highest utilization, or solve this level "
                 "without whole feeding.", school=name, year=problem.year_label(t)))
+    return out
+
+
+def _shared_findings(problem: Problem, reach: np.ndarray, seats: np.ndarray
+                     ) -> list[Finding]:
+    """With at most N splits: lower zones whose students, in some year, outnumber the
+    seats of the N + 1 largest schools any of their units may join."""
+    g, most = problem.feeder_groups, problem.feeder_splits + 1
+    level = problem.level or "upper-level"
+    out = []
+    for k in np.unique(g[g >= 0]).tolist():
+        units = np.flatnonzero(g == k)
+        near = np.sort(seats[reach[units].any(axis=0)])[::-1]
+        room = float(near[:most].sum())
+        load = problem.demand[:, units].sum(axis=1)
+        t = int(np.argmax(load))
+        if load[t] > room + 1e-6:
+            name = _group_name(problem, k)
+            out.append(Finding(
+                "feeder", f"The zone of {name} has {students(load[t])} students in "
+                f"{problem.year_label(t)}, and the {most} largest {level} schools it may feed "
+                f"seat at most {students(room, up=False)}: {students(load[t] - room)} too "
+                "many.", "allow more splits, raise a capacity, or solve this level without "
+                "a feeder rule.", school=name, year=problem.year_label(t)))
     return out
 
 

@@ -82,7 +82,7 @@ def subproblem(problem: Problem, assignment: np.ndarray,
         stability_weight=problem.stability_weight, max_moved=max_moved,
         years=problem.years, level=problem.level,
         feeder_groups=None if problem.feeder_groups is None else problem.feeder_groups[units],
-        feeder_rule=problem.feeder_rule)
+        feeder_rule=problem.feeder_rule, feeder_splits=problem.feeder_splits)
     return sub, units
 
 

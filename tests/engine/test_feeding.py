@@ -103,3 +103,43 @@ def test_an_upper_zone_its_schools_cannot_seat_is_explained_with_the_amount():
     assert "cannot all stay inside the zones of the level above" in lead
     assert any("Ash Elementary (A) holds 30 middle students" in c and "5 too many" in c
                for c in causes)
+
+
+def line_town(splits: int, rule: str = "whole") -> Problem:
+    """Seven units U0 - ... - U6 in a row, 10 students each, schools in U0, U3 and U6 with
+    40 seats each; lower zone A = U0-U5, B = U6.
+
+    By hand: without a rule, each unit goes to its nearest school: U0, U1 -> S0; U2-U4 ->
+    S1; U5, U6 -> S2 (steps 1 + 1 + 1 + 1: cost 40), and A feeds three schools (2 splits).
+    With at most 1 split A feeds two schools; S0 and S1 hold their own units (U0, U3, both
+    in A), so U5 goes to S1 (2 steps instead of 1): cost 50, one split left.
+    """
+    steps = np.abs(np.arange(7)[:, None] - np.array([0, 3, 6])[None, :]).astype(float)
+    return Problem.from_arrays(
+        steps, np.full(7, 10.0), capacity=[40.0, 40.0, 40.0],
+        edges=[(k, k + 1) for k in range(6)], roots=[0, 3, 6], level="middle",
+        feeder_groups=np.array([0, 0, 0, 0, 0, 0, 1]) if rule else None, feeder_rule=rule,
+        feeder_splits=splits, feeder_names=["Ash Elementary (A)", "Birch Elementary (B)"])
+
+
+@pytest.mark.parametrize("solver", ["highs", "appsi_highs"])
+def test_at_most_one_split_keeps_a_zone_to_two_schools(solver):
+    free = districting.solve(line_town(0, rule=""), solver=solver)
+    assert free.assignment.tolist() == [0, 0, 1, 1, 1, 2, 2]
+    assert free.objective == pytest.approx(40.0)
+    one = districting.solve(line_town(1), solver=solver)
+    assert one.status == "optimal"
+    assert one.assignment.tolist() == [0, 0, 1, 1, 1, 1, 2]
+    assert one.objective == pytest.approx(50.0)
+    # two splits allowed: the free plan stands
+    assert districting.solve(line_town(2), solver=solver).objective == pytest.approx(40.0)
+
+
+def test_checks_count_the_schools_a_zone_feeds_against_the_limit():
+    three = np.array([0, 0, 1, 1, 1, 2, 2])
+    assert plan_checks(line_town(1), three) == ["1 lower zones feed more than 2 schools"]
+    assert plan_checks(line_town(2), three) == []
+    (finding,) = check_plan(facts_of_problem(line_town(1)), three)
+    assert finding.rule == "feeder" and "3 schools" in finding.message
+    assert "at most 2 are allowed" in finding.message
+    assert check_plan(facts_of_problem(line_town(2)), three) == []
