@@ -84,7 +84,13 @@ def _feeder_fields(args, inputs, level: str) -> dict:
     """The run's feeder rule and fixed zones (--feeding, --given, else [feeders])."""
     from .outputs.feeders import feeder_run
 
-    return feeder_run(inputs, level, args.feeding, args.given)
+    fields = feeder_run(inputs, level, args.feeding, args.given)
+    if args.max_splits is not None:
+        if args.max_splits < 0 or fields["feeding"] != "whole":
+            raise ValueError(f"--max-splits {args.max_splits}: a limit on split feeders (0 or "
+                             f"more) applies to whole feeding; fix: add --feeding whole")
+        fields["max_splits"] = args.max_splits
+    return fields
 
 
 def _add_feeder_options(p: argparse.ArgumentParser) -> None:
@@ -97,6 +103,10 @@ def _add_feeder_options(p: argparse.ArgumentParser) -> None:
                    help="saved option of the neighbouring level whose zones the feeder rule "
                         "holds fixed (default: the one [feeders] zones names, else today's "
                         "zones)")
+    p.add_argument("--max-splits", type=int, metavar="N",
+                   help="with --feeding whole: each school of the level below may feed at "
+                        "most 1 + N schools of this level (default: the project's "
+                        "[feeders] max_splits, else 0: whole feeding)")
 
 
 def _solve_targets(args, inputs) -> dict[str, tuple[str, Path]]:

@@ -60,6 +60,7 @@ class RunSettings:
     feeding: str | None = None
     given: dict[str, str] = field(default_factory=dict)
     given_name: str = ""  # where ``given`` comes from: a saved option's name, or "" (today)
+    max_splits: int | None = None  # whole feeding: a lower school may feed 1 + this many
 
     def to_dict(self) -> dict:
         return dataclasses.asdict(self)
@@ -69,7 +70,7 @@ class RunSettings:
         """Settings stored by :meth:`to_dict`. Those stored before runs named a travel
         measure were measured in straight lines, and reopen so."""
         names = {f.name for f in dataclasses.fields(cls)}
-        return cls(**{"travel": "straight-line", "feeding": "",
+        return cls(**{"travel": "straight-line", "feeding": "", "max_splits": 0,
                       **{k: v for k, v in data.items() if k in names}})
 
     def replace(self, **changes) -> RunSettings:
@@ -117,7 +118,13 @@ def _resolved_feeding(inputs: Inputs, rs: RunSettings) -> RunSettings:
     today's zones of the neighbouring level (refused when that level has none)."""
     rule = inputs.settings.feeders.rule(rs.level) if rs.feeding is None else rs.feeding
     if not rule:
-        return rs.replace(feeding="", given={}, given_name="")
+        return rs.replace(feeding="", given={}, given_name="", max_splits=0)
+    if rs.max_splits is None:
+        rs = rs.replace(max_splits=inputs.settings.feeders.max_splits.get(rs.level, 0))
+    if rule != "whole" and rs.max_splits:
+        raise ValueError(f"{rs.level}: a limit on split feeders ({rs.max_splits}) applies to "
+                         "whole feeding only; fix: solve with whole feeding, or without the "
+                         "limit")
     other = neighbour(inputs.settings.levels, rs.level, rule)
     if other is None:
         where = "below" if rule == "whole" else "above"
@@ -276,6 +283,7 @@ def build_problem(inputs: Inputs, rs: RunSettings) -> tuple[Problem, np.ndarray]
         feeder_groups=groups,
         feeder_rule=rs.feeding or "",
         feeder_names=group_names,
+        feeder_splits=int(rs.max_splits or 0),
     )
     return problem, rows
 

@@ -19,11 +19,13 @@ __all__ = ["FeederSettings", "read_feeders", "neighbour"]
 
 @dataclass(frozen=True)
 class FeederSettings:
-    """[feeders], checked: ``zones`` level -> saved option; ``whole``, ``nested`` levels."""
+    """[feeders], checked: ``zones`` level -> saved option; ``whole``, ``nested`` levels;
+    ``max_splits`` level -> splits allowed under whole feeding."""
 
     zones: dict[str, str] = field(default_factory=dict)
     whole: tuple[str, ...] = ()
     nested: tuple[str, ...] = ()
+    max_splits: dict[str, int] = field(default_factory=dict)  # level of whole -> splits
 
     def rule(self, level: str) -> str:
         """The feeder rule a solve of ``level`` keeps: "whole", "nested" or ""."""
@@ -72,7 +74,14 @@ def read_feeders(path: Path, table, levels: tuple[str, ...], report) -> FeederSe
                          f"({', '.join(levels)}): there is no level above it to nest in",
                          f"remove {level!r} from nested; to have the level below feed it "
                          f"whole, write whole = [\"{level}\"]")
+    splits = {lv: int(v) for lv, v in dict(table.get("max_splits", {})).items()}
+    splits = {lv: splits[lv] for lv in known("max_splits", list(splits))}
+    for level in [lv for lv in splits if lv not in whole]:
+        report.error(path, f"{where} max_splits", f"max_splits names {level}, which is not "
+                     "solved with whole feeding", f"add {level!r} to whole, or remove it "
+                     "from max_splits")
+        del splits[level]
     for level in set(whole) & set(nested):
         report.error(path, f"{where} whole / nested", f"{level} is listed in both",
                      "a level is solved against one neighbouring level: keep it in one list")
-    return FeederSettings(zones, tuple(whole), tuple(nested))
+    return FeederSettings(zones, tuple(whole), tuple(nested), splits)

@@ -197,6 +197,9 @@ SCHEMA: dict[str, Table] = {
                      "below (held fixed) lies inside one zone of this level", []),
         "nested": Key("names", "levels solved nested: every zone of this level lies inside "
                       "one zone of the level above (held fixed)", []),
+        "max_splits": Key("level_int", "level (one of whole) = splits allowed: each school "
+                          "of the level below feeds at most 1 + this many schools of it (0: "
+                          "whole feeding)", {}, low=0),
     }),
     "locks": _pairs("units the board has decided: unit goes to site"),
     "forbids": _pairs("unit may not go to site"),

@@ -67,3 +67,14 @@ def test_the_middle_level_is_solved_against_a_saved_elementary_option(tmp_path, 
     code, text, err = run_cli("verify", str(project), "--option", "Middle A")
     assert code == 0, err
     assert "every lower zone goes whole to one school" in text
+
+
+def test_a_split_limit_needs_whole_feeding(tmp_path, town):
+    project = town.write_town(tmp_path / "town")
+    code, _out, err = run_cli("solve", str(project), "--level", "middle", "--max-splits", "1",
+                              "--out", str(tmp_path / "out"))
+    assert code == 2 and "--max-splits 1" in err and "add --feeding whole" in err
+    code, out, err = run_cli("solve", str(project), "--level", "middle", "--feeding", "whole",
+                             "--max-splits", "1", "--out", str(tmp_path / "out"))
+    assert code == 0, err
+    assert "feeders elementary -> middle: 0 of 2" in out

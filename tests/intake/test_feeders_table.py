@@ -48,3 +48,11 @@ def test_the_highest_level_cannot_be_nested_and_unknown_levels_are_named(tmp_pat
     assert len(texts) == 2
     assert any("[feeders] nested" in t and "no level above it" in t for t in texts)
     assert any("[feeders] zones" in t and "did you mean middle" in t for t in texts)
+
+
+def test_max_splits_belongs_to_a_level_fed_whole(tmp_path):
+    settings, report = _read(tmp_path, {"whole": ["middle"], "max_splits": {"middle": 1}})
+    assert not report.errors and settings.feeders.max_splits == {"middle": 1}
+    _settings, report = _read(tmp_path, {"max_splits": {"high": 1}})
+    (item,) = report.errors
+    assert "[feeders] max_splits" in str(item) and "add 'high' to whole" in str(item)
