@@ -118,17 +118,27 @@ def _shared_findings(problem: Problem, reach: np.ndarray, seats: np.ndarray
         units = np.flatnonzero(g == k)
         near = np.sort(seats[reach[units].any(axis=0)])[::-1]
         room = float(near[:most].sum())
-        load = problem.demand[:, units].sum(axis=1)
-        t = int(np.argmax(load))
-        if load[t] > room + 1e-6:
-            name = _group_name(problem, k)
-            out.append(Finding(
-                "feeder", f"The zone of {name} has {students(load[t])} students in "
-                f"{problem.year_label(t)}, and the {most} largest {level} schools it may feed "
-                f"seat at most {students(room, up=False)}: {students(load[t] - room)} too "
-                "many.", "allow more splits, raise a capacity, or solve this level without "
-                "a feeder rule.", school=name, year=problem.year_label(t)))
+        out += _too_many(problem, "feeder", k, problem.demand[:, units].sum(axis=1), room,
+                         "has {load} students in {year}, and the "
+                         f"{most} largest {level} schools it may feed seat at most "
+                         "{room}: {over} too many.", "allow more splits, raise a capacity, or "
+                         "solve this level without a feeder rule.")
     return out
+
+
+def _too_many(problem: Problem, rule: str, k: int, load: np.ndarray, room: float,
+              words: str, fix: str) -> list[Finding]:
+    """A finding when ``load`` (students per year) of zone ``k`` exceeds ``room`` seats in
+    some year, the worst year named; ``words`` follow "The zone of <name> " with {load},
+    {year}, {room} and {over} filled in."""
+    t = int(np.argmax(load))
+    if load[t] <= room + 1e-6:
+        return []
+    name = _group_name(problem, k)
+    text = words.format(load=students(load[t]), year=problem.year_label(t),
+                        room=students(room, up=False), over=students(load[t] - room))
+    return [Finding(rule, f"The zone of {name} {text}", fix.format(name=name), school=name,
+                    year=problem.year_label(t))]
 
 
 def nested_seat_findings(problem: Problem) -> list[Finding]:
@@ -146,18 +156,12 @@ def nested_seat_findings(problem: Problem) -> list[Finding]:
     for k in np.unique(g[g >= 0]).tolist():
         if not ((root_g == k) & ~problem.closed_sites).any():
             continue  # no school inside it at all: nested_findings names its units
-        load = problem.demand[:, g == k].sum(axis=1)
         room = float(seats[root_g == k].sum()) + free_seats
-        t = int(np.argmax(load - room))
-        if load[t] > room + 1e-6:
-            name = _group_name(problem, k)
-            out.append(Finding(
-                "nested", f"The zone of {name} holds {students(load[t])} {level} students in "
-                f"{problem.year_label(t)}, and the {level} schools inside it seat at most "
-                f"{students(room, up=False)}: {students(load[t] - room)} too many to stay "
-                "inside it.", f"raise the capacity of a {level} school inside the zone of "
-                f"{name}, or solve this level without nesting.", school=name,
-                year=problem.year_label(t)))
+        out += _too_many(problem, "nested", k, problem.demand[:, g == k].sum(axis=1), room,
+                         f"holds {{load}} {level} students in {{year}}, and the {level} "
+                         "schools inside it seat at most {room}: {over} too many to stay "
+                         "inside it.", f"raise the capacity of a {level} school inside the "
+                         "zone of {name}, or solve this level without nesting.")
     return out
 
 

@@ -105,7 +105,7 @@ def test_an_upper_zone_its_schools_cannot_seat_is_explained_with_the_amount():
                for c in causes)
 
 
-def line_town(splits: int, rule: str = "whole") -> Problem:
+def line_town(splits: int, rule: str = "whole", seats: float = 40.0) -> Problem:
     """Seven units U0 - ... - U6 in a row, 10 students each, schools in U0, U3 and U6 with
     40 seats each; lower zone A = U0-U5, B = U6.
 
@@ -116,7 +116,7 @@ def line_town(splits: int, rule: str = "whole") -> Problem:
     """
     steps = np.abs(np.arange(7)[:, None] - np.array([0, 3, 6])[None, :]).astype(float)
     return Problem.from_arrays(
-        steps, np.full(7, 10.0), capacity=[40.0, 40.0, 40.0],
+        steps, np.full(7, 10.0), capacity=[seats, seats, seats],
         edges=[(k, k + 1) for k in range(6)], roots=[0, 3, 6], level="middle",
         feeder_groups=np.array([0, 0, 0, 0, 0, 0, 1]) if rule else None, feeder_rule=rule,
         feeder_splits=splits, feeder_names=["Ash Elementary (A)", "Birch Elementary (B)"])
@@ -143,3 +143,13 @@ def test_checks_count_the_schools_a_zone_feeds_against_the_limit():
     assert finding.rule == "feeder" and "3 schools" in finding.message
     assert "at most 2 are allowed" in finding.message
     assert check_plan(facts_of_problem(line_town(2)), three) == []
+
+
+def test_a_zone_too_big_for_its_allowed_schools_is_explained_with_the_amount():
+    # 25 seats each (75 in all for 70 students), zone A has 60 students: with one split it
+    # may use two schools, 50 seats: 10 too many
+    plan = districting.solve(line_town(1, seats=25.0))
+    assert not plan.feasible
+    assert any("The zone of Ash Elementary (A) has 60 students" in line and "the 2 largest "
+               "middle schools it may feed seat at most 50: 10 too many" in line
+               for line in plan.message.splitlines())
