@@ -165,6 +165,16 @@ def nested_seat_findings(problem: Problem) -> list[Finding]:
     return out
 
 
+def _lock_finding(problem: Problem, i: int) -> Finding:
+    """A locked unit whose school stands outside the unit's upper zone."""
+    j, unit = int(problem.locks[i]), problem.unit_label(i)
+    name = _group_name(problem, int(problem.feeder_groups[i]))
+    return Finding("lock", f"{unit} is locked to {problem.site_label(j)}, which stands outside "
+                   f"the zone of {name} that {unit} lies in, so nesting keeps it out.",
+                   "remove the lock, or solve this level without nesting.",
+                   school=problem.site_label(j), unit=unit)
+
+
 def nested_findings(problem: Problem) -> list[Finding]:
     """Units that the nested rule leaves without a school: their upper zone holds no open
     or candidate school of this level."""
@@ -173,7 +183,9 @@ def nested_findings(problem: Problem) -> list[Finding]:
         return []
     plain = problem.replace(feeder_rule="").allowed
     lost = np.flatnonzero(~problem.allowed.any(axis=1) & plain.any(axis=1))
-    out = []
+    locked = lost[problem.locks[lost] >= 0]
+    out = [_lock_finding(problem, int(i)) for i in locked.tolist()]
+    lost = lost[problem.locks[lost] < 0]
     for k in np.unique(g[lost]).tolist():
         units = lost[g[lost] == k]
         name = _group_name(problem, k)

@@ -153,3 +153,14 @@ def test_a_zone_too_big_for_its_allowed_schools_is_explained_with_the_amount():
     assert any("The zone of Ash Elementary (A) has 60 students" in line and "the 2 largest "
                "middle schools it may feed seat at most 50: 10 too many" in line
                for line in plan.message.splitlines())
+
+
+def test_a_lock_outside_the_upper_zone_is_named_as_the_lock():
+    # U2 (in A) locked to the school in U3, which stands in B: nesting keeps it out
+    plan = districting.solve(town("nested").replace(locks=np.array([-1, -1, 1, -1])))
+    assert not plan.feasible
+    lead, *causes = plan.message.splitlines()
+    assert "locked unit" in lead
+    assert causes == ["- U2 is locked to East (S1), which stands outside the zone of Ash "
+                      "Elementary (A) that U2 lies in, so nesting keeps it out. To fix: "
+                      "remove the lock, or solve this level without nesting."]
