@@ -65,12 +65,13 @@ def feeder_pages(outcome: Outcome, paper: str, stamp: str, first: int) -> list[F
         top = frame(fig, title(outcome, f"feeder pattern{more(k, len(parts))}"),
                     f"{outcome.inputs.settings.name}, {outcome.level}.  Where each school's "
                     f"students go at the next level, students of the lower level in "
-                    f"{outcome.settings.plan_year}.  " + ";  ".join(counts) + ".",
+                    f"{outcome.settings.plan_year}.",
                     footer(outcome, stamp), first + k, full_notice=False)
         ax = fig.add_axes([0.03, 0.05, 0.94, top - 0.05])
         bottom = draw_table(ax, head, rows[a:b], widths, flags[a:b], font=TABLE_FONT)
-        ax.text(0.0, bottom - 0.03, "Shaded, bold: a school whose students go to two or more "
-                "schools of the next level (a split feeder).", fontsize=7.8, va="top",
+        note = ["Shaded, bold: a school whose students go to two or more schools of the "
+                "next level (a split feeder).", *(c[0].upper() + c[1:] + "." for c in counts)]
+        ax.text(0.0, bottom - 0.03, "\n".join(note), fontsize=7.8, va="top",
                 transform=ax.transAxes)
         pages.append(fig)
     return pages
