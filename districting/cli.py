@@ -80,6 +80,35 @@ def _run_settings(args, level: str):
     )
 
 
+def _feeder_fields(args, inputs, level: str) -> dict:
+    """The run's feeder rule and fixed zones (--feeding, --given, else [feeders])."""
+    from .outputs.feeders import feeder_run
+
+    fields = feeder_run(inputs, level, args.feeding, args.given)
+    if args.max_splits is not None:
+        if args.max_splits < 0 or fields["feeding"] != "whole":
+            raise ValueError(f"--max-splits {args.max_splits}: a limit on split feeders (0 or "
+                             f"more) applies to whole feeding; fix: add --feeding whole")
+        fields["max_splits"] = args.max_splits
+    return fields
+
+
+def _add_feeder_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--feeding", choices=("whole", "nested", "none"),
+                   help="feeder rule against the neighbouring level's zones, held fixed: "
+                        "whole (every zone of the level below lies inside one zone of this "
+                        "level), nested (every zone of this level lies inside one zone of the "
+                        "level above) or none (default: the project's [feeders])")
+    p.add_argument("--given", metavar="OPTION",
+                   help="saved option of the neighbouring level whose zones the feeder rule "
+                        "holds fixed (default: the one [feeders] zones names, else today's "
+                        "zones)")
+    p.add_argument("--max-splits", type=int, metavar="N",
+                   help="with --feeding whole: each school of the level below may feed at "
+                        "most 1 + N schools of this level (default: the project's "
+                        "[feeders] max_splits, else 0: whole feeding)")
+
+
 def _solve_targets(args, inputs) -> dict[str, tuple[str, Path]]:
     """Level -> (option name, export folder), every check done before any solve or write.
 
@@ -157,10 +186,11 @@ def cmd_solve(args) -> int:
     # with --json, stdout holds one JSON object per level and nothing else
     say = functools.partial(print, file=sys.stderr) if args.json else print
     status = 0
+    feeders = {level: _feeder_fields(args, inputs, level) for level in targets}
     for level, (name, folder) in targets.items():
         progress = Progress(level)
-        outcome = run(inputs, _run_settings(args, level), name=name if args.save else "",
-                      progress=progress)
+        outcome = run(inputs, _run_settings(args, level).replace(**feeders[level]),
+                      name=name if args.save else "", progress=progress)
         progress.done()
         say(plan_summary(outcome))
         if args.json:
@@ -444,6 +474,7 @@ def build_parser() -> argparse.ArgumentParser:
                         "always null, as this command starts from today's zones, not from "
                         "a saved option")
     _add_solve_options(p)
+    _add_feeder_options(p)
     p.set_defaults(func=cmd_solve)
 
     p = sub.add_parser("options", help="list, delete, rename saved options; repair the store",

@@ -12,7 +12,8 @@ Notation used across the engine (and in :mod:`districting.engine.formulation`):
   row 0 the plan year);
 - ``c[i, j]`` cost per student, ``d[t, i]`` students, ``Q[j]`` capacity,
   ``u_max[j]``, ``u_min[j]`` the utilization band;
-- ``x[i, j]`` = 1 when unit i is assigned to site j, ``y[j]`` = 1 when site j is open.
+- ``x[i, j]`` = 1 when unit i is assigned to site j, ``y[j]`` = 1 when site j is open;
+- ``g[i]`` the zone of unit i at the neighbouring school level (a feeder group, held fixed).
 """
 
 from __future__ import annotations
@@ -40,6 +41,20 @@ def _same_array(a, b) -> bool:
     if a is None or b is None:
         return a is None and b is None
     return a.shape == b.shape and bool(np.array_equal(a, b))
+
+
+def _feeder_groups(groups, rule: str, n: int, roots) -> np.ndarray | None:
+    """The checked feeder groups (None without a rule)."""
+    if rule not in ("", "whole", "nested"):
+        raise ValueError(f"feeder_rule must be '', 'whole' or 'nested'; got {rule!r}")
+    if groups is None or not rule:
+        return None
+    g = np.asarray(groups, np.int64)
+    if g.shape != (n,):
+        raise ValueError(f"feeder_groups must have shape ({n},)")
+    if rule == "nested" and roots is None:
+        raise ValueError("the nested feeder rule needs each site's root unit (roots)")
+    return g
 
 
 @dataclass(frozen=True, eq=False)
@@ -70,6 +85,13 @@ class Problem:
     unit_names: tuple = field(default=())  # unit ids, for messages (empty: "unit <i>")
     site_names: tuple = field(default=())  # site names, for messages (empty: "site <j>")
     level: str = ""  # school level, for messages
+    # feeder rule against the neighbouring level's zones (held fixed): "whole" (this level
+    # is the upper one: all units of one lower zone go to one site) or "nested" (this level
+    # is the lower one: each zone lies inside the upper zone of its site's root unit)
+    feeder_groups: np.ndarray | None = None  # (n,) g[i]: the neighbouring zone, -1 none
+    feeder_rule: str = ""  # "", "whole" or "nested"
+    feeder_names: tuple = ()  # names of the groups, for messages
+    feeder_splits: int = 0  # "whole" only: each lower zone may feed 1 + this many sites
 
     # ------------------------------------------------------------------ constructors
     @classmethod
@@ -96,6 +118,10 @@ class Problem:
         unit_names: Iterable = (),
         site_names: Iterable = (),
         level: str = "",
+        feeder_groups=None,
+        feeder_rule: str = "",
+        feeder_names: Iterable = (),
+        feeder_splits: int = 0,
     ) -> Problem:
         """Make a problem from arrays.
 
@@ -107,6 +133,9 @@ class Problem:
         included; ``None`` opens every site that is not closed. With ``edges`` every zone
         must be connected in that graph and hold its site's root unit; ``roots`` defaults
         to ``arange(n)`` when units and sites are the same points (n_units == n_sites).
+        ``feeder_groups`` (n,) and ``feeder_rule`` ("whole" or "nested") state the feeder
+        rule against the neighbouring level's zones (see the class fields); with
+        ``feeder_splits`` N > 0, "whole" lets each lower zone feed at most N + 1 sites.
         """
         cost = np.array(cost, dtype=float)
         if cost.ndim != 2:
@@ -158,6 +187,7 @@ class Problem:
         if cur.shape != (n,):
             raise ValueError(f"current must have shape ({n},)")
         dist = None if distance is None else _as_float_array("distance", distance, (n, m))
+        groups = _feeder_groups(feeder_groups, feeder_rule, n, root_arr)
         prob = cls(
             cost=cost,
             demand=demand,
@@ -179,6 +209,10 @@ class Problem:
             unit_names=tuple(unit_names),
             site_names=tuple(site_names),
             level=level,
+            feeder_groups=groups,
+            feeder_rule=feeder_rule if groups is not None else "",
+            feeder_names=tuple(feeder_names),
+            feeder_splits=max(int(feeder_splits), 0),
         )
         prob._freeze()
         return prob
@@ -230,14 +264,28 @@ class Problem:
     def allowed(self) -> np.ndarray:
         """(n, m) bool: pairs a plan may use (finite cost, not forbidden, site not closed).
 
-        A lock allows only its own site for that unit.
+        A lock allows only its own site for that unit. Under the "nested" feeder rule a
+        unit may join a site only when both lie in the same neighbouring zone (the site's
+        root unit's zone), a lock included.
         """
         ok = np.isfinite(self.cost) & ~self.forbidden & ~self.closed_sites[None, :]
         locked = self.locks >= 0
         if locked.any():
             ok[locked] = False
             ok[np.flatnonzero(locked), self.locks[locked]] = True
+        if self.feeder_rule == "nested":
+            ok &= self.nested_pairs
         return ok
+
+    @property
+    def nested_pairs(self) -> np.ndarray:
+        """(n, m) bool: pairs the "nested" feeder rule leaves (g[i] = g[root_j]; a unit or a
+        root without a neighbouring zone is free)."""
+        g = self.feeder_groups
+        if g is None or self.roots is None:
+            return np.ones((self.n_units, self.n_sites), bool)
+        root_g = np.where(self.roots >= 0, g[np.maximum(self.roots, 0)], -1)
+        return (g[:, None] < 0) | (root_g[None, :] < 0) | (g[:, None] == root_g[None, :])
 
     @property
     def weighted_cost(self) -> np.ndarray:
@@ -260,7 +308,11 @@ class Problem:
         The check is conservative: any difference it does not recognise returns False.
         """
         if (self.cost.shape != other.cost.shape or self.demand.shape != other.demand.shape
-                or self.p != other.p or self.contiguous != other.contiguous):
+                or self.p != other.p or self.contiguous != other.contiguous
+                or self.feeder_rule != other.feeder_rule
+                or self.feeder_splits > other.feeder_splits):
+            return False
+        if not _same_array(self.feeder_groups, other.feeder_groups):
             return False
         if not (_same_array(self.demand, other.demand) and _same_array(self.edges, other.edges)
                 and _same_array(self.roots, other.roots)

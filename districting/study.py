@@ -19,6 +19,7 @@ import numpy as np
 from . import rules
 from .engine import Session
 from .intake import Inputs
+from .intake.feeders import neighbour
 from .intake.schema import RUN_KEYS, check_run
 from .plan import Plan, PlanMetrics, plan_metrics
 from .problem import Problem
@@ -54,6 +55,12 @@ class RunSettings:
     site_min_util: dict[str, float] = field(default_factory=dict)
     locks: dict[str, str] = field(default_factory=dict)
     forbids: dict[str, list[str]] = field(default_factory=dict)
+    # feeder rule ("whole", "nested" or "": none; None: the project's [feeders]) and the
+    # neighbouring level's zones it holds fixed, unit id -> site id (empty: today's zones)
+    feeding: str | None = None
+    given: dict[str, str] = field(default_factory=dict)
+    given_name: str = ""  # where ``given`` comes from: a saved option's name, or "" (today)
+    max_splits: int | None = None  # whole feeding: a lower school may feed 1 + this many
 
     def to_dict(self) -> dict:
         return dataclasses.asdict(self)
@@ -63,7 +70,7 @@ class RunSettings:
         """Settings stored by :meth:`to_dict`. Those stored before runs named a travel
         measure were measured in straight lines, and reopen so."""
         names = {f.name for f in dataclasses.fields(cls)}
-        return cls(**{"travel": "straight-line",
+        return cls(**{"travel": "straight-line", "feeding": "", "max_splits": 0,
                       **{k: v for k, v in data.items() if k in names}})
 
     def replace(self, **changes) -> RunSettings:
@@ -101,8 +108,56 @@ def resolved(inputs: Inputs, rs: RunSettings) -> RunSettings:
         locks=locks,
         forbids=forbids,
     )
+    full = _resolved_feeding(inputs, full)
     check_run({key: getattr(full, key) for key in RUN_KEYS}, f"{rs.level} run settings")
     return full
+
+
+def _resolved_feeding(inputs: Inputs, rs: RunSettings) -> RunSettings:
+    """The feeder rule from [feeders] when the run leaves it open; without ``given`` zones,
+    today's zones of the neighbouring level (refused when that level has none)."""
+    rule = inputs.settings.feeders.rule(rs.level) if rs.feeding is None else rs.feeding
+    if not rule:
+        return rs.replace(feeding="", given={}, given_name="", max_splits=0)
+    if rs.max_splits is None:
+        rs = rs.replace(max_splits=inputs.settings.feeders.max_splits.get(rs.level, 0))
+    if rule != "whole" and rs.max_splits:
+        raise ValueError(f"{rs.level}: a limit on split feeders ({rs.max_splits}) applies to "
+                         "whole feeding only; fix: solve with whole feeding, or without the "
+                         "limit")
+    other = neighbour(inputs.settings.levels, rs.level, rule)
+    if other is None:
+        where = "below" if rule == "whole" else "above"
+        raise ValueError(f"{rs.level}: {rule} feeding needs a level {where} it, and the "
+                         f"project's levels are {', '.join(inputs.settings.levels)}; fix: "
+                         f"solve {rs.level} without the feeder rule")
+    if rs.given:
+        return rs.replace(feeding=rule)
+    today = inputs.current.get(other, np.zeros(0, np.int64))
+    if not (today >= 0).any():
+        raise ValueError(f"{rs.level}: {rule} feeding holds the {other} zones fixed, and the "
+                         f"project has no {other} zones today; fix: add a {other} column to "
+                         f"[zones] columns in {inputs.settings.path}, or name a saved {other} "
+                         "option in [feeders] zones")
+    ids = inputs.sites["site_id"].astype(str).to_numpy()
+    units = inputs.units["unit_id"].astype(str).tolist()
+    given = {u: str(ids[k]) for u, k in zip(units, today.tolist(), strict=True) if k >= 0}
+    return rs.replace(feeding=rule, given=given, given_name="")
+
+
+def feeder_groups(inputs: Inputs, rs: RunSettings) -> tuple[np.ndarray | None, list[str]]:
+    """The neighbouring level's zone of each unit as a group index (-1 none), and the
+    groups' names ("Name (id)"), for a resolved run with a feeder rule (None without)."""
+    if not rs.feeding:
+        return None, []
+    other = neighbour(inputs.settings.levels, rs.level, rs.feeding)
+    rows = level_sites(inputs, other)
+    sites = inputs.sites.iloc[rows]
+    pos = {sid: k for k, sid in enumerate(sites["site_id"].astype(str))}
+    units = inputs.units["unit_id"].astype(str).tolist()
+    groups = np.array([pos.get(rs.given.get(u, ""), -1) for u in units], np.int64)
+    names = [f"{n} ({s})" for n, s in zip(sites["name"], sites["site_id"], strict=True)]
+    return groups, names
 
 
 def level_sites(inputs: Inputs, level: str) -> np.ndarray:
@@ -202,6 +257,7 @@ def build_problem(inputs: Inputs, rs: RunSettings) -> tuple[Problem, np.ndarray]
     global_to_local[rows] = np.arange(len(rows))
     cur_global = inputs.current[rs.level]
     current = np.where(cur_global >= 0, global_to_local[np.maximum(cur_global, 0)], -1)
+    groups, group_names = feeder_groups(inputs, rs)
 
     problem = Problem.from_arrays(
         cost,
@@ -224,6 +280,10 @@ def build_problem(inputs: Inputs, rs: RunSettings) -> tuple[Problem, np.ndarray]
         unit_names=unit_ids,
         site_names=[f"{n} ({s})" for n, s in zip(sites["name"], site_ids, strict=True)],
         level=rs.level,
+        feeder_groups=groups,
+        feeder_rule=rs.feeding or "",
+        feeder_names=group_names,
+        feeder_splits=int(rs.max_splits or 0),
     )
     return problem, rows
 

@@ -33,7 +33,7 @@ class Finding:
     """One broken rule: ``rule`` is a short key, ``message`` says it in words."""
 
     #: assigned, closed, open_count, root, connected, capacity, floor, lock, forbid,
-    #: distance or moved
+    #: distance, moved, feeder (a lower zone split) or nested (a zone outside its upper zone)
     rule: str
     message: str
     site: int | None = None
@@ -72,6 +72,13 @@ class PlanFacts:
     unit_ids: Sequence[str] = ()
     site_ids: Sequence[str] = ()
     years: Sequence = ()
+    #: the neighbouring level's zone of each unit (-1 none) and the feeder rule against it:
+    #: "whole" (one school per lower zone) or "nested" (each zone inside the upper zone of
+    #: its school's own unit); names of those zones for messages
+    feeder_groups: np.ndarray | None = None
+    feeder_rule: str = ""
+    feeder_names: Sequence[str] = ()
+    feeder_splits: int = 0  # whole feeding: a lower zone may feed 1 + this many schools
 
     @property
     def n_units(self) -> int:
@@ -118,6 +125,7 @@ def check_plan(facts: PlanFacts, assignment) -> list[Finding]:
     out += _forbids(facts, a)
     out += _distance(facts, a)
     out += _moved(facts, a)
+    out += _feeding(facts, a)
     return out
 
 
@@ -250,6 +258,46 @@ def _moved(facts: PlanFacts, a: np.ndarray) -> list[Finding]:
                     f"the limit of {_num(facts.max_moved)}", year=0)]
 
 
+def _group(facts: PlanFacts, g: int) -> str:
+    return str(facts.feeder_names[g]) if g < len(facts.feeder_names) else f"zone {g}"
+
+
+def _feeding(facts: PlanFacts, a: np.ndarray) -> list[Finding]:
+    """Whole feeding: the schools each lower zone's units go to (one at most); nesting:
+    the upper zones each school's zone reaches (only that of its own unit)."""
+    if facts.feeder_groups is None or facts.feeder_rule not in ("whole", "nested"):
+        return []
+    groups = [int(g) for g in facts.feeder_groups]
+    out = []
+    if facts.feeder_rule == "whole":
+        schools: dict[int, set[int]] = {}
+        for i, g in enumerate(groups):
+            if g >= 0:
+                schools.setdefault(g, set()).add(int(a[i]))
+        most = 1 + max(int(facts.feeder_splits), 0)
+        for g, js in sorted(schools.items()):
+            if len(js) > most:
+                names = ", ".join(facts.site(j) for j in sorted(js))
+                rule = ("whole feeding sends it to one" if most == 1 else
+                        f"at most {most} are allowed")
+                out.append(Finding("feeder", f"the zone of {_group(facts, g)} is split between "
+                                   f"{len(js)} schools ({names}); {rule}"))
+        return out
+    if facts.roots is None:
+        return [Finding("nested", "nesting needs each school's own unit, and none is given")]
+    for j in range(facts.n_sites):
+        r = int(facts.roots[j])
+        if r < 0 or groups[r] < 0:
+            continue
+        away = [i for i in range(facts.n_units)
+                if int(a[i]) == j and groups[i] >= 0 and groups[i] != groups[r]]
+        if away:
+            out.append(Finding("nested", f"the zone of {facts.site(j)} reaches outside the zone "
+                               f"of {_group(facts, groups[r])} ({len(away)} units, e.g. "
+                               f"{facts.unit(away[0])})", site=j, unit=away[0]))
+    return out
+
+
 # ------------------------------------------------------------------------------ adapters
 def facts_of_problem(problem) -> PlanFacts:
     """The rules of an engine :class:`~districting.problem.Problem`, as plain data.
@@ -282,6 +330,11 @@ def facts_of_problem(problem) -> PlanFacts:
         unit_ids=tuple(problem.unit_names),
         site_ids=tuple(problem.site_names),
         years=tuple(problem.years),
+        feeder_groups=(None if problem.feeder_groups is None
+                       else np.array(problem.feeder_groups)),
+        feeder_rule=problem.feeder_rule,
+        feeder_names=tuple(problem.feeder_names),
+        feeder_splits=int(problem.feeder_splits),
     )
 
 
@@ -324,4 +377,9 @@ def report(findings: list[Finding], facts: PlanFacts, label: str = "the plan") -
         checked.append(f"no trip is longer than {_num(facts.max_distance)}")
     if facts.max_moved is not None:
         checked.append("the limit on students moved holds")
+    if facts.feeder_groups is not None and facts.feeder_rule == "whole":
+        checked.append("every lower zone goes whole to one school" if not facts.feeder_splits
+                       else f"no lower zone feeds more than {facts.feeder_splits + 1} schools")
+    if facts.feeder_groups is not None and facts.feeder_rule == "nested":
+        checked.append("every zone lies inside one upper zone")
     return f"{label} is valid: " + "; ".join(checked) + "."

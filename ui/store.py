@@ -406,6 +406,10 @@ class Store(StoreRecords, PlanTables):
                 on_plan(out)
 
         try:
+            if rs.feeding is None:  # the project's feeder rule, against [feeders] zones
+                from districting.outputs.feeders import feeder_run
+
+                rs = rs.replace(**feeder_run(self.inputs, level))
             out = run(self.inputs, rs, name=name, progress=progress, cancel=cancel,
                       previous=start, sessions=self._sessions, on_plan=interim)
         except ValueError as exc:  # a lock or forbid the problem cannot take, or a solver fault

@@ -19,6 +19,7 @@ from scipy.sparse.csgraph import connected_components
 
 from ..problem import Problem
 from ..rules import open_sites
+from .feeding import feeder_breaks
 
 __all__ = [
     "UnitGraph",
@@ -153,8 +154,11 @@ def is_contiguous(problem: Problem, graph: UnitGraph, assignment: np.ndarray) ->
 
 
 def free_units(problem: Problem) -> np.ndarray:
-    """Units any zone may take at no cost: no students in any row, no lock, no site's root."""
+    """Units any zone may take at no cost: no students in any row, no lock, no site's root,
+    not bound by whole feeding to the other units of its lower zone."""
     free = ~(problem.demand > 0).any(axis=0)
+    if problem.feeder_rule == "whole" and problem.feeder_groups is not None:
+        free &= problem.feeder_groups < 0
     free &= problem.locks < 0
     if problem.roots is not None:
         r = problem.roots[(problem.roots >= 0) & ~problem.closed_sites]
@@ -223,6 +227,9 @@ def plan_checks(problem: Problem, assignment: np.ndarray, graph: UnitGraph | Non
             out.append("below minimum utilization")
     if problem.max_moved is not None and moved_students(problem, a) > problem.max_moved + _TOL:
         out.append("too many students moved")
+    broken = feeder_breaks(problem, a)
+    if broken:
+        out.append(broken)
     if contiguity and problem.contiguous:
         g = graph or UnitGraph.of(problem)
         if fragments(problem, g, a):

@@ -96,6 +96,9 @@ RULES = {
     "undecided": lambda fs: "the reason could not be found in the time given",
     "solve": lambda fs: "the solve stopped short of a plan, though one exists",
     "together": lambda fs: "some rules cannot hold together",
+    "feeder": lambda fs: (f"{_counted(len(fs), 'lower zone')} cannot go whole to one "
+                          "school"),
+    "nested": lambda fs: "the zones cannot all stay inside the zones of the level above",
 }
 
 

@@ -103,6 +103,7 @@ class FlowRoute:
 
         self._hs, self.problem = highspy, problem
         f = formulate(problem)
+        self.formulation = f
         self.xi, self.xj, self.colmap, self.ycol = f.xi, f.xj, f.colmap, f.ycol
         self.infeasible_reason = f.infeasible_reason
         a0, lo0, hi0 = f.matrix()
@@ -157,13 +158,15 @@ class FlowRoute:
         h.cbMipInterrupt.subscribe(lambda e: e.interrupt() if self._stop() else None)
 
     def vector(self, a: np.ndarray) -> np.ndarray:
-        """Column values of a valid plan: x, y and tree flows (each arc carries its subtree)."""
+        """Column values of a valid plan: x, y, feeder z and tree flows (each arc carries its
+        subtree)."""
         p = self.problem
         x = np.zeros(self.ncol)
         c = self.colmap[np.arange(p.n_units), a]
         x[c[c >= 0]] = 1.0
         opened = np.bincount(a, minlength=p.n_sites) > 0
         x[self.ycol[opened & (self.ycol >= 0)]] = 1.0
+        x[self.formulation.split_on(a)] = 1.0
         for u, v, j, amount in tree_flows(p, a, np.flatnonzero(opened).tolist()):
             x[self.arc_of[(u, v, j)]] = amount
         return x

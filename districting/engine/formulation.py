@@ -12,7 +12,9 @@ Notation of :mod:`districting.problem`: ``i`` unit, ``j`` site, ``t`` demand row
 Columns: ``x[i, j]`` (binary) for every pair that some plan may use (``problem.allowed``,
 without pairs whose students exceed the site's upper capacity in some year: such a pair can
 never be used), then ``y[j]`` (binary) for every candidate site. Always-open sites have no
-``y`` column (``y[j] = 1`` is a constant); closed sites have neither.
+``y`` column (``y[j] = 1`` is a constant); closed sites have neither. With a limit on split
+feeders, ``z[g, j]`` (binary: lower zone g feeds site j) follow, one per pair some unit of
+g may use (:func:`split_columns`).
 
 Each row family is one function (its formula in its docstring) returning a
 :class:`RowBlock`; :func:`formulate` calls them in a fixed order (the row order matters to
@@ -32,7 +34,8 @@ from ..problem import Problem
 from .connectivity import Cut
 from .tuning import LINK_LIMIT, TOL
 
-__all__ = ["RowBlock", "Formulation", "formulate", "separator_rows", "ELASTIC_FAMILIES"]
+__all__ = ["RowBlock", "Formulation", "formulate", "separator_rows", "feeder_rows",
+           "split_columns", "split_rows", "ELASTIC_FAMILIES"]
 
 #: Families that can be built with a slack (``elastic=``).
 ELASTIC_FAMILIES = ("capacity", "floor", "locks", "max_moved")
@@ -91,6 +94,20 @@ class Formulation:
     elastic: frozenset = frozenset()
     blocks: list[RowBlock] = field(default_factory=list)
     infeasible_reason: str = ""
+    zg: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))  # z column: group
+    zj: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))  # z column: site
+    zcol: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))  # its column
+
+    def split_on(self, assignment: np.ndarray) -> np.ndarray:
+        """The z columns a plan sets to 1 (each lower zone's sites), for a start vector."""
+        g = self.problem.feeder_groups
+        if not len(self.zcol) or g is None:
+            return np.zeros(0, np.int64)
+        a = np.asarray(assignment, np.int64)
+        used = {(int(k), int(j)) for k, j in zip(g, a, strict=True) if k >= 0 and j >= 0}
+        return np.array([c for k, j, c in zip(self.zg.tolist(), self.zj.tolist(),
+                                               self.zcol.tolist(), strict=True)
+                         if (k, j) in used], np.int64)
 
     @property
     def ncol(self) -> int:
@@ -331,6 +348,83 @@ def lock_rows(f: Formulation) -> RowBlock:
                   li[ok].tolist())
 
 
+def feeder_rows(f: Formulation) -> RowBlock:
+    """Whole feeding (feeder rule "whole" without splits, ``g`` the lower zone of each unit):
+    x[i, j] - x[r_g, j] = 0 for every unit i of lower zone g other than its first unit r_g
+    in the model, and every site j that either pair may use (a pair without a column is 0
+    in every plan): all units of one lower zone go to the same site.
+
+    The "nested" rule needs no row: it removes the pairs that leave the upper zone of the
+    site's root (:attr:`Problem.allowed`).
+    """
+    p = f.problem
+    g = p.feeder_groups
+    if p.feeder_rule != "whole" or g is None or p.feeder_splits > 0:
+        return _block("feeder", [])
+    units = np.flatnonzero((g >= 0) & ~f.drop)
+    order = np.argsort(g[units], kind="stable")
+    units = units[order]
+    gu = g[units]
+    first = np.r_[True, gu[1:] != gu[:-1]] if len(gu) else np.zeros(0, bool)
+    reps = units[first][np.cumsum(first) - 1]
+    others, reps = units[~first], reps[~first]
+    ci, cr = f.colmap[others], f.colmap[reps]
+    k, j = np.nonzero((ci >= 0) | (cr >= 0))
+    a, b = ci[k, j], cr[k, j]
+    rows = np.arange(len(k))
+    row = np.concatenate([rows[a >= 0], rows[b >= 0]])
+    col = np.concatenate([a[a >= 0], b[b >= 0]])
+    coef = np.concatenate([np.ones(int((a >= 0).sum())), -np.ones(int((b >= 0).sum()))])
+    zero = np.zeros(len(k))
+    return RowBlock("feeder", row, col, coef, zero, zero.copy(),
+                    tuple(zip(others[k].tolist(), j.tolist(), strict=True)))
+
+
+def _split_pairs(f: Formulation) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(x column, its lower zone g, its site j) of every x column of a unit in a zone."""
+    g = f.problem.feeder_groups
+    k = np.flatnonzero(g[f.xi] >= 0)
+    return k, g[f.xi[k]], f.xj[k]
+
+
+def split_columns(f: Formulation) -> None:
+    """z[g, j] in [0, 1], cost 0, for every (lower zone g, site j) pair some unit of g may
+    use, appended after the x and y columns, when each lower zone may feed at most N + 1
+    sites (feeder rule "whole" with ``feeder_splits`` N > 0)."""
+    p = f.problem
+    if p.feeder_rule != "whole" or p.feeder_groups is None or p.feeder_splits <= 0:
+        return
+    _k, g, j = _split_pairs(f)
+    pairs = np.unique(np.column_stack([g, j]), axis=0) if len(g) else np.zeros((0, 2), int)
+    f.zg, f.zj = pairs[:, 0].astype(np.int64), pairs[:, 1].astype(np.int64)
+    f.zcol = f.ncol + np.arange(len(pairs))
+    f.cost = np.concatenate([f.cost, np.zeros(len(pairs))])
+    f.lower = np.concatenate([f.lower, np.zeros(len(pairs))])
+    f.upper = np.concatenate([f.upper, np.ones(len(pairs))])
+
+
+def split_rows(f: Formulation) -> RowBlock:
+    """At most N splits per lower zone (N = ``feeder_splits``): x[i, j] - z[g_i, j] <= 0 for
+    every x column of a unit i in lower zone g_i (z[g, j] = 1 when g feeds site j), then
+    sum_j z[g, j] <= N + 1 for every lower zone g."""
+    if not len(f.zcol):
+        return _block("splits", [])
+    k, g, j = _split_pairs(f)
+    width = int(f.zj.max()) + 1
+    lookup = np.full((int(f.zg.max()) + 1, width), -1, np.int64)
+    lookup[f.zg, f.zj] = f.zcol
+    zc = lookup[g, j]
+    r = np.arange(len(k))
+    groups = np.unique(f.zg)
+    gr = len(k) + np.searchsorted(groups, f.zg)
+    limit = float(f.problem.feeder_splits + 1)
+    return RowBlock("splits", np.concatenate([r, r, gr]), np.concatenate([k, zc, f.zcol]),
+                    np.concatenate([np.ones(len(k)), -np.ones(len(k)), np.ones(len(f.zcol))]),
+                    np.full(len(k) + len(groups), -np.inf),
+                    np.concatenate([np.zeros(len(k)), np.full(len(groups), limit)]),
+                    tuple([("pair", int(c)) for c in k] + [("zone", int(x)) for x in groups]))
+
+
 def separator_rows(f: Formulation, cuts: Sequence[Cut]) -> RowBlock:
     """x[i, j] (+ x[a, j] - 1) - sum_{s in S} x[s, j] <= 0 for each unit i of each cut.
 
@@ -363,7 +457,8 @@ def formulate(problem: Problem, drop: np.ndarray | None = None,
               elastic: Iterable[str] = ()) -> Formulation:
     """Every column and row family of ``problem`` (units in ``drop`` left out)."""
     f = columns(problem, drop, elastic)
+    split_columns(f)
     f.blocks = [assignment_rows(f), linking_rows(f), count_row(f), root_rows(f),
                 band_rows(f, upper_side=True), band_rows(f, upper_side=False), cover_rows(f),
-                max_moved_row(f), lock_rows(f)]
+                max_moved_row(f), lock_rows(f), feeder_rows(f), split_rows(f)]
     return f

@@ -87,7 +87,7 @@ class HighsRoute:
 
     # --------------------------------------------------------------- interface
     def vector(self, assignment: np.ndarray) -> np.ndarray:
-        """Column values of a plan (x and y)."""
+        """Column values of a plan (x, y and the feeder columns z)."""
         p = self.problem
         a = np.asarray(assignment, np.int64)
         x = np.zeros(self.ncol)
@@ -97,6 +97,7 @@ class HighsRoute:
         opened = open_sites(p, a)
         yc = self.ycol[opened & (self.ycol >= 0)]
         x[yc] = 1.0
+        x[self.formulation.split_on(a)] = 1.0
         return x
 
     def add_cuts(self, cuts: Sequence[Cut]) -> int:

@@ -80,7 +80,9 @@ def subproblem(problem: Problem, assignment: np.ndarray,
         max_util=problem.max_util[sites], min_util=problem.min_util[sites],
         forbidden=problem.forbidden[np.ix_(units, sites)], current=cur_sub,
         stability_weight=problem.stability_weight, max_moved=max_moved,
-        years=problem.years, level=problem.level)
+        years=problem.years, level=problem.level,
+        feeder_groups=None if problem.feeder_groups is None else problem.feeder_groups[units],
+        feeder_rule=problem.feeder_rule, feeder_splits=problem.feeder_splits)
     return sub, units
 
 

@@ -15,6 +15,7 @@ import scipy.sparse as sp
 from scipy.sparse.csgraph import breadth_first_order
 
 from ..problem import Problem
+from .feeding import nested_findings, nested_seat_findings, whole_findings
 from .findings import Finding, plural, students
 
 __all__ = ["precheck", "unbuildable", "reachable"]
@@ -65,8 +66,9 @@ def unbuildable(problem: Problem) -> list[Finding]:
     always-open school whose own unit may not join it, a move limit already broken by the
     forced moves, and an open-school count that cannot be met.
     """
-    return (_count_issues(problem) + _lock_pair_issues(problem) + _no_school_issues(problem)
-            + _root_pair_issues(problem) + _forced_move_issues(problem))
+    return (_count_issues(problem) + _lock_pair_issues(problem) + nested_findings(problem)
+            + _no_school_issues(problem) + _root_pair_issues(problem)
+            + _forced_move_issues(problem))
 
 
 def precheck(problem: Problem) -> list[Finding]:
@@ -76,7 +78,8 @@ def precheck(problem: Problem) -> list[Finding]:
     Besides :func:`unbuildable`: a year whose students exceed what the open schools can seat,
     a school that cannot reach its minimum utilization with every unit it may take, a locked
     unit that cannot be joined to its school's zone, a unit cut off from every school it may
-    attend, and two open schools standing in the same unit.
+    attend, two open schools standing in the same unit, and the feeder rules: a lower zone
+    that no school may take whole, an upper zone whose students its schools cannot seat.
     """
     reasons = unbuildable(problem)
     reasons += _year_capacity_issues(problem)
@@ -85,6 +88,7 @@ def precheck(problem: Problem) -> list[Finding]:
     reasons += _floor_issues(problem, reach)
     reasons += _lock_reach_issues(problem, reach)
     reasons += _island_issues(problem, reach)
+    reasons += whole_findings(problem, reach) + nested_seat_findings(problem)
     return reasons
 
 
@@ -125,7 +129,9 @@ def _lock_pair_issues(problem: Problem) -> list[Finding]:
 
 
 def _no_school_issues(problem: Problem) -> list[Finding]:
-    allowed = problem.allowed & ~problem.closed_sites[None, :]
+    # units the nesting alone leaves without a school are told by nested_findings
+    plain = problem.replace(feeder_rule="") if problem.feeder_rule == "nested" else problem
+    allowed = plain.allowed & ~problem.closed_sites[None, :]
     out = []
     for i in np.flatnonzero(~allowed.any(axis=1) & (problem.locks < 0)).tolist():
         most = problem.demand[:, i].max()

@@ -163,12 +163,14 @@ def build_model(
 
 
 def _columns(m: pyo.ConcreteModel, f: Formulation) -> list:
-    """The Pyomo variable of each formulation column (x pairs, then y of candidates)."""
+    """The Pyomo variable of each formulation column (x pairs, then y of candidates, then
+    the feeder columns z[g, j] as ``m.z``)."""
     out = [m.x[i, j] for i, j in zip(f.xi.tolist(), f.xj.tolist(), strict=True)]
-    ysite = np.empty(f.ncol - f.n_pairs, np.int64)
     cand = np.flatnonzero(f.ycol >= 0)
+    ysite = np.empty(len(cand), np.int64)
     ysite[f.ycol[cand] - f.n_pairs] = cand
-    return out + [m.y[int(j)] for j in ysite]
+    m.z = pyo.Var(range(len(f.zcol)), domain=pyo.Binary)
+    return out + [m.y[int(j)] for j in ysite] + [m.z[k] for k in range(len(f.zcol))]
 
 
 def _sum(terms: Sequence) -> object:
@@ -242,7 +244,8 @@ def add_separator_cut(model: pyo.ConcreteModel, i: int, j: int, separator: Itera
 
 # ---------------------------------------------------------------------------- solving
 def _set_start(m: pyo.ConcreteModel, start) -> None:
-    """Give x, y (and flows) the values of the assignment ``start`` for a warm start."""
+    """Give x, y, the feeder z (and flows) the values of the assignment ``start`` for a warm
+    start."""
     prob = m.problem
     a = np.asarray(start, dtype=np.int64)
     if a.shape != (prob.n_units,):
@@ -254,6 +257,9 @@ def _set_start(m: pyo.ConcreteModel, start) -> None:
     for j in m.J:
         if not m.y[j].fixed:
             m.y[j].set_value(1 if used[j] else 0)
+    on = set(m.formulation.split_on(a).tolist())
+    for k, c in enumerate(m.formulation.zcol.tolist()):
+        m.z[k].set_value(1 if c in on else 0)
     if hasattr(m, "f"):
         set_start_flow(m, a)
 

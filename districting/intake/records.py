@@ -14,6 +14,7 @@ import shapely
 from ..travel.cache import cache_key, cached_arrays
 from ..travel.measures import check_measure, default_measure, travel_matrix
 from .checks import is_coverage
+from .feeders import FeederSettings
 from .schema import default
 
 __all__ = ["Settings", "SolveSettings", "Lock", "Source", "Inputs", "LEVELS"]
@@ -84,6 +85,7 @@ class Settings:
     contiguity: str = "rook"  # [adjacency] contiguity: "rook" or "queen"
     links: Path | None = None  # [adjacency] links CSV (unit_a, unit_b, action)
     max_access: float = default("streets", "max_access")  # metres to the nearest street
+    feeders: FeederSettings = field(default_factory=FeederSettings)  # [feeders]
 
     @property
     def all_years(self) -> tuple[int, ...]:

@@ -37,6 +37,8 @@ KINDS: dict[str, tuple[str, str]] = {
     "level_number": ("a table of level = number", "{ high = 15000 }"),
     "level_int": ("a table of level = whole number", "{ elementary = 6 }"),
     "level_text": ("a table of level = column name", '{ elementary = "zone_el" }'),
+    "level_option": ("a table of level = saved option name",
+                     '{ elementary = "Option A" }'),
 }
 #: Utilization is a share of capacity; above this it was surely written as a percentage.
 #: 2.0 (200 %) is a choice of ours, far above the crowding any district plans for.
@@ -187,6 +189,18 @@ SCHEMA: dict[str, Table] = {
         "open_count": Key("level_int", "level = number of open sites when some are "
                           "candidates", {}, low=1),
     }),
+    "feeders": Table("feeder patterns between levels (optional): whose zones stand for a "
+                     "level, and the levels solved against a neighbouring level's zones", keys={
+        "zones": Key("level_option", "level = saved option whose zones stand for that level "
+                     "in feeder tables and feeder rules (default: today's zones)", {}),
+        "whole": Key("names", "levels solved with whole feeding: every zone of the level "
+                     "below (held fixed) lies inside one zone of this level", []),
+        "nested": Key("names", "levels solved nested: every zone of this level lies inside "
+                      "one zone of the level above (held fixed)", []),
+        "max_splits": Key("level_int", "level (one of whole) = splits allowed: each school "
+                          "of the level below feeds at most 1 + this many schools of it (0: "
+                          "whole feeding)", {}, low=0),
+    }),
     "locks": _pairs("units the board has decided: unit goes to site"),
     "forbids": _pairs("unit may not go to site"),
 }
@@ -239,7 +253,8 @@ def _convert(kind: str, v) -> tuple[bool, object]:
                                                         for x in v)
         return ok, [x.strip().lower() for x in v] if ok else v
     check = {"level_number": _is_num, "level_int": _is_int,
-             "level_text": lambda x: isinstance(x, str)}[kind]
+             "level_text": lambda x: isinstance(x, str),
+             "level_option": lambda x: isinstance(x, str) and x.strip() != ""}[kind]
     ok = isinstance(v, dict) and all(check(x) for x in v.values())
     return ok, {str(k).strip().lower(): x for k, x in v.items()} if ok else v
 

@@ -10,6 +10,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from ..travel.measures import default_measure
+from .feeders import read_feeders
 from .records import Lock, Settings, SolveSettings, Source
 from .schema import SCHEMA, check_value, default, example, suggest, table_of
 from .tomlfile import read_toml
@@ -170,6 +171,7 @@ def read_settings(path: str | Path, report) -> Settings | None:
     _check_units_columns(path, sources.get("units"), levels, report)
 
     solve = _read_solve(values, levels, report)
+    feeders = read_feeders(path, values.tables.get("feeders"), levels, report)
     locks, forbids = (tuple(Lock(e["level"].lower(), e["unit"], e["site"])
                             for e in values.tables.get(key, []) if len(e) == 3)
                       for key in ("locks", "forbids"))
@@ -181,7 +183,7 @@ def read_settings(path: str | Path, report) -> Settings | None:
         plan_year=plan_year if plan_year in years else years[0], levels=levels, store=store,
         solve=solve, locks=locks, forbids=forbids, raw=data, sources=sources,
         contiguity=get("adjacency", "contiguity"), links=values.path_of("adjacency", "links"),
-        max_access=get("streets", "max_access"),
+        max_access=get("streets", "max_access"), feeders=feeders,
     )
 
 

@@ -46,6 +46,7 @@ from .. import DRAFT_NOTICE
 from ..io import atomic_path, atomic_write_text
 from ..names import slug
 from ..study import Outcome, now_iso
+from .feeders import feeder_sheet
 from .sheets import about_json, csv_text, school_sheet, sidecar_name, unit_sheet
 from .store.colours import stored_school_colours
 from .tables import (
@@ -178,7 +179,9 @@ def export_all(outcome: Outcome, folder: str | os.PathLike) -> dict[str, Path]:
     """Write every export of ``outcome`` into ``folder``; return {kind: path}.
 
     Kinds: ``gpkg``, ``geojson``, ``shapefile`` (zip), ``units_csv``, ``schools_csv``,
-    ``units_about`` and ``schools_about`` (the CSVs' sidecars). File names start with
+    ``feeders_csv`` (where each school's students go at the neighbouring level), and
+    ``units_about``, ``schools_about``, ``feeders_about`` (the CSVs' sidecars). File names
+    start with
     :func:`slug` of the option name.
     """
     require_plan(outcome, "export")
@@ -192,9 +195,10 @@ def export_all(outcome: Outcome, folder: str | os.PathLike) -> dict[str, Path]:
         "shapefile": folder / f"{stem}_zones_shp.zip",
         "units_csv": folder / f"{stem}_units.csv",
         "schools_csv": folder / f"{stem}_schools.csv",
+        "feeders_csv": folder / f"{stem}_feeders.csv",
     }
-    paths["units_about"] = folder / sidecar_name(paths["units_csv"].name)
-    paths["schools_about"] = folder / sidecar_name(paths["schools_csv"].name)
+    for kind in ("units", "schools", "feeders"):
+        paths[f"{kind}_about"] = folder / sidecar_name(paths[f"{kind}_csv"].name)
     colours = stored_school_colours(outcome.inputs, outcome.level)
     zones = zones_frame(outcome)
     zones.insert(len(zones.columns) - 1, "colour", zones["site_id"].map(colours).fillna(""))
@@ -230,7 +234,8 @@ def export_all(outcome: Outcome, folder: str | os.PathLike) -> dict[str, Path]:
 
     _write_shapefile_zip(zones, paths["shapefile"], record)
     for kind, (sheet, notes) in (("units", unit_sheet(outcome)),
-                                 ("schools", school_sheet(outcome, colours))):
+                                 ("schools", school_sheet(outcome, colours)),
+                                 ("feeders", feeder_sheet(outcome))):
         atomic_write_text(paths[f"{kind}_csv"], csv_text(sheet))
         atomic_write_text(paths[f"{kind}_about"], about_json(record, notes))
     return paths

@@ -17,7 +17,8 @@ units whose school differs. Then for each option:
    cell where a school is above or below its band, students moving in and out, mean and
    longest travel;
 3. where students move: the from -> to pairs with students, and a map of the changed
-   areas numbered as in the table.
+   areas numbered as in the table;
+4. the feeder pattern (:mod:`.packet_feeders`), when a neighbouring level has zones.
 
 Every school has its stored colour
 (:func:`districting.outputs.store.stored_school_colours`) on every map of every option.
@@ -45,6 +46,7 @@ from .. import DRAFT_NOTICE  # noqa: E402
 from ..io import atomic_path  # noqa: E402
 from ..study import Outcome, now_iso  # noqa: E402
 from .packet_compare import difference_pages, moves_pages, side_by_side_page  # noqa: E402
+from .packet_feeders import feeder_pages  # noqa: E402
 from .packet_layout import (  # noqa: E402
     PAPER,
     PNG_DPI,
@@ -234,6 +236,7 @@ def packet_figures(outcomes: Sequence[Outcome], paper: str = "letter",
         pages.append(_map_page(o, d, paper, stamp, start))
         pages += _table_pages(o, paper, stamp, first + len(pages))
         pages += _moves_pages(o, d, paper, stamp, first + len(pages))
+        pages += feeder_pages(o, paper, stamp, first + len(pages))
         where.append(f"{start}-{first + len(pages) - 1}")
     if len(outcomes) > 1:
         pages.insert(0, _summary_page(outcomes, where, paper, stamp, compared))

@@ -20,7 +20,7 @@ def test_json_lines_per_level_and_messages_on_stderr(tmp_path, town):
     assert code == 0, err
     records = [json.loads(line) for line in out.splitlines()]  # nothing else on stdout
     assert [r["level"] for r in records] == ["elementary", "middle"]
-    assert "wrote 7 files" in err and "mean travel" in err
+    assert "wrote 9 files" in err and "mean travel" in err
     for r in records:
         assert r["status"] == "optimal"
         assert r["bound"] <= r["objective"] + 1e-6

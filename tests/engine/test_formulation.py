@@ -35,6 +35,17 @@ def rooted_problem() -> Problem:
                                stability_weight=0.5, max_moved=12.0)
 
 
+def whole_feeding_problem() -> Problem:
+    """The rooted case with whole feeding from three lower zones (rows x[i, j] = x[r_g, j])."""
+    groups = np.array([0, 0, 1, 1, 0, 2, 2, 1, 0, 2, 2, 1])
+    return rooted_problem().replace(feeder_groups=groups, feeder_rule="whole")
+
+
+def split_problem() -> Problem:
+    """The rooted case where each of three lower zones may feed two sites (z columns)."""
+    return whole_feeding_problem().replace(feeder_splits=1)
+
+
 def highs_rows(route: HighsRoute):
     """(dense A, row lower, row upper, cost, col lower, col upper) as highspy holds them."""
     lp = route.h.getLp()
@@ -53,9 +64,10 @@ def pyomo_rows(model, route: HighsRoute):
     variable x[i, j] / y[j] put in the column the HiGHS route gave that pair / site."""
     col = {id(model.x[i, j]): int(route.colmap[i, j]) for i, j in model.P}
     col.update({id(model.y[j]): int(route.ycol[j]) for j in model.J if route.ycol[j] >= 0})
+    col.update({id(model.z[k]): int(c) for k, c in enumerate(route.formulation.zcol)})
     ncol = route.ncol
     variables = [None] * ncol
-    for v in list(model.x.values()) + list(model.y.values()):
+    for v in list(model.x.values()) + list(model.y.values()) + list(model.z.values()):
         if id(v) in col:
             variables[col[id(v)]] = v
     rows, lo, hi = [], [], []
@@ -79,7 +91,8 @@ def pyomo_rows(model, route: HighsRoute):
     return np.array(rows), np.array(lo), np.array(hi), cost, lb, ub
 
 
-@pytest.mark.parametrize("make", [rich_problem, rooted_problem])
+@pytest.mark.parametrize("make", [rich_problem, rooted_problem, whole_feeding_problem,
+                                  split_problem])
 def test_highs_and_pyomo_routes_hold_the_same_matrix(make):
     problem = make()
     route = HighsRoute(problem)
@@ -97,6 +110,24 @@ def test_every_family_is_written_on_the_rooted_case():
     fams = {b.family for b in f.blocks if b.n_rows}
     assert fams == {"assignment", "linking", "count", "roots", "capacity", "floor", "cover",
                     "max_moved"}
+
+
+def test_whole_feeding_rows_tie_each_unit_to_its_zone_representative():
+    f = formulate(whole_feeding_problem())
+    block = next(b for b in f.blocks if b.family == "feeder")
+    # 12 units in 3 zones: 9 units besides the representatives, each with a row per site
+    # either pair may use (all 3 here)
+    assert block.n_rows == 27
+    assert (block.lo == 0).all() and (block.hi == 0).all()
+
+
+def test_split_limit_adds_a_column_per_zone_and_site_and_a_row_per_zone():
+    f = formulate(split_problem())
+    block = next(b for b in f.blocks if b.family == "splits")
+    assert len(f.zcol) == 9  # 3 zones x 3 sites, after the x and y columns
+    assert f.zcol.min() == f.n_pairs + int((f.ycol >= 0).sum())
+    assert block.n_rows == f.n_pairs + 3  # x <= z per pair, then one limit per zone
+    assert (block.hi[-3:] == 2).all()
 
 
 def test_separator_rows_are_the_same_in_both_routes():

@@ -41,7 +41,7 @@ def exported(tmp_path_factory):
 def test_files_and_names(exported):
     outcome, paths = exported
     assert set(paths) == {"gpkg", "geojson", "shapefile", "units_csv", "schools_csv",
-                          "units_about", "schools_about"}
+                          "feeders_csv", "units_about", "schools_about", "feeders_about"}
     assert all(p.exists() and p.stat().st_size > 0 for p in paths.values())
     assert paths["gpkg"].name == "option-a-close-quillmere.gpkg"
     assert not list(paths["gpkg"].parent.glob(".tmp-*"))  # atomic writes leave nothing

@@ -71,7 +71,7 @@ def test_downloads_are_named_after_the_saved_option(inputs):
     assert len(pd.read_csv(csv, comment="#")) == 140
     # each CSV's sidecar sits beside it, under the CSV's name (districting.outputs.sheets)
     names = {b.filename for b in panel.buttons}
-    for table in ("units", "schools"):
+    for table in ("units", "schools", "feeders"):
         assert f"hearing-option-b-middle-{table}.about.json" in names
         about = json.loads(open(panel._make(f"{table}_about"), encoding="utf-8").read())
         assert about["option"] == "Hearing option B" and about["columns"]
@@ -133,3 +133,10 @@ def test_the_change_tables_read_as_the_sheets_do(inputs):
     assert "nan" not in changes.astype(str).to_numpy()
     flows = view.flows.value
     assert sum(int(v.replace(",", "")) for v in flows["Planning units"]) == len(frame)
+    # the feeder table on screen is the feeder CSV's, as text
+    from districting.outputs.feeders import feeder_sheet
+
+    sheet, _notes = feeder_sheet(st.on_screen())
+    shown = view.feeders.value
+    assert len(shown) == len(sheet)
+    assert list(shown.columns) == [c for c in sheet.columns if c != "Zones of the other level"]

@@ -26,6 +26,9 @@ class DownloadsPanel(pn.viewable.Viewer):
         ("schools_csv", "CSV: per-school summary", "csv"),
         ("schools_about", "About the school CSV: its columns and the option (JSON)",
          "about.json"),
+        ("feeders_csv", "CSV: feeder pattern (where students go next level)", "csv"),
+        ("feeders_about", "About the feeder CSV: its columns and the option (JSON)",
+         "about.json"),
         ("packet", "Hearing packet (PDF)", "pdf"),
     )
 
@@ -50,7 +53,8 @@ class DownloadsPanel(pn.viewable.Viewer):
             f"{out.name or 'unsaved-result'}-{out.level}")
         for (kind, _label, ext), b in zip(self.KINDS, self.buttons, strict=True):
             suffix = {"units_csv": "-units", "units_about": "-units", "schools_csv": "-schools",
-                      "schools_about": "-schools", "packet": "-packet"}.get(kind, "")
+                      "schools_about": "-schools", "feeders_csv": "-feeders",
+                      "feeders_about": "-feeders", "packet": "-packet"}.get(kind, "")
             b.filename = f"{base}{suffix}.{ext}"
             b.disabled = out is None
         self.note.object = (

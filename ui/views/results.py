@@ -1,10 +1,12 @@
-"""The Changes tab: headline figures and the units whose school differs."""
+"""The Changes tab: headline figures, the units whose school differs and the feeder
+pattern (where each school's students go at the neighbouring level)."""
 
 from __future__ import annotations
 
 import pandas as pd
 import panel as pn
 
+from districting.outputs.feeders import feeder_sheet
 from districting.outputs.sheets import for_people, whole_numbers
 
 from ..session import Session
@@ -13,7 +15,18 @@ from ..store import TODAY
 from ..text import esc as _esc
 from ..text import status_text
 
-__all__ = ["ResultsView", "outside_band"]
+__all__ = ["ResultsView", "outside_band", "feeder_rows"]
+
+
+def feeder_rows(outcome) -> tuple[pd.DataFrame, str]:
+    """The feeder table as the CSV has it (:func:`districting.outputs.feeders.feeder_sheet`,
+    as text), and a note: "" or why there is no table (a named option the store lacks)."""
+    try:
+        sheet, _notes = feeder_sheet(outcome)
+    except ValueError as exc:
+        return pd.DataFrame(), f"No feeder table: {exc}"
+    note = "" if len(sheet) else "No feeder table: the neighbouring levels have no zones."
+    return for_people(sheet.drop(columns=["Zones of the other level"])), note
 
 
 def outside_band(sites: pd.DataFrame) -> list[str]:
@@ -57,6 +70,11 @@ class ResultsView(pn.viewable.Viewer):
                                             disabled=True, show_index=False, height=300,
                                             pagination=None, sizing_mode="stretch_width",
                                             css_classes=["changes-table"])
+        self.feeders = pn.widgets.Tabulator(pd.DataFrame(), name="feeders-table",
+                                            disabled=True, show_index=False, height=260,
+                                            pagination=None, sizing_mode="stretch_width",
+                                            css_classes=["feeders-table"])
+        self.feeder_note = pn.pane.HTML("", css_classes=["feeders-note"])
         state.param.watch(self._update, ["plan_version", "reference", "level",
                                          "edits_version"])
         self._update()
@@ -101,10 +119,15 @@ class ResultsView(pn.viewable.Viewer):
             "To (site id)": ch["to"], "To": ch["to_name"],
             "Travel before (km)": ch["km_before"].round(2),
             "Travel after (km)": ch["km_after"].round(2)}))
+        rows, note = feeder_rows(out)
+        self.feeders.value = rows
+        self.feeder_note.object = f"<div style='font-size:12px'>{_esc(note)}</div>"
 
     def __panel__(self):
         return pn.Column(self.summary, pn.Row(pn.pane.HTML("<b>Change view against:</b>"),
                                               self.ref),
                          pn.pane.HTML("<b>Students moving, by school pair</b>"), self.flows,
                          pn.pane.HTML("<b>Units whose school differs</b>"), self.changes,
+                         pn.pane.HTML("<b>Feeder pattern: where each school's students go "
+                                      "at the next level</b>"), self.feeder_note, self.feeders,
                          sizing_mode="stretch_width")

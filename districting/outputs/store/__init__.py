@@ -14,6 +14,7 @@ from .options import (
     load_option,
     metrics_to_dict,
     option_settings,
+    option_zones,
     rename_option,
     save_option,
 )
@@ -33,7 +34,8 @@ from .workbench import StateConflict, load_state, save_state, state_keys, state_
 
 __all__ = [
     "OptionInfo", "OptionError", "save_option", "list_options", "load_option",
-    "delete_option", "rename_option", "option_settings", "save_state", "load_state",
+    "delete_option", "rename_option", "option_settings", "option_zones", "save_state",
+    "load_state",
     "state_record", "state_keys", "StateConflict", "StoreDamaged", "check_option_name",
     "store_problem", "repair_store", "tidy_store", "metrics_to_dict", "OPTIONS_TABLE",
     "ASSIGNMENTS_TABLE", "STATE_TABLE", "ZONES_LAYER", "COLOURS_TABLE",

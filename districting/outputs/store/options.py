@@ -37,7 +37,8 @@ from .storefile import (
 )
 
 __all__ = ["OptionInfo", "save_option", "list_options", "load_option", "delete_option",
-           "rename_option", "option_settings", "check_option_name", "metrics_to_dict"]
+           "rename_option", "option_settings", "option_zones", "check_option_name",
+           "metrics_to_dict"]
 
 _PLAN_FIELDS = ("status", "objective", "bound", "gap", "rounds", "cuts", "message", "route",
                 "build_seconds", "solve_seconds")
@@ -270,6 +271,14 @@ def option_settings(store_path: str | os.PathLike, name: str) -> RunSettings:
     """The run settings an option was made with (to re-run or edit it)."""
     row, _ = _fetch(Path(store_path), _lookup_name(name))
     return RunSettings.from_dict(json.loads(row["settings_json"]))
+
+
+def option_zones(store_path: str | os.PathLike, name: str) -> tuple[str, dict[str, str]]:
+    """(level, unit id -> site id) of a saved option, without rebuilding it (feeder tables
+    and rules read only its zones). Raises :class:`OptionError` for an unknown name."""
+    row, pairs = _fetch(Path(store_path), _lookup_name(name))
+    level = json.loads(row["settings_json"]).get("level", "")
+    return str(level), {u: s for u, s in pairs.items() if s}
 
 
 def load_option(inputs: Inputs, name: str) -> Outcome:
