@@ -70,6 +70,11 @@ class Problem:
     unit_names: tuple = field(default=())  # unit ids, for messages (empty: "unit <i>")
     site_names: tuple = field(default=())  # site names, for messages (empty: "site <j>")
     level: str = ""  # school level, for messages
+    walk: np.ndarray | None = None  # (n, m) bool: within walking distance; None: no walk zone
+    max_transported: float | None = None  # at most this many plan-year students beyond walk
+    groups: np.ndarray | None = None  # (G, T, n) group students per demand row; NaN: no band
+    group_band: float = 0.0  # each school's group share within the district's +- this; 0: none
+    group_names: tuple = field(default=())  # names of the groups, for messages
 
     # ------------------------------------------------------------------ constructors
     @classmethod
@@ -96,6 +101,11 @@ class Problem:
         unit_names: Iterable = (),
         site_names: Iterable = (),
         level: str = "",
+        walk=None,
+        max_transported: float | None = None,
+        groups=None,
+        group_band: float = 0.0,
+        group_names: Iterable = (),
     ) -> Problem:
         """Make a problem from arrays.
 
@@ -107,6 +117,11 @@ class Problem:
         included; ``None`` opens every site that is not closed. With ``edges`` every zone
         must be connected in that graph and hold its site's root unit; ``roots`` defaults
         to ``arange(n)`` when units and sites are the same points (n_units == n_sites).
+        ``walk`` marks the pairs within walking distance; ``max_transported`` caps the
+        plan-year students assigned beyond it. ``groups`` (G, T, n) holds each group's
+        students per demand row (NaN rows: no band that year); with ``group_band`` > 0
+        every open school's share of each group stays within ``group_band`` of the
+        district's share of that row.
         """
         cost = np.array(cost, dtype=float)
         if cost.ndim != 2:
@@ -158,6 +173,14 @@ class Problem:
         if cur.shape != (n,):
             raise ValueError(f"current must have shape ({n},)")
         dist = None if distance is None else _as_float_array("distance", distance, (n, m))
+        walk_arr = None if walk is None else np.asarray(walk, bool)
+        if walk_arr is not None and walk_arr.shape != (n, m):
+            raise ValueError(f"walk must have shape ({n}, {m})")
+        if max_transported is not None and walk_arr is None:
+            raise ValueError("max_transported needs walk (the pairs within walking distance)")
+        grp = None if groups is None else np.asarray(groups, float)
+        if grp is not None and (grp.ndim != 3 or grp.shape[1:] != demand.shape):
+            raise ValueError(f"groups must have shape (groups, {demand.shape[0]}, {n})")
         prob = cls(
             cost=cost,
             demand=demand,
@@ -179,6 +202,11 @@ class Problem:
             unit_names=tuple(unit_names),
             site_names=tuple(site_names),
             level=level,
+            walk=walk_arr,
+            max_transported=None if max_transported is None else float(max_transported),
+            groups=grp,
+            group_band=float(group_band),
+            group_names=tuple(group_names),
         )
         prob._freeze()
         return prob
@@ -278,6 +306,12 @@ class Problem:
                 return False
         elif self.capacity is not None and (self.min_util > 0).any():
             return False  # floors without a cap on the other side: compare nothing loosely
+        if not (_same_array(self.walk, other.walk) and _same_array(self.groups, other.groups)
+                and self.group_band == other.group_band):
+            return False
+        if other.max_transported is not None and (
+                self.max_transported is None or self.max_transported > other.max_transported):
+            return False
         if other.max_moved is not None:
             if self.max_moved is None or self.max_moved > other.max_moved:
                 return False

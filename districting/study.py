@@ -54,6 +54,9 @@ class RunSettings:
     site_min_util: dict[str, float] = field(default_factory=dict)
     locks: dict[str, str] = field(default_factory=dict)
     forbids: dict[str, list[str]] = field(default_factory=dict)
+    keep_walkers: bool | None = None  # [walking] keep_walkers
+    max_transported: float | None = None  # students beyond walking distance; 0 = no limit
+    group_band: float | None = None  # percentage points; 0 = shares reported, no band
 
     def to_dict(self) -> dict:
         return dataclasses.asdict(self)
@@ -100,6 +103,9 @@ def resolved(inputs: Inputs, rs: RunSettings) -> RunSettings:
         travel=pick(rs.travel, d.travel),
         locks=locks,
         forbids=forbids,
+        keep_walkers=pick(rs.keep_walkers, s.walking.keep_walkers),
+        max_transported=pick(rs.max_transported, s.walking.max_transported.get(rs.level, 0.0)),
+        group_band=pick(rs.group_band, s.groups.band_points),
     )
     check_run({key: getattr(full, key) for key in RUN_KEYS}, f"{rs.level} run settings")
     return full
@@ -189,6 +195,10 @@ def build_problem(inputs: Inputs, rs: RunSettings) -> tuple[Problem, np.ndarray]
     for uid, sids in rs.forbids.items():
         for sid in sids:
             forbidden[unit_index(uid, "forbid"), site_index(sid, "forbid")] = True
+    walk = walk_pairs(inputs, rs, distance)
+    if walk is not None and rs.keep_walkers:
+        forbidden |= rules.walkers_forbidden(walk, open_sites if p is not None else ~closed)
+        forbidden[roots, np.arange(len(rows))] = False
     locks = {
         unit_index(u, "lock"): site_index(s, f"lock of unit {u}") for u, s in rs.locks.items()
     }
@@ -224,8 +234,29 @@ def build_problem(inputs: Inputs, rs: RunSettings) -> tuple[Problem, np.ndarray]
         unit_names=unit_ids,
         site_names=[f"{n} ({s})" for n, s in zip(sites["name"], site_ids, strict=True)],
         level=rs.level,
+        walk=walk,
+        max_transported=float(rs.max_transported) if rs.max_transported and walk is not None
+        else None,
+        **group_arrays(inputs, rs.level, years, float(rs.group_band or 0.0)),
     )
     return problem, rows
+
+
+def walk_pairs(inputs: Inputs, rs: RunSettings, distance: np.ndarray) -> np.ndarray | None:
+    """(n, m) bool: pairs within the level's walking distance along the run's travel
+    measure; None when the level has no walk zone."""
+    metres = inputs.settings.walking.distance.get(rs.level, 0.0)
+    return distance <= metres if metres > 0 else None
+
+
+def group_arrays(inputs: Inputs, level: str, years: tuple, band_points: float) -> dict:
+    """The Problem's group fields: counts per demand row, band as a share, names."""
+    counts = inputs.groups.get(level)
+    if counts is None or not len(counts):
+        return {}
+    rows = [inputs.year_row(y) for y in years]
+    return {"groups": counts[:, rows, :], "group_band": band_points / 100.0,
+            "group_names": inputs.settings.groups.names}
 
 
 @dataclass(frozen=True, eq=False)

@@ -18,7 +18,7 @@ import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 
 from ..problem import Problem
-from ..rules import open_sites
+from ..rules import district_shares, group_shares, open_sites, transported
 
 __all__ = [
     "UnitGraph",
@@ -223,10 +223,24 @@ def plan_checks(problem: Problem, assignment: np.ndarray, graph: UnitGraph | Non
             out.append("below minimum utilization")
     if problem.max_moved is not None and moved_students(problem, a) > problem.max_moved + _TOL:
         out.append("too many students moved")
+    out += practice_checks(problem, a, opened)
     if contiguity and problem.contiguous:
         g = graph or UnitGraph.of(problem)
         if fragments(problem, g, a):
             out.append("a zone is not connected")
+    return out
+
+
+def practice_checks(problem: Problem, a: np.ndarray, opened: np.ndarray) -> list[str]:
+    """The transport cap and the group band (keeping walkers is a forbidden pair)."""
+    out = []
+    if (problem.max_transported is not None
+            and transported(problem, a).sum() > problem.max_transported + _TOL):
+        out.append("too many students need transport")
+    if problem.groups is not None and problem.group_band > 0:
+        off = np.abs(group_shares(problem, a) - district_shares(problem)[:, :, None])
+        if np.any(opened & (off > problem.group_band + _TOL)):
+            out.append("a school's group share is outside its band")
     return out
 
 
