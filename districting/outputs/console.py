@@ -8,6 +8,7 @@ import logging
 import math
 import sys
 
+from .practice import practice_lines
 from .wording import gap_words, plan_lines, solver_details
 
 __all__ = ["Progress", "plan_summary", "solve_record"]
@@ -53,6 +54,7 @@ def plan_summary(outcome) -> str:
     lines = [f"  {line}" if k == 0 else f"    {line}"
              for k, line in enumerate(plan_lines(outcome))]
     lines.append(f"    {outcome.travel_line}")
+    lines += [f"    {line}" for line in practice_lines(outcome)]
     if plan.message:
         lines.append("    " + plan.message.replace("\n", "\n    "))
     _log.info("%s %s: %s", outcome.level, outcome.name or "(unsaved)", solver_details(plan))

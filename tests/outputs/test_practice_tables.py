@@ -1,0 +1,78 @@
+"""Walk, transport and group-share columns of the school table, its CSV and the summary.
+
+Expected values are recomputed here by plain loops over units (straight-line distances from
+the unit points, as the invented grid town has no barriers or streets), apart from the
+code under test.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+
+import numpy as np
+import shapely
+from exports_town import make_outcome, make_town
+
+from districting.intake.records import GroupSettings, WalkSettings
+from districting.outputs.console import plan_summary
+from districting.outputs.sheets import school_sheet
+from districting.outputs.tables import school_table
+
+WALK = 600.0
+
+
+def practice_town(tmp_path, band=0.0):
+    inputs = make_town(tmp_path)
+    counts = inputs.counts["elementary"]
+    # an invented group: every third student, rounded down, in each unit and year
+    group = np.floor(counts / 3)[None]
+    settings = dataclasses.replace(
+        inputs.settings, walking=WalkSettings(distance={"elementary": WALK}),
+        groups=GroupSettings(("meal_support_{year}",), band))
+    return dataclasses.replace(inputs, settings=settings, groups={"elementary": group})
+
+
+def test_school_table_counts_walkers_transport_and_group_shares_by_hand(tmp_path):
+    inputs = practice_town(tmp_path)
+    out = make_outcome(inputs)
+    t = school_table(out)
+    pts = shapely.get_coordinates(inputs.units["point"].to_numpy())
+    xy = shapely.get_coordinates(inputs.sites.geometry.to_numpy())
+    a = out.assignment
+    counts, group = inputs.counts["elementary"], inputs.groups["elementary"][0]
+    for year in (2027, 2029):
+        row = inputs.year_row(year)
+        for j in range(len(xy)):
+            walk = ride = members = students = 0.0
+            for i in range(len(a)):
+                if a[i] != j:
+                    continue
+                d = float(np.hypot(*(pts[i] - xy[j])))
+                if d <= WALK:
+                    walk += counts[row, i]
+                else:
+                    ride += counts[row, i]
+                members += group[row, i]
+                students += counts[row, i]
+            assert t.loc[j, f"walkers_{year}"] == walk
+            assert t.loc[j, f"transported_{year}"] == ride
+            assert abs(t.loc[j, f"share_meal_support_{year}"] - members / students) < 1e-12
+    assert t["walkers_2027"].sum() > 0 and t["transported_2027"].sum() > 0
+    sheet, notes = school_sheet(out)
+    assert "Students needing transport 2028" in sheet.columns
+    assert "Share of meal_support 2028 (%)" in notes
+    assert "600 m" in notes["Students within walking distance 2027"]
+    assert sheet["Students needing transport 2027"].sum() == t["transported_2027"].sum()
+
+
+def test_the_summary_says_walkers_transport_and_group_shares(tmp_path):
+    out = make_outcome(practice_town(tmp_path, band=15.0))
+    text = plan_summary(out)
+    rides = school_table(out)["transported_2027"].sum()
+    assert f"{rides:,.0f} need transport" in text
+    assert "meal_support" in text and "15 points either side" in text
+
+
+def test_without_walking_or_groups_the_table_keeps_its_columns(tmp_path):
+    t = school_table(make_outcome(make_town(tmp_path)))
+    assert not [c for c in t.columns if c.startswith(("walkers_", "transported_", "share_"))]
