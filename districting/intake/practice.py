@@ -33,13 +33,19 @@ def read_walking(path: Path, raw: dict, get: Callable, levels, report) -> WalkSe
     """[walking] with defaults (the default distances of levels the project lacks are
     dropped silently; a level the planner wrote must exist)."""
     written = raw if isinstance(raw, dict) else {}
-    return WalkSettings(
+    walking = WalkSettings(
         distance=_levels_only(path, dict(get("walking", "distance")), "distance", levels,
                               "distance" in written, report),
         keep_walkers=bool(get("walking", "keep_walkers")),
         max_transported=_levels_only(path, dict(get("walking", "max_transported")),
                                      "max_transported", levels, True, report),
     )
+    for level, cap in walking.max_transported.items():
+        if cap and not walking.distance.get(level):
+            report.error(path, "[walking] max_transported", f"a limit on {level} students "
+                         f"needing transport, but {level} has no walking distance",
+                         f"set [walking] distance for {level}, or remove its limit")
+    return walking
 
 
 def read_groups(path: Path, get: Callable, levels, report) -> GroupSettings:
