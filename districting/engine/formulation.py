@@ -35,7 +35,7 @@ from .tuning import LINK_LIMIT, TOL
 __all__ = ["RowBlock", "Formulation", "formulate", "separator_rows", "ELASTIC_FAMILIES"]
 
 #: Families that can be built with a slack (``elastic=``).
-ELASTIC_FAMILIES = ("capacity", "floor", "locks", "max_moved")
+ELASTIC_FAMILIES = ("capacity", "floor", "locks", "max_moved", "transport", "groups")
 
 
 @dataclass(frozen=True)

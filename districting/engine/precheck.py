@@ -16,6 +16,7 @@ from scipy.sparse.csgraph import breadth_first_order
 
 from ..problem import Problem
 from .findings import Finding, plural, students
+from .precheck_practice import practice_issues
 
 __all__ = ["precheck", "unbuildable", "reachable"]
 
@@ -85,6 +86,7 @@ def precheck(problem: Problem) -> list[Finding]:
     reasons += _floor_issues(problem, reach)
     reasons += _lock_reach_issues(problem, reach)
     reasons += _island_issues(problem, reach)
+    reasons += practice_issues(problem, None if problem.capacity is None else _seats(problem))
     return reasons
 
 

@@ -123,3 +123,43 @@ def test_the_independent_checker_catches_broken_walk_transport_and_group_rules()
     assert [(f.site, f.year) for f in found] == [(1, 0)]
     assert "65.0% meal_support" in found[0].message
     assert not check_plan(banded, [0, 0, 1, 1, 1])
+
+
+def test_no_plan_names_the_transport_limit_in_whole_students():
+    from districting.engine.diagnose import diagnose
+
+    # unit 2 (2 students) lies 2 km from both schools: at least 2 students ride
+    found = diagnose(transport_town(cap=1))
+    assert [f.rule for f in found] == ["transport"]
+    assert "at least 2 students" in found[0].text and "is 1." in found[0].text
+    assert "at least 2" in found[0].fix
+
+
+def test_no_plan_names_the_school_that_cannot_seat_its_walkers():
+    from districting.engine.diagnose import diagnose
+
+    # units 0 (2 students) and 1 (5) walk to A only; A seats 6: one student over
+    base = line_town().replace(capacity=np.array([6.0, 100.0]))
+    walk = base.distance <= 1500
+    keep = base.replace(walk=walk, forbidden=walkers_forbidden(walk, np.ones(2, bool)))
+    found = diagnose(keep)
+    assert [f.rule for f in found] == ["walkers"]
+    assert "site 0" in found[0].text and "7 students" in found[0].text
+    assert "1 student over its limit of 6" in found[0].text
+
+
+def test_no_plan_names_the_group_band_school_year_and_students():
+    from districting.engine.diagnose import diagnose
+    from districting.engine.findings import no_plan_text
+
+    # District share 44 %, band 2 points: 42-46 %. Connected, A's zone holds at most
+    # 37.5 % (A = 0..3: 15/40), so no plan (unconnected zones could meet it: the band
+    # conflicts with contiguity). Least total shortfall by hand: A = {0}: 3 of 10 against
+    # 4.2 (1.2 short), B = 19 of 40 against 18.4 (0.6 over): 1.8 in all; A = {0, 1}: 2.4
+    # + 2.2; A = {0, 1, 2}: 3.6 + 3.8. So A needs 1.2 (about 2) more, B 0.6 (about 1) fewer.
+    found = diagnose(group_town(0.02))
+    assert [f.rule for f in found] == ["groups", "groups", "contiguity"]
+    assert found[0].text == ("site 0 in plan year would need about 2 more meal_support "
+                             "students to stay within 2 points of the district's share.")
+    assert found[1].text.startswith("site 1 in plan year would need about 1 fewer")
+    assert "cannot stay inside the group band" in no_plan_text(found)
