@@ -19,7 +19,7 @@ import numpy as np
 from . import rules
 from .engine import Session
 from .intake import Inputs
-from .intake.schema import RUN_KEYS, check_run
+from .intake.schema import RUN_KEYS, check_run, check_value
 from .plan import Plan, PlanMetrics, plan_metrics
 from .problem import Problem
 from .travel.measures import distance_note, measure_line
@@ -108,7 +108,20 @@ def resolved(inputs: Inputs, rs: RunSettings) -> RunSettings:
         group_band=pick(rs.group_band, s.groups.band_points),
     )
     check_run({key: getattr(full, key) for key in RUN_KEYS}, f"{rs.level} run settings")
+    check_practice_run(full)
     return full
+
+
+def check_practice_run(rs: RunSettings) -> None:
+    """Refuse a run's transport limit or group band that the project file would refuse."""
+    problems = []
+    for table, key, value in (("walking", "max_transported", {rs.level: rs.max_transported}),
+                              ("groups", "band_points", rs.group_band)):
+        _v, problem, fix = check_value(table, key, value)
+        if problem is not None:
+            problems.append(f"{problem}; fix: {fix}")
+    if problems:
+        raise ValueError(f"{rs.level} run settings: " + "; ".join(problems))
 
 
 def level_sites(inputs: Inputs, level: str) -> np.ndarray:
