@@ -34,11 +34,11 @@ from .geometry import (
     units_from_cells,
     voronoi_cells,
 )
+from .groups import group_counts
 from .schools import (
     sites_and_zones,
     student_counts,
 )
-from .groups import group_counts
 from .streets import street_network
 
 
