@@ -24,8 +24,10 @@ WALK = 600.0
 def practice_town(tmp_path, band=0.0):
     inputs = make_town(tmp_path)
     counts = inputs.counts["elementary"]
-    # an invented group: every third student, rounded down, in each unit and year
-    group = np.floor(counts / 3)[None]
+    # an invented group, more common eastwards: a tenth of the students per grid column
+    # (10 columns, units numbered row by row), rounded down
+    east = (np.arange(counts.shape[1]) % 10) / 10
+    group = np.floor(counts * east[None, :])[None]
     settings = dataclasses.replace(
         inputs.settings, walking=WalkSettings(distance={"elementary": WALK}),
         groups=GroupSettings(("meal_support_{year}",), band))
