@@ -83,7 +83,7 @@ def test_without_walking_or_groups_the_table_keeps_its_columns(tmp_path):
 def test_the_packet_page_lists_walkers_transport_and_shades_shares_outside_the_band(tmp_path):
     from districting.outputs.packet_practice import practice_pages, practice_rows
 
-    out = make_outcome(practice_town(tmp_path, band=1.0))
+    out = make_outcome(practice_town(tmp_path, band=20.0))
     t = school_table(out)
     header, rows, flags = practice_rows(out)
     assert header[:3] == ["School", "Walk\n2027", "Transport\n2027"]
@@ -93,9 +93,9 @@ def test_the_packet_page_lists_walkers_transport_and_shades_shares_outside_the_b
     row = out.inputs.year_row(2027)
     district = group[row].sum() / counts[row].sum()
     assert rows[-1][3] == f"{100 * district:.1f}%"
-    # a school is shaded exactly when its share is more than 1 point from the district's
+    # a school is shaded exactly when its share is more than 20 points from the district's
     for k, (_, r) in enumerate(t[t["open"]].iterrows()):
-        outside = abs(r["share_meal_support_2027"] - district) > 0.01
+        outside = abs(r["share_meal_support_2027"] - district) > 0.20
         assert (flags[k][3] == "over") == outside
     assert any(f[3] == "over" for f in flags[:-1]) and any(f[3] == "" for f in flags[:-1])
     assert len(practice_pages(out, "letter", "2026-12-03", 5)) == 1
