@@ -44,6 +44,7 @@ def test_a_unit_within_walking_distance_stays_in_that_schools_zone():
     assert solve(base).tolist() == [0, 1, 1, 1, 1]
     keep = base.replace(forbidden=walkers_forbidden(walk, np.ones(2, bool)))
     plan = Session(keep).solve(0.0, 30)
+    assert plan.status == "optimal" and plan.bound == plan.objective
     assert plan.assignment.tolist() == [0, 0, 1, 1, 1]
     assert plan.objective == 36000.0
 
@@ -75,6 +76,7 @@ def test_a_cap_on_transported_students_pulls_the_boundary():
     assert transported(transport_town(), free).sum() == 7
     capped = transport_town(cap=6)
     plan = Session(capped).solve(0.0, 30)
+    assert plan.status == "optimal" and plan.bound == plan.objective  # proven by the model
     assert plan.assignment[:2].tolist() == [0, 0]
     assert plan.objective == 11000.0
     assert transported(capped, plan.assignment).sum() == 2
@@ -96,6 +98,7 @@ def test_a_group_band_pulls_a_boundary():
     assert solve(group_town()).tolist() == [0, 0, 0, 1, 1]
     banded = group_town(0.15)
     plan = Session(banded).solve(0.0, 30)
+    assert plan.status == "optimal" and plan.bound == plan.objective
     assert plan.assignment.tolist() == [0, 0, 1, 1, 1]
     assert plan.objective == 10 * (1000 + 2100 + 1000)
     shares = group_shares(banded, plan.assignment)[0, 0]
