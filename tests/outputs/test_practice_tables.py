@@ -99,3 +99,26 @@ def test_the_packet_page_lists_walkers_transport_and_shades_shares_outside_the_b
         assert (flags[k][3] == "over") == outside
     assert any(f[3] == "over" for f in flags[:-1]) and any(f[3] == "" for f in flags[:-1])
     assert len(practice_pages(out, "letter", "2026-12-03", 5)) == 1
+
+
+def test_every_export_carries_the_walk_transport_and_group_columns(tmp_path):
+    import zipfile
+
+    import geopandas as gpd
+
+    from districting.outputs.exports import export_all, read_export_csv
+
+    out = make_outcome(practice_town(tmp_path))
+    paths = export_all(out, tmp_path / "exports")
+    t = school_table(out)
+    schools, record = read_export_csv(paths["schools_csv"])
+    assert schools["Students needing transport 2029"].sum() == t["transported_2029"].sum()
+    assert "beyond 600 m" in record["columns"]["Students needing transport 2029"]
+    geojson = gpd.read_file(paths["geojson"])
+    assert {"walkers_2027", "transported_2027", "share_meal_support_2027"} <= set(
+        geojson.columns)
+    shp = gpd.read_file(f"zip://{paths['shapefile']}")
+    assert {"wk_2027", "tr_2027", "g1_2027"} <= set(shp.columns)
+    with zipfile.ZipFile(paths["shapefile"]) as zf:
+        readme = zf.read("README.txt").decode()
+    assert "g1_2027" in readme and "share of meal_support" in readme
