@@ -122,3 +122,24 @@ def test_every_export_carries_the_walk_transport_and_group_columns(tmp_path):
     with zipfile.ZipFile(paths["shapefile"]) as zf:
         readme = zf.read("README.txt").decode()
     assert "g1_2027" in readme and "share of meal_support" in readme
+
+
+def test_verify_of_an_option_catches_a_walker_sent_beyond_walking_distance(tmp_path):
+    from districting.study import RunSettings, outcome_from_assignment
+    from districting.verify import check_plan, facts_of_outcome
+
+    inputs = practice_town(tmp_path)
+    good = make_outcome(inputs, keep_walkers=True)
+    # (the nearest-school plan of the test town breaks capacity; only walkers matter here)
+    assert not [f for f in check_plan(facts_of_outcome(good), good.assignment)
+                if f.rule == "walkers"]
+    # E01's western neighbour (250 m away) sent to E02 (three cells east, one north: 791 m)
+    root = int(inputs.sites["unit_index"].iloc[0])
+    a = good.assignment.copy()
+    a[root - 1] = 1
+    bad = outcome_from_assignment(inputs, RunSettings(level="elementary", keep_walkers=True), a)
+    found = [f for f in check_plan(facts_of_outcome(bad), a) if f.rule == "walkers"]
+    assert [f.unit for f in found] == [root - 1]
+    assert "within walking distance" in found[0].message
+    off = outcome_from_assignment(inputs, RunSettings(level="elementary", keep_walkers=False), a)
+    assert not [f for f in check_plan(facts_of_outcome(off), a) if f.rule == "walkers"]
