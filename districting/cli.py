@@ -80,6 +80,7 @@ def _run_settings(args, level: str):
         keep_walkers=args.keep_walkers,
         max_transported=args.max_transported,
         group_band=args.group_band,
+        transport_charge=args.transport_charge,
     )
 
 
@@ -384,6 +385,9 @@ def _add_practice_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--group-band", type=float, metavar="POINTS",
                    help="percentage points a school's share of each group may differ from "
                         "the district's (0: none; default: the project's [groups] band_points)")
+    p.add_argument("--transport-charge", type=float, metavar="METRES",
+                   help="metres of travel charged per student living beyond walking distance "
+                        "of their school (0: none; default: the project's [walking] value)")
 
 
 def _add_travel_option(p: argparse.ArgumentParser) -> None:

@@ -75,6 +75,7 @@ class Problem:
     groups: np.ndarray | None = None  # (G, T, n) group students per demand row; NaN: no band
     group_band: float = 0.0  # each school's group share within the district's +- this; 0: none
     group_names: tuple = field(default=())  # names of the groups, for messages
+    transport_weight: float = 0.0  # added cost per plan-year student beyond walking distance
 
     # ------------------------------------------------------------------ constructors
     @classmethod
@@ -106,6 +107,7 @@ class Problem:
         groups=None,
         group_band: float = 0.0,
         group_names: Iterable = (),
+        transport_weight: float = 0.0,
     ) -> Problem:
         """Make a problem from arrays.
 
@@ -121,7 +123,8 @@ class Problem:
         plan-year students assigned beyond it. ``groups`` (G, T, n) holds each group's
         students per demand row (NaN rows: no band that year); with ``group_band`` > 0
         every open school's share of each group stays within ``group_band`` of the
-        district's share of that row.
+        district's share of that row. ``transport_weight`` is added to the objective per
+        plan-year student assigned beyond walking distance.
         """
         cost = np.array(cost, dtype=float)
         if cost.ndim != 2:
@@ -176,7 +179,7 @@ class Problem:
         walk_arr = None if walk is None else np.asarray(walk, bool)
         if walk_arr is not None and walk_arr.shape != (n, m):
             raise ValueError(f"walk must have shape ({n}, {m})")
-        if max_transported is not None and walk_arr is None:
+        if (max_transported is not None or transport_weight) and walk_arr is None:
             raise ValueError("max_transported needs walk (the pairs within walking distance)")
         grp = None if groups is None else np.asarray(groups, float)
         if grp is not None and (grp.ndim != 3 or grp.shape[1:] != demand.shape):
@@ -207,6 +210,7 @@ class Problem:
             groups=grp,
             group_band=float(group_band),
             group_names=tuple(group_names),
+            transport_weight=float(transport_weight),
         )
         prob._freeze()
         return prob
@@ -269,7 +273,8 @@ class Problem:
 
     @property
     def weighted_cost(self) -> np.ndarray:
-        """(n, m) objective coefficient of x[i, j]: d[0, i] * c[i, j] (+ stability term)."""
+        """(n, m) objective coefficient of x[i, j]: d[0, i] * c[i, j] (+ stability term, +
+        transport charge on pairs beyond walking distance)."""
         d0 = self.demand[0][:, None]
         with np.errstate(invalid="ignore"):
             w = np.where(np.isfinite(self.cost), d0 * self.cost, np.inf)
@@ -278,6 +283,8 @@ class Problem:
                 np.arange(self.n_sites)[None, :] != self.current[:, None]
             )
             w = w + self.stability_weight * d0 * moved
+        if self.transport_weight and self.walk is not None:
+            w = w + self.transport_weight * d0 * ~self.walk
         return w
 
     def is_restriction_of(self, other: Problem) -> bool:

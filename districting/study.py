@@ -57,6 +57,7 @@ class RunSettings:
     keep_walkers: bool | None = None  # [walking] keep_walkers
     max_transported: float | None = None  # students beyond walking distance; 0 = no limit
     group_band: float | None = None  # percentage points; 0 = shares reported, no band
+    transport_charge: float | None = None  # metres per student beyond walking distance
 
     def to_dict(self) -> dict:
         return dataclasses.asdict(self)
@@ -106,6 +107,7 @@ def resolved(inputs: Inputs, rs: RunSettings) -> RunSettings:
         keep_walkers=pick(rs.keep_walkers, s.walking.keep_walkers),
         max_transported=pick(rs.max_transported, s.walking.max_transported.get(rs.level, 0.0)),
         group_band=pick(rs.group_band, s.groups.band_points),
+        transport_charge=pick(rs.transport_charge, s.walking.transport_charge),
     )
     check_run({key: getattr(full, key) for key in RUN_KEYS}, f"{rs.level} run settings")
     check_practice_run(full)
@@ -116,7 +118,8 @@ def check_practice_run(rs: RunSettings) -> None:
     """Refuse a run's transport limit or group band that the project file would refuse."""
     problems = []
     for table, key, value in (("walking", "max_transported", {rs.level: rs.max_transported}),
-                              ("groups", "band_points", rs.group_band)):
+                              ("groups", "band_points", rs.group_band),
+                              ("walking", "transport_charge", rs.transport_charge)):
         _v, problem, fix = check_value(table, key, value)
         if problem is not None:
             problems.append(f"{problem}; fix: {fix}")
@@ -250,6 +253,7 @@ def build_problem(inputs: Inputs, rs: RunSettings) -> tuple[Problem, np.ndarray]
         walk=walk,
         max_transported=float(rs.max_transported) if rs.max_transported and walk is not None
         else None,
+        transport_weight=float(rs.transport_charge or 0.0) if walk is not None else 0.0,
         **group_arrays(inputs, rs.level, years, float(rs.group_band or 0.0)),
     )
     return problem, rows

@@ -39,6 +39,7 @@ def read_walking(path: Path, raw: dict, get: Callable, levels, report) -> WalkSe
         keep_walkers=bool(get("walking", "keep_walkers")),
         max_transported=_levels_only(path, dict(get("walking", "max_transported")),
                                      "max_transported", levels, True, report),
+        transport_charge=float(get("walking", "transport_charge") or 0.0),
     )
     for level, cap in walking.max_transported.items():
         if cap and not walking.distance.get(level):

@@ -51,6 +51,7 @@ class WalkSettings:
     distance: dict[str, float] = field(default_factory=dict)
     keep_walkers: bool = False
     max_transported: dict[str, float] = field(default_factory=dict)  # level -> students
+    transport_charge: float = 0.0  # metres per student beyond walking distance
 
 
 @dataclass(frozen=True)

@@ -201,6 +201,9 @@ SCHEMA: dict[str, Table] = {
         "max_transported": Key("level_number", "level = most students (plan year) living "
                                "beyond walking distance of their school; 0 = no limit", {},
                                low=0.0),
+        "transport_charge": Key("number", "metres of travel charged per (plan-year) student "
+                                "living beyond walking distance of their school; 0 = none",
+                                0.0, low=0.0),
     }),
     "groups": Table("student groups per unit (e.g. meal support), kept near the district's "
                     "share in every open school", keys={

@@ -166,3 +166,13 @@ def test_no_plan_names_the_group_band_school_year_and_students():
                              "students to stay within 2 points of the district's share.")
     assert found[1].text.startswith("site 1 in plan year would need about 1 fewer")
     assert "cannot stay inside the group band" in no_plan_text(found)
+
+
+def test_a_charge_per_transported_student_pulls_the_boundary():
+    # 1,000 m charged per student beyond walking distance: A = {0}, B = {1..4} costs
+    # 8,500 + 7 * 1,000 = 15,500; A = {0, 1} (or {0, 1, 2}) 11,000 + 2 * 1,000 = 13,000.
+    charged = transport_town().replace(transport_weight=1000.0)
+    plan = Session(charged).solve(0.0, 30)
+    assert plan.status == "optimal" and plan.bound == plan.objective
+    assert plan.assignment[:2].tolist() == [0, 0]
+    assert plan.objective == 13000.0
