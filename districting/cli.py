@@ -77,6 +77,10 @@ def _run_settings(args, level: str):
         time_limit=args.time_limit,
         solver=args.solver,
         travel=args.travel,
+        keep_walkers=args.keep_walkers,
+        max_transported=args.max_transported,
+        group_band=args.group_band,
+        transport_charge=args.transport_charge,
     )
 
 
@@ -398,6 +402,22 @@ def _add_solve_options(p: argparse.ArgumentParser) -> None:
                         "and says how close to the best possible it is")
     p.add_argument("--solver", help="'highs' (default) or any solver name Pyomo drives")
     _add_travel_option(p)
+    _add_practice_options(p)
+
+
+def _add_practice_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--keep-walkers", action=argparse.BooleanOptionalAction, default=None,
+                   help="keep each unit within walking distance of an open school in the "
+                        "zone of such a school (default: the project's [walking] keep_walkers)")
+    p.add_argument("--max-transported", type=float, metavar="STUDENTS",
+                   help="most plan-year students living beyond walking distance of their "
+                        "school (0: no limit; default: the project's [walking] value)")
+    p.add_argument("--group-band", type=float, metavar="POINTS",
+                   help="percentage points a school's share of each group may differ from "
+                        "the district's (0: none; default: the project's [groups] band_points)")
+    p.add_argument("--transport-charge", type=float, metavar="METRES",
+                   help="metres of travel charged per student living beyond walking distance "
+                        "of their school (0: none; default: the project's [walking] value)")
 
 
 def _add_travel_option(p: argparse.ArgumentParser) -> None:

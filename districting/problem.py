@@ -92,6 +92,12 @@ class Problem:
     feeder_rule: str = ""  # "", "whole" or "nested"
     feeder_names: tuple = ()  # names of the groups, for messages
     feeder_splits: int = 0  # "whole" only: each lower zone may feed 1 + this many sites
+    walk: np.ndarray | None = None  # (n, m) bool: within walking distance; None: no walk zone
+    max_transported: float | None = None  # at most this many plan-year students beyond walk
+    groups: np.ndarray | None = None  # (G, T, n) group students per demand row; NaN: no band
+    group_band: float = 0.0  # each school's group share within the district's +- this; 0: none
+    group_names: tuple = field(default=())  # names of the groups, for messages
+    transport_weight: float = 0.0  # added cost per plan-year student beyond walking distance
 
     # ------------------------------------------------------------------ constructors
     @classmethod
@@ -122,6 +128,12 @@ class Problem:
         feeder_rule: str = "",
         feeder_names: Iterable = (),
         feeder_splits: int = 0,
+        walk=None,
+        max_transported: float | None = None,
+        groups=None,
+        group_band: float = 0.0,
+        group_names: Iterable = (),
+        transport_weight: float = 0.0,
     ) -> Problem:
         """Make a problem from arrays.
 
@@ -136,6 +148,12 @@ class Problem:
         ``feeder_groups`` (n,) and ``feeder_rule`` ("whole" or "nested") state the feeder
         rule against the neighbouring level's zones (see the class fields); with
         ``feeder_splits`` N > 0, "whole" lets each lower zone feed at most N + 1 sites.
+        ``walk`` marks the pairs within walking distance; ``max_transported`` caps the
+        plan-year students assigned beyond it. ``groups`` (G, T, n) holds each group's
+        students per demand row (NaN rows: no band that year); with ``group_band`` > 0
+        every open school's share of each group stays within ``group_band`` of the
+        district's share of that row. ``transport_weight`` is added to the objective per
+        plan-year student assigned beyond walking distance.
         """
         cost = np.array(cost, dtype=float)
         if cost.ndim != 2:
@@ -187,7 +205,15 @@ class Problem:
         if cur.shape != (n,):
             raise ValueError(f"current must have shape ({n},)")
         dist = None if distance is None else _as_float_array("distance", distance, (n, m))
-        groups = _feeder_groups(feeder_groups, feeder_rule, n, root_arr)
+        fgroups = _feeder_groups(feeder_groups, feeder_rule, n, root_arr)
+        walk_arr = None if walk is None else np.asarray(walk, bool)
+        if walk_arr is not None and walk_arr.shape != (n, m):
+            raise ValueError(f"walk must have shape ({n}, {m})")
+        if (max_transported is not None or transport_weight) and walk_arr is None:
+            raise ValueError("max_transported needs walk (the pairs within walking distance)")
+        grp = None if groups is None else np.asarray(groups, float)
+        if grp is not None and (grp.ndim != 3 or grp.shape[1:] != demand.shape):
+            raise ValueError(f"groups must have shape (groups, {demand.shape[0]}, {n})")
         prob = cls(
             cost=cost,
             demand=demand,
@@ -209,10 +235,16 @@ class Problem:
             unit_names=tuple(unit_names),
             site_names=tuple(site_names),
             level=level,
-            feeder_groups=groups,
-            feeder_rule=feeder_rule if groups is not None else "",
+            feeder_groups=fgroups,
+            feeder_rule=feeder_rule if fgroups is not None else "",
             feeder_names=tuple(feeder_names),
             feeder_splits=max(int(feeder_splits), 0),
+            walk=walk_arr,
+            max_transported=None if max_transported is None else float(max_transported),
+            groups=grp,
+            group_band=float(group_band),
+            group_names=tuple(group_names),
+            transport_weight=float(transport_weight),
         )
         prob._freeze()
         return prob
@@ -289,7 +321,8 @@ class Problem:
 
     @property
     def weighted_cost(self) -> np.ndarray:
-        """(n, m) objective coefficient of x[i, j]: d[0, i] * c[i, j] (+ stability term)."""
+        """(n, m) objective coefficient of x[i, j]: d[0, i] * c[i, j] (+ stability term, +
+        transport charge on pairs beyond walking distance)."""
         d0 = self.demand[0][:, None]
         with np.errstate(invalid="ignore"):
             w = np.where(np.isfinite(self.cost), d0 * self.cost, np.inf)
@@ -298,6 +331,8 @@ class Problem:
                 np.arange(self.n_sites)[None, :] != self.current[:, None]
             )
             w = w + self.stability_weight * d0 * moved
+        if self.transport_weight and self.walk is not None:
+            w = w + self.transport_weight * d0 * ~self.walk
         return w
 
     def is_restriction_of(self, other: Problem) -> bool:
@@ -330,6 +365,12 @@ class Problem:
                 return False
         elif self.capacity is not None and (self.min_util > 0).any():
             return False  # floors without a cap on the other side: compare nothing loosely
+        if not (_same_array(self.walk, other.walk) and _same_array(self.groups, other.groups)
+                and self.group_band == other.group_band):
+            return False
+        if other.max_transported is not None and (
+                self.max_transported is None or self.max_transported > other.max_transported):
+            return False
         if other.max_moved is not None:
             if self.max_moved is None or self.max_moved > other.max_moved:
                 return False

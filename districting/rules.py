@@ -21,6 +21,7 @@ __all__ = [
     "SITE_STATUSES", "OPEN_TODAY", "OPEN_IN_PLAN", "CANDIDATE", "CLOSED", "TAKES_STUDENTS",
     "NOT_OPEN_TODAY", "takes_students", "open_today", "open_in_plan", "is_candidate",
     "is_closed", "usable_capacity", "site_band", "open_sites", "TOLERANCE",
+    "walkers_forbidden", "transported", "group_shares", "district_shares",
 ]
 
 #: open: open now and in the plan; closing: closes at the plan year (its students move);
@@ -115,3 +116,61 @@ def open_sites(problem: Problem, assignment: np.ndarray) -> np.ndarray:
         extra = np.flatnonzero(spare)[: problem.p - int(opened.sum())]
         opened[extra] = True
     return opened
+
+
+def walkers_forbidden(walk: np.ndarray, always_open: np.ndarray) -> np.ndarray:
+    """(n, m) bool: pairs the keep-walkers rule forbids.
+
+    A unit within walking distance of a school open in every plan stays in the zone of one
+    such school, so its pairs beyond walking distance are forbidden. Candidate sites do not
+    count (a unit near a candidate that stays shut may still ride elsewhere). Written as
+    forbidden pairs, the rule needs no rows of its own and every move a heuristic makes on
+    allowed pairs keeps it.
+    """
+    walk = np.asarray(walk, bool)
+    near = (walk & np.asarray(always_open, bool)[None, :]).any(axis=1)
+    return near[:, None] & ~walk
+
+
+def transported(problem: Problem, assignment: np.ndarray) -> np.ndarray:
+    """(m,) plan-year students of each zone living beyond walking distance of its school
+    (zeros without a walk zone; a unit without a site counts nowhere)."""
+    a = np.asarray(assignment, np.int64)
+    m = problem.n_sites
+    if problem.walk is None:
+        return np.zeros(m)
+    ok = a >= 0
+    rides = ok.copy()
+    rides[ok] = ~problem.walk[np.flatnonzero(ok), a[ok]]
+    return np.bincount(a[rides], weights=problem.demand[0][rides], minlength=m)
+
+
+def group_shares(problem: Problem, assignment: np.ndarray) -> np.ndarray:
+    """(G, T, m) each zone's share of each group per demand row (NaN: no students, or no
+    group count that year); ``district_shares`` gives the level's share to compare with."""
+    a = np.asarray(assignment, np.int64)
+    m = problem.n_sites
+    if problem.groups is None:
+        return np.zeros((0, problem.n_years, m))
+    ok = a >= 0
+    out = np.full(problem.groups.shape[:2] + (m,), np.nan)
+    for t in range(problem.n_years):
+        total = np.bincount(a[ok], weights=problem.demand[t][ok], minlength=m)
+        for g in range(problem.groups.shape[0]):
+            row = problem.groups[g, t]
+            if np.isnan(row).any():
+                continue
+            part = np.bincount(a[ok], weights=row[ok], minlength=m)
+            with np.errstate(invalid="ignore", divide="ignore"):
+                out[g, t] = np.where(total > 0, part / total, np.nan)
+    return out
+
+
+def district_shares(problem: Problem) -> np.ndarray:
+    """(G, T) the level's share of each group per demand row (NaN: no count that year)."""
+    if problem.groups is None:
+        return np.zeros((0, problem.n_years))
+    total = problem.demand.sum(axis=1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(total[None, :] > 0, problem.groups.sum(axis=2) / total[None, :],
+                        np.nan)

@@ -20,7 +20,7 @@ from . import rules
 from .engine import Session
 from .intake import Inputs
 from .intake.feeders import neighbour
-from .intake.schema import RUN_KEYS, check_run
+from .intake.schema import RUN_KEYS, check_run, check_value
 from .plan import Plan, PlanMetrics, plan_metrics
 from .problem import Problem
 from .travel.measures import distance_note, measure_line
@@ -61,6 +61,10 @@ class RunSettings:
     given: dict[str, str] = field(default_factory=dict)
     given_name: str = ""  # where ``given`` comes from: a saved option's name, or "" (today)
     max_splits: int | None = None  # whole feeding: a lower school may feed 1 + this many
+    keep_walkers: bool | None = None  # [walking] keep_walkers
+    max_transported: float | None = None  # students beyond walking distance; 0 = no limit
+    group_band: float | None = None  # percentage points; 0 = shares reported, no band
+    transport_charge: float | None = None  # metres per student beyond walking distance
 
     def to_dict(self) -> dict:
         return dataclasses.asdict(self)
@@ -107,9 +111,14 @@ def resolved(inputs: Inputs, rs: RunSettings) -> RunSettings:
         travel=pick(rs.travel, d.travel),
         locks=locks,
         forbids=forbids,
+        keep_walkers=pick(rs.keep_walkers, s.walking.keep_walkers),
+        max_transported=pick(rs.max_transported, s.walking.max_transported.get(rs.level, 0.0)),
+        group_band=pick(rs.group_band, s.groups.band_points),
+        transport_charge=pick(rs.transport_charge, s.walking.transport_charge),
     )
     full = _resolved_feeding(inputs, full)
     check_run({key: getattr(full, key) for key in RUN_KEYS}, f"{rs.level} run settings")
+    check_practice_run(full)
     return full
 
 
@@ -158,6 +167,17 @@ def feeder_groups(inputs: Inputs, rs: RunSettings) -> tuple[np.ndarray | None, l
     groups = np.array([pos.get(rs.given.get(u, ""), -1) for u in units], np.int64)
     names = [f"{n} ({s})" for n, s in zip(sites["name"], sites["site_id"], strict=True)]
     return groups, names
+def check_practice_run(rs: RunSettings) -> None:
+    """Refuse a run's transport limit or group band that the project file would refuse."""
+    problems = []
+    for table, key, value in (("walking", "max_transported", {rs.level: rs.max_transported}),
+                              ("groups", "band_points", rs.group_band),
+                              ("walking", "transport_charge", rs.transport_charge)):
+        _v, problem, fix = check_value(table, key, value)
+        if problem is not None:
+            problems.append(f"{problem}; fix: {fix}")
+    if problems:
+        raise ValueError(f"{rs.level} run settings: " + "; ".join(problems))
 
 
 def level_sites(inputs: Inputs, level: str) -> np.ndarray:
@@ -244,6 +264,10 @@ def build_problem(inputs: Inputs, rs: RunSettings) -> tuple[Problem, np.ndarray]
     for uid, sids in rs.forbids.items():
         for sid in sids:
             forbidden[unit_index(uid, "forbid"), site_index(sid, "forbid")] = True
+    walk = walk_pairs(inputs, rs, distance)
+    if walk is not None and rs.keep_walkers:
+        forbidden |= rules.walkers_forbidden(walk, open_sites if p is not None else ~closed)
+        forbidden[roots, np.arange(len(rows))] = False
     locks = {
         unit_index(u, "lock"): site_index(s, f"lock of unit {u}") for u, s in rs.locks.items()
     }
@@ -284,8 +308,30 @@ def build_problem(inputs: Inputs, rs: RunSettings) -> tuple[Problem, np.ndarray]
         feeder_rule=rs.feeding or "",
         feeder_names=group_names,
         feeder_splits=int(rs.max_splits or 0),
+        walk=walk,
+        max_transported=float(rs.max_transported) if rs.max_transported and walk is not None
+        else None,
+        transport_weight=float(rs.transport_charge or 0.0) if walk is not None else 0.0,
+        **group_arrays(inputs, rs.level, years, float(rs.group_band or 0.0)),
     )
     return problem, rows
+
+
+def walk_pairs(inputs: Inputs, rs: RunSettings, distance: np.ndarray) -> np.ndarray | None:
+    """(n, m) bool: pairs within the level's walking distance along the run's travel
+    measure; None when the level has no walk zone."""
+    metres = inputs.settings.walking.distance.get(rs.level, 0.0)
+    return distance <= metres if metres > 0 else None
+
+
+def group_arrays(inputs: Inputs, level: str, years: tuple, band_points: float) -> dict:
+    """The Problem's group fields: counts per demand row, band as a share, names."""
+    counts = inputs.groups.get(level)
+    if counts is None or not len(counts):
+        return {}
+    rows = [inputs.year_row(y) for y in years]
+    return {"groups": counts[:, rows, :], "group_band": band_points / 100.0,
+            "group_names": inputs.settings.groups.names}
 
 
 @dataclass(frozen=True, eq=False)

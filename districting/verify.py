@@ -33,7 +33,8 @@ class Finding:
     """One broken rule: ``rule`` is a short key, ``message`` says it in words."""
 
     #: assigned, closed, open_count, root, connected, capacity, floor, lock, forbid,
-    #: distance, moved, feeder (a lower zone split) or nested (a zone outside its upper zone)
+    #: distance, moved, feeder (a lower zone split), nested (a zone outside its upper zone),
+    #: walkers, transport or group
     rule: str
     message: str
     site: int | None = None
@@ -79,6 +80,12 @@ class PlanFacts:
     feeder_rule: str = ""
     feeder_names: Sequence[str] = ()
     feeder_splits: int = 0  # whole feeding: a lower zone may feed 1 + this many schools
+    walk: np.ndarray | None = None  # (n, m) bool: pair within walking distance
+    keep_walkers: bool = False  # a unit that can walk to a must-open school walks
+    max_transported: float | None = None  # plan-year students beyond walking distance
+    groups: np.ndarray | None = None  # (G, T, n) group students; NaN rows: no band
+    group_band: float = 0.0  # share of a group around the district's share; 0: none
+    group_names: Sequence[str] = ()
 
     @property
     def n_units(self) -> int:
@@ -126,6 +133,9 @@ def check_plan(facts: PlanFacts, assignment) -> list[Finding]:
     out += _distance(facts, a)
     out += _moved(facts, a)
     out += _feeding(facts, a)
+    out += _walkers(facts, a)
+    out += _transport(facts, a)
+    out += _groups(facts, a, opened)
     return out
 
 
@@ -298,6 +308,56 @@ def _feeding(facts: PlanFacts, a: np.ndarray) -> list[Finding]:
     return out
 
 
+def _walkers(facts: PlanFacts, a: np.ndarray) -> list[Finding]:
+    if not facts.keep_walkers or facts.walk is None:
+        return []
+    walk = np.asarray(facts.walk, bool)
+    can = (walk & facts.must_open[None, :] & ~facts.closed[None, :]).any(axis=1)
+    rides = can & ~walk[np.arange(facts.n_units), a]
+    if facts.roots is not None:
+        rides[facts.roots[facts.roots >= 0]] = False
+    rides[list(facts.locks)] = False
+    return [Finding("walkers", f"{facts.unit(i)} lies within walking distance of an open "
+                    f"school but is in the zone of {facts.site(int(a[i]))}, beyond it",
+                    site=int(a[i]), unit=i) for i in np.flatnonzero(rides).tolist()]
+
+
+def _transport(facts: PlanFacts, a: np.ndarray) -> list[Finding]:
+    if facts.max_transported is None or facts.walk is None:
+        return []
+    rides = ~np.asarray(facts.walk, bool)[np.arange(facts.n_units), a]
+    count = float(facts.demand[0][rides].sum())
+    if count <= facts.max_transported + TOL:
+        return []
+    return [Finding("transport", f"{_num(count)} students live beyond walking distance of "
+                    f"their school in {facts.year(0)}, above the limit of "
+                    f"{_num(facts.max_transported)}", year=0)]
+
+
+def _groups(facts: PlanFacts, a: np.ndarray, opened: np.ndarray) -> list[Finding]:
+    if facts.groups is None or not facts.group_band > 0:
+        return []
+    out = []
+    for g in range(facts.groups.shape[0]):
+        name = facts.group_names[g] if len(facts.group_names) > g else f"group {g}"
+        for t in range(facts.demand.shape[0]):
+            counts = facts.groups[g, t]
+            if np.isnan(counts).any() or not facts.demand[t].sum() > 0:
+                continue
+            district = counts.sum() / facts.demand[t].sum()
+            for j in np.flatnonzero(opened).tolist():
+                students = float(facts.demand[t][a == j].sum())
+                if students <= 0:
+                    continue
+                share = float(counts[a == j].sum()) / students
+                if abs(share - district) > facts.group_band + TOL:
+                    out.append(Finding("group", f"{facts.site(j)} has {share:.1%} {name} "
+                                       f"students in {facts.year(t)}, outside "
+                                       f"{district:.1%} +- {facts.group_band * 100:g} points",
+                                       site=j, year=t))
+    return out
+
+
 # ------------------------------------------------------------------------------ adapters
 def facts_of_problem(problem) -> PlanFacts:
     """The rules of an engine :class:`~districting.problem.Problem`, as plain data.
@@ -327,6 +387,11 @@ def facts_of_problem(problem) -> PlanFacts:
         forbidden=forbidden,
         current=np.array(problem.current),
         max_moved=problem.max_moved,
+        walk=None if problem.walk is None else np.array(problem.walk, bool),
+        max_transported=problem.max_transported,
+        groups=None if problem.groups is None else np.array(problem.groups, float),
+        group_band=float(problem.group_band),
+        group_names=tuple(problem.group_names),
         unit_ids=tuple(problem.unit_names),
         site_ids=tuple(problem.site_names),
         years=tuple(problem.years),
@@ -357,7 +422,10 @@ def facts_of_outcome(outcome) -> PlanFacts:
     forbidden[list(facts.locks), list(facts.locks.values())] = False  # the board's lock wins
     travel = outcome.problem.distance
     limit = float(rs.max_distance) if rs.max_distance else None
-    return replace(facts, forbidden=forbidden, distance=travel, max_distance=limit)
+    metres = outcome.inputs.settings.walking.distance.get(outcome.level, 0.0)
+    walk = None if not metres or travel is None else np.asarray(travel) <= metres
+    return replace(facts, forbidden=forbidden, distance=travel, max_distance=limit, walk=walk,
+                   keep_walkers=bool(getattr(rs, "keep_walkers", False)) and walk is not None)
 
 
 def report(findings: list[Finding], facts: PlanFacts, label: str = "the plan") -> str:
@@ -382,4 +450,11 @@ def report(findings: list[Finding], facts: PlanFacts, label: str = "the plan") -
                        else f"no lower zone feeds more than {facts.feeder_splits + 1} schools")
     if facts.feeder_groups is not None and facts.feeder_rule == "nested":
         checked.append("every zone lies inside one upper zone")
+    if facts.keep_walkers:
+        checked.append("units within walking distance of an open school walk")
+    if facts.max_transported is not None:
+        checked.append("the limit on students needing transport holds")
+    if facts.groups is not None and facts.group_band > 0:
+        checked.append(f"every school's group shares are within {facts.group_band * 100:g} "
+                       "points of the district's")
     return f"{label} is valid: " + "; ".join(checked) + "."

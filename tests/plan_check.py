@@ -13,7 +13,8 @@ from districting.verify import check_plan, facts_of_problem
 
 
 def plain_cost(problem, assignment) -> float:
-    """sum_i d[0, i] * c[i, a_i] (+ the stability charge per student moved), by hand."""
+    """sum_i d[0, i] * c[i, a_i] (+ the stability charge per student moved, + the transport
+    charge per student beyond walking distance), by hand."""
     a = np.asarray(assignment, np.int64)
     rows = np.arange(len(a))
     d0 = np.asarray(problem.demand)[0]
@@ -21,7 +22,11 @@ def plain_cost(problem, assignment) -> float:
     total = float(np.sum(np.where(d0 > 0, d0 * c, 0.0)))
     cur = np.asarray(problem.current)
     moved = (cur >= 0) & (cur != a)
-    return total + float(problem.stability_weight) * float(d0[moved].sum())
+    total += float(problem.stability_weight) * float(d0[moved].sum())
+    if getattr(problem, "transport_weight", 0.0) and problem.walk is not None:
+        rides = ~np.asarray(problem.walk)[rows, a]
+        total += float(problem.transport_weight) * float(d0[rides].sum())
+    return total
 
 
 def assert_plan_valid(problem, plan) -> None:

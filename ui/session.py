@@ -62,6 +62,9 @@ class Session:
                 gap_pct=float(full.gap) * 100.0,
                 time_limit=float(full.time_limit or 60.0),
                 travel=full.travel,
+                keep_walkers=bool(full.keep_walkers),
+                max_transported=float(full.max_transported or 0.0),
+                group_band=float(full.group_band or 0.0),
                 target_site=target,
                 selection=[],
             )

@@ -29,6 +29,9 @@ SETTING_PARAMS = {
     "gap_pct": ("gap", 0.01),
     "time_limit": ("time_limit", 1.0),
     "travel": ("travel", None),
+    "keep_walkers": ("keep_walkers", None),
+    "max_transported": ("max_transported", 1.0),
+    "group_band": ("group_band", 1.0),
 }
 
 
@@ -48,6 +51,12 @@ class SessionState(param.Parameterized):
     gap_pct = param.Number(0.01, bounds=(0.0, 50.0), doc="Optimality gap to prove, percent")
     time_limit = param.Number(60.0, bounds=(1.0, 3600.0), doc="Seconds per rerun")
     travel = param.Selector(objects=list(MEASURES), doc="How travel is measured")
+    keep_walkers = param.Boolean(False, doc="Units within walking distance stay with such a "
+                                 "school")
+    max_transported = param.Number(0.0, bounds=(0, None),
+                                   doc="Most students needing transport (0 = no limit)")
+    group_band = param.Number(0.0, bounds=(0.0, 100.0),
+                              doc="Group shares within this many points of the district's")
 
     selection = param.List(default=[], item_type=str, doc="Unit ids selected on the map")
     target_site = param.Selector(objects=[], allow_None=True,

@@ -63,6 +63,9 @@ EDITABLE_SETTINGS = {
     "max_utilization": (0.05, SCHEMA["solve"].keys["max_utilization"].high),
     "min_utilization": (0.0, SCHEMA["solve"].keys["min_utilization"].high),
     "travel": MEASURES,  # a choice, not a range
+    "keep_walkers": (False, True),  # a switch
+    "max_transported": (0.0, 1e9),
+    "group_band": (0.0, SCHEMA["groups"].keys["band_points"].high),
 }
 
 
@@ -207,6 +210,9 @@ class Store(StoreRecords, PlanTables):
                     raise StoreError(f"plan year {value} is not a projected year; pick one of "
                                      f"{', '.join(map(str, years))}")
                 clean[name] = int(value)
+                continue
+            if name == "keep_walkers":
+                clean[name] = bool(value)
                 continue
             if name == "travel":
                 if value not in self.travel_measures():

@@ -18,6 +18,7 @@ from .constants import (
     TOWN_NAME,
     YEARS,
 )
+from .groups import group_columns
 from .streets import street_reach
 from .town import (
     generate,
@@ -74,6 +75,7 @@ def project_settings(gpkg: str = "town.gpkg") -> dict:
             "solver": "highs",
         },
     }
+    settings["groups"] = {"columns": group_columns(), "band_points": 0}
     settings["streets"] = {"source": gpkg, **STREET_SETTINGS["streets"]}
     settings["solve"].update(STREET_SETTINGS["solve"])
     return settings

@@ -34,6 +34,7 @@ from .geometry import (
     units_from_cells,
     voronoi_cells,
 )
+from .groups import group_counts
 from .schools import (
     sites_and_zones,
     student_counts,
@@ -113,7 +114,9 @@ def generate(seed: int = 2027, n_units: int = 1500, radius: float = 6800.0) -> D
             "land_use": land_use,
         }
     )
-    units = pd.concat([units, pd.DataFrame(counts), pd.DataFrame(zones)], axis=1)
+    groups = group_counts(seed, counts, hood)
+    units = pd.concat([units, pd.DataFrame(counts), pd.DataFrame(zones), pd.DataFrame(groups)],
+                      axis=1)
     units = gpd.GeoDataFrame(units, geometry=geoms, crs=CRS)
     barriers = gpd.GeoDataFrame(
         {"name": [BARRIER_NAMES[k] for k in kinds], "kind": kinds},

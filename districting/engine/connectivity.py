@@ -18,7 +18,7 @@ import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 
 from ..problem import Problem
-from ..rules import open_sites
+from ..rules import district_shares, group_shares, open_sites, transported
 from .feeding import feeder_breaks
 
 __all__ = [
@@ -230,10 +230,24 @@ def plan_checks(problem: Problem, assignment: np.ndarray, graph: UnitGraph | Non
     broken = feeder_breaks(problem, a)
     if broken:
         out.append(broken)
+    out += practice_checks(problem, a, opened)
     if contiguity and problem.contiguous:
         g = graph or UnitGraph.of(problem)
         if fragments(problem, g, a):
             out.append("a zone is not connected")
+    return out
+
+
+def practice_checks(problem: Problem, a: np.ndarray, opened: np.ndarray) -> list[str]:
+    """The transport cap and the group band (keeping walkers is a forbidden pair)."""
+    out = []
+    if (problem.max_transported is not None
+            and transported(problem, a).sum() > problem.max_transported + _TOL):
+        out.append("too many students need transport")
+    if problem.groups is not None and problem.group_band > 0:
+        off = np.abs(group_shares(problem, a) - district_shares(problem)[:, :, None])
+        if np.any(opened & (off > problem.group_band + _TOL)):
+            out.append("a school's group share is outside its band")
     return out
 
 

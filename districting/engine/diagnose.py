@@ -20,18 +20,22 @@ import pyomo.environ as pyo
 from ..problem import Problem
 from .findings import Finding, no_plan_text, plural, students
 from .precheck import precheck
+from .precheck_practice import practice_finding
 from .pyomo_route import build_model, solve_model
 
 __all__ = ["explain", "diagnose"]
 
-_FAMILY_ORDER = ("floor", "capacity", "locks", "max_moved")
+_FAMILY_ORDER = ("floor", "capacity", "locks", "max_moved", "transport", "groups")
 #: family -> the rule it belongs to in the lead line (:data:`.findings.RULES`).
-_FAMILY_RULE = {"floor": "band", "capacity": "band", "locks": "lock", "max_moved": "moves"}
+_FAMILY_RULE = {"floor": "band", "capacity": "band", "locks": "lock", "max_moved": "moves",
+                "transport": "transport", "groups": "groups"}
 _FAMILY_WORDS = {
     "floor": "the minimum utilization of schools",
     "capacity": "the capacity limits",
     "locks": "the locked units",
     "max_moved": "the limit on students moved",
+    "transport": "the limit on students needing transport",
+    "groups": "the group band",
     "contiguity": "connected zones",
 }
 
@@ -48,6 +52,10 @@ def _present(problem: Problem) -> list[str]:
         fams.append("locks")
     if problem.max_moved is not None:
         fams.append("max_moved")
+    if problem.max_transported is not None and problem.walk is not None:
+        fams.append("transport")
+    if problem.groups is not None and problem.group_band > 0:
+        fams.append("groups")
     return fams
 
 
@@ -116,6 +124,8 @@ def _elastic_details(problem: Problem, contiguity: str, fams: list[str],
                 out.append(Finding("moves", "The move limit of "
                                    f"{students(problem.max_moved, up=False)} would have to "
                                    f"rise to {students(problem.max_moved + s)}.", _FIXES[fam]))
+            else:
+                out += practice_finding(problem, fam, key, s, _FIXES[fam])
     return out
 
 
@@ -124,6 +134,9 @@ _FIXES = {
     "capacity": "raise capacity or the maximum utilization here, or open another school.",
     "locks": "remove or change this lock.",
     "max_moved": "raise the move limit.",
+    "transport": "raise the limit on students needing transport, or lengthen the walking "
+                 "distance.",
+    "groups": "widen the group band, or let the zones around this school change more.",
     "contiguity": "add adjacency links (bridges) or allow more units to go to those schools.",
 }
 

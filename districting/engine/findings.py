@@ -85,6 +85,11 @@ RULES = {
     "lock": lambda fs: (f"{_counted(_units(fs), 'locked unit')} cannot stay with "
                         f"{'its' if _units(fs) == 1 else 'their'} school"),
     "moves": lambda fs: "the limit on students moved is too low",
+    "transport": lambda fs: "the limit on students needing transport is too low",
+    "walkers": lambda fs: (f"{_counted(_schools(fs), 'school')} cannot seat the students "
+                           "who must walk to them"),
+    "groups": lambda fs: (f"{_counted(_schools(fs), 'school')} cannot stay inside the group "
+                          f"band{_years(fs)}"),
     "contiguity": lambda fs: "the zones cannot all be connected",
     "no_school": lambda fs: f"{_counted(_units(fs), 'unit')} cannot go to any school",
     "island": lambda fs: f"{_counted(_units(fs), 'unit')} cannot be joined to any zone",

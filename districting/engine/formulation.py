@@ -38,7 +38,7 @@ __all__ = ["RowBlock", "Formulation", "formulate", "separator_rows", "feeder_row
            "split_columns", "split_rows", "ELASTIC_FAMILIES"]
 
 #: Families that can be built with a slack (``elastic=``).
-ELASTIC_FAMILIES = ("capacity", "floor", "locks", "max_moved")
+ELASTIC_FAMILIES = ("capacity", "floor", "locks", "max_moved", "transport", "groups")
 
 
 @dataclass(frozen=True)
@@ -334,6 +334,47 @@ def max_moved_row(f: Formulation) -> RowBlock:
     return _block("max_moved", [(c[stay], -d0[has][stay], -np.inf, p.max_moved - total)], [0])
 
 
+def transport_row(f: Formulation) -> RowBlock:
+    """sum_{(i, j): not walk[i, j]} d[0, i] x[i, j] <= max_transported: plan-year students
+    assigned to a school beyond their walking distance (those who need transport)."""
+    p = f.problem
+    if p.max_transported is None or p.walk is None:
+        return _block("transport", [])
+    rides = ~p.walk[f.xi, f.xj] & (p.demand[0][f.xi] > 0)
+    k = np.flatnonzero(rides)
+    return _block("transport", [(k, p.demand[0][f.xi[k]], -np.inf, p.max_transported)], [0])
+
+
+def group_rows(f: Formulation) -> RowBlock:
+    """Each open school's share of group g in demand row t within b of the district's s:
+    sum_i (g[t, i] - (s - b) d[t, i]) x[i, j] >= 0 and sum_i (g[t, i] - (s + b) d[t, i])
+    x[i, j] <= 0, with s = sum_i g[t, i] / sum_i d[t, i] over the level's units and
+    b = ``group_band``. A closed site's row is 0 = 0 and is left out; so is a side that
+    cannot bind (s - b <= 0, s + b >= 1) and a row t without group counts (NaN)."""
+    p = f.problem
+    if p.groups is None or not p.group_band > 0:
+        return _block("groups", [])
+    parts, keys = [], []
+    for g in range(p.groups.shape[0]):
+        for t in range(p.n_years):
+            row, d = p.groups[g, t], p.demand[t]
+            if np.isnan(row).any() or not d.sum() > 0:
+                continue
+            share = row.sum() / d.sum()
+            for side, bound in (("low", share - p.group_band), ("high", share + p.group_band)):
+                if (side == "low" and bound <= TOL) or (side == "high" and bound >= 1 - TOL):
+                    continue
+                coef = row[f.xi] - bound * d[f.xi]
+                lo, hi = (0.0, np.inf) if side == "low" else (-np.inf, 0.0)
+                for j in range(p.n_sites):
+                    sel = np.flatnonzero((f.xj == j) & (np.abs(coef) > 0))
+                    if p.closed_sites[j] or not len(sel):
+                        continue
+                    parts.append((sel, coef[sel], lo, hi))
+                    keys.append((g, t, j, side))
+    return _block("groups", parts, keys)
+
+
 def lock_rows(f: Formulation) -> RowBlock:
     """x[i, lock_i] = 1 for every locked unit: a bound on its column, or a row when the
     family is elastic (its other pairs are then columns too)."""
@@ -460,5 +501,6 @@ def formulate(problem: Problem, drop: np.ndarray | None = None,
     split_columns(f)
     f.blocks = [assignment_rows(f), linking_rows(f), count_row(f), root_rows(f),
                 band_rows(f, upper_side=True), band_rows(f, upper_side=False), cover_rows(f),
-                max_moved_row(f), lock_rows(f), feeder_rows(f), split_rows(f)]
+                max_moved_row(f), lock_rows(f), feeder_rows(f), split_rows(f),
+                transport_row(f), group_rows(f)]
     return f

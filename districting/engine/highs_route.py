@@ -72,7 +72,7 @@ class HighsRoute:
         h = _quiet_highs()
         h.setOptionValue("threads", int(threads))
         h.setOptionValue("presolve", "on")
-        if ncol > PROBE_LIMIT:  # see tuning.PROBE_LIMIT
+        if ncol > PROBE_LIMIT or problem.group_band > 0:  # see tuning.PROBE_LIMIT
             h.setOptionValue("presolve_rule_off", 32768)
         h.passModel(lp)
         self.h = h

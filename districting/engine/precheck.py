@@ -17,6 +17,7 @@ from scipy.sparse.csgraph import breadth_first_order
 from ..problem import Problem
 from .feeding import nested_findings, nested_seat_findings, whole_findings
 from .findings import Finding, plural, students
+from .precheck_practice import practice_issues
 
 __all__ = ["precheck", "unbuildable", "reachable"]
 
@@ -89,6 +90,7 @@ def precheck(problem: Problem) -> list[Finding]:
     reasons += _lock_reach_issues(problem, reach)
     reasons += _island_issues(problem, reach)
     reasons += whole_findings(problem, reach) + nested_seat_findings(problem)
+    reasons += practice_issues(problem, None if problem.capacity is None else _seats(problem))
     return reasons
 
 

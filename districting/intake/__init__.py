@@ -63,7 +63,7 @@ def read_inputs(settings: Settings, report: Report, *, cache: bool = True) -> In
         bridges=st.bridges if len(st.bridges) else empty,
         adjacency=st.adjacency, report=report, travel=st.travel, streets=st.streets,
         street_lines=st.street_lines,
-        street_travel=st.street_travel,
+        street_travel=st.street_travel, groups=st.groups,
     )
 
 

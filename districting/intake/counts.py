@@ -12,6 +12,7 @@ from .checks import (
     check_counts,
     check_ids,
 )
+from .groups import read_group_counts
 from .reading import (
     Reading,
     source_table,
@@ -70,6 +71,7 @@ def read_counts(st: Reading) -> None:
                             f"year from [project] years (columns: {columns_text(table.columns)})",
                             [c for _, c in absent])
         st.counts[level] = arr
+    read_group_counts(st, values, labels, present, file)
 
 
 def _join_csv(st: Reading, table: pd.DataFrame, src: Source, file: Path):

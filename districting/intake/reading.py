@@ -65,6 +65,7 @@ class Reading:
     # or "feature k" without one
     units_ok: bool = False  # ids unique and every polygon usable
     counts: dict[str, np.ndarray] = field(default_factory=dict)
+    groups: dict[str, np.ndarray] = field(default_factory=dict)  # level -> (G, years, n)
     sites: gpd.GeoDataFrame | None = None
     current: dict[str, np.ndarray] = field(default_factory=dict)
     barriers: gpd.GeoSeries = field(default_factory=lambda: gpd.GeoSeries([], crs=None))

@@ -17,7 +17,8 @@ from .checks import is_coverage
 from .feeders import FeederSettings
 from .schema import default
 
-__all__ = ["Settings", "SolveSettings", "Lock", "Source", "Inputs", "LEVELS"]
+__all__ = ["Settings", "SolveSettings", "WalkSettings", "GroupSettings", "group_name", "Lock",
+           "Source", "Inputs", "LEVELS"]
 
 LEVELS = tuple(default("project", "levels"))
 
@@ -41,6 +42,39 @@ class SolveSettings:
     travel_matrix: Path | None = None  # CSV unit_id, site_id, cost (replaces distances)
     #: the travel measure of runs that name none (districting.travel.MEASURES)
     travel: str = default_measure(has_streets=False)
+
+
+@dataclass(frozen=True)
+class WalkSettings:
+    """The [walking] table: walking distance per level (metres; a level without one has no
+    walk zone) and the optional rules on walkers and transport."""
+
+    distance: dict[str, float] = field(default_factory=dict)
+    keep_walkers: bool = False
+    max_transported: dict[str, float] = field(default_factory=dict)  # level -> students
+    transport_charge: float = 0.0  # metres per student beyond walking distance
+
+
+@dataclass(frozen=True)
+class GroupSettings:
+    """The [groups] table: one column template per student group, and the band in
+    percentage points around the district's share (0: shares reported, no band)."""
+
+    columns: tuple[str, ...] = ()
+    band_points: float = 0.0
+
+    @property
+    def names(self) -> tuple[str, ...]:
+        """Each group's name for people: its template without {level} and {year}."""
+        return tuple(group_name(c) for c in self.columns)
+
+
+def group_name(template: str) -> str:
+    """``meal_support_{level}_{year}`` -> ``meal_support``."""
+    name = template.replace("{level}", "").replace("{year}", "")
+    while "__" in name:
+        name = name.replace("__", "_")
+    return name.strip("_- ") or template
 
 
 @dataclass(frozen=True)
@@ -86,6 +120,8 @@ class Settings:
     links: Path | None = None  # [adjacency] links CSV (unit_a, unit_b, action)
     max_access: float = default("streets", "max_access")  # metres to the nearest street
     feeders: FeederSettings = field(default_factory=FeederSettings)  # [feeders]
+    walking: WalkSettings = field(default_factory=WalkSettings)
+    groups: GroupSettings = field(default_factory=GroupSettings)
 
     @property
     def all_years(self) -> tuple[int, ...]:
@@ -101,6 +137,9 @@ class Inputs:
       ``geometry`` (polygons), ``point`` (shapely Point: population-weighted point if the
       project gives one, else the centroid).
     - ``counts[level]``: float array (len(settings.all_years), n_units).
+    - ``groups[level]``: float array (groups, len(settings.all_years), n_units) of each
+      ``[groups]`` column's students; NaN in the years a template without {year} leaves
+      out (it holds the plan year only). Empty dict without a [groups] table.
     - ``sites``: GeoDataFrame, index 0..s-1, columns ``site_id``, ``name``, ``level``,
       ``capacity``, ``status`` (one of ``rules.SITE_STATUSES``), ``min_util``, ``max_util`` (nan =
       project default), ``unit_index`` (int: the unit containing the site), ``geometry``.
@@ -129,6 +168,7 @@ class Inputs:
     streets: object = None
     street_lines: np.ndarray | None = None  # the street lines read, for maps
     street_travel: object = None
+    groups: dict[str, np.ndarray] = field(default_factory=dict)
 
     @property
     def crs(self):

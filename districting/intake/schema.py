@@ -39,6 +39,7 @@ KINDS: dict[str, tuple[str, str]] = {
     "level_text": ("a table of level = column name", '{ elementary = "zone_el" }'),
     "level_option": ("a table of level = saved option name",
                      '{ elementary = "Option A" }'),
+    "bool": ("true or false", "true"),
 }
 #: Utilization is a share of capacity; above this it was surely written as a percentage.
 #: 2.0 (200 %) is a choice of ours, far above the crowding any district plans for.
@@ -201,6 +202,33 @@ SCHEMA: dict[str, Table] = {
                           "of the level below feeds at most 1 + this many schools of it (0: "
                           "whole feeding)", {}, low=0),
     }),
+    "walking": Table("walking distance per level and the rules on walkers and transport "
+                     "(distances along the run's travel measure)", keys={
+        "distance": Key("level_number", "level = metres within which students walk to "
+                        "school; students beyond it need transport; 0 = no walk zone "
+                        "(default 1,600 / 2,400 / 3,200 m: common practice in many "
+                        "districts, from memory; the district's policy and local law "
+                        "decide)", {"elementary": 1600.0, "middle": 2400.0, "high": 3200.0},
+                        low=0.0),
+        "keep_walkers": Key("bool", "a unit within walking distance of an open school stays "
+                            "in the zone of such a school", False),
+        "max_transported": Key("level_number", "level = most students (plan year) living "
+                               "beyond walking distance of their school; 0 = no limit", {},
+                               low=0.0),
+        "transport_charge": Key("number", "metres of travel charged per (plan-year) student "
+                                "living beyond walking distance of their school; 0 = none",
+                                0.0, low=0.0),
+    }),
+    "groups": Table("student groups per unit (e.g. meal support), kept near the district's "
+                    "share in every open school", keys={
+        "columns": Key("names", "column name templates of each group's students, read from "
+                       "the units layer or the counts CSV like the counts template: with "
+                       "{year}, the band holds in every projected year; without it, the "
+                       "column is the plan year's ({level} with several levels)", []),
+        "band_points": Key("number", "percentage points a school's share of a group may "
+                           "differ from the district's share of that level; 0 = shares "
+                           "reported, no band", 0.0, low=0.0, high=100.0),
+    }),
     "locks": _pairs("units the board has decided: unit goes to site"),
     "forbids": _pairs("unit may not go to site"),
 }
@@ -244,6 +272,8 @@ def _convert(kind: str, v) -> tuple[bool, object]:
         return ok, unicodedata.normalize("NFC", str(v).strip())
     if kind == "int":
         return _is_int(v), v
+    if kind == "bool":
+        return isinstance(v, bool), v
     if kind == "number":
         return _is_num(v), float(v) if _is_num(v) else v
     if kind == "years":
@@ -328,8 +358,12 @@ def _default_text(spec: Key) -> str:
     v = spec.default
     if v is None or v == "" or v == {}:
         return "-"
+    if isinstance(v, bool):
+        return "true" if v else "false"
     if isinstance(v, list):
         return "[" + ", ".join(f'"{x}"' for x in v) + "]"
+    if isinstance(v, dict):
+        return "{ " + ", ".join(f"{k} = {x:g}" for k, x in v.items()) + " }"
     return f'"{v}"' if isinstance(v, str) else f"{v:g}" if isinstance(v, float) else str(v)
 
 

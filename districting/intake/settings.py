@@ -11,6 +11,7 @@ from pathlib import Path
 
 from ..travel.measures import default_measure
 from .feeders import read_feeders
+from .practice import read_groups, read_walking
 from .records import Lock, Settings, SolveSettings, Source
 from .schema import SCHEMA, check_value, default, example, suggest, table_of
 from .tomlfile import read_toml
@@ -184,6 +185,8 @@ def read_settings(path: str | Path, report) -> Settings | None:
         solve=solve, locks=locks, forbids=forbids, raw=data, sources=sources,
         contiguity=get("adjacency", "contiguity"), links=values.path_of("adjacency", "links"),
         max_access=get("streets", "max_access"), feeders=feeders,
+        walking=read_walking(path, values.tables.get("walking"), get, levels, report),
+        groups=read_groups(path, get, levels, report),
     )
 
 

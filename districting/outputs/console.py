@@ -9,6 +9,7 @@ import math
 import sys
 
 from .feeders import feeder_words
+from .practice import practice_lines
 from .wording import gap_words, plan_lines, solver_details
 
 __all__ = ["Progress", "plan_summary", "solve_record"]
@@ -55,6 +56,7 @@ def plan_summary(outcome) -> str:
              for k, line in enumerate(plan_lines(outcome))]
     lines.append(f"    {outcome.travel_line}")
     lines += [f"    {line}" for line in feeder_words(outcome)]
+    lines += [f"    {line}" for line in practice_lines(outcome)]
     if plan.message:
         lines.append("    " + plan.message.replace("\n", "\n    "))
     _log.info("%s %s: %s", outcome.level, outcome.name or "(unsaved)", solver_details(plan))

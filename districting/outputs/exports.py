@@ -106,7 +106,8 @@ SHAPEFILE_FIELDS = {
     "moved_out": "moved_out", "mean_distance_m": "mean_m", "max_distance_m": "max_m",
     "out_of_band": "out_band", "n_parts": "n_parts", "colour": "colour",
 }
-_SHP_PREFIX = {"students_": "st_", "util_": "ut_", "flag_": "fl_"}
+_SHP_PREFIX = {"students_": "st_", "util_": "ut_", "flag_": "fl_", "walkers_": "wk_",
+               "transported_": "tr_"}
 _FIELD_MEANING = {
     "option": "option name", "site_id": "school site id", "name": "school name",
     "status": "site status in the plan year", "open": "1 if open in the plan",
@@ -122,12 +123,23 @@ _FIELD_MEANING = {
     "colour": "the school's display colour on every map (#RRGGBB)",
     "st_": "students in the proposed zone, year", "ut_": "utilization (students / capacity), year",
     "fl_": "over / under the band, year",
+    "wk_": "students within walking distance of the school, year",
+    "tr_": "students needing transport, year",
 }
 
 
-def _shp_name(column: str) -> str:
+def _group_of(column: str) -> str:
+    """``share_meal_support_2027`` -> ``meal_support``."""
+    return column.removeprefix("share_").rsplit("_", 1)[0]
+
+
+def _shp_name(column: str, groups: list[str] = ()) -> str:
+    """The Shapefile field name; a group share ``share_<group>_<y>`` is ``g<k>_<y>``, k the
+    group's place in ``groups`` (from 1)."""
     if column in SHAPEFILE_FIELDS:
         return SHAPEFILE_FIELDS[column]
+    if column.startswith("share_") and _group_of(column) in groups:
+        return f"g{list(groups).index(_group_of(column)) + 1}_{column.rsplit('_', 1)[1]}"
     for long, short in _SHP_PREFIX.items():
         if column.startswith(long):
             return short + column[len(long):]
@@ -140,15 +152,18 @@ def _write_shapefile_zip(zones: gpd.GeoDataFrame, target: Path, record: dict[str
     for c in frame.columns:
         if frame[c].dtype == bool:
             frame[c] = frame[c].astype(np.int32)
-    names = {c: _shp_name(c) for c in frame.columns if c != "geometry"}
+    groups = list(dict.fromkeys(_group_of(c) for c in frame.columns if c.startswith("share_")))
+    names = {c: _shp_name(c, groups) for c in frame.columns if c != "geometry"}
     frame = frame.rename(columns=names)
     stem = target.stem.removesuffix("_shp")
+    meaning = {**_FIELD_MEANING, **{f"g{k + 1}_": f"share of {g} among the students (0-1), "
+                                    "year" for k, g in enumerate(groups)}}
     legend = []
     for short in names.values():
-        key = next((p for p in _FIELD_MEANING if short == p or
+        key = next((p for p in meaning if short == p or
                     (p.endswith("_") and short.startswith(p))), short)
         year = short[len(key):] if key.endswith("_") else ""
-        legend.append(f"  {short:<10} {_FIELD_MEANING.get(key, '')}{' ' + year if year else ''}")
+        legend.append(f"  {short:<10} {meaning.get(key, '')}{' ' + year if year else ''}")
     readme = "\n".join([
         f"Attendance zones of option: {record['option']}",
         f"Level: {record['level']}    Plan year: {record['plan_year']}    "

@@ -69,6 +69,7 @@ from .packet_maps import (  # noqa: E402
     legend,
     map_axes,
 )
+from .packet_practice import practice_pages  # noqa: E402
 from .packet_rows import (  # noqa: E402
     NO_NUMBER_NOTE,
     OVER,
@@ -235,6 +236,7 @@ def packet_figures(outcomes: Sequence[Outcome], paper: str = "letter",
         start = first + len(pages)
         pages.append(_map_page(o, d, paper, stamp, start))
         pages += _table_pages(o, paper, stamp, first + len(pages))
+        pages += practice_pages(o, paper, stamp, first + len(pages))
         pages += _moves_pages(o, d, paper, stamp, first + len(pages))
         pages += feeder_pages(o, paper, stamp, first + len(pages))
         where.append(f"{start}-{first + len(pages) - 1}")

@@ -22,6 +22,7 @@ import numpy as np
 import pandas as pd
 
 from ..study import Outcome
+from .practice import practice_sheet
 from .tables import plan_years, school_table, unit_table
 from .wording import DASH
 
@@ -85,6 +86,10 @@ def school_sheet(outcome: Outcome, colours: dict[str, str] | None = None
     sheet["Mean travel (km)"] = _decimals(t["mean_distance_m"] / 1000, 2)
     sheet["Longest travel (km)"] = _decimals(t["max_distance_m"] / 1000, 2)
     sheet["Outside the band in some year"] = _yes(t["out_of_band"])
+    extra, extra_notes = practice_sheet(outcome, t, whole_numbers, _decimals)
+    for title, values in extra.items():
+        sheet[title] = values
+    notes.update(extra_notes)
     notes.update({
         f"Students moving in ({plan_year})": "students who join from another school's zone",
         f"Students moving out ({plan_year})": "students who leave for another school's zone",

@@ -14,6 +14,7 @@ import pandas as pd
 
 from .. import rules
 from ..study import Outcome
+from .practice import practice_columns
 from .wording import no_plan_error, status_words
 from .zones import changed_areas, dissolve_zones
 
@@ -51,7 +52,8 @@ def school_table(outcome: Outcome) -> pd.DataFrame:
     today's zones), ``students_<year>`` and ``util_<year>`` for each projected year (the
     proposed zones), ``flag_<year>`` ("over" above the band, "under" below it, "" inside),
     ``moved_in``, ``moved_out`` (plan-year students), ``mean_distance_m``,
-    ``max_distance_m`` and ``out_of_band``.
+    ``max_distance_m`` and ``out_of_band``; then the walk, transport and group-share
+    columns of :func:`~districting.outputs.practice.practice_columns`.
     """
     p, m = outcome.problem, outcome.metrics
     a = np.asarray(outcome.assignment)
@@ -88,7 +90,7 @@ def school_table(outcome: Outcome) -> pd.DataFrame:
     table["mean_distance_m"] = m.mean_distance
     table["max_distance_m"] = m.max_distance
     table["out_of_band"] = m.out_of_band
-    return table
+    return pd.concat([table, practice_columns(outcome, plan_years(outcome))], axis=1)
 
 
 def unit_table(outcome: Outcome) -> pd.DataFrame:

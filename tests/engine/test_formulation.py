@@ -46,6 +46,16 @@ def split_problem() -> Problem:
     return whole_feeding_problem().replace(feeder_splits=1)
 
 
+def practice_problem() -> Problem:
+    """The rooted case with a walk zone, a cap on transported students and two group bands
+    (the second group counted in the plan year only): the practice families appear."""
+    base = rooted_problem()
+    walk = base.cost <= 2.0
+    d = base.demand
+    groups = np.stack([np.floor(d / 2), np.vstack([np.minimum(d[0], 1), np.full(12, np.nan)])])
+    return base.replace(walk=walk, max_transported=20.0, groups=groups, group_band=0.3)
+
+
 def highs_rows(route: HighsRoute):
     """(dense A, row lower, row upper, cost, col lower, col upper) as highspy holds them."""
     lp = route.h.getLp()
@@ -92,7 +102,7 @@ def pyomo_rows(model, route: HighsRoute):
 
 
 @pytest.mark.parametrize("make", [rich_problem, rooted_problem, whole_feeding_problem,
-                                  split_problem])
+                                  split_problem, practice_problem])
 def test_highs_and_pyomo_routes_hold_the_same_matrix(make):
     problem = make()
     route = HighsRoute(problem)
@@ -110,6 +120,8 @@ def test_every_family_is_written_on_the_rooted_case():
     fams = {b.family for b in f.blocks if b.n_rows}
     assert fams == {"assignment", "linking", "count", "roots", "capacity", "floor", "cover",
                     "max_moved"}
+    f = formulate(practice_problem())
+    assert {b.family for b in f.blocks if b.n_rows} >= {"transport", "groups"}
 
 
 def test_whole_feeding_rows_tie_each_unit_to_its_zone_representative():

@@ -150,3 +150,21 @@ def test_travel_is_a_setting_the_workbench_offers(inputs):
     page.state.travel = "straight-line"
     assert st.settings.travel == "straight-line" and st.effective.travel == "straight-line"
     assert Session(st).state.travel == "straight-line"
+
+
+def test_walk_and_group_rules_are_settings_the_workbench_offers(inputs):
+    """keep_walkers, the transport limit and the group band: checked by the store, passed
+    to the run, shown again by a new page."""
+    from ui.session import Session
+
+    st = new_store(inputs)
+    with pytest.raises(StoreError, match="group band must be between 0 and 100"):
+        st.update_settings(group_band=150)
+    page = Session(st)
+    page.state.keep_walkers = True
+    page.state.group_band = 12.0
+    page.state.max_transported = 300.0
+    assert st.effective.keep_walkers is True and st.effective.group_band == 12.0
+    assert st.effective.max_transported == 300.0
+    again = Session(st).state
+    assert (again.keep_walkers, again.group_band, again.max_transported) == (True, 12.0, 300.0)

@@ -40,6 +40,14 @@ class SettingsPanel(pn.viewable.Viewer):
                                                            name="Time limit (s)", step=5),
             "travel": pn.widgets.Select.from_param(
                 p.travel, name="Travel", options={WORDS[m]: m for m in p.travel.objects}),
+            "keep_walkers": pn.widgets.Checkbox.from_param(
+                p.keep_walkers, name="Keep units within walking distance with such a school"),
+            "max_transported": pn.widgets.FloatInput.from_param(
+                p.max_transported, name="Most students needing transport (0 = no limit)",
+                step=50),
+            "group_band": pn.widgets.FloatInput.from_param(
+                p.group_band, name="Group band (points around the district's share, 0 = none)",
+                step=1),
         }
         for key, widget in w.items():
             widget.css_classes = [f"setting-{key.replace('_', '-')}"]
