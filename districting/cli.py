@@ -514,6 +514,9 @@ def build_parser() -> argparse.ArgumentParser:
     _add_travel_option(p)
     p.set_defaults(func=cmd_demo)
 
+    from .sweep.command import add_sweep_parser  # its own package; light until it runs
+    add_sweep_parser(sub, load=_load, check_flags=check_flags, travel_option=_add_travel_option)
+
     for ep in entry_points(group="districting.commands"):
         try:
             ep.load()(sub)

@@ -1,0 +1,60 @@
+"""Where a sweep runs: a Dask cluster on this machine, or one that already exists.
+
+``workers``: a :class:`distributed.LocalCluster` of that many worker processes, one thread
+each (a solve is one process's work; the default is one per core). ``scheduler``: the
+address of a running ``dask scheduler`` whose workers can import ``districting``. An
+address that does not answer within ``timeout`` seconds is a :class:`ClusterUnreachable`
+naming it and the fix, raised before anything is written.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import logging
+import os
+from collections.abc import Iterator
+
+__all__ = ["ClusterUnreachable", "open_client", "default_workers", "CONNECT_TIMEOUT"]
+
+#: Seconds to wait for an existing scheduler to answer (our choice: long enough for a
+#: cluster on the local network, short enough that a wrong address is told at once).
+CONNECT_TIMEOUT = 10.0
+
+
+class ClusterUnreachable(RuntimeError):
+    """No Dask scheduler answered at the address given."""
+
+
+def default_workers() -> int:
+    """One worker per core this process may use."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # not on Linux
+        return max(1, os.cpu_count() or 1)
+
+
+@contextlib.contextmanager
+def open_client(workers: int | None = None, scheduler: str | None = None,
+                timeout: float = CONNECT_TIMEOUT, processes: bool = True) -> Iterator:
+    """A :class:`distributed.Client` on a local cluster or on ``scheduler``; closed after."""
+    from distributed import Client, LocalCluster
+
+    if scheduler:
+        try:
+            client = Client(scheduler, timeout=f"{timeout}s")
+        except (OSError, TimeoutError) as err:
+            raise ClusterUnreachable(
+                f"no Dask scheduler answered at {scheduler} within {timeout:g} s ({err}). "
+                f"Start one there with `dask scheduler` and its workers with `dask worker "
+                f"{scheduler}`, check the address and port, or leave out --scheduler to run "
+                "on this machine (--workers N). Nothing was solved or written.") from None
+        with client:
+            yield client
+        return
+    n = workers or default_workers()
+    if n < 1:
+        raise ValueError(f"--workers {n}: give 1 or more worker processes")
+    with LocalCluster(n_workers=n, threads_per_worker=1, processes=processes,
+                      dashboard_address=None, silence_logs=logging.ERROR) as cluster, \
+            Client(cluster) as client:
+        yield client
