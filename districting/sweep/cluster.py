@@ -12,6 +12,7 @@ from __future__ import annotations
 import contextlib
 import logging
 import os
+import warnings
 from collections.abc import Iterator
 
 __all__ = ["ClusterUnreachable", "open_client", "default_workers", "CONNECT_TIMEOUT"]
@@ -35,9 +36,11 @@ def default_workers() -> int:
 
 @contextlib.contextmanager
 def open_client(workers: int | None = None, scheduler: str | None = None,
-                timeout: float = CONNECT_TIMEOUT, processes: bool = True) -> Iterator:
+                timeout: float | None = None, processes: bool = True) -> Iterator:
     """A :class:`distributed.Client` on a local cluster or on ``scheduler``; closed after."""
     from distributed import Client, LocalCluster
+
+    timeout = CONNECT_TIMEOUT if timeout is None else timeout
 
     if scheduler:
         try:
@@ -54,7 +57,9 @@ def open_client(workers: int | None = None, scheduler: str | None = None,
     n = workers or default_workers()
     if n < 1:
         raise ValueError(f"--workers {n}: give 1 or more worker processes")
-    with LocalCluster(n_workers=n, threads_per_worker=1, processes=processes,
-                      dashboard_address=None, silence_logs=logging.ERROR) as cluster, \
-            Client(cluster) as client:
+    with warnings.catch_warnings():  # no dashboard; its port taken by another is no news
+        warnings.filterwarnings("ignore", message="Port .* is already in use")
+        cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=processes,
+                               dashboard_address=None, silence_logs=logging.ERROR)
+    with cluster, Client(cluster) as client:
         yield client

@@ -148,8 +148,10 @@ def run_sweep(client, inputs: Inputs, todo: Sequence[Job], done: Sequence[Job] =
                     jobs[again] = job
                     stream.add(again)
                     continue
-                report.failed.append(f"{job.name}: the solve stopped ({type(err).__name__}: "
-                                     f"{err}); run the same command again to resume")
+                why = (f"the worker process solving it stopped {attempts[job.name] + 1} times"
+                       if isinstance(err, KilledWorker) else f"the solve failed: {err}")
+                report.failed.append(f"{job.name}: {why}; run the same command again to "
+                                     "resume (options saved so far are kept)")
                 continue
             solved = future.result()
             outcome = _outcome(inputs, job, solved)
