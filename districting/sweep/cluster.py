@@ -15,7 +15,7 @@ import os
 import warnings
 from collections.abc import Iterator
 
-__all__ = ["ClusterUnreachable", "open_client", "default_workers", "CONNECT_TIMEOUT"]
+__all__ = ["ClusterUnreachable", "open_client", "default_workers", "warm_up", "CONNECT_TIMEOUT"]
 
 #: Seconds to wait for an existing scheduler to answer (our choice: long enough for a
 #: cluster on the local network, short enough that a wrong address is told at once).
@@ -32,6 +32,14 @@ def default_workers() -> int:
         return max(1, len(os.sched_getaffinity(0)))
     except AttributeError:  # not on Linux
         return max(1, os.cpu_count() or 1)
+
+
+def warm_up() -> bool:
+    """Run on each worker once: import the engine, so the first solve does not pay for it."""
+    import importlib
+
+    importlib.import_module("districting.study")
+    return True
 
 
 @contextlib.contextmanager
@@ -52,6 +60,7 @@ def open_client(workers: int | None = None, scheduler: str | None = None,
                 f"{scheduler}`, check the address and port, or leave out --scheduler to run "
                 "on this machine (--workers N). Nothing was solved or written.") from None
         with client:
+            client.run(warm_up)
             yield client
         return
     n = workers or default_workers()
@@ -62,4 +71,5 @@ def open_client(workers: int | None = None, scheduler: str | None = None,
         cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=processes,
                                dashboard_address=None, silence_logs=logging.ERROR)
     with cluster, Client(cluster) as client:
+        client.run(warm_up)
         yield client

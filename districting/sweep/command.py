@@ -50,7 +50,7 @@ def cmd_sweep(args, load: Callable, check_flags: Callable) -> int:
     from .cluster import ClusterUnreachable, open_client
     from .grid import parse_scenario, settings_grid
     from .runner import plan_jobs, run_sweep
-    from .table import write_table
+    from .table import default_folder, write_table
 
     _check_lists(args, check_flags)
     prefix = check_name(args.save or f"{args.level} sweep", what="option prefix")
@@ -78,7 +78,7 @@ def cmd_sweep(args, load: Callable, check_flags: Callable) -> int:
             print(f"running on {len(client.scheduler_info()['workers'])} Dask workers "
                   f"({client.scheduler.address})")
         report = run_sweep(client, inputs, todo, done)
-    out = Path(args.out) if args.out else inputs.settings.path.parent / "out"
+    out = Path(args.out) if args.out else default_folder(inputs)
     measure = next(job.settings.travel for job in [*todo, *done])
     travel = measure_words(measure, table=inputs.travel is not None)
     paths = write_table(report.results, inputs, args.level, out, travel)

@@ -22,7 +22,8 @@ from ..study import now_iso
 from .frontier import non_dominated
 from .results import SweepResult
 
-__all__ = ["sweep_paths", "sweep_sheet", "write_table", "OPTION", "MOVED", "MEAN_KM", "SPREAD",
+__all__ = ["sweep_paths", "sweep_sheet", "write_table", "read_table", "default_folder",
+           "OPTION", "MOVED", "MEAN_KM", "SPREAD",
            "SETTINGS", "FRONTIER"]
 
 OPTION, SETTINGS = "Option", "Settings"
@@ -36,6 +37,19 @@ def sweep_paths(folder: str | Path, level: str) -> dict[str, Path]:
     csv = folder / f"sweep-{level}.csv"
     return {"png": folder / f"sweep-{level}.png", "csv": csv,
             "about": folder / sidecar_name(csv.name)}
+
+
+def default_folder(inputs: Inputs) -> Path:
+    """Where a sweep writes its chart and table without --out: out/ beside the project."""
+    return Path(inputs.settings.path).parent / "out"
+
+
+def read_table(folder: str | Path, level: str) -> pd.DataFrame | None:
+    """The table of the level's latest sweep in ``folder`` (None when there is none)."""
+    path = sweep_paths(folder, level)["csv"]
+    if not path.exists():
+        return None
+    return pd.read_csv(path, keep_default_na=False, na_values=[""])
 
 
 def _round(values, places: int) -> pd.Series:
