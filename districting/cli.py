@@ -230,7 +230,12 @@ def cmd_packet(args) -> int:
     names = [n.strip() for n in args.options.split(",") if n.strip()]
     outcomes = [load_option(inputs, n) for n in names]
     pdf = Path(args.out)
-    written = write_packet(outcomes, pdf, png_folder=pdf.parent / f"{pdf.stem}-pages")
+    extra = []
+    if args.sweep:  # the level's latest sweep chart, as the last page
+        from .sweep.page import sweep_page_maker
+        extra.append(sweep_page_maker(inputs, outcomes[0].level))
+    written = write_packet(outcomes, pdf, png_folder=pdf.parent / f"{pdf.stem}-pages",
+                           extra_pages=extra)
     print(f"wrote {pdf} ({len(written) - 1} pages, PNG copies in {pdf.stem}-pages/) "
           f"for options {', '.join(names)}")
     return 0
@@ -472,6 +477,9 @@ def build_parser() -> argparse.ArgumentParser:
                    help="comma-separated names of saved options, e.g. \"Option A,Option B\"")
     p.add_argument("--out", default="packet.pdf", metavar="FILE.pdf",
                    help="the PDF to write (default packet.pdf); the pages go beside it")
+    p.add_argument("--sweep", action="store_true",
+                   help="end with the trade-off chart of the level's latest sweep "
+                        "(`districting sweep`, its table in out/ beside the project)")
     p.set_defaults(func=cmd_packet)
 
     p = sub.add_parser("export", help="write a saved option's exports again, without solving",

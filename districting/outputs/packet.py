@@ -212,8 +212,9 @@ def _pairs(outcomes: Sequence[Outcome]) -> list[tuple[Outcome, Outcome]]:
 
 # ---------------------------------------------------------------------------- the packet
 def packet_figures(outcomes: Sequence[Outcome], paper: str = "letter",
-                   stamp: str | None = None) -> list[Figure]:
-    """Every page of the packet, in order, as matplotlib figures."""
+                   stamp: str | None = None, extra_pages: Sequence = ()) -> list[Figure]:
+    """Every page of the packet, in order, as matplotlib figures; ``extra_pages`` are
+    page makers ``(paper, stamp, number) -> Figure`` put last (a sweep's chart)."""
     outcomes = list(outcomes)
     if not outcomes:
         raise ValueError("a packet needs at least one option")
@@ -237,6 +238,8 @@ def packet_figures(outcomes: Sequence[Outcome], paper: str = "letter",
         where.append(f"{start}-{first + len(pages) - 1}")
     if len(outcomes) > 1:
         pages.insert(0, _summary_page(outcomes, where, paper, stamp, compared))
+    for make in extra_pages:
+        pages.append(make(paper, stamp, len(pages) + 1))
     for fig in pages:  # geopandas names the axes after the CRS; the scale bar says it all
         for ax in fig.axes:
             ax.set_xlabel("")
@@ -245,15 +248,15 @@ def packet_figures(outcomes: Sequence[Outcome], paper: str = "letter",
 
 
 def write_packet(outcomes: Sequence[Outcome], path_pdf: str | os.PathLike,
-                 png_folder: str | os.PathLike | None = None, paper: str = "letter"
-                 ) -> list[Path]:
+                 png_folder: str | os.PathLike | None = None, paper: str = "letter",
+                 extra_pages: Sequence = ()) -> list[Path]:
     """Write the packet PDF, and ``<stem>_p01.png``... at :data:`PNG_DPI` into
     ``png_folder`` when given; returns the PDF path followed by the PNG paths.
 
     ``paper`` is "letter" (US Letter) or "a4", landscape either way.
     """
     path_pdf = Path(path_pdf)
-    pages = packet_figures(outcomes, paper)
+    pages = packet_figures(outcomes, paper, extra_pages=extra_pages)
     names = "; ".join(o.name or "(unsaved)" for o in outcomes)
     meta = {"Title": f"Hearing packet: {names}", "Subject": DRAFT_NOTICE,
             "Creator": "districting"}

@@ -1,34 +1,36 @@
 """The trade-off chart: students moved against mean travel, one point per option.
 
-Colour is the spread of utilization (highest minus lowest school, percentage points: how
-evenly the schools are filled); each point is labelled with its settings in words; the
-non-dominated options are joined as the frontier. :func:`draw_tradeoff` draws on any
-axes (the packet's page uses it); :func:`write_chart` writes the PNG atomically.
+Drawn from the sweep's table (:mod:`.table`, the CSV people open too), so the chart, the
+workbench's Sweep tab and the packet page show the same figures. Colour is the spread of
+utilization (highest minus lowest school, percentage points: how evenly the schools are
+filled); each point is labelled with its settings in words; the non-dominated options are
+joined as the frontier. :func:`draw_tradeoff` draws on any axes (the packet page uses
+it); :func:`write_chart` writes the PNG atomically.
 """
 
 from __future__ import annotations
 
-from collections.abc import Sequence
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 from .. import DRAFT_NOTICE
 from ..io import atomic_path
 from .frontier import non_dominated
-from .results import SweepResult
+from .table import MEAN_KM, MOVED, SETTINGS, SPREAD
 
 __all__ = ["draw_tradeoff", "write_chart"]
 
 _DPI = 130
 
 
-def draw_tradeoff(ax, results: Sequence[SweepResult], colorbar: bool = True) -> int:
-    """Draw the chart on ``ax``; returns the number of options on the frontier."""
-    shown = [r for r in results if r.feasible]
-    missing = len(results) - len(shown)
+def draw_tradeoff(ax, sheet: pd.DataFrame, colorbar: bool = True) -> int:
+    """Draw the chart of a sweep table on ``ax``; returns the options on the frontier."""
+    shown = sheet.dropna(subset=[MOVED, MEAN_KM])
+    missing = len(sheet) - len(shown)
     ax.set_xlabel("Students moved from today's school (plan year)")
     ax.set_ylabel("Mean travel (km)")
     ax.grid(True, color="#dddddd", linewidth=0.6)
@@ -36,18 +38,18 @@ def draw_tradeoff(ax, results: Sequence[SweepResult], colorbar: bool = True) -> 
         ax.text(0.99, 0.99, f"{missing} setting{'s' if missing > 1 else ''} without a "
                 "valid plan (see the table)", transform=ax.transAxes, ha="right", va="top",
                 fontsize=7, color="#8a1c1c")
-    if not shown:
+    if not len(shown):
         return 0
-    x = np.array([r.students_moved for r in shown])
-    y = np.array([r.mean_km for r in shown])
-    spread = np.array([r.spread for r in shown])
+    x = shown[MOVED].to_numpy(float)
+    y = shown[MEAN_KM].to_numpy(float)
     front = non_dominated(x, y)
     order = np.flatnonzero(front)[np.argsort(x[front])]
     ax.plot(x[order], y[order], color="#444444", linewidth=1.2, zorder=1,
             label="frontier: no option moves fewer students with shorter travel")
-    dots = ax.scatter(x, y, c=np.nan_to_num(spread), cmap="viridis", s=70, zorder=2,
-                      edgecolors=np.where(front, "#111111", "#ffffff"), linewidths=1.2)
-    _labels(ax, shown, x, y)
+    dots = ax.scatter(x, y, c=np.nan_to_num(shown[SPREAD].to_numpy(float)), cmap="viridis",
+                      s=70, zorder=2, edgecolors=np.where(front, "#111111", "#ffffff"),
+                      linewidths=1.2)
+    _labels(ax, shown[SETTINGS].astype(str).tolist(), x, y)
     if colorbar:
         bar = ax.figure.colorbar(dots, ax=ax, fraction=0.05, pad=0.02)
         bar.set_label("Utilization spread (points, highest minus lowest school)", fontsize=8)
@@ -57,7 +59,7 @@ def draw_tradeoff(ax, results: Sequence[SweepResult], colorbar: bool = True) -> 
     return int(front.sum())
 
 
-def _labels(ax, shown: Sequence[SweepResult], x: np.ndarray, y: np.ndarray) -> None:
+def _labels(ax, words: list[str], x: np.ndarray, y: np.ndarray) -> None:
     """Each point's settings in words; options on the same spot share one label, and
     labels in the right half of the chart sit to the left of their point."""
     spots: dict[tuple, list[int]] = {}
@@ -67,18 +69,18 @@ def _labels(ax, shown: Sequence[SweepResult], x: np.ndarray, y: np.ndarray) -> N
     for ks in spots.values():
         xi, yi = x[ks[0]], y[ks[0]]
         right = xi > middle and x.max() > x.min()
-        ax.annotate("\n".join(shown[k].words for k in ks), (xi, yi),
+        ax.annotate("\n".join(words[k] for k in ks), (xi, yi),
                     xytext=(-6 if right else 6, 4), textcoords="offset points",
                     ha="right" if right else "left", va="bottom", fontsize=6.5,
                     color="#222222")
 
 
-def write_chart(results: Sequence[SweepResult], path: str | Path, title: str) -> Path:
+def write_chart(sheet: pd.DataFrame, path: str | Path, title: str) -> Path:
     """The chart as a PNG (written to a temporary name, then renamed)."""
     fig = Figure(figsize=(9, 6), dpi=_DPI)
     FigureCanvasAgg(fig)
     ax = fig.add_subplot()
-    draw_tradeoff(ax, results)
+    draw_tradeoff(ax, sheet)
     ax.set_title(title, fontsize=10, loc="left")
     fig.text(0.01, 0.01, DRAFT_NOTICE, fontsize=6, color="#555555", wrap=True)
     fig.subplots_adjust(bottom=0.16, left=0.09, right=0.97, top=0.93)

@@ -84,7 +84,7 @@ def cmd_sweep(args, load: Callable, check_flags: Callable) -> int:
     paths = write_table(report.results, inputs, args.level, out, travel)
     title = (f"{inputs.settings.name}, {args.level}: students moved against mean travel "
              f"({len(report.results)} options)")
-    paths["png"] = write_chart(report.results, paths["png"], title)
+    write_chart(paths["sheet"], paths["png"], title)
     print(f"solved {report.solved}, already saved {report.resumed}; options saved in "
           f"{inputs.settings.store}")
     print(f"chart: {paths['png']}\ntable: {paths['csv']} (about: {paths['about'].name})")
@@ -124,7 +124,7 @@ def add_sweep_parser(sub, *, load: Callable, check_flags: Callable,
                    help="how close to the best possible each plan must be proven")
     travel_option(p)
     p.add_argument("--save", metavar="PREFIX",
-                   help="options are named PREFIX and the values, e.g. 'Sweep – moves 1500, "
+                   help="options are named PREFIX and the values, e.g. 'Sweep – moves 1500 – "
                         "band 60–100' (default: '<level> sweep')")
     p.add_argument("--overwrite", action="store_true",
                    help="solve again and replace options of these names saved with other "

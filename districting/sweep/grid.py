@@ -117,12 +117,13 @@ def setting_words(setting: Setting) -> str:
 
 
 def option_name(prefix: str, setting: Setting) -> str:
-    """The saved option's name: the prefix and every value ('Sweep – moves 3000, band
-    60–95, E15 opens'); checked by :func:`districting.names.check_name` (ValueError)."""
-    name = (f"{prefix} – moves {setting.stability_weight:g}, band {_pct(setting.min_util)}"
-            f"–{_pct(setting.max_util)}")
+    """The saved option's name: the prefix and every value ('Sweep – moves 3000 – band
+    60–95 – E15 opens'; no commas, so ``packet --options`` can list it); checked by
+    :func:`districting.names.check_name` (ValueError)."""
+    name = (f"{prefix} – moves {setting.stability_weight:g} – band "
+            f"{_pct(setting.min_util)}–{_pct(setting.max_util)}")
     if setting.scenario.name:
-        name += f", {setting.scenario.name}"
+        name += f" – {setting.scenario.name}"
     try:
         return check_name(name)
     except BadName as err:

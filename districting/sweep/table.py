@@ -105,10 +105,12 @@ def sweep_sheet(results: Sequence[SweepResult], plan_year: int
 
 
 def write_table(results: Sequence[SweepResult], inputs: Inputs, level: str,
-                folder: str | Path, travel: str) -> dict[str, Path]:
-    """Write the CSV and its sidecar atomically; returns the paths."""
+                folder: str | Path, travel: str) -> dict:
+    """Write the CSV and its sidecar atomically; returns their paths (``csv``, ``about``,
+    ``png`` for the chart) and the table itself (``sheet``)."""
     paths = sweep_paths(folder, level)
     sheet, notes = sweep_sheet(results, int(inputs.settings.plan_year))
+    paths["sheet"] = sheet
     record = {"project": inputs.settings.name, "level": level,
               "plan_year": str(inputs.settings.plan_year), "travel measure": travel,
               "combinations": str(len(sheet)), "written": now_iso(),
