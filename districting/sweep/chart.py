@@ -19,8 +19,7 @@ from matplotlib.figure import Figure
 
 from .. import DRAFT_NOTICE
 from ..io import atomic_path
-from .frontier import non_dominated
-from .table import MEAN_KM, MOVED, SETTINGS, SPREAD
+from .table import FRONTIER, MEAN_KM, MOVED, SETTINGS, SPREAD
 
 __all__ = ["draw_tradeoff", "write_chart"]
 
@@ -42,37 +41,59 @@ def draw_tradeoff(ax, sheet: pd.DataFrame, colorbar: bool = True) -> int:
         return 0
     x = shown[MOVED].to_numpy(float)
     y = shown[MEAN_KM].to_numpy(float)
-    front = non_dominated(x, y)
+    front = (shown[FRONTIER] == "yes").to_numpy()  # decided once, in the table
     order = np.flatnonzero(front)[np.argsort(x[front])]
     ax.plot(x[order], y[order], color="#444444", linewidth=1.2, zorder=1,
             label="frontier: no option moves fewer students with shorter travel")
     dots = ax.scatter(x, y, c=np.nan_to_num(shown[SPREAD].to_numpy(float)), cmap="viridis",
                       s=70, zorder=2, edgecolors=np.where(front, "#111111", "#ffffff"),
                       linewidths=1.2)
-    _labels(ax, shown[SETTINGS].astype(str).tolist(), x, y)
     if colorbar:
         bar = ax.figure.colorbar(dots, ax=ax, fraction=0.05, pad=0.02)
         bar.set_label("Utilization spread (points, highest minus lowest school)", fontsize=8)
-    ax.legend(loc="lower left", fontsize=7, frameon=False)
+    ax.legend(loc="best", fontsize=7, frameon=False)
+    ax.margins(y=0.12)
     pad_x = max(float(np.ptp(x)) * 0.08, 1.0)
     ax.set_xlim(min(0.0, x.min() - pad_x), x.max() + pad_x)
+    _labels(ax, shown[SETTINGS].astype(str).tolist(), x, y)  # last: the frame is final
     return int(front.sum())
 
 
 def _labels(ax, words: list[str], x: np.ndarray, y: np.ndarray) -> None:
-    """Each point's settings in words; options on the same spot share one label, and
-    labels in the right half of the chart sit to the left of their point."""
-    spots: dict[tuple, list[int]] = {}
-    for k, (xi, yi) in enumerate(zip(x, y, strict=True)):
-        spots.setdefault((round(float(xi)), round(float(yi), 3)), []).append(k)
+    """Each point's settings in words, placed clear of the other labels: points a few
+    pixels apart share one label; a label that would overlap one already placed moves up
+    or down a line at a time; labels in the right half sit to the left of their point."""
+    renderer = ax.figure.canvas.get_renderer()
+    ax.autoscale_view()
+    at = ax.transData.transform(np.column_stack([x, y]))
+    groups: list[list[int]] = []
+    for k in range(len(x)):
+        near = next((g for g in groups if np.hypot(*(at[g[0]] - at[k])) < 8), None)
+        if near is None:
+            groups.append([k])
+        else:
+            near.append(k)
     middle = (x.min() + x.max()) / 2
-    for ks in spots.values():
-        xi, yi = x[ks[0]], y[ks[0]]
-        right = xi > middle and x.max() > x.min()
-        ax.annotate("\n".join(words[k] for k in ks), (xi, yi),
-                    xytext=(-6 if right else 6, 4), textcoords="offset points",
-                    ha="right" if right else "left", va="bottom", fontsize=6.5,
-                    color="#222222")
+    placed = []
+    for g in sorted(groups, key=lambda g: -at[g[0]][1]):
+        right = x[g[0]] > middle and x.max() > x.min()
+        text = "\n".join(words[k] for k in g)
+        for step in range(16):
+            lift = 4 + (step + 1) // 2 * 9 * (1 if step % 2 else -1)
+            label = ax.annotate(text, (x[g[0]], y[g[0]]), xytext=(-6 if right else 6, lift),
+                                textcoords="offset points", ha="right" if right else "left",
+                                va="bottom", fontsize=6.5, color="#222222")
+            box = label.get_window_extent(renderer)
+            if not any(box.overlaps(other) for other in placed):
+                break
+            label.remove()
+            label = None
+        if label is None:  # no room found: the last place, drawn anyway
+            label = ax.annotate(text, (x[g[0]], y[g[0]]), xytext=(-6 if right else 6, 4),
+                                textcoords="offset points", ha="right" if right else "left",
+                                va="bottom", fontsize=6.5, color="#222222")
+            box = label.get_window_extent(renderer)
+        placed.append(box)
 
 
 def write_chart(sheet: pd.DataFrame, path: str | Path, title: str) -> Path:
@@ -80,10 +101,10 @@ def write_chart(sheet: pd.DataFrame, path: str | Path, title: str) -> Path:
     fig = Figure(figsize=(9, 6), dpi=_DPI)
     FigureCanvasAgg(fig)
     ax = fig.add_subplot()
-    draw_tradeoff(ax, sheet)
-    ax.set_title(title, fontsize=10, loc="left")
-    fig.text(0.01, 0.01, DRAFT_NOTICE, fontsize=6, color="#555555", wrap=True)
     fig.subplots_adjust(bottom=0.16, left=0.09, right=0.97, top=0.93)
+    ax.set_title(title, fontsize=10, loc="left")
+    draw_tradeoff(ax, sheet)
+    fig.text(0.01, 0.01, DRAFT_NOTICE, fontsize=6, color="#555555", wrap=True)
     with atomic_path(path) as tmp:
         fig.savefig(tmp, format="png", dpi=_DPI)
     return Path(path)

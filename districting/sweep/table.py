@@ -24,10 +24,12 @@ from .results import SweepResult
 
 __all__ = ["sweep_paths", "sweep_sheet", "write_table", "read_table", "default_folder",
            "OPTION", "MOVED", "MEAN_KM", "SPREAD",
-           "SETTINGS", "FRONTIER"]
+           "SETTINGS", "FRONTIER",
+           "TOTAL_KM"]
 
 OPTION, SETTINGS = "Option", "Settings"
 MOVED, MEAN_KM = "Students moved", "Mean travel (km)"
+TOTAL_KM = "Total travel (student-km)"
 SPREAD, FRONTIER = "Utilization spread (points)", "On the frontier"
 
 
@@ -60,7 +62,8 @@ def sweep_sheet(results: Sequence[SweepResult], plan_year: int
                 ) -> tuple[pd.DataFrame, dict[str, str]]:
     """The table and a note per column."""
     r = list(results)
-    front = non_dominated([x.students_moved for x in r], [x.mean_km for x in r])
+    # on the unrounded figures: total travel tells apart plans whose mean km round alike
+    front = non_dominated([x.students_moved for x in r], [x.total_km for x in r])
     sheet = pd.DataFrame({
         OPTION: [x.name for x in r],
         SETTINGS: [x.words for x in r],
@@ -71,7 +74,7 @@ def sweep_sheet(results: Sequence[SweepResult], plan_year: int
         "Status": [x.status for x in r],
         MOVED: whole_numbers([x.students_moved for x in r]),
         MEAN_KM: _round([x.mean_km for x in r], 2),
-        "Total travel (student-km)": whole_numbers([x.total_km for x in r]),
+        TOTAL_KM: whole_numbers([x.total_km for x in r]),
         "Highest utilization (%)": _round([x.highest_util for x in r], 1),
         "Lowest utilization (%)": _round([x.lowest_util for x in r], 1),
         SPREAD: _round([x.spread for x in r], 1),
@@ -90,15 +93,15 @@ def sweep_sheet(results: Sequence[SweepResult], plan_year: int
         "Status": "how good the plan is proven to be, or why there is none",
         MOVED: f"students in {plan_year} whose school differs from today's; empty: no plan",
         MEAN_KM: f"student-weighted mean travel in {plan_year}, km; empty: no plan",
-        "Total travel (student-km)": f"students x km summed over the level in {plan_year}",
+        TOTAL_KM: f"students x km summed over the level in {plan_year}",
         "Highest utilization (%)": f"the fullest open school in {plan_year}, percent of "
                                    "capacity",
         "Lowest utilization (%)": f"the emptiest open school in {plan_year}, percent of "
                                   "capacity",
         SPREAD: "highest minus lowest utilization, percentage points: how evenly the "
                 "schools are filled (lower is more even)",
-        FRONTIER: "yes when no other option of the sweep moves fewer students and has a "
-                  "shorter mean travel, at least one of the two strictly",
+        FRONTIER: "yes when no other option of the sweep moves at most as many students "
+                  "with at most as much total travel, and fewer or less of one",
         "Solve time (s)": "seconds this combination took to solve (when it was solved)",
     }
     return sheet, notes

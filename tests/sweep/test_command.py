@@ -30,7 +30,7 @@ def test_sweep_saves_charts_and_feeds_the_packet(project, tmp_path):
     table = pd.read_csv(out / "sweep-elementary.csv", keep_default_na=False, na_values=[""])
     assert sorted(table["Option"]) == sorted(o.name for o in list_options(inputs.settings.store))
     # the frontier column is the non-dominated filter of the two figures as written
-    expected = non_dominated(table["Students moved"], table["Mean travel (km)"])
+    expected = non_dominated(table["Students moved"], table["Total travel (student-km)"])
     assert (table["On the frontier"] == "yes").tolist() == expected.tolist()
     about = json.loads((out / "sweep-elementary.about.json").read_text(encoding="utf-8"))
     assert "decision support" in about["notice"] and "local law" in about["notice"]

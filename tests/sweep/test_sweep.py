@@ -141,3 +141,19 @@ def test_a_worker_killed_mid_sweep_leaves_every_option_saved_once(project):
     assert rows_per_name(inputs.settings.store) == dict.fromkeys(
         [r.name for r in report.results], 1)
     assert len(report.results) == 6
+
+
+def test_the_engine_keeps_highs_random_seed_fixed(project):
+    """Same settings, same plan: HiGHS's random seed (its documented option
+    ``random_seed``) is the same fixed value in every model the engine builds."""
+    from districting.engine.highs_route import HighsRoute
+    from districting.study import build_problem
+
+    def seed(route) -> int:
+        value = route.h.getOptionValue("random_seed")
+        return value[-1] if isinstance(value, tuple) else value
+
+    inputs = load_project(project)
+    problem, _ = build_problem(inputs, RunSettings(level="elementary"))
+    seeds = {seed(HighsRoute(problem)) for _ in range(3)}
+    assert seeds == {0}  # HiGHS's default, never changed by the engine

@@ -11,8 +11,8 @@ from bokeh.palettes import Viridis256
 from bokeh.plotting import figure
 from bokeh.transform import linear_cmap
 
-from districting.sweep.frontier import non_dominated
 from districting.sweep.table import (
+    FRONTIER,
     MEAN_KM,
     MOVED,
     OPTION,
@@ -36,7 +36,8 @@ def sweep_source(table: pd.DataFrame) -> dict[str, list]:
             "label": [_esc(w) for w in rows[SETTINGS].astype(str)],
             "moved": rows[MOVED].astype(float).tolist(),
             "km": rows[MEAN_KM].astype(float).tolist(),
-            "spread": spread.tolist()}
+            "spread": spread.tolist(),
+            "front": (rows[FRONTIER] == "yes").tolist()}
 
 
 class SweepChart(pn.viewable.Viewer):
@@ -49,7 +50,7 @@ class SweepChart(pn.viewable.Viewer):
         self.folder = default_folder(session.store.inputs)
         self.note = pn.pane.HTML("", css_classes=["sweep-note"], sizing_mode="stretch_width")
         self.source = ColumnDataSource({k: [] for k in ("option", "label", "moved", "km",
-                                                        "spread")})
+                                                        "spread", "front")})
         self.front = ColumnDataSource({"moved": [], "km": []})
         self.source.selected.on_change("indices", self._picked)
         self.plot = pn.pane.Bokeh(self._figure(), sizing_mode="stretch_width",
@@ -88,7 +89,7 @@ class SweepChart(pn.viewable.Viewer):
                                 "0,1500,3000</code>; its chart then shows here, and a click "
                                 "on a point opens that option.")
             data = sweep_source(pd.DataFrame({c: [] for c in (OPTION, SETTINGS, MOVED, MEAN_KM,
-                                                              SPREAD)}))
+                                                              SPREAD, FRONTIER)}))
         else:
             data = sweep_source(table)
             self.note.object = (f"The latest sweep of the {_esc(level)} level: "
@@ -96,7 +97,7 @@ class SweepChart(pn.viewable.Viewer):
                                 "to open that option on the map.")
         self.source.selected.indices = []
         self.source.data = data
-        front = non_dominated(data["moved"], data["km"])
+        front = np.asarray(data["front"], bool)
         order = np.argsort(np.asarray(data["moved"])[front]) if len(front) else []
         self.front.data = {"moved": np.asarray(data["moved"])[front][order].tolist(),
                            "km": np.asarray(data["km"])[front][order].tolist()}
