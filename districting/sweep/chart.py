@@ -16,6 +16,7 @@ import numpy as np
 import pandas as pd
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
+from matplotlib.transforms import Bbox
 
 from .. import DRAFT_NOTICE
 from ..io import atomic_path
@@ -24,6 +25,8 @@ from .table import FRONTIER, MEAN_KM, MOVED, SETTINGS, SPREAD
 __all__ = ["draw_tradeoff", "write_chart"]
 
 _DPI = 130
+#: The thin line from a label moved off its point back to the point.
+_LEADER = {"arrowstyle": "-", "color": "#888888", "linewidth": 0.5, "shrinkA": 0, "shrinkB": 4}
 
 
 def draw_tradeoff(ax, sheet: pd.DataFrame, colorbar: bool = True) -> int:
@@ -60,9 +63,10 @@ def draw_tradeoff(ax, sheet: pd.DataFrame, colorbar: bool = True) -> int:
 
 
 def _labels(ax, words: list[str], x: np.ndarray, y: np.ndarray) -> None:
-    """Each point's settings in words, placed clear of the other labels: points a few
-    pixels apart share one label; a label that would overlap one already placed moves up
-    or down a line at a time; labels in the right half sit to the left of their point."""
+    """Each point's settings in words, placed clear of the other labels and points and
+    inside the frame: points a few pixels apart share one label; a label that would
+    overlap moves up (then down) a line at a time, with a thin line back to its point;
+    labels in the right half sit to the left of their point."""
     renderer = ax.figure.canvas.get_renderer()
     ax.autoscale_view()
     at = ax.transData.transform(np.column_stack([x, y]))
@@ -74,25 +78,28 @@ def _labels(ax, words: list[str], x: np.ndarray, y: np.ndarray) -> None:
         else:
             near.append(k)
     middle = (x.min() + x.max()) / 2
-    placed = []
+    dots = [Bbox.from_extents(px - 7, py - 7, px + 7, py + 7) for px, py in at]
+    placed: list = []
     for g in sorted(groups, key=lambda g: -at[g[0]][1]):
         right = x[g[0]] > middle and x.max() > x.min()
+        style = {"textcoords": "offset points", "ha": "right" if right else "left",
+                 "va": "bottom", "fontsize": 6.5, "color": "#222222"}
         text = "\n".join(words[k] for k in g)
+        others = placed + [b for k, b in enumerate(dots) if k not in g]
+        lift = 4
         for step in range(16):
-            lift = 4 + (step + 1) // 2 * 9 * (1 if step % 2 else -1)
+            lift = 4 + 10 * step if step < 8 else -14 - 10 * (step - 8)
             label = ax.annotate(text, (x[g[0]], y[g[0]]), xytext=(-6 if right else 6, lift),
-                                textcoords="offset points", ha="right" if right else "left",
-                                va="bottom", fontsize=6.5, color="#222222")
+                                **style)
             box = label.get_window_extent(renderer)
-            if not any(box.overlaps(other) for other in placed):
-                break
             label.remove()
-            label = None
-        if label is None:  # no room found: the last place, drawn anyway
-            label = ax.annotate(text, (x[g[0]], y[g[0]]), xytext=(-6 if right else 6, 4),
-                                textcoords="offset points", ha="right" if right else "left",
-                                va="bottom", fontsize=6.5, color="#222222")
-            box = label.get_window_extent(renderer)
+            inside = ax.bbox.contains(box.x0, box.y0) and ax.bbox.contains(box.x1, box.y1)
+            if inside and not any(box.overlaps(other) for other in others):
+                break
+        else:  # no free place: the first one, drawn anyway
+            lift = 4
+        label = ax.annotate(text, (x[g[0]], y[g[0]]), xytext=(-6 if right else 6, lift),
+                            arrowprops=None if lift == 4 else _LEADER, **style)
         placed.append(box)
 
 
