@@ -77,8 +77,8 @@ def check_scenarios(inputs: Inputs, level: str, scenarios: Sequence[Scenario]) -
         unknown = [s for s, _ in sc.statuses if s not in sites]
         if unknown:
             raise ValueError(f"scenario {sc.name!r}: {', '.join(unknown)} "
-                             f"{'is not a' if len(unknown) == 1 else 'are not'} {level} "
-                             f"site{'' if len(unknown) == 1 else 's'} (sites: {', '.join(sites)})")
+                             f"{'is' if len(unknown) == 1 else 'are'} not among the {level} "
+                             f"sites ({', '.join(sites)}); use their site ids")
 
 
 def settings_grid(inputs: Inputs, level: str, *, stability_weights: Sequence[float] = (),

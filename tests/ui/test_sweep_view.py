@@ -17,7 +17,7 @@ from ui.views.sweep import SweepChart
 
 @pytest.fixture()
 def swept(inputs):
-    grid = settings_grid(inputs, LEVEL, stability_weights=[0, 5000])
+    grid = settings_grid(inputs, LEVEL, stability_weights=[0, 300])
     todo, done = plan_jobs(inputs, LEVEL, grid, "Sweep", time_limit=20)
     with open_client(workers=1, processes=False) as client:
         report = run_sweep(client, inputs, todo, done, say=lambda _line: None)
@@ -38,7 +38,7 @@ def test_a_click_on_a_point_opens_that_option(inputs, swept):
     assert view.source.data["option"] == names
     assert view.source.data["moved"] == [round(r.students_moved) for r in swept.results]
     assert len(view.front.data["moved"]) >= 1
-    pick = names.index(next(n for n in names if "5000" in n))
+    pick = names.index(next(n for n in names if "300" in n))
     view.source.selected.indices = [pick]  # what a tap on the point sends
     assert session.store.outcome.name == names[pick]
-    assert session.store.effective.stability_weight == 5000
+    assert session.store.effective.stability_weight == 300
