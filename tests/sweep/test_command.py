@@ -7,6 +7,7 @@ from __future__ import annotations
 import json
 
 import pandas as pd
+import pytest
 from test_cli import run_cli
 
 from districting.intake import load_project
@@ -14,6 +15,7 @@ from districting.outputs.store import list_options
 from districting.sweep.frontier import non_dominated
 
 
+@pytest.mark.slow  # a process cluster, a sweep and two packets: about 20 s
 def test_sweep_saves_charts_and_feeds_the_packet(project, tmp_path):
     out = project.parent / "out"  # the default folder, where packet --sweep looks
     code, printed, err = run_cli("packet", str(project), "--options", "x", "--out",

@@ -33,7 +33,8 @@ def sweep_source(table: pd.DataFrame) -> dict[str, list]:
     rows = table.dropna(subset=[MOVED, MEAN_KM])
     spread = rows[SPREAD].astype(float).fillna(0.0)
     return {"option": rows[OPTION].astype(str).tolist(),
-            "label": [_esc(w) for w in rows[SETTINGS].astype(str)],
+            # drawn as canvas text and escaped tooltips by Bokeh: never read as HTML
+            "label": rows[SETTINGS].astype(str).tolist(),
             "moved": rows[MOVED].astype(float).tolist(),
             "km": rows[MEAN_KM].astype(float).tolist(),
             "spread": spread.tolist(),
