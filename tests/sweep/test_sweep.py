@@ -157,3 +157,21 @@ def test_the_engine_keeps_highs_random_seed_fixed(project):
     problem, _ = build_problem(inputs, RunSettings(level="elementary"))
     seeds = {seed(HighsRoute(problem)) for _ in range(3)}
     assert seeds == {0}  # HiGHS's default, never changed by the engine
+
+
+def test_an_existing_cluster_runs_the_sweep_and_one_without_workers_is_told(project):
+    from distributed import LocalCluster
+
+    with LocalCluster(n_workers=0, processes=False, protocol="tcp",
+                      dashboard_address=None) as existing:
+        address = existing.scheduler_address
+        with pytest.raises(cluster.ClusterUnreachable, match="has no workers"), \
+                cluster.open_client(scheduler=address, timeout=1):
+            pass
+        existing.scale(1)
+        code, printed, err = run_cli("sweep", str(project), "--level", "elementary",
+                                     "--stability-weight", "0", "--scheduler", address,
+                                     "--time-limit", "20")
+    assert code == 0, err
+    assert f"running on 1 Dask workers ({address})" in printed
+    assert len(list_options(load_project(project).settings.store)) == 1
