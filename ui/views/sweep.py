@@ -51,7 +51,8 @@ class SweepChart(pn.viewable.Viewer):
         self.folder = default_folder(session.store.inputs)
         self.note = pn.pane.HTML("", css_classes=["sweep-note"], sizing_mode="stretch_width")
         self.source = ColumnDataSource({k: [] for k in ("option", "label", "moved", "km",
-                                                        "spread", "front")})
+                                                        "spread", "front")},
+                                       name="sweep-source")
         self.front = ColumnDataSource({"moved": [], "km": []})
         self.source.selected.on_change("indices", self._picked)
         self.plot = pn.pane.Bokeh(self._figure(), sizing_mode="stretch_width",
