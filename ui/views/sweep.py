@@ -64,6 +64,8 @@ class SweepChart(pn.viewable.Viewer):
         fig = figure(height=420, sizing_mode="stretch_width", tools="tap,pan,wheel_zoom,reset",
                      x_axis_label="Students moved from today's school (plan year)",
                      y_axis_label="Mean travel (km)", name="sweep-figure")
+        fig.x_range.range_padding = 0.35  # room on the right for the labels
+        fig.y_range.range_padding = 0.15
         fig.line("moved", "km", source=self.front, color="#444444", line_width=1.5,
                  legend_label="frontier: no option moves fewer students with shorter travel")
         colours = linear_cmap("spread", Viridis256, 0, 1)
