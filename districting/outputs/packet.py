@@ -238,12 +238,12 @@ def packet_figures(outcomes: Sequence[Outcome], paper: str = "letter",
         where.append(f"{start}-{first + len(pages) - 1}")
     if len(outcomes) > 1:
         pages.insert(0, _summary_page(outcomes, where, paper, stamp, compared))
-    for make in extra_pages:
-        pages.append(make(paper, stamp, len(pages) + 1))
     for fig in pages:  # geopandas names the axes after the CRS; the scale bar says it all
         for ax in fig.axes:
             ax.set_xlabel("")
             ax.set_ylabel("")
+    for make in extra_pages:  # charts: their axis titles stay
+        pages.append(make(paper, stamp, len(pages) + 1))
     return pages
 
 
