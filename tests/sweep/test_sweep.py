@@ -159,6 +159,7 @@ def test_the_engine_keeps_highs_random_seed_fixed(project):
     assert seeds == {0}  # HiGHS's default, never changed by the engine
 
 
+@pytest.mark.filterwarnings("ignore:Port .* is already in use")  # its idle dashboard port
 def test_an_existing_cluster_runs_the_sweep_and_one_without_workers_is_told(project):
     from distributed import LocalCluster
 
