@@ -20,6 +20,7 @@ from importlib.metadata import entry_points
 from pathlib import Path
 
 from . import DRAFT_NOTICE
+from .cli_options import add_feeder_options, add_practice_options, feeder_fields
 
 __all__ = ["main"]
 
@@ -82,35 +83,6 @@ def _run_settings(args, level: str):
         group_band=args.group_band,
         transport_charge=args.transport_charge,
     )
-
-
-def _feeder_fields(args, inputs, level: str) -> dict:
-    """The run's feeder rule and fixed zones (--feeding, --given, else [feeders])."""
-    from .outputs.feeders import feeder_run
-
-    fields = feeder_run(inputs, level, args.feeding, args.given)
-    if args.max_splits is not None:
-        if args.max_splits < 0 or fields["feeding"] != "whole":
-            raise ValueError(f"--max-splits {args.max_splits}: a limit on split feeders (0 or "
-                             f"more) applies to whole feeding; fix: add --feeding whole")
-        fields["max_splits"] = args.max_splits
-    return fields
-
-
-def _add_feeder_options(p: argparse.ArgumentParser) -> None:
-    p.add_argument("--feeding", choices=("whole", "nested", "none"),
-                   help="feeder rule against the neighbouring level's zones, held fixed: "
-                        "whole (every zone of the level below lies inside one zone of this "
-                        "level), nested (every zone of this level lies inside one zone of the "
-                        "level above) or none (default: the project's [feeders])")
-    p.add_argument("--given", metavar="OPTION",
-                   help="saved option of the neighbouring level whose zones the feeder rule "
-                        "holds fixed (default: the one [feeders] zones names, else today's "
-                        "zones)")
-    p.add_argument("--max-splits", type=int, metavar="N",
-                   help="with --feeding whole: each school of the level below may feed at "
-                        "most 1 + N schools of this level (default: the project's "
-                        "[feeders] max_splits, else 0: whole feeding)")
 
 
 def _solve_targets(args, inputs) -> dict[str, tuple[str, Path]]:
@@ -190,7 +162,7 @@ def cmd_solve(args) -> int:
     # with --json, stdout holds one JSON object per level and nothing else
     say = functools.partial(print, file=sys.stderr) if args.json else print
     status = 0
-    feeders = {level: _feeder_fields(args, inputs, level) for level in targets}
+    feeders = {level: feeder_fields(args, inputs, level) for level in targets}
     for level, (name, folder) in targets.items():
         progress = Progress(level)
         outcome = run(inputs, _run_settings(args, level).replace(**feeders[level]),
@@ -264,7 +236,12 @@ def cmd_packet(args) -> int:
     names = [n.strip() for n in args.options.split(",") if n.strip()]
     outcomes = [load_option(inputs, n) for n in names]
     pdf = Path(args.out)
-    written = write_packet(outcomes, pdf, png_folder=pdf.parent / f"{pdf.stem}-pages")
+    extra = []
+    if args.sweep:  # the level's latest sweep chart, as the last page
+        from .sweep.page import sweep_page_maker
+        extra.append(sweep_page_maker(inputs, outcomes[0].level))
+    written = write_packet(outcomes, pdf, png_folder=pdf.parent / f"{pdf.stem}-pages",
+                           extra_pages=extra)
     print(f"wrote {pdf} ({len(written) - 1} pages, PNG copies in {pdf.stem}-pages/) "
           f"for options {', '.join(names)}")
     return 0
@@ -402,22 +379,7 @@ def _add_solve_options(p: argparse.ArgumentParser) -> None:
                         "and says how close to the best possible it is")
     p.add_argument("--solver", help="'highs' (default) or any solver name Pyomo drives")
     _add_travel_option(p)
-    _add_practice_options(p)
-
-
-def _add_practice_options(p: argparse.ArgumentParser) -> None:
-    p.add_argument("--keep-walkers", action=argparse.BooleanOptionalAction, default=None,
-                   help="keep each unit within walking distance of an open school in the "
-                        "zone of such a school (default: the project's [walking] keep_walkers)")
-    p.add_argument("--max-transported", type=float, metavar="STUDENTS",
-                   help="most plan-year students living beyond walking distance of their "
-                        "school (0: no limit; default: the project's [walking] value)")
-    p.add_argument("--group-band", type=float, metavar="POINTS",
-                   help="percentage points a school's share of each group may differ from "
-                        "the district's (0: none; default: the project's [groups] band_points)")
-    p.add_argument("--transport-charge", type=float, metavar="METRES",
-                   help="metres of travel charged per student living beyond walking distance "
-                        "of their school (0: none; default: the project's [walking] value)")
+    add_practice_options(p)
 
 
 def _add_travel_option(p: argparse.ArgumentParser) -> None:
@@ -494,7 +456,7 @@ def build_parser() -> argparse.ArgumentParser:
                         "always null, as this command starts from today's zones, not from "
                         "a saved option")
     _add_solve_options(p)
-    _add_feeder_options(p)
+    add_feeder_options(p)
     p.set_defaults(func=cmd_solve)
 
     p = sub.add_parser("options", help="list, delete, rename saved options; repair the store",
@@ -523,6 +485,9 @@ def build_parser() -> argparse.ArgumentParser:
                    help="comma-separated names of saved options, e.g. \"Option A,Option B\"")
     p.add_argument("--out", default="packet.pdf", metavar="FILE.pdf",
                    help="the PDF to write (default packet.pdf); the pages go beside it")
+    p.add_argument("--sweep", action="store_true",
+                   help="end with the trade-off chart of the level's latest sweep "
+                        "(`districting sweep`, its table in out/ beside the project)")
     p.set_defaults(func=cmd_packet)
 
     p = sub.add_parser("export", help="write a saved option's exports again, without solving",
@@ -564,6 +529,9 @@ def build_parser() -> argparse.ArgumentParser:
                         "the best possible it is (default 60)")
     _add_travel_option(p)
     p.set_defaults(func=cmd_demo)
+
+    from .sweep.command import add_sweep_parser  # its own package; light until it runs
+    add_sweep_parser(sub, load=_load, check_flags=check_flags, travel_option=_add_travel_option)
 
     for ep in entry_points(group="districting.commands"):
         try:

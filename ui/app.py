@@ -50,6 +50,7 @@ def create_app(project: str | Path, *, persist: bool = True):
     from .views.intro import IntroNote
     from .views.printmap import PrintLink
     from .views.project import ProjectOpener, error_page, page_header, project_info
+    from .views.sweep import SweepChart
 
     shell = pn.Column(sizing_mode="stretch_width", css_classes=["districting-app"])
 
@@ -87,6 +88,7 @@ def create_app(project: str | Path, *, persist: bool = True):
         ("Locks", LocksTable(session)),
         ("Options", OptionsPanel(session)),
         ("Compare maps", CompareMaps(session)),
+        ("Sweep", SweepChart(session)),
         ("Print", PrintLink(session)),
         ("Downloads", DownloadsPanel(session)),
         ("Project", pn.Column(project_info(inputs, project), opener)),

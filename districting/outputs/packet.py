@@ -215,8 +215,9 @@ def _pairs(outcomes: Sequence[Outcome]) -> list[tuple[Outcome, Outcome]]:
 
 # ---------------------------------------------------------------------------- the packet
 def packet_figures(outcomes: Sequence[Outcome], paper: str = "letter",
-                   stamp: str | None = None) -> list[Figure]:
-    """Every page of the packet, in order, as matplotlib figures."""
+                   stamp: str | None = None, extra_pages: Sequence = ()) -> list[Figure]:
+    """Every page of the packet, in order, as matplotlib figures; ``extra_pages`` are
+    page makers ``(paper, stamp, number) -> Figure`` put last (a sweep's chart)."""
     outcomes = list(outcomes)
     if not outcomes:
         raise ValueError("a packet needs at least one option")
@@ -246,19 +247,21 @@ def packet_figures(outcomes: Sequence[Outcome], paper: str = "letter",
         for ax in fig.axes:
             ax.set_xlabel("")
             ax.set_ylabel("")
+    for make in extra_pages:  # charts: their axis titles stay
+        pages.append(make(paper, stamp, len(pages) + 1))
     return pages
 
 
 def write_packet(outcomes: Sequence[Outcome], path_pdf: str | os.PathLike,
-                 png_folder: str | os.PathLike | None = None, paper: str = "letter"
-                 ) -> list[Path]:
+                 png_folder: str | os.PathLike | None = None, paper: str = "letter",
+                 extra_pages: Sequence = ()) -> list[Path]:
     """Write the packet PDF, and ``<stem>_p01.png``... at :data:`PNG_DPI` into
     ``png_folder`` when given; returns the PDF path followed by the PNG paths.
 
     ``paper`` is "letter" (US Letter) or "a4", landscape either way.
     """
     path_pdf = Path(path_pdf)
-    pages = packet_figures(outcomes, paper)
+    pages = packet_figures(outcomes, paper, extra_pages=extra_pages)
     names = "; ".join(o.name or "(unsaved)" for o in outcomes)
     meta = {"Title": f"Hearing packet: {names}", "Subject": DRAFT_NOTICE,
             "Creator": "districting"}
