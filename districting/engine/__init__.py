@@ -19,5 +19,6 @@ from .connectivity import UnitGraph, plan_checks
 from .precheck import precheck
 from .session import Session
 from .solve import solve
+from .tuning import use_threads
 
-__all__ = ["solve", "Session", "UnitGraph", "plan_checks", "precheck"]
+__all__ = ["solve", "Session", "UnitGraph", "plan_checks", "precheck", "use_threads"]

@@ -31,6 +31,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from ..problem import Problem
+from . import tuning
 from .answer import Answer
 from .formulation import formulate
 
@@ -96,7 +97,7 @@ def flow_size(problem: Problem) -> int | None:
 class FlowRoute:
     """The full formulation plus flow columns and rows, passed to HiGHS as arrays."""
 
-    def __init__(self, problem: Problem, threads: int = 2) -> None:
+    def __init__(self, problem: Problem, threads: int | None = None) -> None:
         import highspy
 
         from .highs_route import _quiet_highs
@@ -150,7 +151,7 @@ class FlowRoute:
         lp.integrality_ = [integer] * n0 + [cont] * k
         self._cost = np.asarray(lp.col_cost_, float)
         h = _quiet_highs()
-        h.setOptionValue("threads", int(threads))
+        h.setOptionValue("threads", int(threads or tuning.HIGHS_THREADS))
         h.passModel(lp)
         self.h = h
         self.ncol = n0 + k

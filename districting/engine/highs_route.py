@@ -16,6 +16,7 @@ import numpy as np
 
 from ..problem import Problem
 from ..rules import open_sites
+from . import tuning
 from .answer import Answer
 from .connectivity import Cut, UnitGraph
 from .cuts import fractional_cuts
@@ -31,7 +32,7 @@ class HighsRoute:
     name = "highs"
 
     def __init__(self, problem: Problem, drop: np.ndarray | None = None,
-                 threads: int = 2) -> None:
+                 threads: int | None = None) -> None:
         """``drop`` marks units left out of the MIP (free empty units handed out after)."""
         import highspy
 
@@ -70,7 +71,7 @@ class HighsRoute:
         self._tree: np.ndarray | None = None  # rows of the heuristic's site trees
         self._tree_off = np.zeros(0, np.int64)
         h = _quiet_highs()
-        h.setOptionValue("threads", int(threads))
+        h.setOptionValue("threads", int(threads or tuning.HIGHS_THREADS))
         h.setOptionValue("presolve", "on")
         if ncol > PROBE_LIMIT or problem.group_band > 0:  # see tuning.PROBE_LIMIT
             h.setOptionValue("presolve_rule_off", 32768)

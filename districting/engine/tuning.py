@@ -9,6 +9,20 @@ from __future__ import annotations
 #: Tolerance on loads, costs and bounds (students, cost units).
 TOL = 1e-6
 
+# ---- threads
+#: Threads HiGHS may use in one solve. A sweep's workers (one per core) set 1 through
+#: :func:`use_threads` before their first solve: two solves of two threads each on two cores
+#: ran 2-5 times slower each than alone (benchmarks/bench_sweep.py, 2026-12-03).
+HIGHS_THREADS = 2
+
+
+def use_threads(n: int) -> None:
+    """Threads for the HiGHS solves of this process from now on (at least 1). HiGHS keeps
+    one thread pool per process: call this before the first solve."""
+    global HIGHS_THREADS
+    HIGHS_THREADS = max(1, int(n))
+
+
 # ---- building the model (districting.engine.formulation, highs_route)
 #: Up to this many candidate pairs the x <= y linking rows are written one per pair (the
 #: strong form); above it the capacity rows link them in aggregate (a smaller model).

@@ -42,11 +42,14 @@ def default_workers() -> int:
         return max(1, os.cpu_count() or 1)
 
 
-def warm_up() -> bool:
-    """Run on each worker once: import the engine, so the first solve does not pay for it."""
+def warm_up(threads: int | None = None) -> bool:
+    """Run on each worker once: import the engine, so the first solve does not pay for it;
+    ``threads``: HiGHS threads per solve on that worker (None: the engine's default)."""
     import importlib
 
     importlib.import_module("districting.study")
+    if threads is not None:
+        importlib.import_module("districting.engine").use_threads(threads)
     return True
 
 
@@ -87,5 +90,7 @@ def open_client(workers: int | None = None, scheduler: str | None = None,
         cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=processes,
                                dashboard_address=None, silence_logs=logging.ERROR)
     with cluster, Client(cluster) as client:
-        client.run(warm_up)
+        # one worker per core here: one HiGHS thread each (two threads each, on two cores,
+        # slowed every solve 2-5 times: benchmarks/bench_sweep.py)
+        client.run(warm_up, 1 if processes else None)
         yield client
