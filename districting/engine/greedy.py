@@ -159,7 +159,7 @@ def _moves(problem, a, load, hi, lo, wc, movable) -> bool:
     du = d[:, units]  # (T, u)
     # loads after moving each unit to each site: (T, u, m) on the destination side
     dest = load[:, None, :] + du[:, :, None]
-    gain_dest = _excess(load, hi, lo)[None, :] - _excess(dest, hi, lo)
+    gain_dest = _excess(load, hi, lo)[None, :] - _excess(dest, hi[:, None, :], lo[:, None, :])
     left = load[:, src] - du  # (T, u) the source after the move
     ex_src = _excess(load[:, src][:, :, None], hi[:, src][:, :, None],
                      lo[:, src][:, :, None])[:, 0]
