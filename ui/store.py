@@ -148,7 +148,7 @@ class Store(StoreRecords, PlanTables):
     def pending_edits(self) -> bool:
         """True when settings, sites, locks or forbids changed since the plan on screen."""
         out = self.outcome
-        return out is not None and out.settings != self.effective
+        return out is not None and out.settings != kept_by(self.effective, out)
 
     def on_screen(self) -> Outcome:
         """The plan on screen evaluated under the current edits (what the tables show).
@@ -160,7 +160,7 @@ class Store(StoreRecords, PlanTables):
         out = self.outcome
         if out is None:
             return self.today()
-        rs = self.effective
+        rs = kept_by(self.effective, out)
         if out.settings == rs:
             return out
         key = (id(out), repr(sorted(rs.to_dict().items())))
@@ -490,3 +490,10 @@ def keep_fields(edited: Outcome) -> dict:
     return {"keep_option": {u: str(s) for u, s in zip(edited.unit_ids, zones, strict=True)
                             if s},
             "keep_option_name": edited.name or "the plan on screen"}
+
+
+def kept_by(rs: RunSettings, out: Outcome) -> RunSettings:
+    """``rs`` with the plan ``out`` was charged against: that plan is no edit of the planner,
+    and the plan on screen is still compared with it."""
+    return rs.replace(keep_option=out.settings.keep_option,
+                      keep_option_name=out.settings.keep_option_name)

@@ -30,6 +30,8 @@ def test_rerun_after_a_lock_is_charged_against_the_plan_on_screen(inputs):
     a = second.assignment
     assert f.moved_vs_today == d0[(p.current >= 0) & (p.current != a)].sum()
     assert any("price of the edit" in line for line in edit_lines(second))
+    # the plan kept is no pending edit, and the plan on screen still reports against it
+    assert not st.pending_edits and edit_figures(st.on_screen()) == f
 
 
 def test_weight_zero_is_a_free_rerun(inputs):
