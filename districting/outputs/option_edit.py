@@ -17,7 +17,7 @@ import numpy as np
 
 from .wording import int_text, students_text
 
-__all__ = ["EditFigures", "edit_figures", "edit_lines"]
+__all__ = ["EditFigures", "edit_figures", "plan_edit_figures", "edit_lines"]
 
 
 @dataclass(frozen=True)
@@ -48,14 +48,21 @@ def _cost(weighted: np.ndarray, a: np.ndarray) -> float:
 
 def edit_figures(outcome) -> EditFigures | None:
     """The figures of a run that edits a saved option (None for any other run)."""
-    p = outcome.problem
-    if p.anchor is None or not outcome.plan.feasible:
+    if not outcome.plan.feasible:
         return None
-    a = np.asarray(outcome.assignment, np.int64)
+    return plan_edit_figures(outcome.problem, outcome.assignment,
+                             outcome.settings.keep_option_name)
+
+
+def plan_edit_figures(p, assignment, option_name: str = "") -> EditFigures | None:
+    """The figures of ``assignment`` against ``p``'s anchor (None without one)."""
+    if p.anchor is None:
+        return None
+    a = np.asarray(assignment, np.int64)
     d0 = p.demand[0]
     plain = p.replace(anchor_weight=0.0).weighted_cost
     return EditFigures(
-        option_name=outcome.settings.keep_option_name,
+        option_name=option_name,
         weight=p.anchor_weight,
         moved_vs_option=_moved(d0, p.anchor, a),
         moved_vs_today=_moved(d0, p.current, a),

@@ -26,6 +26,7 @@ import pytest
 
 from districting import Problem
 from districting.engine import Session
+from districting.outputs.option_edit import plan_edit_figures
 
 COST = np.array([[100.0, 300.0, 900.0], [900.0, 100.0, 200.0], [200.0, 900.0, 100.0]])
 DEMAND = np.array([10.0, 12.0, 14.0])
@@ -71,3 +72,22 @@ def test_anchor_checked_and_treated_as_a_different_objective():
     # reused; without a weight the anchor changes nothing
     assert not town(locks={0: 1}, anchor=OPTION, anchor_weight=1000.0).is_restriction_of(free)
     assert town(locks={0: 1}, anchor=OPTION).is_restriction_of(free)
+
+
+@pytest.mark.parametrize(("weight", "plan", "vs_option", "vs_today", "objective"), [
+    # today's zones are (C, B, A): the option moves u0 (10) and u2 (14), 24 students.
+    # kept (B, A, C): u0 C->B, u1 B->A, u2 A->C move against today, 10 + 12 + 14 = 36
+    (1000.0, [1, 0, 2], 22.0, 36.0, 15200.0),
+    # reshuffled (B, C, A): u0 C->B, u1 B->C move, u2 stays on A: 10 + 12 = 22
+    (0.0, [1, 2, 0], 36.0, 22.0, 8200.0),
+])
+def test_the_edit_price_counted_by_hand(weight, plan, vs_option, vs_today, objective):
+    p = town(locks={0: 1}, anchor=OPTION, anchor_weight=weight, current=[2, 1, 0])
+    found = Session(p).solve(0.0)
+    assert found.assignment.tolist() == plan
+    f = plan_edit_figures(p, found.assignment, "A")
+    assert (f.moved_vs_option, f.moved_vs_today, f.option_moved_vs_today) == (
+        vs_option, vs_today, 24.0)
+    # the price leaves the keep charge out: the travel the lock costs, against 3,600
+    assert (f.objective, f.option_objective) == (objective, 3600.0)
+    assert f.objective_change == objective - 3600.0
