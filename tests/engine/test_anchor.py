@@ -91,3 +91,17 @@ def test_the_edit_price_counted_by_hand(weight, plan, vs_option, vs_today, objec
     # the price leaves the keep charge out: the travel the lock costs, against 3,600
     assert (f.objective, f.option_objective) == (objective, 3600.0)
     assert f.objective_change == objective - 3600.0
+
+
+def test_neighbourhood_subproblem_keeps_the_charge():
+    # the large-neighbourhood search solves sites {B, C} of the kept plan (B, A, C) alone:
+    # u0 and u2; moving u2 from C to B costs it the charge as in the whole problem, while
+    # u0 (anchored on A, outside) is moved in every sub-plan: a constant, left out
+    from districting.engine.neighbourhood import subproblem
+
+    p = town(locks={0: 1}, anchor=OPTION, anchor_weight=1000.0)
+    sub, units = subproblem(p, np.array([1, 0, 2]), np.array([1, 2]))
+    assert units.tolist() == [0, 2]
+    assert sub.anchor.tolist() == [-1, 1]
+    # u2 at B: 900 * 14 + 1000 * 14 in both; at C: 100 * 14
+    assert sub.weighted_cost[1].tolist() == p.weighted_cost[2, [1, 2]].tolist()
