@@ -43,3 +43,13 @@ def test_weight_zero_is_a_free_rerun(inputs):
     second = st.rerun()
     assert second.problem.anchor_weight == 0.0
     assert "not charged: a free rerun" in edit_lines(second)[0]
+
+
+def test_settings_card_sets_the_charge(inputs):
+    from ui.session import Session
+
+    s = Session(new_store(inputs))
+    assert s.state.keep_option_weight == 3000.0  # shown from the project's default
+    s.state.keep_option_weight = 500.0  # the settings card's field
+    assert s.store.settings.keep_option_weight == 500.0
+    assert s.store.effective.keep_option_weight == 500.0
