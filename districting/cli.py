@@ -20,7 +20,13 @@ from importlib.metadata import entry_points
 from pathlib import Path
 
 from . import DRAFT_NOTICE
-from .cli_options import add_feeder_options, add_practice_options, feeder_fields
+from .cli_options import (
+    add_edit_options,
+    add_feeder_options,
+    add_practice_options,
+    edit_fields,
+    feeder_fields,
+)
 
 __all__ = ["main"]
 
@@ -158,6 +164,7 @@ def cmd_solve(args) -> int:
     check_flags(args)
     inputs = _load(args.project)
     tidy_store(inputs.settings.store)
+    edit, start = edit_fields(args, inputs)
     targets = _solve_targets(args, inputs)
     # with --json, stdout holds one JSON object per level and nothing else
     say = functools.partial(print, file=sys.stderr) if args.json else print
@@ -165,8 +172,8 @@ def cmd_solve(args) -> int:
     feeders = {level: feeder_fields(args, inputs, level) for level in targets}
     for level, (name, folder) in targets.items():
         progress = Progress(level)
-        outcome = run(inputs, _run_settings(args, level).replace(**feeders[level]),
-                      name=name if args.save else "", progress=progress)
+        outcome = run(inputs, _run_settings(args, level).replace(**feeders[level], **edit),
+                      name=name if args.save else "", progress=progress, previous=start)
         progress.done()
         say(plan_summary(outcome))
         if args.json:
@@ -453,10 +460,10 @@ def build_parser() -> argparse.ArgumentParser:
                         "(level, status, objective, bound, gap as a fraction, seconds, "
                         "students_moved_vs_today, students_moved_vs_option) and send every "
                         "other message to standard error; students_moved_vs_option is "
-                        "always null, as this command starts from today's zones, not from "
-                        "a saved option")
+                        "null unless --from-option names the option edited")
     _add_solve_options(p)
     add_feeder_options(p)
+    add_edit_options(p)
     p.set_defaults(func=cmd_solve)
 
     p = sub.add_parser("options", help="list, delete, rename saved options; repair the store",

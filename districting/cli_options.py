@@ -5,7 +5,8 @@ from __future__ import annotations
 
 import argparse
 
-__all__ = ["feeder_fields", "add_feeder_options", "add_practice_options"]
+__all__ = ["feeder_fields", "add_feeder_options", "add_practice_options", "add_edit_options",
+           "edit_fields"]
 
 
 def feeder_fields(args, inputs, level: str) -> dict:
@@ -50,3 +51,42 @@ def add_practice_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--transport-charge", type=float, metavar="METRES",
                    help="metres of travel charged per student living beyond walking distance "
                         "of their school (0: none; default: the project's [walking] value)")
+
+
+def add_edit_options(p: argparse.ArgumentParser) -> None:
+    """`solve --from-option NAME [--keep-weight METRES]`: rerun a saved option after an edit."""
+    p.add_argument("--from-option", metavar="NAME",
+                   help="rerun a saved option after a lock, forbid or cap change: start from "
+                        "its plan and charge every student moved away from it, so the rest of "
+                        "the option stays (its level is solved; the project's locks and the "
+                        "flags here apply)")
+    p.add_argument("--keep-weight", type=float, metavar="METRES",
+                   help="with --from-option: metres of travel charged per student moved away "
+                        "from that option; 0 = a free rerun (default: the project's "
+                        "[solve] keep_option_weight)")
+
+
+def edit_fields(args, inputs) -> tuple[dict, object | None]:
+    """The run fields of `--from-option` (the option's zones, name, charge) and its plan as
+    the start; ({}, None) without it. Sets ``args.level`` to the option's level."""
+    name = getattr(args, "from_option", None)
+    weight = getattr(args, "keep_weight", None)
+    if weight is not None and not name:
+        raise ValueError("--keep-weight charges moves away from a saved option; fix: add "
+                         "--from-option NAME")
+    if weight is not None and not weight >= 0:
+        raise ValueError(f"--keep-weight {weight:g}: metres per student moved, 0 or more "
+                         "(0 = a free rerun)")
+    if not name:
+        return {}, None
+    from .outputs.store import load_option
+
+    option = load_option(inputs, name)
+    if args.level not in ("all", option.level):
+        raise ValueError(f"--from-option {name!r} is a {option.level} option, not "
+                         f"{args.level}; fix: write --level {option.level} or leave it out")
+    args.level = option.level
+    zones = dict(zip(option.unit_ids, option.site_id_of(option.assignment).tolist(),
+                     strict=True))
+    return ({"keep_option": {u: s for u, s in zones.items() if s},
+             "keep_option_name": option.name, "keep_option_weight": weight}, option.plan)

@@ -57,6 +57,11 @@ def _feeder_groups(groups, rule: str, n: int, roots) -> np.ndarray | None:
     return g
 
 
+def _moved_pairs(reference: np.ndarray, m: int) -> np.ndarray:
+    """(n, m) bool: pairs that move a unit away from its reference site (-1: never)."""
+    return (reference[:, None] >= 0) & (np.arange(m)[None, :] != reference[:, None])
+
+
 @dataclass(frozen=True, eq=False)
 class Problem:
     """A capacitated, optionally contiguous, whole-unit assignment problem.
@@ -98,6 +103,10 @@ class Problem:
     group_band: float = 0.0  # each school's group share within the district's +- this; 0: none
     group_names: tuple = field(default=())  # names of the groups, for messages
     transport_weight: float = 0.0  # added cost per plan-year student beyond walking distance
+    # the option being edited (a rerun keeps it unless the planner asks otherwise): its site
+    # per unit (-1 none) and the cost charged per plan-year student moved away from it
+    anchor: np.ndarray | None = None
+    anchor_weight: float = 0.0
 
     # ------------------------------------------------------------------ constructors
     @classmethod
@@ -134,6 +143,8 @@ class Problem:
         group_band: float = 0.0,
         group_names: Iterable = (),
         transport_weight: float = 0.0,
+        anchor=None,
+        anchor_weight: float = 0.0,
     ) -> Problem:
         """Make a problem from arrays.
 
@@ -153,7 +164,9 @@ class Problem:
         students per demand row (NaN rows: no band that year); with ``group_band`` > 0
         every open school's share of each group stays within ``group_band`` of the
         district's share of that row. ``transport_weight`` is added to the objective per
-        plan-year student assigned beyond walking distance.
+        plan-year student assigned beyond walking distance. ``anchor`` (n,) is the site
+        per unit of an option being edited (-1: none); ``anchor_weight`` is added per
+        plan-year student moved away from it, so a rerun keeps the rest of that option.
         """
         cost = np.array(cost, dtype=float)
         if cost.ndim != 2:
@@ -214,6 +227,11 @@ class Problem:
         grp = None if groups is None else np.asarray(groups, float)
         if grp is not None and (grp.ndim != 3 or grp.shape[1:] != demand.shape):
             raise ValueError(f"groups must have shape (groups, {demand.shape[0]}, {n})")
+        anc = None if anchor is None else np.asarray(anchor, np.int64)
+        if anc is not None and (anc.shape != (n,) or anc.max(initial=-1) >= m):
+            raise ValueError(f"anchor must have shape ({n},) with site indices below {m}")
+        if anchor_weight and anc is None:
+            raise ValueError("anchor_weight needs anchor (the option being edited)")
         prob = cls(
             cost=cost,
             demand=demand,
@@ -245,6 +263,8 @@ class Problem:
             group_band=float(group_band),
             group_names=tuple(group_names),
             transport_weight=float(transport_weight),
+            anchor=anc,
+            anchor_weight=float(anchor_weight),
         )
         prob._freeze()
         return prob
@@ -322,17 +342,17 @@ class Problem:
     @property
     def weighted_cost(self) -> np.ndarray:
         """(n, m) objective coefficient of x[i, j]: d[0, i] * c[i, j] (+ stability term, +
-        transport charge on pairs beyond walking distance)."""
+        transport charge on pairs beyond walking distance, + the charge per student moved
+        away from the anchor option)."""
         d0 = self.demand[0][:, None]
         with np.errstate(invalid="ignore"):
             w = np.where(np.isfinite(self.cost), d0 * self.cost, np.inf)
         if self.stability_weight:
-            moved = (self.current[:, None] >= 0) & (
-                np.arange(self.n_sites)[None, :] != self.current[:, None]
-            )
-            w = w + self.stability_weight * d0 * moved
+            w = w + self.stability_weight * d0 * _moved_pairs(self.current, self.n_sites)
         if self.transport_weight and self.walk is not None:
             w = w + self.transport_weight * d0 * ~self.walk
+        if self.anchor_weight and self.anchor is not None:
+            w = w + self.anchor_weight * d0 * _moved_pairs(self.anchor, self.n_sites)
         return w
 
     def is_restriction_of(self, other: Problem) -> bool:

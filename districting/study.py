@@ -65,6 +65,11 @@ class RunSettings:
     max_transported: float | None = None  # students beyond walking distance; 0 = no limit
     group_band: float | None = None  # percentage points; 0 = shares reported, no band
     transport_charge: float | None = None  # metres per student beyond walking distance
+    # the option being edited, kept unless the planner asks otherwise: unit id -> site id
+    # (empty: no such option), its name, and metres charged per student moved away from it
+    keep_option: dict[str, str] = field(default_factory=dict)
+    keep_option_name: str = ""
+    keep_option_weight: float | None = None
 
     def to_dict(self) -> dict:
         return dataclasses.asdict(self)
@@ -115,6 +120,7 @@ def resolved(inputs: Inputs, rs: RunSettings) -> RunSettings:
         max_transported=pick(rs.max_transported, s.walking.max_transported.get(rs.level, 0.0)),
         group_band=pick(rs.group_band, s.groups.band_points),
         transport_charge=pick(rs.transport_charge, s.walking.transport_charge),
+        keep_option_weight=pick(rs.keep_option_weight, d.keep_option_weight),
     )
     full = _resolved_feeding(inputs, full)
     check_run({key: getattr(full, key) for key in RUN_KEYS}, f"{rs.level} run settings")
@@ -313,8 +319,20 @@ def build_problem(inputs: Inputs, rs: RunSettings) -> tuple[Problem, np.ndarray]
         else None,
         transport_weight=float(rs.transport_charge or 0.0) if walk is not None else 0.0,
         **group_arrays(inputs, rs.level, years, float(rs.group_band or 0.0)),
+        **anchor_fields(rs, unit_ids, site_ids),
     )
     return problem, rows
+
+
+def anchor_fields(rs: RunSettings, unit_ids: list[str], site_ids: list[str]) -> dict:
+    """The Problem's anchor: the edited option's site per unit (a unit it leaves out or a
+    school no longer of this level: -1, never charged) and the charge per student moved."""
+    if not rs.keep_option:
+        return {}
+    site_pos = {sid: j for j, sid in enumerate(site_ids)}
+    anchor = np.array([site_pos.get(rs.keep_option.get(u, ""), -1) for u in unit_ids],
+                      np.int64)
+    return {"anchor": anchor, "anchor_weight": float(rs.keep_option_weight or 0.0)}
 
 
 def walk_pairs(inputs: Inputs, rs: RunSettings, distance: np.ndarray) -> np.ndarray | None:

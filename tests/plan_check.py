@@ -14,7 +14,8 @@ from districting.verify import check_plan, facts_of_problem
 
 def plain_cost(problem, assignment) -> float:
     """sum_i d[0, i] * c[i, a_i] (+ the stability charge per student moved, + the transport
-    charge per student beyond walking distance), by hand."""
+    charge per student beyond walking distance, + the charge per student moved away from the
+    option being edited), by hand."""
     a = np.asarray(assignment, np.int64)
     rows = np.arange(len(a))
     d0 = np.asarray(problem.demand)[0]
@@ -26,6 +27,10 @@ def plain_cost(problem, assignment) -> float:
     if getattr(problem, "transport_weight", 0.0) and problem.walk is not None:
         rides = ~np.asarray(problem.walk)[rows, a]
         total += float(problem.transport_weight) * float(d0[rides].sum())
+    anchor = getattr(problem, "anchor", None)
+    if anchor is not None and problem.anchor_weight:
+        left = (np.asarray(anchor) >= 0) & (np.asarray(anchor) != a)
+        total += float(problem.anchor_weight) * float(d0[left].sum())
     return total
 
 

@@ -56,6 +56,7 @@ class Session:
                 level=st.level,
                 plan_year=int(full.plan_year),
                 stability_weight=float(full.stability_weight or 0.0),
+                keep_option_weight=float(full.keep_option_weight or 0.0),
                 max_distance_km=float(full.max_distance or 0.0) / 1000.0,
                 max_util_pct=float(full.max_utilization) * 100.0,
                 min_util_pct=float(full.min_utilization) * 100.0,

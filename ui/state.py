@@ -23,6 +23,7 @@ REFERENCES = ("today", "previous result")
 SETTING_PARAMS = {
     "plan_year": ("plan_year", None),
     "stability_weight": ("stability_weight", 1.0),
+    "keep_option_weight": ("keep_option_weight", 1.0),
     "max_distance_km": ("max_distance", 1000.0),
     "max_util_pct": ("max_utilization", 0.01),
     "min_util_pct": ("min_utilization", 0.01),
@@ -42,6 +43,9 @@ class SessionState(param.Parameterized):
     plan_year = param.Selector(objects=[], doc="Year the new zones take effect")
     stability_weight = param.Number(0.0, bounds=(0, None),
                                     doc="Metres of travel charged per student moved")
+    keep_option_weight = param.Number(3000.0, bounds=(0, None),
+                                      doc="Metres charged per student moved away from the "
+                                      "plan being edited (0 = a free rerun)")
     max_distance_km = param.Number(0.0, bounds=(0, None),
                                    doc="Longest allowed trip in km (0 = no limit)")
     max_util_pct = param.Number(100.0, bounds=(5.0, 100 * EDITABLE_SETTINGS["max_utilization"][1]),

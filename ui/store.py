@@ -55,6 +55,7 @@ __all__ = ["Store", "StoreError", "LockRow", "STATE_KEY", "DRAFT_PREFIX", "EDITA
 EDITABLE_SETTINGS = {
     "plan_year": None,
     "stability_weight": (0.0, 1e6),
+    "keep_option_weight": (0.0, 1e6),
     "max_distance": (0.0, 1e6),
     "max_moved": (0.0, 1e9),
     "gap": (0.0, 0.5),
@@ -147,7 +148,7 @@ class Store(StoreRecords, PlanTables):
     def pending_edits(self) -> bool:
         """True when settings, sites, locks or forbids changed since the plan on screen."""
         out = self.outcome
-        return out is not None and out.settings != self.effective
+        return out is not None and out.settings != kept_by(self.effective, out)
 
     def on_screen(self) -> Outcome:
         """The plan on screen evaluated under the current edits (what the tables show).
@@ -159,7 +160,7 @@ class Store(StoreRecords, PlanTables):
         out = self.outcome
         if out is None:
             return self.today()
-        rs = self.effective
+        rs = kept_by(self.effective, out)
         if out.settings == rs:
             return out
         key = (id(out), repr(sorted(rs.to_dict().items())))
@@ -411,6 +412,8 @@ class Store(StoreRecords, PlanTables):
             if on_plan is not None:
                 on_plan(out)
 
+        if start is not None and not rs.keep_option:  # keep the plan being edited
+            rs = rs.replace(**keep_fields(before))
         try:
             if rs.feeding is None:  # the project's feeder rule, against [feeders] zones
                 from districting.outputs.feeders import feeder_run
@@ -478,3 +481,19 @@ class Store(StoreRecords, PlanTables):
         if kind not in files:
             raise StoreError(f"unknown export {kind!r} (exports: {', '.join(files)})")
         return Path(files[kind])
+
+
+def keep_fields(edited: Outcome) -> dict:
+    """Run fields that charge a rerun for students moved away from the plan being edited
+    (its zones and name; the weight stays the run's, the project's by default)."""
+    zones = edited.site_id_of(edited.assignment)
+    return {"keep_option": {u: str(s) for u, s in zip(edited.unit_ids, zones, strict=True)
+                            if s},
+            "keep_option_name": edited.name or "the plan on screen"}
+
+
+def kept_by(rs: RunSettings, out: Outcome) -> RunSettings:
+    """``rs`` with the plan ``out`` was charged against: that plan is no edit of the planner,
+    and the plan on screen is still compared with it."""
+    return rs.replace(keep_option=out.settings.keep_option,
+                      keep_option_name=out.settings.keep_option_name)

@@ -73,6 +73,10 @@ def subproblem(problem: Problem, assignment: np.ndarray,
         moved_out = float(d0[~inside & (cur >= 0) & (a != cur)].sum())
         moved_const = float(d0[units][(cur_u >= 0) & (cur_sub < 0)].sum())
         max_moved = problem.max_moved - moved_out - moved_const
+    anchor = None
+    if problem.anchor is not None:
+        anc_u = problem.anchor[units]
+        anchor = np.where(anc_u >= 0, smap[np.maximum(anc_u, 0)], -1)
     sub = Problem.from_arrays(
         problem.cost[np.ix_(units, sites)], problem.demand[:, units],
         capacity=None if problem.capacity is None else problem.capacity[sites],
@@ -82,7 +86,8 @@ def subproblem(problem: Problem, assignment: np.ndarray,
         stability_weight=problem.stability_weight, max_moved=max_moved,
         years=problem.years, level=problem.level,
         feeder_groups=None if problem.feeder_groups is None else problem.feeder_groups[units],
-        feeder_rule=problem.feeder_rule, feeder_splits=problem.feeder_splits)
+        feeder_rule=problem.feeder_rule, feeder_splits=problem.feeder_splits,
+        anchor=anchor, anchor_weight=problem.anchor_weight if anchor is not None else 0.0)
     return sub, units
 
 

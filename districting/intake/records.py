@@ -33,6 +33,7 @@ class SolveSettings:
     max_utilization: float = default("solve", "max_utilization")
     min_utilization: float = default("solve", "min_utilization")
     stability_weight: float = default("solve", "stability_weight")  # metres per student moved
+    keep_option_weight: float = default("solve", "keep_option_weight")  # metres per student
     max_distance: dict[str, float] = field(default_factory=dict)  # level -> metres
     max_moved: float | None = None  # students (plan year) allowed to change school
     open_count: dict[str, int] = field(default_factory=dict)  # level -> p (with candidates)

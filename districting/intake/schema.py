@@ -173,6 +173,9 @@ SCHEMA: dict[str, Table] = {
                                  "max_utilization", 0.0, 1.0),
         "stability_weight": Key("number", "metres of travel charged per student moved from "
                                 "today's school", 0.0, low=0.0),
+        "keep_option_weight": Key("number", "metres of travel charged per student moved away "
+                                  "from the option being edited, when a rerun starts from a "
+                                  "saved option (0 = a free rerun)", 3000.0, low=0.0),
         "gap": Key("number", "relative optimality gap to prove (1e-4 = 0.01 %)", 1e-4,
                    low=0.0, high=1.0, high_open=True),
         "time_limit": Key("number", "seconds per solve; the best plan found is kept; 0 = no "
@@ -369,7 +372,7 @@ def _default_text(spec: Key) -> str:
 
 #: The [solve] keys a single run may override (command-line flags, the workbench, the API).
 RUN_KEYS = ("max_utilization", "min_utilization", "stability_weight", "gap", "time_limit",
-            "max_moved", "travel")
+            "max_moved", "travel", "keep_option_weight")
 
 
 def check_run(values: Mapping[str, object], where: str = "run settings") -> None:

@@ -253,6 +253,7 @@ def _read_solve(values: _Values, levels: tuple[str, ...], report) -> SolveSettin
         max_utilization=max_u,
         min_utilization=min_u,
         stability_weight=get("stability_weight"),
+        keep_option_weight=get("keep_option_weight"),
         max_distance={k: float(v) for k, v in per_level["max_distance"].items()},
         max_moved=get("max_moved") or None,
         open_count={k: int(v) for k, v in per_level["open_count"].items()},

@@ -9,6 +9,7 @@ import math
 import sys
 
 from .feeders import feeder_words
+from .option_edit import edit_figures, edit_lines
 from .practice import practice_lines
 from .wording import gap_words, plan_lines, solver_details
 
@@ -57,6 +58,7 @@ def plan_summary(outcome) -> str:
     lines.append(f"    {outcome.travel_line}")
     lines += [f"    {line}" for line in feeder_words(outcome)]
     lines += [f"    {line}" for line in practice_lines(outcome)]
+    lines += [f"    {line}" for line in edit_lines(outcome)]
     if plan.message:
         lines.append("    " + plan.message.replace("\n", "\n    "))
     _log.info("%s %s: %s", outcome.level, outcome.name or "(unsaved)", solver_details(plan))
@@ -71,13 +73,14 @@ def _finite(value: float) -> float | None:
 def solve_record(outcome) -> dict:
     """One level's result for scripts (`solve --json`): the engine's status code, the
     objective and the proven bound (cost units), the gap as a fraction, seconds, and
-    students moved against today's zones. ``students_moved_vs_option`` is None: the
-    command always starts from today's zones, never from a saved option."""
+    students moved against today's zones and (a run editing a saved option, else None)
+    against that option."""
     plan = outcome.plan
+    edit = edit_figures(outcome)
     moved = plan.metrics.students_moved if plan.feasible and plan.metrics else None
     return {"level": outcome.level, "status": plan.status,
             "objective": _finite(plan.objective), "bound": _finite(plan.bound),
             "gap": _finite(plan.gap),
             "seconds": round(plan.build_seconds + plan.solve_seconds, 3),
             "students_moved_vs_today": _finite(moved),
-            "students_moved_vs_option": None}
+            "students_moved_vs_option": None if edit is None else edit.moved_vs_option}

@@ -7,6 +7,7 @@ import pandas as pd
 import panel as pn
 
 from districting.outputs.feeders import feeder_sheet
+from districting.outputs.option_edit import edit_lines
 from districting.outputs.sheets import for_people, whole_numbers
 
 from ..session import Session
@@ -107,7 +108,9 @@ class ResultsView(pn.viewable.Viewer):
             f" &middot; longest {s['max_km']:.2f} km &middot; schools outside the band: "
             f"<b>{s['schools_out_of_band']}</b><br>"
             f"Against {_esc(label)}: {len(ch):,} units, {moved_vs_ref:,.0f} students differ."
-            "</div>")
+            + "".join(f"<br><span class='edit-line'>{_esc(line)}</span>"
+                      for line in edit_lines(out))
+            + "</div>")
         year = s["plan_year"]
         self.flows.value = for_people(pd.DataFrame({
             "From": fl["from_name"], "To": fl["to_name"],

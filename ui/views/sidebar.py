@@ -32,6 +32,9 @@ class SettingsPanel(pn.viewable.Viewer):
             "stability_weight": pn.widgets.FloatInput.from_param(
                 p.stability_weight, name="Keep students in place (m per student moved)",
                 step=100),
+            "keep_option_weight": pn.widgets.FloatInput.from_param(
+                p.keep_option_weight, name="Keep the plan being edited (m per student moved)",
+                step=500),
             "max_distance_km": pn.widgets.FloatInput.from_param(
                 p.max_distance_km, name="Longest trip (km, 0 = no limit)", step=0.5),
             "gap_pct": pn.widgets.FloatInput.from_param(p.gap_pct, name="Gap to prove (%)",
