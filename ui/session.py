@@ -13,7 +13,8 @@ from collections.abc import Callable
 
 from .history import History, describe_units
 from .runner import Runner, Schedule
-from .state import SETTING_PARAMS, SessionState
+from .state import SETTING_PARAMS, TODAY_ZONES, SessionState
+from .store_feeders import feeder_level
 from .store import TODAY, Store, StoreError
 from .text import restored_text
 
@@ -40,6 +41,7 @@ class Session:
             self.notify(restored_text(store.outcome), "info")
         state.param.watch(self._on_level, "level")
         state.param.watch(self._on_setting, list(SETTING_PARAMS))
+        state.param.watch(self._on_options, "options_version")
 
     # ------------------------------------------------------------------ sync
     def _sync_from_store(self) -> None:
@@ -66,11 +68,32 @@ class Session:
                 keep_walkers=bool(full.keep_walkers),
                 max_transported=float(full.max_transported or 0.0),
                 group_band=float(full.group_band or 0.0),
+                transport_charge=float(full.transport_charge or 0.0),
                 target_site=target,
                 selection=[],
             )
+            self._show_feeder_choice()
         finally:
             self._syncing = False
+
+    def _on_options(self, event) -> None:
+        """A saved option came or went: the list of zones a feeder rule may keep follows."""
+        self._syncing = True
+        try:
+            self._show_feeder_choice()
+        finally:
+            self._syncing = False
+
+    def _show_feeder_choice(self) -> None:
+        """Show the level's feeder rule, the zones it keeps (with the saved options of the
+        neighbouring level to pick from) and its splits; call with ``_syncing`` set."""
+        st, state = self.store, self.state
+        rule, given, splits = st.feeder_choice()
+        other = feeder_level(st.inputs, st.level, rule)
+        names = st.option_names(other) if other else []
+        state.param.given_option.objects = [TODAY_ZONES, *names]
+        state.param.update(feeding=rule, max_splits=splits,
+                           given_option=given if given in names else TODAY_ZONES)
 
     def _on_level(self, event) -> None:
         if self._syncing:
@@ -86,8 +109,12 @@ class Session:
         for ev in events:
             field, scale = SETTING_PARAMS[ev.name]
             changes[field] = ev.new if scale is None else float(ev.new) * scale
+        if changes.get("given_name") == TODAY_ZONES:
+            changes["given_name"] = ""
         if self._guard(lambda: self.store.update_settings(**changes)):
             self.state.edits_version += 1
+            if {"feeding", "given_name", "max_splits"} & set(changes):
+                self._on_options(None)  # the zones to keep belong to the rule's level
         else:
             self._sync_from_store()
 

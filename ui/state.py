@@ -13,8 +13,9 @@ import param
 from districting.travel.measures import MEASURES
 
 from .store import EDITABLE_SETTINGS
+from .store_feeders import FEEDER_RULES
 
-__all__ = ["SessionState", "REFERENCES", "SETTING_PARAMS"]
+__all__ = ["SessionState", "REFERENCES", "SETTING_PARAMS", "TODAY_ZONES"]
 
 #: What the change view compares the plan on screen with.
 REFERENCES = ("today", "previous result")
@@ -33,7 +34,14 @@ SETTING_PARAMS = {
     "keep_walkers": ("keep_walkers", None),
     "max_transported": ("max_transported", 1.0),
     "group_band": ("group_band", 1.0),
+    "transport_charge": ("transport_charge", 1.0),
+    "feeding": ("feeding", None),
+    "given_option": ("given_name", None),
+    "max_splits": ("max_splits", None),
 }
+
+#: The choice of zones a feeder rule holds fixed that stands for today's zones.
+TODAY_ZONES = "Today's zones"
 
 
 class SessionState(param.Parameterized):
@@ -61,6 +69,14 @@ class SessionState(param.Parameterized):
                                    doc="Most students needing transport (0 = no limit)")
     group_band = param.Number(0.0, bounds=(0.0, 100.0),
                               doc="Group shares within this many points of the district's")
+    transport_charge = param.Number(0.0, bounds=(0, None),
+                                    doc="Metres charged per student beyond walking distance")
+    feeding = param.Selector(objects=list(FEEDER_RULES), default="none",
+                             doc="Feeder rule against the neighbouring level's zones")
+    given_option = param.Selector(objects=[TODAY_ZONES], default=TODAY_ZONES,
+                                  doc="Zones of the neighbouring level the feeder rule keeps")
+    max_splits = param.Integer(0, bounds=(0, None),
+                               doc="Whole feeding: schools below may split this many times")
 
     selection = param.List(default=[], item_type=str, doc="Unit ids selected on the map")
     target_site = param.Selector(objects=[], allow_None=True,

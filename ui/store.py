@@ -45,6 +45,7 @@ from districting.study import (
 )
 from districting.travel.measures import MEASURES
 
+from .store_feeders import FEEDER_RULES, feeder_choice, feeder_edit
 from .store_records import DRAFT_PREFIX, STATE_KEY, StoreError, StoreRecords
 from .store_tables import TODAY, PlanTables
 
@@ -67,7 +68,15 @@ EDITABLE_SETTINGS = {
     "keep_walkers": (False, True),  # a switch
     "max_transported": (0.0, 1e9),
     "group_band": (0.0, SCHEMA["groups"].keys["band_points"].high),
+    "transport_charge": (0.0, 1e6),
+    # the feeder rule: checked by ui.store_feeders.feeder_edit, which builds its fields
+    "feeding": FEEDER_RULES,
+    "given_name": None,  # a saved option of the neighbouring level, "" = today's zones
+    "max_splits": (0, 1e6),
 }
+
+#: the feeder rule's fields, edited together
+FEEDER_FIELDS = ("feeding", "given_name", "max_splits")
 
 
 @dataclass(frozen=True)
@@ -202,6 +211,8 @@ class Store(StoreRecords, PlanTables):
             if name not in EDITABLE_SETTINGS:
                 raise StoreError(f"{name!r} is not a setting the workbench edits "
                                  f"(settings: {', '.join(EDITABLE_SETTINGS)})")
+            if name in FEEDER_FIELDS:
+                continue
             if value is None:
                 clean[name] = None
                 continue
@@ -229,12 +240,25 @@ class Store(StoreRecords, PlanTables):
             clean[name] = v
         new = self.settings.replace(**clean)
         try:  # the project file's rules hold for a run too (min below max utilization...)
+            feeder = {k: v for k, v in changes.items() if k in FEEDER_FIELDS}
+            if feeder:
+                new = new.replace(**feeder_edit(
+                    self.inputs, new, feeder.get("feeding"), feeder.get("given_name"),
+                    feeder.get("max_splits")))
             resolved(self.inputs, new)
         except ValueError as err:
             raise StoreError(str(err)) from None
         self.runs[self.level] = new
         self._save()
         return new
+
+    def feeder_choice(self) -> tuple[str, str, int]:
+        """(rule, saved option held fixed or "" for today's zones, splits) of the current
+        level's reruns; no rule when the project's [feeders] cannot be read."""
+        try:
+            return feeder_choice(self.inputs, self.settings)
+        except ValueError:
+            return "none", "", 0
 
     def travel_measures(self) -> list[str]:
         """The travel measures this project can use (streets only when it has them)."""
@@ -419,6 +443,8 @@ class Store(StoreRecords, PlanTables):
                 from districting.outputs.feeders import feeder_run
 
                 rs = rs.replace(**feeder_run(self.inputs, level))
+            elif rs.given_name:  # the saved option's zones as saved now (or refused)
+                rs = rs.replace(**feeder_edit(self.inputs, rs, given_name=rs.given_name))
             out = run(self.inputs, rs, name=name, progress=progress, cancel=cancel,
                       previous=start, sessions=self._sessions, on_plan=interim)
         except ValueError as exc:  # a lock or forbid the problem cannot take, or a solver fault

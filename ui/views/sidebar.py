@@ -7,9 +7,17 @@ import panel as pn
 from districting.travel.measures import WORDS
 
 from ..session import Session
+from ..store_feeders import FEEDER_RULES
 from ..text import esc as _esc
 
-__all__ = ["SettingsPanel", "RunPanel", "SelectionPanel"]
+__all__ = ["SettingsPanel", "RunPanel", "SelectionPanel", "FEEDER_WORDS"]
+
+#: The feeder rules in the planner's words.
+FEEDER_WORDS = {
+    "none": "None",
+    "whole": "Whole feeding: each zone takes whole zones of the level below",
+    "nested": "Nested: each zone lies inside one zone of the level above",
+}
 
 
 class SettingsPanel(pn.viewable.Viewer):
@@ -48,6 +56,15 @@ class SettingsPanel(pn.viewable.Viewer):
             "max_transported": pn.widgets.FloatInput.from_param(
                 p.max_transported, name="Most students needing transport (0 = no limit)",
                 step=50),
+            "transport_charge": pn.widgets.FloatInput.from_param(
+                p.transport_charge,
+                name="Charge per student needing transport (m, 0 = none)", step=100),
+            "feeding": pn.widgets.Select.from_param(
+                p.feeding, name="Feeder rule", options={FEEDER_WORDS[r]: r for r in FEEDER_RULES}),
+            "given_option": pn.widgets.Select.from_param(
+                p.given_option, name="Zones of the neighbouring level kept as they are"),
+            "max_splits": pn.widgets.IntInput.from_param(
+                p.max_splits, name="Whole feeding: at most this many splits per school", step=1),
             "group_band": pn.widgets.FloatInput.from_param(
                 p.group_band, name="Group band (points around the district's share, 0 = none)",
                 step=1),
