@@ -14,8 +14,8 @@ from collections.abc import Callable
 from .history import History, describe_units
 from .runner import Runner, Schedule
 from .state import SETTING_PARAMS, TODAY_ZONES, SessionState
-from .store_feeders import feeder_level
 from .store import TODAY, Store, StoreError
+from .store_feeders import feeder_level
 from .text import restored_text
 
 __all__ = ["Session"]
