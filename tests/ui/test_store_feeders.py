@@ -100,6 +100,7 @@ def test_choices_that_cannot_apply_are_refused_in_words(tmp_path):
         s.store.update_settings(given_name="Elementary B")
     except StoreError as exc:
         assert "is a elementary option" in str(exc) and "middle" in str(exc)
+        assert "--" not in str(exc)  # plain words, not the CLI's flags
     else:
         raise AssertionError("an elementary option was taken as the middle zones")
     s.state.max_splits = 2  # splits belong to whole feeding
