@@ -241,7 +241,9 @@ class Store(StoreRecords, PlanTables):
         new = self.settings.replace(**clean)
         try:  # the project file's rules hold for a run too (min below max utilization...)
             feeder = {k: v for k, v in changes.items() if k in FEEDER_FIELDS}
-            if feeder:
+            if feeder and all(v is None for v in feeder.values()):  # the project's again
+                new = new.replace(feeding=None, given={}, given_name="", max_splits=None)
+            elif feeder:
                 new = new.replace(**feeder_edit(
                     self.inputs, new, feeder.get("feeding"), feeder.get("given_name"),
                     feeder.get("max_splits")))

@@ -126,3 +126,16 @@ def test_the_transport_charge_on_the_card_reaches_the_plan(inputs):
     assert beyond > 0
     free = objective(dataclasses.replace(p, transport_weight=0.0), a)
     assert objective(p, a) - free == pytest.approx(250.0 * beyond, rel=1e-9)
+
+
+def test_a_deleted_option_is_refused_at_the_rerun_and_none_restores_the_project_s(tmp_path):
+    s = _middle_session(_town_with_option(tmp_path))
+    s.state.feeding = "whole"
+    s.state.given_option = "Elementary B"
+    s.store.delete_option("Elementary B")
+    from ui.store import StoreError
+
+    with pytest.raises(StoreError, match="no saved option named 'Elementary B'"):
+        s.store.rerun()
+    s.store.update_settings(feeding=None, given_name=None, max_splits=None)
+    assert s.store.settings.feeding is None and s.store.feeder_choice() == ("none", "", 0)
