@@ -207,7 +207,7 @@ class HighsRoute:
         h.setOptionValue("time_limit", float(time_limit))
         # HiGHS's presolve of a large LP checks the clock rarely: on Lorena & Senne's SJC4a it
         # ran 90-277 s against limits of 3-20 s. A limited LP on such a model goes without it.
-        quick = np.isfinite(time_limit) and self.ncol > PROBE_LIMIT
+        quick = np.isfinite(time_limit) and self.ncol > tuning.LP_PRESOLVE_LIMIT
         if quick:
             h.setOptionValue("presolve", "off")
         try:
