@@ -17,7 +17,8 @@ import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-__all__ = ["Finding", "no_plan_text", "lead_line", "students", "plural", "RULES"]
+__all__ = ["Finding", "no_plan_text", "lead_line", "students", "plural", "RULES",
+           "stopped_short_text"]
 
 
 @dataclass(frozen=True)
@@ -125,3 +126,34 @@ def lead_line(findings: Sequence[Finding], level: str = "") -> str:
 def no_plan_text(findings: Sequence[Finding], level: str = "") -> str:
     """The message for a problem without a plan: the lead line, then one cause per line."""
     return "\n".join([lead_line(findings, level), *(f"- {f}" for f in findings)])
+
+
+def stopped_short_text(level: str, seconds: float, rounds: int, pieces: int, locked: int = 0,
+                       cancelled: bool = False) -> str:
+    """The message for a solve that ended without a plan but without a proof that none exists.
+
+    Says what was tried (the quick checks, the rounds, what the last answer lacked) and what
+    to relax: more time first, then the locks (``locked`` units are locked), then the band and
+    the move limit. With zones left in pieces connected zones are what is hard, so the locks
+    and forbids between zones are named.
+    """
+    what = f"No {level} plan" if level else "No plan"
+    took = f"{seconds:.0f} s" if seconds >= 10 else f"{seconds:.1f} s"
+    why = "the solve was stopped" if cancelled else f"none was found in {took}"
+    tried = ["the quick checks of every rule found nothing that cannot be met"]
+    if rounds:
+        tried.append(f"{rounds} {plural(rounds, 'round')} of the exact model ran, with the "
+                     "start from today's zones and the search from nearest schools")
+    if pieces:
+        tried.append(f"the last answer left {pieces} {plural(pieces, 'piece')} of zones cut "
+                     "off from their school, and no repair joined them")
+    relax = ["allow more time"]
+    if locked:
+        relax.append(f"remove the newest of the {locked} {plural(locked, 'lock')}"
+                     + (", first those between two zones" if pieces else ""))
+    elif pieces:
+        relax.append("remove forbids that sit between two zones")
+    relax.append("widen the utilization band or raise the move limit")
+    return "\n".join([f"{what} meets every rule yet: {why}, and no rule was shown to be "
+                       "impossible.", f"- Tried: {'; '.join(tried)}.",
+                       f"- To fix: {', or '.join(relax)}, then solve again."])

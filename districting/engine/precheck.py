@@ -17,6 +17,13 @@ from scipy.sparse.csgraph import breadth_first_order
 from ..problem import Problem
 from .feeding import nested_findings, nested_seat_findings, whole_findings
 from .findings import Finding, plural, students
+from .precheck_locks import (
+    blocking_locks,
+    lock_pair_issues,
+    lock_reach_issues,
+    locked_seat_issues,
+    locks_named,
+)
 from .precheck_practice import practice_issues
 
 __all__ = ["precheck", "unbuildable", "reachable"]
@@ -59,6 +66,11 @@ def reachable(problem: Problem) -> np.ndarray:
     return reach
 
 
+def unlocked_reach(problem: Problem) -> np.ndarray:
+    """(n, m) bool: :func:`reachable` with no unit locked (to tell what the locks cut off)."""
+    return reachable(problem.replace(locks=np.full(problem.n_units, -1, np.int64)))
+
+
 # ---------------------------------------------------------------------------- checks
 def unbuildable(problem: Problem) -> list[Finding]:
     """Findings that leave no model to write down (the Pyomo route refuses to build then).
@@ -67,7 +79,7 @@ def unbuildable(problem: Problem) -> list[Finding]:
     always-open school whose own unit may not join it, a move limit already broken by the
     forced moves, and an open-school count that cannot be met.
     """
-    return (_count_issues(problem) + _lock_pair_issues(problem) + nested_findings(problem)
+    return (_count_issues(problem) + lock_pair_issues(problem) + nested_findings(problem)
             + _no_school_issues(problem) + _root_pair_issues(problem)
             + _forced_move_issues(problem))
 
@@ -83,11 +95,11 @@ def precheck(problem: Problem) -> list[Finding]:
     that no school may take whole, an upper zone whose students its schools cannot seat.
     """
     reasons = unbuildable(problem)
-    reasons += _year_capacity_issues(problem)
+    reasons += _year_capacity_issues(problem) + locked_seat_issues(problem)
     reasons += _shared_root_issues(problem)
     reach = reachable(problem)
     reasons += _floor_issues(problem, reach)
-    reasons += _lock_reach_issues(problem, reach)
+    reasons += lock_reach_issues(problem, reach)
     reasons += _island_issues(problem, reach)
     reasons += whole_findings(problem, reach) + nested_seat_findings(problem)
     reasons += practice_issues(problem, None if problem.capacity is None else _seats(problem))
@@ -109,25 +121,6 @@ def _count_issues(problem: Problem) -> list[Finding]:
                         f"only {can_open} are not closed.", f"lower the number of open schools "
                         f"to {can_open} or add candidate sites.")]
     return []
-
-
-def _lock_pair_issues(problem: Problem) -> list[Finding]:
-    out = []
-    for i in np.flatnonzero(problem.locks >= 0).tolist():
-        j = int(problem.locks[i])
-        unit, school = problem.unit_label(i), problem.site_label(j)
-        lock = f"{unit} is locked to {school}, but "
-        if problem.closed_sites[j]:
-            out.append(Finding("lock", f"{lock}{school} is closed in this run.",
-                               "remove the lock or reopen the school.", school, unit))
-        elif problem.forbidden[i, j]:
-            out.append(Finding("lock", f"{lock}that pair is also forbidden.",
-                               "remove either the lock or the forbid.", school, unit))
-        elif not np.isfinite(problem.cost[i, j]):
-            out.append(Finding("lock", f"{lock}{school} is out of reach for it (beyond the "
-                               "maximum distance or missing from the travel matrix).",
-                               "raise the maximum distance or remove the lock.", school, unit))
-    return out
 
 
 def _no_school_issues(problem: Problem) -> list[Finding]:
@@ -243,40 +236,30 @@ def _floor_issues(problem: Problem, reach: np.ndarray) -> list[Finding]:
     if problem.capacity is None:
         return []
     out = []
+    free = None
     for j in np.flatnonzero(problem.always_open & (problem.min_util > 0)).tolist():
         floor = problem.min_util[j] * problem.capacity[j]
         for t in range(problem.n_years):
             most = problem.demand[t, reach[:, j]].sum()
-            if most < floor - 1e-6:
-                school, year = problem.site_label(j), problem.year_label(t)
-                out.append(Finding(
-                    "band", f"{school} cannot reach its minimum utilization in {year}: even "
-                    f"with every unit it may take it would have {students(most, up=False)} "
+            if most >= floor - 1e-6:
+                continue
+            school, year = problem.site_label(j), problem.year_label(t)
+            text = (f"{school} cannot reach its minimum utilization in {year}: even with "
+                    f"every unit it may take it would have {students(most, up=False)} "
                     f"students, below its floor of {students(floor)} "
                     f"({problem.min_util[j]:.0%} of {students(problem.capacity[j], up=False)} "
-                    "seats).", "lower its minimum utilization, allow it more units (maximum "
-                    "distance, forbids), or close it.", school, year=year))
-                break
-    return out
-
-
-def _lock_reach_issues(problem: Problem, reach: np.ndarray) -> list[Finding]:
-    if not problem.contiguous or problem.roots is None:
-        return []
-    out = []
-    allowed = problem.allowed
-    for i in np.flatnonzero(problem.locks >= 0).tolist():
-        j = int(problem.locks[i])
-        r = int(problem.roots[j])
-        if r < 0 or reach[i, j] or not allowed[i, j] or problem.closed_sites[j]:
-            continue
-        school, unit = problem.site_label(j), problem.unit_label(i)
-        out.append(Finding("lock", f"{unit} is locked to {school}, but it cannot be joined "
-                           f"to {school}'s zone: every path from the school's unit "
-                           f"{problem.unit_label(r)} runs through units that may not go to "
-                           f"{school} (locked elsewhere, forbidden or out of reach).",
-                           f"remove the lock, or allow a connecting unit to go to {school}.",
-                           school, unit))
+                    "seats).")
+            fix = "lower its minimum utilization, allow it more units (maximum distance, " \
+                  "forbids), or close it."
+            if free is None and (problem.locks >= 0).any():
+                free = unlocked_reach(problem)
+            taken = (np.flatnonzero(free[:, j] & ~reach[:, j] & (problem.locks >= 0)
+                                    & (problem.locks != j)) if free is not None else [])
+            if len(taken) and problem.demand[t, free[:, j]].sum() >= floor - 1e-6:
+                text += (f" Without the locks of {locks_named(problem, taken)} it could.")
+                fix = "remove some of those locks, or " + fix
+            out.append(Finding("band", text, fix, school, year=year))
+            break
     return out
 
 
@@ -285,9 +268,20 @@ def _island_issues(problem: Problem, reach: np.ndarray) -> list[Finding]:
         return []
     allowed = problem.allowed & ~problem.closed_sites[None, :]
     cut_off = allowed.any(axis=1) & ~reach.any(axis=1) & (problem.locks < 0)
+    free = unlocked_reach(problem) if cut_off.any() and (problem.locks >= 0).any() else None
     out = []
     for i in np.flatnonzero(cut_off).tolist():
         unit = problem.unit_label(i)
+        by_locks = np.flatnonzero(free[i] & allowed[i]) if free is not None else []
+        block = blocking_locks(problem, reach, int(by_locks[0]), i) if len(by_locks) else []
+        if len(block):
+            school = problem.site_label(int(by_locks[0]))
+            out.append(Finding("island", f"{unit} cannot be joined to any school's zone: the "
+                               f"{plural(len(block), 'lock')} of {locks_named(problem, block)} "
+                               f"cut it off from {school}, the school it could otherwise join.",
+                               "remove one of these locks, or lock the unit to the school "
+                               "whose zone surrounds it.", unit=unit))
+            continue
         out.append(Finding("island", f"{unit} cannot be joined to any school's zone: in the "
                            "unit adjacency it is cut off from every school it may attend (an "
                            "island, or surrounded by units that may not go there).", "add a "

@@ -18,6 +18,7 @@ from ..plan import Plan, Round, plan_metrics, relative_gap
 from ..problem import Problem
 from ..rules import open_sites
 from .connectivity import Cut, UnitGraph, plan_checks
+from .findings import stopped_short_text
 from .tuning import FAR_GAP_FACTOR, FAR_GAP_MIN, TOL
 
 __all__ = ["Run", "SolveState", "objective", "infeasible_plan", "failed_plan"]
@@ -83,9 +84,10 @@ class Run:
         problem = self.problem
         bound = min(self.bound, self.best_obj)
         if self.best is None:
-            msg = message or (
-                "no plan that meets every constraint was found within the time limit"
-                if status == "time_limit" else "no plan that meets every constraint was found")
+            pieces = self.history[-1].fragments if self.history else 0
+            msg = message or stopped_short_text(
+                problem.level, self.elapsed(), self.rounds, pieces,
+                int((problem.locks >= 0).sum()), cancelled=status == "cancelled")
             st = status if status in ("time_limit", "cancelled") else "infeasible"
             return Plan(st, np.inf, bound, np.inf, np.full(problem.n_units, -1, np.int64),
                         np.zeros(problem.n_sites, bool), message=msg, rounds=self.rounds,
