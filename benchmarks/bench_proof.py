@@ -14,9 +14,9 @@ and both demo options (shortest travel; fewer moves, stability weight 3000), pri
   known, else the free optimum): how much of the gap is the plan;
 - bound below ref: how far the engine's bound lies below the flow optimum (when known).
 
-``--old`` runs the engine without the flow stage too (``tuning.FLOW_MAX_SITES = 0``), so
-both routes stand side by side (only on levels where the stage applies). Speed is measured
-here, never asserted in tests.
+``--old`` runs the engine without the restart from the free optimum repaired
+(``Session._free_restart``, ``tuning.FREE_SHARE = 0``) too, so both stand side by side in one
+run. Speed is measured here, never asserted in tests.
 
 Usage: ``.venv/bin/python benchmarks/bench_proof.py [--time-limit 60] [--flow-time 60]
 [--travel straight-line streets] [--levels high middle elementary] [--old]``.
@@ -36,7 +36,7 @@ sys.path[:0] = [str(ROOT), str(ROOT / "tests")]
 
 from flow_milp import flow_optimum  # noqa: E402
 
-from districting.engine import solve, tuning  # noqa: E402
+from districting.engine import solve  # noqa: E402
 from districting.intake import validate_project  # noqa: E402
 from districting.study import RunSettings, build_problem  # noqa: E402
 
@@ -53,18 +53,17 @@ def _reference(problem, limit: float) -> tuple[float, float]:
     return (float("nan") if value is None else value), time.perf_counter() - started
 
 
-def _engine(problem, limit: float, flow: bool):
-    keep = tuning.FLOW_MAX_SITES
-    if not flow:
-        from districting.engine import flow_stage
+def _engine(problem, limit: float, free: bool):
+    """The engine; ``free=False`` is the engine before the free restart (stage 2b)."""
+    from districting.engine import session
 
-        flow_stage.FLOW_MAX_SITES = 0
+    keep = session.FREE_SHARE
+    if not free:
+        session.FREE_SHARE = 0.0
     try:
         return solve(problem, gap=1e-4, time_limit=limit)
     finally:
-        from districting.engine import flow_stage
-
-        flow_stage.FLOW_MAX_SITES = keep
+        session.FREE_SHARE = keep
 
 
 def main() -> None:
@@ -75,7 +74,8 @@ def main() -> None:
                     help="run the flow reference up to this many schools")
     ap.add_argument("--travel", nargs="+", default=["straight-line", "streets"])
     ap.add_argument("--levels", nargs="+", default=["high", "middle", "elementary"])
-    ap.add_argument("--old", action="store_true", help="also the engine without flow stage")
+    ap.add_argument("--old", action="store_true",
+                    help="also the engine without the free restart (as before it)")
     ap.add_argument("--data", default=str(ROOT / "data" / "demo"))
     args = ap.parse_args()
     inputs, report = validate_project(args.data, cache=True)
@@ -96,10 +96,8 @@ def main() -> None:
                 if problem.n_sites <= args.flow_sites:
                     ref, ref_s = _reference(problem, args.flow_time)
                 low = ref if np.isfinite(ref) else free.objective
-                for name, flow in routes:
-                    if not flow and problem.n_sites > tuning.FLOW_MAX_SITES:
-                        continue  # the flow stage does not apply: both routes are one
-                    plan = _engine(problem, args.time_limit, flow)
+                for name, free_restart in routes:
+                    plan = _engine(problem, args.time_limit, free_restart)
                     seconds = plan.build_seconds + plan.solve_seconds
                     above = 100 * (plan.objective / low - 1)
                     below = 100 * (1 - plan.bound / ref) if np.isfinite(ref) else float("nan")

@@ -255,10 +255,10 @@ def cmd_packet(args) -> int:
 
 
 def cmd_demo(args) -> int:
-    from .outputs.console import Progress, plan_summary
     """Solve the demo town for every level, save two options, export, write the packets."""
     from .demo import copy_demo
     from .intake import check_summary, load_project
+    from .outputs.console import Progress, plan_summary
     from .outputs.exports import export_all
     from .outputs.packet import write_packet
     from .outputs.store import save_option

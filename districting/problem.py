@@ -362,6 +362,32 @@ class Problem:
         too: a lock, a forbid, a closure, a lower cap or a higher floor only remove plans.
         The check is conservative: any difference it does not recognise returns False.
         """
+        return (self._plans_within(other)
+                and _same_array(self.weighted_cost, other.weighted_cost))
+
+    def bound_shift(self, other: Problem) -> float | None:
+        """What to add to a lower bound proven for ``other`` so that it holds here, or None.
+
+        When every plan valid here is valid for ``other`` (see :meth:`is_restriction_of`)
+        but the costs differ (a rerun charged against the option being edited, a changed
+        charge per student moved): for every plan x valid here
+        ``f(x) - f_other(x) = sum_i (w - w_other)[i, x_i] >= sum_i min_j (w - w_other)[i, j]``
+        over the pairs allowed here, so ``bound_other + shift`` is a bound here. With the
+        same costs the shift is 0; moving the anchor to another option of weight W gives
+        at least ``-W x`` (the students whose anchor school changed).
+        """
+        if not self._plans_within(other):
+            return None
+        ok = self.allowed
+        with np.errstate(invalid="ignore"):
+            diff = np.where(ok, self.weighted_cost - other.weighted_cost, np.inf)
+        per_unit = diff.min(axis=1)
+        if not np.isfinite(per_unit).all():
+            return None
+        return float(per_unit.sum())
+
+    def _plans_within(self, other: Problem) -> bool:
+        """Every plan valid here is valid for ``other`` (costs aside); conservative."""
         if (self.cost.shape != other.cost.shape or self.demand.shape != other.demand.shape
                 or self.p != other.p or self.contiguous != other.contiguous
                 or self.feeder_rule != other.feeder_rule
@@ -370,8 +396,7 @@ class Problem:
         if not _same_array(self.feeder_groups, other.feeder_groups):
             return False
         if not (_same_array(self.demand, other.demand) and _same_array(self.edges, other.edges)
-                and _same_array(self.roots, other.roots)
-                and _same_array(self.weighted_cost, other.weighted_cost)):
+                and _same_array(self.roots, other.roots)):
             return False
         if (self.allowed & ~other.allowed).any() or (other.open_sites & ~self.open_sites).any():
             return False

@@ -132,6 +132,7 @@ class SolveState:
     lns_done: bool = True
     fix_done: bool = True
     flow_done: bool = False
+    round_bounds: list = dataclasses.field(default_factory=list)  # bound after each exact round
     parents: np.ndarray | None = None
     status: str = "feasible"
     message: str = ""

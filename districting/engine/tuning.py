@@ -113,3 +113,15 @@ FLOW_MAX_SITES = 2
 FLOW_MAX_ARCS = 60_000
 #: Share of the time left given to it; the exact rounds get the rest.
 FLOW_SHARE = 0.8
+
+#: The zones-without-contiguity restart (stage 2b): its solve gets this share of the time
+#: left, at most FREE_MAX seconds (the demo's levels solve free in 0.5-10 s; measured).
+FREE_SHARE = 0.2
+FREE_MAX = 20.0
+
+#: The exact rounds "stall" when the last STALL_ROUNDS rounds lifted the bound by less than
+#: STALL_SHARE of the gap still open; then the flow stage may race (few sites only). Demo
+#: high "fewer moves": with straight-line travel a round lifts 3-8% of the open gap; along
+#: streets a round closes a third of it and the cut loop proves it in 3-7 s (measured).
+STALL_ROUNDS = 1
+STALL_SHARE = 0.25

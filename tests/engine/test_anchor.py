@@ -105,3 +105,29 @@ def test_neighbourhood_subproblem_keeps_the_charge():
     assert sub.anchor.tolist() == [-1, 1]
     # u2 at B: 900 * 14 + 1000 * 14 in both; at C: 100 * 14
     assert sub.weighted_cost[1].tolist() == p.weighted_cost[2, [1, 2]].tolist()
+
+
+def test_a_bound_carries_over_to_a_charged_rerun_by_the_hand_worked_shift():
+    # Solved free (3,600, proven), then u0 locked to B with 1,000 m per student moved against
+    # the option: every plan now pays u0's 10 students (its only school is not its option
+    # school) and nothing less elsewhere, so the old bound rises by 10,000 to 13,600, below
+    # the new optimum 37,200.
+    free = town()
+    rerun = town(locks={0: 1}, anchor=OPTION, anchor_weight=1000.0)
+    assert rerun.bound_shift(free) == pytest.approx(10_000.0)
+    session = Session(free)
+    assert session.solve(0.0).bound == pytest.approx(3600.0)
+    session.update(rerun)
+    plan = session.solve(0.0)
+    assert plan.objective == pytest.approx(37_200.0) and plan.bound <= 37_200.0 + 1e-6
+
+
+def test_moving_the_anchor_lowers_a_carried_bound_by_the_students_whose_option_changed():
+    # Anchor (A, B, C) -> (B, A, C) at 1,000 m: u0 (10) and u1 (12) change option school, so
+    # a plan may save up to 1,000 x 22 = 22,000 m of charge; u2 nothing.
+    before = town(anchor=OPTION, anchor_weight=1000.0)
+    after = town(anchor=[1, 0, 2], anchor_weight=1000.0)
+    assert after.bound_shift(before) == pytest.approx(-22_000.0)
+    assert before.bound_shift(before) == 0.0
+    # not a restriction (a lock removed): nothing carries
+    assert town().bound_shift(town(locks={0: 1})) is None
