@@ -184,8 +184,8 @@ def feeder_words(outcome: Outcome) -> list[str]:
     for (lower, upper), part in table.groupby(["lower_level", "upper_level"], sort=False):
         n = split_feeders(part)
         schools = part["from_id"].nunique()
-        lines.append(f"feeders {lower} -> {upper}: {n} of {schools} {lower} "
-                     f"{'school splits' if n == 1 else 'schools split'} "
+        # "1 of 4 middle schools split": the count is of the schools, never "school splits"
+        lines.append(f"feeders {lower} -> {upper}: {n} of {schools} {lower} schools split "
                      f"({part['source'].iloc[0]})")
     return lines
 

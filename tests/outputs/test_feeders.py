@@ -21,7 +21,13 @@ from districting.intake import Inputs, Settings, SolveSettings
 from districting.intake.adjacency import Adjacency
 from districting.intake.feeders import FeederSettings
 from districting.outputs.exports import export_all, read_export_csv
-from districting.outputs.feeders import feeder_sheet, feeder_table, given_zones, split_feeders
+from districting.outputs.feeders import (
+    feeder_sheet,
+    feeder_table,
+    feeder_words,
+    given_zones,
+    split_feeders,
+)
 from districting.study import RunSettings, outcome_from_assignment
 
 CRS = "EPSG:32617"
@@ -141,6 +147,9 @@ def test_the_packet_prints_the_feeder_table_as_exported(tmp_path):
     assert texts.count("50.0%") == 2 and texts.count("100.0%") == 1
     assert texts.count("yes") == 2 and "page 7" in texts
     assert any("1 of 2 elementary schools split" in " ".join(t.split()) for t in texts)
+    # the summary line counts schools the same way ("1 of 2 ... schools split")
+    assert feeder_words(middle_option(feeder_town(tmp_path)))[0].startswith(
+        "feeders elementary -> middle: 1 of 2 elementary schools split (")
     # a level whose neighbours have no zones gets no page
     lone = feeder_town(tmp_path)
     lone.current["elementary"][:] = -1
