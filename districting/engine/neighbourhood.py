@@ -41,7 +41,9 @@ def subproblem(problem: Problem, assignment: np.ndarray,
     Returns (sub-problem, unit indices). The sub-problem opens every one of its sites (they
     are open in the plan); a unit whose site today is outside ``sites`` counts as moved in
     every sub-plan, so its stability cost is a constant left out and its students come off
-    the moved-students limit together with those moved outside the neighbourhood.
+    the moved-students limit together with those moved outside the neighbourhood. Walk zones
+    and the transport charge carry over; students beyond walking distance outside the
+    neighbourhood come off the transport limit.
     """
     a = np.asarray(assignment, np.int64)
     sites = np.asarray(sites, np.int64)
@@ -73,6 +75,13 @@ def subproblem(problem: Problem, assignment: np.ndarray,
         moved_out = float(d0[~inside & (cur >= 0) & (a != cur)].sum())
         moved_const = float(d0[units][(cur_u >= 0) & (cur_sub < 0)].sum())
         max_moved = problem.max_moved - moved_out - moved_const
+    walk, max_transported = None, None
+    if problem.walk is not None:
+        walk = problem.walk[np.ix_(units, sites)]
+        if problem.max_transported is not None:
+            # students beyond walking distance outside the neighbourhood stay as they are
+            far_out = ~inside & ~problem.walk[np.arange(n), np.maximum(a, 0)]
+            max_transported = problem.max_transported - float(problem.demand[0, far_out].sum())
     anchor = None
     if problem.anchor is not None:
         anc_u = problem.anchor[units]
@@ -87,7 +96,9 @@ def subproblem(problem: Problem, assignment: np.ndarray,
         years=problem.years, level=problem.level,
         feeder_groups=None if problem.feeder_groups is None else problem.feeder_groups[units],
         feeder_rule=problem.feeder_rule, feeder_splits=problem.feeder_splits,
-        anchor=anchor, anchor_weight=problem.anchor_weight if anchor is not None else 0.0)
+        anchor=anchor, anchor_weight=problem.anchor_weight if anchor is not None else 0.0,
+        walk=walk, max_transported=max_transported,
+        transport_weight=problem.transport_weight if walk is not None else 0.0)
     return sub, units
 
 

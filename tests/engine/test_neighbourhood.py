@@ -87,6 +87,24 @@ def test_subproblem_holds_the_zones_of_its_sites_with_the_same_loads():
     assert list(units[sub.roots]) == list(prob.roots[sites])
 
 
+def test_subproblem_keeps_walk_zones_the_transport_charge_and_the_transport_limit():
+    prob, _ = town(0)
+    walk = prob.cost <= 3.5  # within 3.5 grid steps (less the 1.0 offset) of the school
+    prob = prob.replace(walk=walk, transport_weight=2.0)
+    a = make_valid(prob, UnitGraph.of(prob), prob.current)
+    d0 = prob.demand[0]
+    far = ~walk[np.arange(prob.n_units), a]
+    prob = prob.replace(max_transported=float(d0[far].sum()) + 3)
+    sites = np.array([0, 2, 5])
+    sub, units = nh.subproblem(prob, a, sites)
+    # the same charge per pair: walking distance and transport charge came along
+    assert np.allclose(sub.weighted_cost, prob.weighted_cost[np.ix_(units, sites)])
+    # the limit left for the neighbourhood: the full limit less the students carried
+    # outside it, so the neighbourhood's own carried students plus 3 spare
+    inside = np.isin(a, sites)
+    assert sub.max_transported == pytest.approx(float(d0[far & inside].sum()) + 3)
+
+
 @pytest.mark.parametrize("seed", range(3))
 def test_reoptimise_never_raises_the_cost_and_keeps_every_rule(seed):
     prob, edges = town(seed, stability=0.5)
