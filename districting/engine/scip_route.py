@@ -38,10 +38,10 @@ from ..plan import Plan
 from ..problem import Problem
 from .connectivity import UnitGraph, fragments, free_units
 from .cuts import fractional_cuts, separator_cuts
+from .findings import no_plan_text
 from .formulation import Formulation, RowBlock, formulate, separator_rows
 from .heuristics import constructive, prepare_start
 from .precheck import precheck
-from .findings import no_plan_text
 from .repair import make_valid
 from .run import Run, failed_plan, infeasible_plan, objective
 
