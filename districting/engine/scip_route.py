@@ -31,10 +31,11 @@ fix a column the connectivity rows need). Every plan returned passes
 from __future__ import annotations
 
 import time
+from collections.abc import Callable
 
 import numpy as np
 
-from ..plan import Plan
+from ..plan import Plan, Round
 from ..problem import Problem
 from .connectivity import UnitGraph, fragments, free_units
 from .cuts import fractional_cuts, separator_cuts
@@ -45,7 +46,11 @@ from .precheck import precheck
 from .repair import make_valid
 from .run import Run, failed_plan, infeasible_plan, objective
 
-__all__ = ["solve_scip"]
+__all__ = ["solve_scip", "ROUTE"]
+
+#: The solver name that picks this route (``Session(problem, solver=ROUTE)``), and its
+#: name on a plan.
+ROUTE = "scip-tree"
 
 #: SCIP's words for how a solve ended -> the engine's statuses.
 _STATUS = {"optimal": "optimal", "gaplimit": "optimal", "timelimit": "time_limit",
@@ -111,8 +116,8 @@ def _handler_class():
         """Zones connected to their roots: checked, enforced by lazy separator cuts."""
 
         def __init__(self, f: Formulation, graph: UnitGraph, xs: list, run: Run,
-                     sepa_freq: int, repair: bool) -> None:
-            self.f, self.graph, self.xs, self.run = f, graph, xs, run
+                     sepa_freq: int, repair: bool, cancel: Callable[[], bool] | None) -> None:
+            self.f, self.graph, self.xs, self.run, self.cancel = f, graph, xs, run, cancel
             self.passable = free_units(f.problem)
             self.sepa_freq, self.repair = sepa_freq, repair
             self.seen: set[tuple] = set()
@@ -164,7 +169,12 @@ def _handler_class():
             finally:
                 self.repair_seconds += time.monotonic() - started
 
+        def _stop(self) -> None:
+            if self.cancel is not None and self.cancel():
+                self.model.interruptSolve()
+
         def _enforce(self, sol) -> dict:
+            self._stop()
             a = self._assignment(sol)
             if (a < 0).any() or not fragments(self.f.problem, self.graph, a):
                 return {"result": SCIP_RESULT.FEASIBLE}
@@ -176,8 +186,11 @@ def _handler_class():
 
         def conscheck(self, constraints, solution, checkintegrality, checklprows,
                       printreason, completely):
+            self._stop()
             a = self._assignment(solution)
             ok = not (a < 0).any() and not fragments(self.f.problem, self.graph, a)
+            if ok:
+                self.run.consider(a)  # checked in full there; progress sees a better plan
             return {"result": SCIP_RESULT.FEASIBLE if ok else SCIP_RESULT.INFEASIBLE}
 
         def consenfolp(self, constraints, nusefulconss, solinfeasible):
@@ -207,31 +220,33 @@ def _handler_class():
 def solve_scip(problem: Problem, graph: UnitGraph | None = None,
                time_limit: float | None = None, gap: float = 1e-4, *,
                start: np.ndarray | None = None, warm: bool = True, sepa_freq: int = 0,
-               repair: bool = True) -> Plan:
+               repair: bool = True, progress: Callable[[Round], None] | None = None,
+               cancel: Callable[[], bool] | None = None) -> Plan:
     """Solve ``problem`` in one SCIP branch-and-cut tree; the same :class:`Plan` as the engine.
 
     ``start``: a plan to warm-start from (repaired first); with ``warm`` and no ``start``,
     the engine's first plan (today's zones, or the nearest schools, made valid).
     ``sepa_freq``: fractional separator cuts at the root and at every ``sepa_freq``-th depth
     (0: root only, -1: never). ``repair``: disconnected integral points are made valid by
-    the engine's repair and offered as plans.
+    the engine's repair and offered as plans. ``progress`` receives each better valid plan
+    seen; ``cancel`` is asked at every check and enforcement and stops the tree.
     """
     from pyscipopt import SCIP_PARAMSETTING  # noqa: F401  (fails early without PySCIPOpt)
 
     t0 = time.monotonic()
     reasons = precheck(problem)
     if reasons:
-        return infeasible_plan(problem, no_plan_text(reasons, problem.level), "scip")
+        return infeasible_plan(problem, no_plan_text(reasons, problem.level), ROUTE)
     if graph is None and problem.contiguous:
         graph = UnitGraph.of(problem)
-    run = Run(problem, graph, t0, time_limit, None)
+    run = Run(problem, graph, t0, time_limit, progress)
     f = formulate(problem)
     if f.infeasible_reason:
-        return infeasible_plan(problem, f.infeasible_reason, "scip")
+        return infeasible_plan(problem, f.infeasible_reason, ROUTE)
     model, xs = _model(f)
     handler = None
     if graph is not None:
-        handler = _handler_class()(f, graph, xs, run, sepa_freq, repair)
+        handler = _handler_class()(f, graph, xs, run, sepa_freq, repair, cancel)
         model.includeConshdlr(handler, "contiguity", "zones connected to their roots",
                               sepapriority=0, enfopriority=-1, chckpriority=-1,
                               sepafreq=1, propfreq=-1, eagerfreq=-1, maxprerounds=0,
@@ -250,7 +265,7 @@ def solve_scip(problem: Problem, graph: UnitGraph | None = None,
     try:
         model.optimize()
     except Exception as exc:  # a SCIP error: said in words, the best plan kept
-        return failed_plan(problem, f"the branch-and-cut solver stopped: {exc}", "scip")
+        return failed_plan(problem, f"the branch-and-cut solver stopped: {exc}", ROUTE)
     if model.getNSols():
         best = model.getBestSol()
         a = np.full(problem.n_units, -1, np.int64)
@@ -264,4 +279,4 @@ def solve_scip(problem: Problem, graph: UnitGraph | None = None,
                                                        else -np.inf)
     run.rounds = int(model.getNNodes())
     n_cuts = handler.added if handler is not None else 0
-    return run.plan(status, "", "scip", n_cuts, gap)
+    return run.plan(status, "", ROUTE, n_cuts, gap)

@@ -50,8 +50,8 @@ def test_columbus_zones_connected_at_the_proven_optimum():
     problem = columbus(5, 0.25, 0.6)
     free = solve(problem.replace(edges=None), gap=0.0)
     assert not connected_zones(problem, free.assignment)  # contiguity binds here
-    plan = solve_scip(problem, time_limit=60, gap=0.0)
-    assert plan.status == "optimal"
+    plan = solve(problem, gap=0.0, time_limit=60, solver="scip-tree")  # the session's opt-in
+    assert plan.status == "optimal" and plan.route == "scip-tree"
     assert connected_zones(problem, plan.assignment)
     assert_plan_valid(problem, plan)
     want, _ = flow_optimum(problem, 60)
