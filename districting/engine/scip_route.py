@@ -41,10 +41,12 @@ from .connectivity import UnitGraph, fragments, free_units
 from .cuts import fractional_cuts, separator_cuts
 from .findings import no_plan_text
 from .formulation import Formulation, RowBlock, formulate, separator_rows
+from .greedy import median_start
 from .heuristics import constructive, prepare_start
 from .precheck import precheck
 from .repair import make_valid
 from .run import Run, failed_plan, infeasible_plan, objective
+from .tuning import START_MAX, START_SHARE
 
 __all__ = ["solve_scip", "ROUTE"]
 
@@ -106,6 +108,16 @@ def _give(model, sol, xs: list, values: np.ndarray, submit) -> None:
     for v, val in zip(xs, values.tolist(), strict=True):
         model.setSolVal(sol, v, val)
     submit(sol)
+
+
+def _first_plan(problem: Problem, graph: UnitGraph | None,
+                time_limit: float | None) -> np.ndarray | None:
+    """The engine's first plan, as the session makes it: today's zones (or the nearest
+    schools) made valid with contiguity; greedy medians and local search without it."""
+    if graph is not None:
+        return prepare_start(problem, graph, constructive(problem))
+    seconds = START_MAX if time_limit is None else min(START_MAX, START_SHARE * time_limit)
+    return median_start(problem, None, seconds)
 
 
 def _handler_class():
@@ -224,8 +236,8 @@ def solve_scip(problem: Problem, graph: UnitGraph | None = None,
                cancel: Callable[[], bool] | None = None) -> Plan:
     """Solve ``problem`` in one SCIP branch-and-cut tree; the same :class:`Plan` as the engine.
 
-    ``start``: a plan to warm-start from (repaired first); with ``warm`` and no ``start``,
-    the engine's first plan (today's zones, or the nearest schools, made valid).
+    ``start``: a plan to warm-start from (repaired first); with ``warm`` and no usable
+    ``start``, the engine's first plan (:func:`_first_plan`).
     ``sepa_freq``: fractional separator cuts at the root and at every ``sepa_freq``-th depth
     (0: root only, -1: never). ``repair``: disconnected integral points are made valid by
     the engine's repair and offered as plans. ``progress`` receives each better valid plan
@@ -253,9 +265,9 @@ def solve_scip(problem: Problem, graph: UnitGraph | None = None,
                               needscons=False)
         model.setParam("misc/allowstrongdualreds", False)
         model.setParam("misc/allowweakdualreds", False)
-    if start is None and warm:
-        start = constructive(problem)
     first = prepare_start(problem, graph, start) if start is not None else None
+    if first is None and warm:
+        first = _first_plan(problem, graph, time_limit)
     if first is not None and run.consider(first):
         _give(model, model.createSol(), xs, f.vector(run.best), model.addSol)
     run.build = time.monotonic() - t0
@@ -272,8 +284,10 @@ def solve_scip(problem: Problem, graph: UnitGraph | None = None,
         on = np.array([model.getSolVal(best, v) for v in xs[: f.n_pairs]]) > 0.5
         a[f.xi[on]] = f.xj[on]
         run.consider(a)
-    scip_status = model.getStatus()
-    status = _STATUS.get(scip_status, "feasible")
+    status = _STATUS.get(model.getStatus(), "feasible")
+    if status == "optimal" and not run.best_obj <= model.getPrimalbound() + 1e-9 * max(
+            1.0, abs(run.best_obj)):
+        status = "feasible"  # SCIP's best plan failed the engine's checks: the gap decides
     bound = float(model.getDualbound())
     run.bound = np.inf if status == "infeasible" else (bound if not model.isInfinity(abs(bound))
                                                        else -np.inf)
