@@ -12,10 +12,12 @@ Routes, same time limit and gap (1e-4) per case:
 Cases: the demo's levels with straight-line travel, both options (shortest travel; fewer
 moves, stability weight 3000) at ``--demo-time`` s; Osman & Christofides (1994) instances
 at ``--osman-time`` s (published optimum in the last column); a synthetic 2,000 x 25 town
-(``benchmarks/towns.py``) at each of ``--town-times``. Prints build s, solve s, status,
+(``benchmarks/towns.py``) at each of ``--town-times``; libpysal's columbus polygons with
+six schools (``tests/engine/test_contiguous_optimum.columbus(6, 0.19, 0.5)``, where the
+tests' flow model proves 1,303.74) at ``--demo-time`` s. Prints build s, solve s, status,
 objective, bound, gap per route and case. A measurement, never a test.
 
-    nice -n 5 .venv/bin/python benchmarks/bench_scip.py [--cold] [--only demo osman town]
+    nice -n 5 .venv/bin/python benchmarks/bench_scip.py [--cold] [--only demo osman town columbus]
 """
 
 from __future__ import annotations
@@ -74,7 +76,7 @@ def main() -> None:
     ap.add_argument("--town-times", type=float, nargs="+", default=[10.0, 60.0])
     ap.add_argument("--osman", type=int, nargs="+", default=[1, 8, 11, 14, 18, 20])
     ap.add_argument("--levels", nargs="+", default=["high", "middle", "elementary"])
-    ap.add_argument("--only", nargs="+", default=["demo", "osman", "town"])
+    ap.add_argument("--only", nargs="+", default=["demo", "osman", "town", "columbus"])
     ap.add_argument("--cold", action="store_true", help="also SCIP without the warm start")
     ap.add_argument("--data", default=str(ROOT / "data" / "demo"))
     args = ap.parse_args()
@@ -86,6 +88,13 @@ def main() -> None:
         for k in args.osman:
             problem, _dist, opt = instance(f"osman{k}")
             cases.append((f"Osman & Christofides {k}", problem, opt, args.osman_time))
+    if "columbus" in args.only:
+        sys.path.insert(0, str(ROOT / "tests" / "engine"))
+        sys.path.insert(0, str(ROOT / "tests"))
+        from test_contiguous_optimum import columbus
+
+        cases.append(("columbus, 6 schools (libpysal)", columbus(6, 0.19, 0.5), float("nan"),
+                      args.demo_time))
     if "town" in args.only:
         from towns import synthetic_town
 
