@@ -37,7 +37,7 @@ import numpy as np
 
 from ..plan import Plan, Round
 from ..problem import Problem
-from .connectivity import UnitGraph, fragments, free_units
+from .connectivity import Cut, UnitGraph, fragments, free_units
 from .cuts import fractional_cuts, separator_cuts
 from .findings import no_plan_text
 from .formulation import Formulation, RowBlock, formulate, separator_rows
@@ -128,8 +128,10 @@ def _handler_class():
         """Zones connected to their roots: checked, enforced by lazy separator cuts."""
 
         def __init__(self, f: Formulation, graph: UnitGraph, xs: list, run: Run,
-                     sepa_freq: int, repair: bool, cancel: Callable[[], bool] | None) -> None:
+                     sepa_freq: int, repair: bool, cancel: Callable[[], bool] | None,
+                     found: list[Cut]) -> None:
             self.f, self.graph, self.xs, self.run, self.cancel = f, graph, xs, run, cancel
+            self.found = found  # every cut added, kept by the caller for the next solve
             self.passable = free_units(f.problem)
             self.sepa_freq, self.repair = sepa_freq, repair
             self.seen: set[tuple] = set()
@@ -147,8 +149,10 @@ def _handler_class():
             a[f.xi[on]] = f.xj[on]
             return a
 
-        def _add(self, block: RowBlock) -> int:
-            """New rows only (a cut found twice is written once); returns rows added."""
+        def _add(self, cuts: list[Cut], remember: bool = True) -> int:
+            """The rows of ``cuts`` not written yet (``remember``: the cuts go to the
+            caller's list too); returns rows added."""
+            block = separator_rows(self.f, cuts)
             fresh = []
             for r in range(block.n_rows):
                 sel = block.row == r
@@ -158,6 +162,8 @@ def _handler_class():
                     fresh.append(r)
             if not fresh:
                 return 0
+            if remember:
+                self.found.extend(cuts)
             keep = np.isin(block.row, fresh)
             remap = np.full(block.n_rows, -1, np.int64)
             remap[fresh] = np.arange(len(fresh))
@@ -191,7 +197,7 @@ def _handler_class():
             if (a < 0).any() or not fragments(self.f.problem, self.graph, a):
                 return {"result": SCIP_RESULT.FEASIBLE}
             cuts = separator_cuts(self.f.problem, self.graph, a, passable=self.passable)
-            added = self._add(separator_rows(self.f, cuts))
+            added = self._add(cuts)
             if self.repair and objective(self.f.problem, a) < self.run.best_obj:
                 self._offer(a)
             return {"result": SCIP_RESULT.CONSADDED if added else SCIP_RESULT.INFEASIBLE}
@@ -220,7 +226,7 @@ def _handler_class():
             point = np.zeros((p.n_units, p.n_sites))
             point[f.xi, f.xj] = self._values(None)
             cuts = fractional_cuts(p, self.graph, point, self.passable)
-            added = self._add(separator_rows(f, cuts))
+            added = self._add(cuts)
             return {"result": SCIP_RESULT.CONSADDED if added else SCIP_RESULT.DIDNOTFIND}
 
         def conslock(self, constraint, locktype, nlockspos, nlocksneg):
@@ -233,7 +239,7 @@ def solve_scip(problem: Problem, graph: UnitGraph | None = None,
                time_limit: float | None = None, gap: float = 1e-4, *,
                start: np.ndarray | None = None, warm: bool = True, sepa_freq: int = 0,
                repair: bool = True, progress: Callable[[Round], None] | None = None,
-               cancel: Callable[[], bool] | None = None) -> Plan:
+               cancel: Callable[[], bool] | None = None, cuts: list[Cut] | None = None) -> Plan:
     """Solve ``problem`` in one SCIP branch-and-cut tree; the same :class:`Plan` as the engine.
 
     ``start``: a plan to warm-start from (repaired first); with ``warm`` and no usable
@@ -241,7 +247,9 @@ def solve_scip(problem: Problem, graph: UnitGraph | None = None,
     ``sepa_freq``: fractional separator cuts at the root and at every ``sepa_freq``-th depth
     (0: root only, -1: never). ``repair``: disconnected integral points are made valid by
     the engine's repair and offered as plans. ``progress`` receives each better valid plan
-    seen; ``cancel`` is asked at every check and enforcement and stops the tree.
+    seen; ``cancel`` is asked at every check and enforcement and stops the tree. ``cuts``:
+    separator cuts from an earlier solve (valid while the unit graph and the roots are the
+    same), written as rows at once; the cuts this solve adds are appended to it.
     """
     from pyscipopt import SCIP_PARAMSETTING  # noqa: F401  (fails early without PySCIPOpt)
 
@@ -258,13 +266,15 @@ def solve_scip(problem: Problem, graph: UnitGraph | None = None,
     model, xs = _model(f)
     handler = None
     if graph is not None:
-        handler = _handler_class()(f, graph, xs, run, sepa_freq, repair, cancel)
+        found = cuts if cuts is not None else []
+        handler = _handler_class()(f, graph, xs, run, sepa_freq, repair, cancel, found)
         model.includeConshdlr(handler, "contiguity", "zones connected to their roots",
                               sepapriority=0, enfopriority=-1, chckpriority=-1,
                               sepafreq=1, propfreq=-1, eagerfreq=-1, maxprerounds=0,
                               needscons=False)
         model.setParam("misc/allowstrongdualreds", False)
         model.setParam("misc/allowweakdualreds", False)
+        handler._add(found, remember=False)  # an earlier solve's cuts: rows from the start
     first = prepare_start(problem, graph, start) if start is not None else None
     if first is None and warm:
         first = _first_plan(problem, graph, time_limit)

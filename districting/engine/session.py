@@ -195,14 +195,15 @@ class Session:
         return self._finish(self._exact_rounds(st, max_rounds))
 
     def _scip_tree(self, gap, time_limit, progress, cancel, start) -> Plan:
-        """The whole solve in one SCIP tree, warm-started from ``start`` or the last plan.
-        PySCIPOpt is imported only on this route."""
+        """The whole solve in one SCIP tree, warm-started from ``start`` or the last plan,
+        with the session's cuts as rows from the start (those it adds are kept for the next
+        solve, as on the HiGHS route). PySCIPOpt is imported only on this route."""
         from .scip_route import solve_scip
 
         if start is None and self.last is not None and self.last.feasible:
             start = self.last.assignment
         return solve_scip(self.problem, self._graph, time_limit, gap, start=start,
-                          progress=progress, cancel=cancel)
+                          progress=progress, cancel=cancel, cuts=self.cuts)
 
     # ------------------------------------------------------------------ stages
     def _start(self, gap, time_limit, progress, cancel, start) -> SolveState | Plan:
