@@ -154,9 +154,10 @@ def _handler_class():
             caller's list too); returns rows added."""
             block = separator_rows(self.f, cuts)
             fresh = []
+            starts = np.searchsorted(block.row, np.arange(block.n_rows + 1))  # rows in order
+            cols = block.col.tolist()
             for r in range(block.n_rows):
-                sel = block.row == r
-                key = (tuple(block.col[sel].tolist()), float(block.hi[r]))
+                key = (tuple(cols[starts[r]:starts[r + 1]]), float(block.hi[r]))
                 if key not in self.seen:
                     self.seen.add(key)
                     fresh.append(r)
