@@ -61,7 +61,7 @@ _STATUS = {"optimal": "optimal", "gaplimit": "optimal", "timelimit": "time_limit
 _REPAIR_SHARE = 0.3
 
 
-def _add_rows(model, xs: list, block: RowBlock, removable: bool = False) -> int:
+def _add_rows(model, xs: list, block: RowBlock) -> int:
     """Each row of ``block`` as a linear constraint of ``model`` over columns ``xs``."""
     from pyscipopt.scip import Expr, Term
 
@@ -78,14 +78,13 @@ def _add_rows(model, xs: list, block: RowBlock, removable: bool = False) -> int:
             terms[key] = terms.get(key, 0.0) + v
         expr = Expr(terms)
         lo, hi = float(block.lo[r]), float(block.hi[r])
-        kw = {"removable": removable}
         if lo == hi:
-            model.addCons(expr == hi, **kw)
+            model.addCons(expr == hi)
             continue
         if np.isfinite(hi):
-            model.addCons(expr <= hi, **kw)
+            model.addCons(expr <= hi)
         if np.isfinite(lo):
-            model.addCons(expr >= lo, **kw)
+            model.addCons(expr >= lo)
     return block.n_rows
 
 
@@ -252,8 +251,6 @@ def solve_scip(problem: Problem, graph: UnitGraph | None = None,
     separator cuts from an earlier solve (valid while the unit graph and the roots are the
     same), written as rows at once; the cuts this solve adds are appended to it.
     """
-    from pyscipopt import SCIP_PARAMSETTING  # noqa: F401  (fails early without PySCIPOpt)
-
     t0 = time.monotonic()
     reasons = precheck(problem)
     if reasons:
@@ -264,7 +261,11 @@ def solve_scip(problem: Problem, graph: UnitGraph | None = None,
     f = formulate(problem)
     if f.infeasible_reason:
         return infeasible_plan(problem, f.infeasible_reason, ROUTE)
-    model, xs = _model(f)
+    try:
+        model, xs = _model(f)
+    except ImportError:
+        return failed_plan(problem, "the branch-and-cut route needs PySCIPOpt "
+                           "(pip install pyscipopt); the default solver does not", ROUTE)
     handler = None
     if graph is not None:
         found = cuts if cuts is not None else []
@@ -287,8 +288,11 @@ def solve_scip(problem: Problem, graph: UnitGraph | None = None,
     model.setParam("limits/gap", float(gap))
     try:
         model.optimize()
-    except Exception as exc:  # a SCIP error: said in words, the best plan kept
-        return failed_plan(problem, f"the branch-and-cut solver stopped: {exc}", ROUTE)
+    except Exception:  # noqa: BLE001 -- a SCIP error: said in words, the best plan kept
+        stopped = "the branch-and-cut solver stopped with an error"
+        if run.best is None:
+            return failed_plan(problem, stopped, ROUTE)
+        return run.plan("feasible", stopped, ROUTE, 0, gap)
     if model.getNSols():
         best = model.getBestSol()
         a = np.full(problem.n_units, -1, np.int64)
