@@ -384,7 +384,8 @@ def _add_solve_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--time-limit", type=float, metavar="SECONDS",
                    help="seconds per level; at the limit the best valid plan found is kept "
                         "and says how close to the best possible it is")
-    p.add_argument("--solver", help="'highs' (default) or any solver name Pyomo drives")
+    p.add_argument("--solver", help="'highs' (default), 'scip-tree' (one SCIP branch-and-cut "
+                   "tree, opt-in) or any solver name Pyomo drives")
     _add_travel_option(p)
     add_practice_options(p)
 

@@ -9,6 +9,8 @@ Layout (each module imports only those above it in this list, never the session)
   (both built from it), ``precheck`` and ``diagnose`` (infeasibility in words);
 - ``run`` (book-keeping and the state passed between stages), ``heuristics``,
   ``neighbourhood`` (large-neighbourhood search, given the exact solve as a callable);
+- ``scip_route`` (the formulation in one SCIP branch-and-cut tree, connectivity a
+  constraint handler; opt-in, PySCIPOpt imported only there);
 - ``session`` (the pipeline of stages), ``solve`` (one-shot).
 
 The engine works on :class:`~districting.problem.Problem` arrays; it reads no project files.

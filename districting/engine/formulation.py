@@ -31,6 +31,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from ..problem import Problem
+from ..rules import open_sites
 from .connectivity import Cut
 from .tuning import LINK_LIMIT, TOL
 
@@ -108,6 +109,18 @@ class Formulation:
         return np.array([c for k, j, c in zip(self.zg.tolist(), self.zj.tolist(),
                                                self.zcol.tolist(), strict=True)
                          if (k, j) in used], np.int64)
+
+    def vector(self, assignment: np.ndarray) -> np.ndarray:
+        """Column values of a plan: x of its pairs, y of its open candidates, its z."""
+        a = np.asarray(assignment, np.int64)
+        x = np.zeros(self.ncol)
+        has = np.flatnonzero(a >= 0)
+        c = self.colmap[has, a[has]]
+        x[c[c >= 0]] = 1.0
+        opened = open_sites(self.problem, a)
+        x[self.ycol[opened & (self.ycol >= 0)]] = 1.0
+        x[self.split_on(a)] = 1.0
+        return x
 
     @property
     def ncol(self) -> int:

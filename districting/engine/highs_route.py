@@ -15,7 +15,6 @@ from contextlib import contextmanager
 import numpy as np
 
 from ..problem import Problem
-from ..rules import open_sites
 from . import tuning
 from .answer import Answer
 from .connectivity import Cut, UnitGraph
@@ -89,17 +88,7 @@ class HighsRoute:
     # --------------------------------------------------------------- interface
     def vector(self, assignment: np.ndarray) -> np.ndarray:
         """Column values of a plan (x, y and the feeder columns z)."""
-        p = self.problem
-        a = np.asarray(assignment, np.int64)
-        x = np.zeros(self.ncol)
-        has = np.flatnonzero(a >= 0)
-        c = self.colmap[has, a[has]]
-        x[c[c >= 0]] = 1.0
-        opened = open_sites(p, a)
-        yc = self.ycol[opened & (self.ycol >= 0)]
-        x[yc] = 1.0
-        x[self.formulation.split_on(a)] = 1.0
-        return x
+        return self.formulation.vector(assignment)
 
     def add_cuts(self, cuts: Sequence[Cut]) -> int:
         """Add the rows of ``cuts`` (:func:`~districting.engine.formulation.separator_rows`);

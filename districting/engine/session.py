@@ -1,8 +1,10 @@
 """The solve session: a short pipeline of named stages over one of two solver routes.
 
 Routes: ``solver="highs"`` builds the formulation (:mod:`districting.engine.formulation`)
-as arrays for HiGHS (:mod:`~districting.engine.highs_route`); any other name writes it as a
-Pyomo model for that solver (:mod:`~districting.engine.pyomo_route`).
+as arrays for HiGHS (:mod:`~districting.engine.highs_route`); ``solver="scip-tree"`` solves
+it in one SCIP branch-and-cut tree instead of the stages below
+(:mod:`~districting.engine.scip_route`, opt-in); any other name writes it as a Pyomo model
+for that solver (:mod:`~districting.engine.pyomo_route`).
 
 Stages of :meth:`Session.solve`, passing a :class:`~districting.engine.run.SolveState`:
 
@@ -68,7 +70,11 @@ from .tuning import (
     START_SHARE,
 )
 
-__all__ = ["Session", "exact_subsolve"]
+__all__ = ["Session", "exact_subsolve", "SCIP_TREE"]
+
+#: The solver name of the SCIP branch-and-cut route (``scip_route.ROUTE``; not imported
+#: from there so that PySCIPOpt loads only when the route is asked for).
+SCIP_TREE = "scip-tree"
 
 
 def _make_backend(problem: Problem, solver: str, drop: np.ndarray | None = None):
@@ -195,6 +201,8 @@ class Session:
         Runs the stages of the module docstring in turn; a stage may end the solve with a
         plan (proven already, or no model could be built).
         """
+        if self.solver == SCIP_TREE:
+            return self._finish(self._scip_tree(gap, time_limit, progress, cancel, start))
         st = self._start(gap, time_limit, progress, cancel, start)
         if isinstance(st, Plan):
             return self._finish(st)
@@ -203,6 +211,17 @@ class Session:
         self._first_heuristics(st)
         self._race_flow(st)
         return self._finish(self._exact_rounds(st, max_rounds))
+
+    def _scip_tree(self, gap, time_limit, progress, cancel, start) -> Plan:
+        """The whole solve in one SCIP tree, warm-started from ``start`` or the last plan,
+        with the session's cuts as rows from the start (those it adds are kept for the next
+        solve, as on the HiGHS route). PySCIPOpt is imported only on this route."""
+        from .scip_route import solve_scip
+
+        if start is None and self.last is not None and self.last.feasible:
+            start = self.last.assignment
+        return solve_scip(self.problem, self._graph, time_limit, gap, start=start,
+                          progress=progress, cancel=cancel, cuts=self.cuts)
 
     # ------------------------------------------------------------------ stages
     def _start(self, gap, time_limit, progress, cancel, start) -> SolveState | Plan:

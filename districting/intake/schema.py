@@ -180,7 +180,8 @@ SCHEMA: dict[str, Table] = {
                    low=0.0, high=1.0, high_open=True),
         "time_limit": Key("number", "seconds per solve; the best plan found is kept; 0 = no "
                           "limit", 60.0, low=0.0),
-        "solver": Key("text", "\"highs\", or any solver name Pyomo drives", "highs"),
+        "solver": Key("text", "\"highs\"; \"scip-tree\" (one SCIP branch-and-cut "
+                      "tree, opt-in); or any solver name Pyomo drives", "highs"),
         "travel": Key("choice", "how travel is measured: along streets, around barriers "
                       "crossing only at bridges, or the straight line (default: streets "
                       "when the project has [streets], else barrier-aware)",
