@@ -42,7 +42,7 @@ from districting.engine.scip_route import solve_scip  # noqa: E402
 OPTIONS = (("shortest travel", 0.0), ("fewer moves", 3000.0))
 
 
-def demo_cases(data: str, levels: list[str]):
+def demo_cases(data: str, levels: list[str], travel: str = "straight-line"):
     from districting.intake import validate_project
     from districting.study import RunSettings, build_problem
 
@@ -51,7 +51,7 @@ def demo_cases(data: str, levels: list[str]):
         raise SystemExit(report.format())
     for level in levels:
         for label, weight in OPTIONS:
-            rs = RunSettings(level=level, travel="straight-line", stability_weight=weight)
+            rs = RunSettings(level=level, travel=travel, stability_weight=weight)
             problem, _ = build_problem(inputs, rs)
             yield f"demo {level}, {label}", problem, float("nan")
 
@@ -76,6 +76,8 @@ def main() -> None:
     ap.add_argument("--town-times", type=float, nargs="+", default=[10.0, 60.0])
     ap.add_argument("--osman", type=int, nargs="+", default=[1, 8, 11, 14, 18, 20])
     ap.add_argument("--levels", nargs="+", default=["high", "middle", "elementary"])
+    ap.add_argument("--travel", default="straight-line",
+                    help="travel measure of the demo cases (straight-line, barrier-aware, streets)")
     ap.add_argument("--only", nargs="+", default=["demo", "osman", "town", "columbus"])
     ap.add_argument("--cold", action="store_true", help="also SCIP without the warm start")
     ap.add_argument("--data", default=str(ROOT / "data" / "demo"))
@@ -83,7 +85,8 @@ def main() -> None:
     routes = ["highs", "scip"] + (["scip-cold"] if args.cold else [])
     cases = []
     if "demo" in args.only:
-        cases += [(c, p, r, args.demo_time) for c, p, r in demo_cases(args.data, args.levels)]
+        demo = demo_cases(args.data, args.levels, args.travel)
+        cases += [(c, p, r, args.demo_time) for c, p, r in demo]
     if "osman" in args.only:
         for k in args.osman:
             problem, _dist, opt = instance(f"osman{k}")
