@@ -5,6 +5,7 @@ from __future__ import annotations
 import re
 
 import numpy as np
+from grid_town import grid_town
 
 from districting import Problem, solve
 from districting.engine.diagnose import explain
@@ -271,15 +272,9 @@ def test_a_solve_stopped_without_a_plan_says_what_was_tried_and_what_to_relax():
     # A 12 x 12 grid, 4 schools, a band of 99.5-99.9%: no plan is found in 0.3 s (nor in 3 s
     # when measured), and no quick check can prove there is none. The message is never a bare
     # "no plan": what was tried, then what to relax.
-    side, m = 12, 4
-    rng = np.random.default_rng(1)
-    n = side * side
-    xy = np.c_[np.arange(n) % side, np.arange(n) // side].astype(float)
-    roots = rng.choice(n, m, replace=False)
-    cost = np.hypot(*(xy[:, None, :] - xy[roots][None, :, :]).transpose(2, 0, 1))
-    edges = [(i, i + 1) for i in range(n) if (i + 1) % side] + [
-        (i, i + side) for i in range(n - side)]
-    d = rng.integers(5, 30, n).astype(float)
+    rng, roots, cost, edges = grid_town(12, 4, seed=1)
+    m = 4
+    d = rng.integers(5, 30, len(cost)).astype(float)
     p = make(cost, d, capacity=np.full(m, d.sum() / m / 0.999), min_util=0.995, edges=edges,
              roots=roots, locks={int(roots[1]): 1, int(roots[2]): 2},
              site_names=["Aspen", "Birch", "Cedar", "Dogwood"])

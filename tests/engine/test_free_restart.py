@@ -15,22 +15,17 @@ import networkx as nx
 import numpy as np
 import pytest
 from flow_milp import flow_optimum
+from grid_town import grid_town
 
 from districting import Problem
 from districting.engine import Session
 
 
 def town(seed: int, side: int = 6, m: int = 3) -> Problem:
-    rng = np.random.default_rng(seed)
-    n = side * side
-    xy = np.c_[np.arange(n) % side, np.arange(n) // side].astype(float)
-    roots = rng.choice(n, m, replace=False)
-    cost = np.hypot(*(xy[:, None, :] - xy[roots][None, :, :]).transpose(2, 0, 1)) + 0.5
-    demand = rng.integers(1, 20, (2, n)).astype(float)
+    rng, roots, cost, edges = grid_town(side, m, seed)
+    demand = rng.integers(1, 20, (2, side * side)).astype(float)
     cap = np.full(m, demand.sum(axis=1).max() / m / 0.9)
-    edges = [(i, i + 1) for i in range(n) if (i + 1) % side] + [
-        (i, i + side) for i in range(n - side)]
-    return Problem.from_arrays(cost, demand, capacity=cap, min_util=0.7, edges=edges,
+    return Problem.from_arrays(cost + 0.5, demand, capacity=cap, min_util=0.7, edges=edges,
                                roots=roots)
 
 

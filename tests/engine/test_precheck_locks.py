@@ -3,9 +3,8 @@ and the finding must name the units, the schools and the lock standing in the wa
 
 from __future__ import annotations
 
-import time
-
 import numpy as np
+from grid_town import grid_town
 
 from districting.engine.precheck import precheck
 from tests.engine.test_diagnose import make, only, path_edges
@@ -78,20 +77,13 @@ def test_a_floor_lost_to_locks_names_them():
                         "close it.")
 
 
-def test_lock_checks_answer_in_well_under_a_second_on_a_large_town():
-    # 60 x 60 grid of units (3,600), 25 schools, 40 locks: the checks are array sums and
-    # breadth-first searches; a generous bound so a loaded machine does not fail it.
+def test_no_false_alarm_on_a_large_town_with_scattered_locks():
+    # 60 x 60 grid of units (3,600), 25 schools, 40 units locked to their nearest school,
+    # seats to spare: every lock can be honoured, so the checks must find nothing.
     side, m = 60, 25
-    rng = np.random.default_rng(5)
+    rng, roots, cost, edges = grid_town(side, m, seed=5)
     n = side * side
-    xy = np.c_[np.arange(n) % side, np.arange(n) // side].astype(float)
-    roots = rng.choice(n, m, replace=False)
-    cost = np.hypot(*(xy[:, None, :] - xy[roots][None, :, :]).transpose(2, 0, 1))
-    edges = [(i, i + 1) for i in range(n) if (i + 1) % side] + [(i, i + side)
-                                                               for i in range(n - side)]
     locks = {int(i): int(np.argmin(cost[i])) for i in rng.choice(n, 40, replace=False)}
     p = make(cost, np.full(n, 10.0), capacity=np.full(m, 3000.0), edges=edges, roots=roots,
              locks=locks, site_names=[f"S{j}" for j in range(m)])
-    t0 = time.perf_counter()
     assert precheck(p) == []
-    assert time.perf_counter() - t0 < 5.0
