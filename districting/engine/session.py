@@ -22,8 +22,9 @@ Stages of :meth:`Session.solve`, passing a :class:`~districting.engine.run.Solve
    every cut is valid) and its violated separator cuts are added (Validi, Buchanan &
    Lykhovyd, Operations Research 70(2), 2022), until the gap is within the request. When a
    plan stays far above the bound on a problem with few sites (before the first round or
-   after a repair), the exact flow formulation (:mod:`~districting.engine.flow_stage`) is
-   raced once from the best plan.
+   after a repair), or a round stops lifting the bound, a second exact route (the SCIP
+   tree, or the flow formulation: :mod:`~districting.engine.flow_stage`) is raced once
+   from the best plan.
 
 Columns are removed only with a proof: a pair whose students exceed the site's upper
 capacity in some year is never a column, and after a valid plan of cost UB is known,
@@ -445,11 +446,12 @@ class Session:
         return n_frag, added
 
     def _race_flow(self, st: SolveState, stalled: bool = False) -> None:
-        """The exact flow formulation, once, on a problem with few sites
-        (:mod:`~districting.engine.flow_stage`): when the best plan is far above the bound,
-        or when the exact rounds stopped lifting the bound (``stalled``; demo high, fewer
-        moves, straight line: 0.012% open after the free restart and not one round lifts
-        it, where the flow route proves the plan in 6-12 s)."""
+        """The race stage, once, on a problem with few sites
+        (:mod:`~districting.engine.flow_stage`: the SCIP tree, or the flow formulation):
+        when the best plan is far above the bound, or when the exact rounds stopped lifting
+        the bound (``stalled``; demo high, fewer moves, straight line: 0.012% open after the
+        free restart and each round lifts a few percent of it, where the tree proves the
+        plan in about 2 s)."""
         if (not st.flow_done and self.heuristics and self.solver == "highs"
                 and st.run.best is not None and (stalled or st.far()) and flow_applies(st)):
             st.flow_done = True

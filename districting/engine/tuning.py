@@ -125,3 +125,8 @@ FREE_MAX = 20.0
 #: streets a round closes a third of it and the cut loop proves it in 3-7 s (measured).
 STALL_ROUNDS = 1
 STALL_SHARE = 0.25
+
+#: The race stage uses the SCIP branch-and-cut tree up to this many sites (with PySCIPOpt;
+#: measured better than the flow route on the demo's two- and four-school levels, and the
+#: cut loop's plans better above, where the neighbourhood search runs: LNS_MIN_SITES).
+TREE_MAX_SITES = 8

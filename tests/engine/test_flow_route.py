@@ -14,6 +14,7 @@ from hypothesis import HealthCheck, given, settings
 from test_contiguous_optimum import columbus, towns
 
 from districting.engine import Session
+from districting.engine import flow_stage as stage_module
 from districting.engine.flow_route import FlowRoute, flow_size
 from districting.engine.flow_stage import flow_applies, flow_stage
 from districting.verify import check_plan, facts_of_problem
@@ -64,11 +65,15 @@ def test_no_route_without_a_root_for_every_site():
     assert flow_size(p.replace(roots=np.array([p.roots[0], -1]))) is None
 
 
-def test_flow_stage_takes_the_optimum_and_its_bound():
+@pytest.mark.parametrize("route", ["tree", "flow"])
+def test_flow_stage_takes_the_optimum_and_its_bound(route, monkeypatch):
     # the stage inside a real solve state (Session's first stage: pre-checks, a valid start,
     # the model): before any bound is known the start is "far", and the stage must leave
     # the flow model's optimum as the best plan and its bound as the run's bound (here the
-    # start made valid lies 0.8% above the optimum: 2,919.0 against 2,897.1)
+    # start made valid lies 0.8% above the optimum: 2,919.0 against 2,897.1). Both routes
+    # of the stage: the SCIP tree, and the flow formulation where PySCIPOpt is missing.
+    if route == "flow":
+        monkeypatch.setattr(stage_module, "tree_available", lambda: False)
     p = columbus(2, 0.51, 0.45)
     want, _ = flow_optimum(p, 30.0)
     st = Session(p)._start(0.0, 30.0, None, None, None)
