@@ -14,9 +14,9 @@ and both demo options (shortest travel; fewer moves, stability weight 3000), pri
   known, else the free optimum): how much of the gap is the plan;
 - bound below ref: how far the engine's bound lies below the flow optimum (when known).
 
-``--old`` runs the engine without the restart from the free optimum repaired
-(``Session._free_restart``, ``tuning.FREE_SHARE = 0``) too, so both stand side by side in one
-run. Speed is measured here, never asserted in tests.
+``--old`` runs the engine as it was before the free restart and the tree race too (see
+``_engine``), so both stand side by side in one run. Speed is measured here, never asserted
+in tests.
 
 Usage: ``.venv/bin/python benchmarks/bench_proof.py [--time-limit 60] [--flow-time 60]
 [--travel straight-line streets] [--levels high middle elementary] [--old]``.
@@ -56,17 +56,20 @@ def _reference(problem, limit: float) -> tuple[float, float]:
     return (float("nan") if value is None else value), time.perf_counter() - started
 
 
-def _engine(problem, limit: float, free: bool):
-    """The engine; ``free=False`` is the engine before the free restart (stage 2b)."""
-    from districting.engine import session
+def _engine(problem, limit: float, new: bool):
+    """The engine; ``new=False`` is the engine before this stop's stages: no free restart
+    (``FREE_SHARE = 0``), the race only when the plan is far off (``STALL_SHARE = 0``), and
+    the flow route as the race (the SCIP tree taken as missing)."""
+    from districting.engine import flow_stage, session
 
-    keep = session.FREE_SHARE
-    if not free:
-        session.FREE_SHARE = 0.0
+    keep = session.FREE_SHARE, session.STALL_SHARE, flow_stage.tree_available
+    if not new:
+        session.FREE_SHARE, session.STALL_SHARE = 0.0, 0.0
+        flow_stage.tree_available = lambda: False
     try:
         return solve(problem, gap=1e-4, time_limit=limit)
     finally:
-        session.FREE_SHARE = keep
+        session.FREE_SHARE, session.STALL_SHARE, flow_stage.tree_available = keep
 
 
 def main() -> None:
@@ -78,7 +81,7 @@ def main() -> None:
     ap.add_argument("--travel", nargs="+", default=["straight-line", "streets"])
     ap.add_argument("--levels", nargs="+", default=["high", "middle", "elementary"])
     ap.add_argument("--old", action="store_true",
-                    help="also the engine without the free restart (as before it)")
+                    help="also the engine without the free restart and the tree race")
     ap.add_argument("--repaired", action="store_true",
                     help="only the free optimum and that plan made valid (the free restart)")
     ap.add_argument("--data", default=str(ROOT / "data" / "demo"))
@@ -108,8 +111,8 @@ def main() -> None:
                 if problem.n_sites <= args.flow_sites:
                     ref, ref_s = _reference(problem, args.flow_time)
                 low = ref if np.isfinite(ref) else free.objective
-                for name, free_restart in routes:
-                    plan = _engine(problem, args.time_limit, free_restart)
+                for name, new in routes:
+                    plan = _engine(problem, args.time_limit, new)
                     seconds = plan.build_seconds + plan.solve_seconds
                     above = 100 * (plan.objective / low - 1)
                     below = 100 * (1 - plan.bound / ref) if np.isfinite(ref) else float("nan")
