@@ -6,7 +6,8 @@ exceed its seats in a year), or by the zones it cuts: units locked to another sc
 between a locked unit and its school's own unit, or between a unit and every school it may
 attend. Each finding names the units, the schools and the locks standing in the way, and the
 lock to remove. The checks are array sums and breadth-first searches in the unit graph
-(:func:`scipy.sparse.csgraph.breadth_first_order`), a few milliseconds on a town.
+(:func:`scipy.sparse.csgraph.breadth_first_order`, :class:`.connectivity.UnitGraph`), a few
+milliseconds on a town.
 """
 
 from __future__ import annotations
@@ -14,10 +15,9 @@ from __future__ import annotations
 import math
 
 import numpy as np
-import scipy.sparse as sp
-from scipy.sparse.csgraph import connected_components
 
 from ..problem import Problem
+from .connectivity import UnitGraph
 from .findings import Finding, plural, students
 
 __all__ = ["lock_pair_issues", "locked_seat_issues", "lock_reach_issues", "blocking_locks",
@@ -90,22 +90,6 @@ def locked_seat_issues(problem: Problem) -> list[Finding]:
     return out
 
 
-def _graph(problem: Problem, keep: np.ndarray) -> sp.csr_matrix:
-    e = problem.edges
-    sub = e[keep[e[:, 0]] & keep[e[:, 1]]]
-    n = problem.n_units
-    return sp.coo_matrix((np.ones(len(sub)), (sub[:, 0], sub[:, 1])), shape=(n, n)).tocsr()
-
-
-def _touching(problem: Problem, region: np.ndarray) -> np.ndarray:
-    """(n,) bool: units outside ``region`` with a neighbour inside it."""
-    e = problem.edges
-    out = np.zeros(problem.n_units, bool)
-    out[e[region[e[:, 0]], 1]] = True
-    out[e[region[e[:, 1]], 0]] = True
-    return out & ~region
-
-
 def blocking_locks(problem: Problem, reach: np.ndarray, j: int, unit: int) -> np.ndarray:
     """Units locked to other schools that stand between school j's unit and ``unit``.
 
@@ -113,12 +97,17 @@ def blocking_locks(problem: Problem, reach: np.ndarray, j: int, unit: int) -> np
     around ``unit`` that may go to j (when none borders both, those bordering the reachable
     part). Empty when no lock is in the way.
     """
+    graph = UnitGraph.of(problem)
     elsewhere = (problem.locks >= 0) & (problem.locks != j)
     ok = problem.allowed[:, j]
-    _, labels = connected_components(_graph(problem, ok), directed=False)
-    patch = ok & (labels == labels[unit]) if ok[unit] else np.eye(problem.n_units, dtype=bool)[unit]
-    near_root = _touching(problem, reach[:, j]) & elsewhere
-    near_unit = _touching(problem, patch) & elsewhere
+    patch = np.zeros(problem.n_units, bool)
+    if ok[unit]:
+        labels = graph.components(ok)
+        patch = labels == labels[unit]
+    patch[unit] = True
+    region = reach[:, j]
+    near_root = graph.touching(region) & ~region & elsewhere
+    near_unit = graph.touching(patch) & ~patch & elsewhere
     both = near_root & near_unit
     return np.flatnonzero(both if both.any() else near_root)
 
