@@ -26,6 +26,7 @@ import numpy as np
 
 from ..plan import Plan
 from ..problem import Problem
+from ..rules import transported
 from .connectivity import UnitGraph, zone_touch
 from .tuning import LNS_SECONDS_PER_ZONE, LNS_SIZES
 
@@ -79,9 +80,11 @@ def subproblem(problem: Problem, assignment: np.ndarray,
     if problem.walk is not None:
         walk = problem.walk[np.ix_(units, sites)]
         if problem.max_transported is not None:
-            # students beyond walking distance outside the neighbourhood stay as they are
-            far_out = ~inside & ~problem.walk[np.arange(n), np.maximum(a, 0)]
-            max_transported = problem.max_transported - float(problem.demand[0, far_out].sum())
+            # students beyond walking distance in the zones outside stay as they are
+            outside = np.ones(m, bool)
+            outside[sites] = False
+            max_transported = problem.max_transported - float(
+                transported(problem, a)[outside].sum())
     anchor = None
     if problem.anchor is not None:
         anc_u = problem.anchor[units]
