@@ -20,7 +20,7 @@ import scipy.sparse as sp
 from ..problem import Problem
 from .connectivity import Cut, UnitGraph, fragments, main_labels, zone_components
 
-__all__ = ["separator", "min_separator", "separator_cuts", "fractional_cuts"]
+__all__ = ["separator", "min_separator", "separator_cuts", "fractional_cuts", "rooted_cuts"]
 
 
 def separator(graph: UnitGraph, piece: np.ndarray, other: int) -> np.ndarray:
@@ -187,29 +187,39 @@ def fractional_cuts(problem: Problem, graph: UnitGraph, values: np.ndarray,
         return cuts
     pas = np.zeros(n, bool) if passable is None else np.asarray(passable, bool)
     for j in np.flatnonzero((problem.roots >= 0) & ~problem.closed_sites).tolist():
-        r = int(problem.roots[j])
-        w = x[:, j]
-        cand = (w > violation) & ~pas
-        cand[r] = False
-        if not cand.any():
-            continue
-        base_cap = np.round(np.where(pas, 0.0, w) * _FLOW_SCALE).astype(np.int64)
-        base_cap[pas] = _FLOW_BIG
-        base_cap[r] = _FLOW_BIG
-        done = np.zeros(n, bool)
-        for theta in np.unique(np.round(w[cand], 3))[::-1].tolist():
-            keep = (w >= theta - 1e-9) | pas
-            keep[r] = True
-            lab = graph.components(keep)
-            out = cand & ~done & keep & (lab != lab[r])
-            for piece_label in np.unique(lab[out]).tolist():
-                piece = np.flatnonzero(lab == piece_label)
-                done[piece] = True
-                node_cap = base_cap.copy()
-                node_cap[piece] = _FLOW_BIG
-                value, sep = _vertex_cut(graph, node_cap, piece, r, _FLOW_BIG)
-                units = piece[cand[piece] & (w[piece] > value / _FLOW_SCALE + violation)]
-                if value < _FLOW_BIG and len(units):
-                    cuts.append(Cut(site=j, units=units, separator=sep))
+        for units, sep in rooted_cuts(graph, x[:, j], int(problem.roots[j]), pas, violation):
+            cuts.append(Cut(site=j, units=units, separator=sep))
     return cuts
 
+
+def rooted_cuts(graph: UnitGraph, w: np.ndarray, root: int, passable: np.ndarray,
+                violation: float = 0.01) -> list[tuple[np.ndarray, np.ndarray]]:
+    """The violated cuts of one zone (:func:`fractional_cuts`): ``w`` (n,) the point's
+    values x*[., j], ``root`` its root unit; (units, separator) pairs, one per piece."""
+    n = graph.n
+    out_cuts: list[tuple[np.ndarray, np.ndarray]] = []
+    pas = passable
+    r = root
+    cand = (w > violation) & ~pas
+    cand[r] = False
+    if not cand.any():
+        return out_cuts
+    base_cap = np.round(np.where(pas, 0.0, w) * _FLOW_SCALE).astype(np.int64)
+    base_cap[pas] = _FLOW_BIG
+    base_cap[r] = _FLOW_BIG
+    done = np.zeros(n, bool)
+    for theta in np.unique(np.round(w[cand], 3))[::-1].tolist():
+        keep = (w >= theta - 1e-9) | pas
+        keep[r] = True
+        lab = graph.components(keep)
+        out = cand & ~done & keep & (lab != lab[r])
+        for piece_label in np.unique(lab[out]).tolist():
+            piece = np.flatnonzero(lab == piece_label)
+            done[piece] = True
+            node_cap = base_cap.copy()
+            node_cap[piece] = _FLOW_BIG
+            value, sep = _vertex_cut(graph, node_cap, piece, r, _FLOW_BIG)
+            units = piece[cand[piece] & (w[piece] > value / _FLOW_SCALE + violation)]
+            if value < _FLOW_BIG and len(units):
+                out_cuts.append((units, sep))
+    return out_cuts
