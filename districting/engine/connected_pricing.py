@@ -40,6 +40,7 @@ import numpy as np
 from ..problem import Problem
 from .connectivity import UnitGraph
 from .cuts import min_separator, rooted_cuts, separator
+from . import tuning
 from .formulation import undominated
 
 __all__ = ["Priced", "price_connected", "site_band_limits", "reachable_units"]
@@ -201,7 +202,7 @@ def _exact(s: _Site, pool: list[tuple[np.ndarray, np.ndarray]], time_limit: floa
     n = len(s.units)
     deadline = None if time_limit is None else time.monotonic() + time_limit
     h = _quiet_highs()
-    h.setOptionValue("threads", 1)
+    h.setOptionValue("threads", int(tuning.HIGHS_THREADS))  # one scheduler per process
     h.setOptionValue("mip_rel_gap", PRICE_GAP / 2)
     lower = np.zeros(n)
     lower[s.root] = 1.0
@@ -226,7 +227,7 @@ def _exact(s: _Site, pool: list[tuple[np.ndarray, np.ndarray]], time_limit: floa
             if left <= 0:
                 return bound
             h.setOptionValue("time_limit", float(left))
-        h.run()
+        _run(h)
         info = h.getInfo()
         status = h.getModelStatus()
         if status == highspy.HighsModelStatus.kInfeasible:
@@ -269,9 +270,9 @@ def _lp_rounds(h, s: _Site, pool: list, deadline: float | None) -> float:
     none = np.zeros(n, bool)
     try:
         for _ in range(LP_ROUNDS):
-            if deadline is not None and time.monotonic() > deadline:
-                break
-            h.run()
+            if deadline is not None and time.monotonic() > deadline and value > -np.inf:
+                break  # the first LP runs in any case: its value is the bound
+            _run(h)
             if h.getModelStatus() != highspy.HighsModelStatus.kOptimal:
                 break
             value = float(h.getInfo().objective_function_value)
@@ -301,6 +302,14 @@ def _beyond(s: _Site, piece: np.ndarray,
     off[sep] = False
     lab = s.graph.components(off)
     return np.flatnonzero(lab == lab[piece[0]]), sep
+
+
+def _run(h) -> None:
+    """Run HiGHS; an error (not a status such as infeasible) is a bug, so it is raised."""
+    import highspy
+
+    if h.run() == highspy.HighsStatus.kError:
+        raise RuntimeError(f"HiGHS failed on a pricing model: {h.getModelStatus()}")
 
 
 def _add_row(h, lo: float, hi: float, cols: np.ndarray, vals: np.ndarray) -> None:

@@ -67,6 +67,7 @@ class HighsRoute:
         self._lp: tuple[float, np.ndarray, np.ndarray] | None = None
         self._lp_tried = False
         self._cut_lp: tuple[float, np.ndarray, np.ndarray] | None = None  # after strengthen
+        self._last_duals: np.ndarray | None = None  # of the assignment rows, last LP
         self._tree: np.ndarray | None = None  # rows of the heuristic's site trees
         self._tree_off = np.zeros(0, np.int64)
         h = _quiet_highs()
@@ -208,8 +209,16 @@ class HighsRoute:
             return None
         sol = h.getSolution()
         k = len(self.xi)
+        # the assignment rows come first (formulate): their duals are the multipliers of
+        # the Lagrangian zone bound (districting.engine.zone_bound)
+        self._last_duals = np.asarray(sol.row_dual)[: self.problem.n_units].copy()
         return (float(h.getInfo().objective_function_value),
                 np.asarray(sol.col_value)[:k].copy(), np.asarray(sol.col_dual)[:k].copy())
+
+    def unit_duals(self) -> np.ndarray | None:
+        """(n,) duals of the assignment rows in the last LP solved (after :meth:`strengthen`
+        the LP with the root cuts), or None before any LP."""
+        return self._last_duals
 
     def strongest(self) -> tuple[float, np.ndarray, np.ndarray] | None:
         """The LP with the root cutting planes when :meth:`strengthen` ran, else the plain
