@@ -27,10 +27,11 @@ EDGES = [(0, 1), (3, 4), (6, 7), (7, 8), (0, 3), (3, 6), (1, 4), (4, 7), (2, 5),
 ROOTS = [0, 2, 6]
 
 
-def _town() -> Problem:
+def _town(river: bool = True) -> Problem:
     xy = np.array([(i % 3, i // 3) for i in range(9)], float)
     cost = np.hypot(*(xy[:, None, :] - xy[ROOTS][None, :, :]).transpose(2, 0, 1))
-    cost[1, 1] = 0.2  # unit 1 faces school 2 across the river: near, but no way across
+    if river:
+        cost[1, 1] = 0.2  # unit 1 faces school 2 across the river: near, but no way across
     demand = np.array([[10, 12, 9, 11, 14, 8, 13, 10, 12],
                        [12, 10, 11, 9, 12, 10, 11, 13, 10]], float)
     return Problem.from_arrays(cost, demand, capacity=[40.0, 40.0, 40.0], edges=EDGES,
@@ -86,13 +87,25 @@ def test_the_bound_never_exceeds_the_enumerated_optimum() -> None:
     graph = UnitGraph.of(p)
     rng = np.random.default_rng(5)
     for pi in [duals, np.zeros(9), *(duals + rng.normal(0, 20, 9) for _ in range(5))]:
-        found = zone_bound(p, graph, pi)
+        found = zone_bound(p, graph, pi, time_limit=30)
         assert found.value <= opt + 1e-6
-    at_lp = zone_bound(p, graph, duals).value
+    at_lp = zone_bound(p, graph, duals, time_limit=30).value
     # at the LP's duals the bound is at least the LP (Geoffrion 1974): here the river makes
     # the LP's zones disconnected, so the bound lies strictly above it
     assert at_lp >= lp - 1e-6
     assert lp < opt - 1e-6
+
+
+def test_the_bound_is_the_optimum_where_the_lps_zones_are_connected() -> None:
+    """Without the near unit across the river the LP's own zones are connected: then the
+    LP, the bound and the enumerated optimum coincide (so a bound raised by any amount
+    would be caught here)."""
+    p = _town(river=False)
+    opt = _optimum(p)
+    lp, duals = _assignment_lp(p)
+    assert lp == pytest.approx(opt, abs=1e-9)
+    assert zone_bound(p, UnitGraph.of(p), duals, time_limit=30).value == pytest.approx(
+        opt, abs=1e-6)
 
 
 def test_at_the_engines_cut_lp_duals_the_bound_is_at_least_that_lp() -> None:
@@ -109,7 +122,7 @@ def test_at_the_engines_cut_lp_duals_the_bound_is_at_least_that_lp() -> None:
     route.relaxation()
     route.strengthen(graph, None, float("inf"), keep_share=0.0)
     z = route.strongest()[0]
-    found = zone_bound(p, graph, route.unit_duals())
+    found = zone_bound(p, graph, route.unit_duals(), time_limit=30)
     assert found.value >= z - 1e-6 * abs(z)
     plan = Session(p).solve(gap=1e-4, time_limit=60)
     assert found.value <= plan.objective + 1e-6
