@@ -38,9 +38,9 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..problem import Problem
+from . import tuning
 from .connectivity import UnitGraph
 from .cuts import min_separator, rooted_cuts, separator
-from . import tuning
 from .formulation import undominated
 
 __all__ = ["Priced", "price_connected", "site_band_limits", "reachable_units"]

@@ -53,7 +53,6 @@ from .neighbourhood import reoptimise
 from .precheck import precheck
 from .repair import make_valid, reassign_empty, repair
 from .run import Run, SolveState, failed_plan, infeasible_plan
-from .zone_bound import decomposes, zone_bound
 from .tuning import (
     FIRST_ROUND_MIN,
     FIRST_ROUND_SHARE,
@@ -74,6 +73,7 @@ from .tuning import (
     ZONE_MAX,
     ZONE_SHARE,
 )
+from .zone_bound import decomposes, zone_bound
 
 __all__ = ["Session", "exact_subsolve", "SCIP_TREE"]
 
