@@ -12,8 +12,7 @@ Stages of :meth:`Session.solve`, passing a :class:`~districting.engine.run.Solve
    valid plan; with a bound carried over by :meth:`Session.update` it may already be proven;
    the model is built;
 2. ``_lp_bound`` -- the LP relaxation bounds the cost; its own choice per unit, made valid,
-   is a candidate plan; root cutting planes lift the bound (HiGHS route); ``_zone_bound``
-   -- the Lagrangian bound over connected zones at the LP's duals; ``_free_restart``
+   is a candidate plan; root cutting planes lift the bound (HiGHS route); ``_free_restart``
    -- the problem without contiguity solved in a share of the time and its plan made valid
    (a restart from the relaxed optimum, repaired);
 3. ``_first_heuristics`` -- on a model above ``LNS_BIG`` columns the large-neighbourhood
@@ -70,10 +69,7 @@ from .tuning import (
     STALL_SHARE,
     START_MAX,
     START_SHARE,
-    ZONE_MAX,
-    ZONE_SHARE,
 )
-from .zone_bound import decomposes, zone_bound
 
 __all__ = ["Session", "exact_subsolve", "SCIP_TREE"]
 
@@ -212,7 +208,6 @@ class Session:
         if isinstance(st, Plan):
             return self._finish(st)
         self._lp_bound(st)
-        self._zone_bound(st)
         self._free_restart(st)
         self._first_heuristics(st)
         self._race_flow(st)
@@ -298,25 +293,6 @@ class Session:
             run.bound = max(run.bound, lp[0])
             if run.best is not None:
                 backend.fix_by_reduced_cost(run.best_obj)
-
-    def _zone_bound(self, st: SolveState) -> None:
-        """Stage 2c: the Lagrangian bound over connected zones at the root LP's duals
-        (:mod:`~districting.engine.zone_bound`), where the problem splits by site and has
-        more than ``LNS_MIN_SITES`` sites (with fewer, the race stage proves the plan; each
-        zone is large and its pricing slow). It sees connectivity inside every zone, which
-        the LP's separator cuts see only in part."""
-        run = st.run
-        if (st.graph is None or not self.heuristics or st.problem.n_sites <= LNS_MIN_SITES
-                or not decomposes(st.problem) or run.gap() <= st.gap + 1e-12):
-            return
-        duals = getattr(st.backend, "unit_duals", lambda: None)()
-        left = run.left()
-        budget = ZONE_MAX if left is None else min(ZONE_MAX, ZONE_SHARE * left)
-        if duals is None or budget <= 0.5 or (st.cancel is not None and st.cancel()):
-            return
-        found = zone_bound(st.problem, st.graph, duals, time_limit=budget)
-        if found is not None:
-            run.bound = max(run.bound, found.value)
 
     def _free_restart(self, st: SolveState) -> None:
         """Stage 2b: the problem without contiguity solved (within a share of the time), its

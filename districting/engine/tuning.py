@@ -130,10 +130,3 @@ STALL_SHARE = 0.25
 #: measured better than the flow route on the demo's two- and four-school levels, and the
 #: cut loop's plans better above, where the neighbourhood search runs: LNS_MIN_SITES).
 TREE_MAX_SITES = 8
-
-#: The Lagrangian zone bound (stage 2c, :mod:`districting.engine.zone_bound`): above
-#: LNS_MIN_SITES sites, this share of the time left, at most ZONE_MAX seconds, split evenly
-#: over the sites' pricing problems (demo elementary, 14 schools: 16-31 s for every site
-#: solved; a pricing cut short still gives its LP's value, a valid bound).
-ZONE_SHARE = 0.3
-ZONE_MAX = 30.0
