@@ -133,7 +133,7 @@ class _Master:
         h.addRows(nrow, row_lo, row_hi, 0, np.zeros(nrow, np.int32), np.zeros(0, np.int32),
                   np.zeros(0))
         # artificials: any row can be met at a high price (the start's columns make them 0)
-        art_rows = [*range(n), *np.flatnonzero(p.always_open).tolist()]
+        art_rows = [*range(n), *(n + np.flatnonzero(p.always_open)).tolist()]
         art_coef = [1.0] * len(art_rows)
         for r, c in ((self.count_row, 1.0), (self.moved_row, -1.0), (self.ride_row, -1.0)):
             if r >= 0:
@@ -175,9 +175,12 @@ class _Master:
         self.zones.append(zone)
         return True
 
-    def solve_lp(self, time_limit: float | None) -> tuple[float, np.ndarray]:
+    def solve_lp(self, time_limit: float | None) -> tuple[float, np.ndarray] | None:
+        """(value, row duals) of the restricted master LP; None when it did not finish."""
         self.h.setOptionValue("time_limit", float(time_limit) if time_limit else np.inf)
         self.h.run()
+        if self.h.getModelStatus() != self.hs.HighsModelStatus.kOptimal:
+            return None
         sol = self.h.getSolution()
         return float(self.h.getInfo().objective_function_value), np.asarray(sol.row_dual)
 
@@ -365,7 +368,10 @@ def column_bound(problem: Problem, graph: UnitGraph | None = None, *,
         return added
 
     while _left(cg_end) is None or _left(cg_end) > 0:
-        state.lp, y = master.solve_lp(_left(cg_end))
+        lp = master.solve_lp(_left(cg_end))
+        if lp is None:
+            break
+        state.lp, y = lp
         state.rounds += 1
         smooth = state.center is not None and smoothing > 0
         exact = state.rounds % EXACT_EVERY == 1 % EXACT_EVERY
