@@ -96,13 +96,17 @@ COST = np.array([[1.0, 4.0, 6.0], [2.0, 3.0, 5.0], [5.0, 1.0, 4.0], [6.0, 2.0, 2
 DEMAND = np.array([[3.0, 2.0, 4.0, 1.0, 3.0, 2.0, 2.0],
                    [6.0, 4.0, 4.0, 1.0, 3.0, 2.0, 3.0]])
 
+WALK = np.array([[1, 0, 0], [0, 1, 0], [0, 1, 0], [0, 0, 1], [1, 0, 0], [1, 0, 0], [0, 0, 1]],
+                bool)
+
 
 def tiny(case: str) -> Problem:
     kw: dict = {}
     if case == "band":  # two rows, floors, every site open
         return Problem.from_arrays(COST, DEMAND, capacity=[9.0, 8.0, 8.0], min_util=0.4)
     if case == "one_row":  # integer demand, one row (the dynamic programme), a lock
-        return Problem.from_arrays(COST, DEMAND[1], capacity=[9.0, 8.0, 9.0], locks={6: 1})
+        return Problem.from_arrays(COST, DEMAND[1], capacity=[9.0, 8.0, 9.0], locks={6: 1},
+                                   min_util=0.3)
     if case == "candidate":  # p = 2 of 3 candidates, one forced open
         kw = dict(p=2, open_sites=[False, False, True])
         return Problem.from_arrays(COST, DEMAND, capacity=[14.0, 13.0, 10.0], **kw)
@@ -110,10 +114,9 @@ def tiny(case: str) -> Problem:
         return Problem.from_arrays(COST, DEMAND, capacity=[10.0, 10.0, 10.0],
                                    current=[2, 2, 0, 0, 1, 1, 0], max_moved=7.0,
                                    stability_weight=0.5)
-    if case == "transport":
-        walk = COST <= 2.0
-        return Problem.from_arrays(COST, DEMAND, capacity=[11.0, 11.0, 11.0], walk=walk,
-                                   max_transported=3.0)
+    if case == "transport":  # binds: 24 without the limit, 28 with it (enumerated)
+        return Problem.from_arrays(COST, DEMAND, capacity=[11.0, 11.0, 11.0], walk=WALK,
+                                   max_transported=6.0)
     if case == "loose":  # capacity never binds: the zone LP is integral
         return Problem.from_arrays(COST, DEMAND, capacity=[100.0, 100.0, 100.0])
     raise KeyError(case)
