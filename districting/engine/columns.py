@@ -51,8 +51,8 @@ import numpy as np
 
 from ..problem import Problem
 from ..rules import open_sites
+from .column_duals import COMPACT_MAX_PAIRS, compact_duals, subgradient
 from .connectivity import UnitGraph, plan_checks
-from .formulation import formulate
 from .pricing import Priced, price_zone
 
 try:  # the connected pricing lives in its own module (contiguous problems only)
@@ -66,6 +66,8 @@ __all__ = ["ColumnResult", "column_bound", "applies", "SMOOTHING", "EXACT_EVERY"
 SMOOTHING = 0.5
 #: An exact pricing pass (and a bound) at least every this many rounds.
 EXACT_EVERY = 5
+#: Share of the column generation's time the subgradient warm start may take.
+WARM_SHARE = 0.5
 #: Share of the time limit kept for the restricted master MIP (price-and-branch).
 MIP_SHARE = 0.2
 _EPS = 1e-7
@@ -77,6 +79,7 @@ class ColumnResult:
 
     bound: float  # Lagrangian lower bound on every plan (-inf: no exact pass finished)
     master_lp: float  # the restricted master LP value at the end
+    build_seconds: float  # master built, first columns, the assignment LP's duals
     rounds: int  # master LP solves
     exact_passes: int  # exact pricing passes (each gave a bound)
     columns: int  # columns generated (start zones included, artificials not)
@@ -98,7 +101,9 @@ def applies(problem: Problem) -> bool:
 class _Master:
     """The restricted master LP in HiGHS: rows fixed, columns appended."""
 
-    def __init__(self, problem: Problem, big: float) -> None:
+    def __init__(self, problem: Problem, big: float | None) -> None:
+        """``big``: the price of the artificial columns (None: no artificials, the start's
+        columns make the master feasible)."""
         import highspy
 
         from .highs_route import _quiet_highs
@@ -139,10 +144,11 @@ class _Master:
             if r >= 0:
                 art_rows.append(r)
                 art_coef.append(c)
-        k = len(art_rows)
-        h.addCols(k, np.full(k, big), np.zeros(k), np.full(k, inf), k,
-                  np.arange(k, dtype=np.int32), np.asarray(art_rows, np.int32),
-                  np.asarray(art_coef))
+        k = len(art_rows) if big is not None else 0
+        if k:
+            h.addCols(k, np.full(k, big), np.zeros(k), np.full(k, inf), k,
+                      np.arange(k, dtype=np.int32), np.asarray(art_rows, np.int32),
+                      np.asarray(art_coef))
         self.n_art = k
         self.h = h
         self.sites: list[int] = []
@@ -193,8 +199,9 @@ class _Master:
             return None
         idx = np.arange(self.n_art, self.n_art + k, dtype=np.int32)
         h.changeColsIntegrality(k, idx, np.full(k, hs.HighsVarType.kInteger))
-        art = np.arange(self.n_art, dtype=np.int32)
-        h.changeColsBounds(self.n_art, art, np.zeros(self.n_art), np.zeros(self.n_art))
+        if self.n_art:
+            art = np.arange(self.n_art, dtype=np.int32)
+            h.changeColsBounds(self.n_art, art, np.zeros(self.n_art), np.zeros(self.n_art))
         h.setOptionValue("time_limit", float(time_limit) if time_limit else np.inf)
         h.setOptionValue("mip_rel_gap", 1e-9)
         if start is not None:
@@ -234,51 +241,6 @@ def _left(until: float | None) -> float | None:
     return None if until is None else until - time.monotonic()
 
 
-def compact_duals(problem: Problem, master: _Master, time_limit: float | None
-                  ) -> np.ndarray | None:
-    """Master duals read off the assignment LP (:func:`formulate` relaxed): the duals of
-    its assignment, moved and transport rows (the same rows, written per pair), zero
-    elsewhere. A first smoothing centre: its Lagrangian bound is close to the LP bound
-    from the first pass, where the first restricted master's duals are far off."""
-    import highspy
-
-    from .highs_route import _quiet_highs
-
-    f = formulate(problem)
-    if f.infeasible_reason:
-        return None
-    a, lo, hi = f.matrix()
-    lp = highspy.HighsLp()
-    lp.num_col_, lp.num_row_ = f.ncol, a.shape[0]
-    lp.col_cost_, lp.col_lower_, lp.col_upper_ = f.cost, f.lower, f.upper
-    lp.row_lower_, lp.row_upper_ = lo, hi
-    lp.a_matrix_.format_ = highspy.MatrixFormat.kColwise
-    lp.a_matrix_.start_ = a.indptr.astype(np.int32)
-    lp.a_matrix_.index_ = a.indices.astype(np.int32)
-    lp.a_matrix_.value_ = a.data
-    h = _quiet_highs()
-    h.setOptionValue("presolve", "off")
-    if time_limit is not None:
-        h.setOptionValue("time_limit", max(float(time_limit), 0.1))
-    h.passModel(lp)
-    h.run()
-    if h.getModelStatus() != highspy.HighsModelStatus.kOptimal:
-        return None
-    dual = np.asarray(h.getSolution().row_dual)
-    y = np.zeros(master.nrow)
-    start = 0
-    for block in f.blocks:
-        rows = dual[start:start + block.n_rows]
-        if block.family == "assignment":
-            y[:problem.n_units] = rows
-        elif block.family == "max_moved" and len(rows) and master.moved_row >= 0:
-            y[master.moved_row] = rows[0]
-        elif block.family == "transport" and len(rows) and master.ride_row >= 0:
-            y[master.ride_row] = rows[0]
-        start += block.n_rows
-    return y
-
-
 def _duals(master: _Master, y: np.ndarray) -> tuple[np.ndarray, float, float]:
     """(pi, rho, tau) from a row dual vector, rho and tau clipped to their sign."""
     n = master.problem.n_units
@@ -305,13 +267,22 @@ def lagrangian_bound(problem: Problem, y: np.ndarray, master: _Master,
         lb += rho * float(problem.max_moved)
     if master.ride_row >= 0:
         lb += tau * float(problem.max_transported)
-    lb += float(bounds[problem.always_open].sum())
-    if master.k_open is not None and master.k_open > 0:
-        b = np.sort(bounds[master.cand])
-        if len(b) < master.k_open:
-            return np.inf
-        lb += float(b[:master.k_open].sum())
-    return lb
+    chosen = _chosen(master, bounds)
+    return lb + float(bounds[chosen].sum()) if chosen is not None else np.inf
+
+
+def _chosen(master: _Master, bounds: np.ndarray) -> np.ndarray | None:
+    """The sites of the Lagrangian's inner minimum: every always-open site and the K
+    candidates of smallest bound (None: fewer than K candidates)."""
+    p = master.problem
+    always = np.flatnonzero(p.always_open)
+    if master.k_open is None or master.k_open <= 0:
+        return always
+    cand = np.flatnonzero(master.cand)
+    if len(cand) < master.k_open:
+        return None
+    pick = cand[np.argsort(bounds[cand], kind="stable")[:master.k_open]]
+    return np.concatenate([always, pick])
 
 
 def column_bound(problem: Problem, graph: UnitGraph | None = None, *,
@@ -330,7 +301,8 @@ def column_bound(problem: Problem, graph: UnitGraph | None = None, *,
     if start is not None and plan_checks(problem, start, graph):
         start = None
     w = np.where(allowed, problem.weighted_cost, 0.0)
-    master = _Master(problem, 10.0 * (1.0 + float(np.abs(w).max(axis=1).sum())))
+    big = None if start is not None else 10.0 * (1.0 + float(np.abs(w).max(axis=1).sum()))
+    master = _Master(problem, big)
     if start is not None:
         a = np.asarray(start, np.int64)
         for j in np.flatnonzero(open_sites(problem, a)).tolist():
@@ -340,9 +312,45 @@ def column_bound(problem: Problem, graph: UnitGraph | None = None, *,
     cg_end = None if time_limit is None else t0 + (1 - MIP_SHARE) * time_limit
     sites = np.flatnonzero(~problem.closed_sites)
     state = _State()
+    n = problem.n_units
+
+    def step(y: np.ndarray) -> tuple[float, np.ndarray]:
+        """Exact pricing at ``y``: the Lagrangian bound and a subgradient of the cover rows;
+        the inner minimum's zones join the master."""
+        r = _reduced(master, y, allowed)
+        bounds, zone = np.full(problem.n_sites, np.inf), {}
+        for j in sites.tolist():
+            rem = _left(cg_end)
+            pr = pricer(problem, graph, j, r[:, j], exact=True,
+                        time_limit=None if rem is None else max(rem / len(sites), 0.01))
+            bounds[j] = pr.bound
+            if pr.zones:
+                zone[j] = pr.zones[0]
+        state.exact_passes += 1
+        cover = np.zeros(n)
+        chosen = _chosen(master, bounds)
+        for j in ([] if chosen is None else chosen.tolist()):
+            if j in zone:
+                cover[zone[j]] += 1
+                master.add(j, zone[j])
+        g = np.zeros(master.nrow)
+        g[:n] = 1 - cover
+        return lagrangian_bound(problem, y, master, bounds), g
+
     if smoothing > 0:
         rem = _left(cg_end)
-        state.center = compact_duals(problem, master, None if rem is None else rem / 4)
+        if int(allowed.sum()) <= COMPACT_MAX_PAIRS:
+            state.center = compact_duals(problem, master.nrow, master.moved_row,
+                                         master.ride_row, None if rem is None else rem / 4)
+        if state.center is None and start is not None:
+            y0 = np.zeros(master.nrow)
+            y0[:n] = w[np.arange(n), start]  # each unit's cost in the start plan
+            upper = float(y0.sum())
+            until = None if rem is None else time.monotonic() + WARM_SHARE * rem
+            lb, y_best = subgradient(step, y0, upper, until)
+            if np.isfinite(lb):
+                state.best, state.center = lb, y_best
+    build = time.monotonic() - t0
 
     def price(y: np.ndarray, ys: np.ndarray, exact: bool) -> int:
         """One pricing pass at duals ``ys``; columns enter when improving under ``y``."""
@@ -400,5 +408,5 @@ def column_bound(problem: Problem, graph: UnitGraph | None = None, *,
         if a is not None and not plan_checks(problem, a, graph):
             plan = a
             cost = float(problem.weighted_cost[np.arange(problem.n_units), a].sum())
-    return ColumnResult(state.best, state.lp, state.rounds, state.exact_passes,
+    return ColumnResult(state.best, state.lp, build, state.rounds, state.exact_passes,
                         len(master.zones), time.monotonic() - t0, converged, plan, cost)
