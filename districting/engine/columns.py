@@ -181,9 +181,14 @@ class _Master:
         self.zones.append(zone)
         return True
 
+    def _limit(self, seconds: float | None) -> None:
+        """HiGHS counts its time limit over every run of one object: add the time used."""
+        limit = np.inf if seconds is None else self.h.getRunTime() + max(seconds, 0.01)
+        self.h.setOptionValue("time_limit", float(limit))
+
     def solve_lp(self, time_limit: float | None) -> tuple[float, np.ndarray] | None:
         """(value, row duals) of the restricted master LP; None when it did not finish."""
-        self.h.setOptionValue("time_limit", float(time_limit) if time_limit else np.inf)
+        self._limit(time_limit)
         self.h.run()
         if self.h.getModelStatus() != self.hs.HighsModelStatus.kOptimal:
             return None
@@ -202,7 +207,7 @@ class _Master:
         if self.n_art:
             art = np.arange(self.n_art, dtype=np.int32)
             h.changeColsBounds(self.n_art, art, np.zeros(self.n_art), np.zeros(self.n_art))
-        h.setOptionValue("time_limit", float(time_limit) if time_limit else np.inf)
+        self._limit(time_limit)
         h.setOptionValue("mip_rel_gap", 1e-9)
         if start is not None:
             sol = hs.HighsSolution()

@@ -153,8 +153,7 @@ def _mip(s: SiteSlice, v: np.ndarray, time_limit: float | None
     lp = highspy.HighsLp()
     lp.num_col_, lp.num_row_ = k, t_rows
     lp.col_cost_, lp.col_lower_, lp.col_upper_ = v, np.zeros(k), np.ones(k)
-    lp.row_lower_ = np.maximum(s.lo, -np.inf)
-    lp.row_upper_ = np.minimum(s.hi, np.inf)
+    lp.row_lower_, lp.row_upper_ = s.lo, s.hi
     lp.a_matrix_.format_ = highspy.MatrixFormat.kColwise
     lp.a_matrix_.start_ = (np.arange(k + 1) * t_rows).astype(np.int32)
     lp.a_matrix_.index_ = np.tile(np.arange(t_rows, dtype=np.int32), k)
@@ -166,14 +165,12 @@ def _mip(s: SiteSlice, v: np.ndarray, time_limit: float | None
     if status == highspy.HighsModelStatus.kInfeasible:
         return None, np.inf, np.inf
     info = h.getInfo()
-    bound = float(info.mip_dual_bound) if status != highspy.HighsModelStatus.kOptimal else None
+    bound = float(info.mip_dual_bound)  # valid also when "optimal" within HiGHS's gaps
+    bound = bound if np.isfinite(bound) else -np.inf
     if info.primal_solution_status != 2:  # no feasible point found
-        return None, np.inf, -np.inf if bound is None else bound
+        return None, np.inf, bound
     x = np.asarray(h.getSolution().col_value) > 0.5
-    value = float(v[x].sum())
-    if bound is None:
-        bound = value - 1e-9 * max(1.0, abs(value))
-    return x, value, bound if np.isfinite(bound) else -np.inf
+    return x, float(v[x].sum()), min(bound, float(v[x].sum()))
 
 
 def price_zone(problem: Problem, graph: UnitGraph | None, site: int, reduced: np.ndarray,
