@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import argparse
 import multiprocessing as mp
+import queue
 import sys
 import time
 from pathlib import Path
@@ -53,12 +54,15 @@ def engine_run(name: str, limit: float) -> tuple:
     out = mp.Queue()
     child = mp.Process(target=_engine, args=(name, limit, out))
     child.start()
-    child.join(limit + 30)
+    try:  # read before joining: a child holding queued data does not end until it is read
+        result = out.get(timeout=limit + 30)
+    except queue.Empty:
+        result = (None, float("nan"), float("nan"))
+    child.join(5)
     if child.is_alive():
         child.terminate()
         child.join()
-        return None, float("nan"), float("nan")
-    return out.get() if not out.empty() else (None, float("nan"), float("nan"))
+    return result
 
 
 def main() -> None:
