@@ -51,8 +51,9 @@ def _engine(name: str, limit: float, out) -> None:
 
 def engine_run(name: str, limit: float) -> tuple:
     """(plan or None, its cost, the engine's bound), or (None, nan, nan) when it hung."""
-    out = mp.Queue()
-    child = mp.Process(target=_engine, args=(name, limit, out))
+    spawn = mp.get_context("spawn")  # HiGHS's thread pool does not survive a fork
+    out = spawn.Queue()
+    child = spawn.Process(target=_engine, args=(name, limit, out))
     child.start()
     try:  # read before joining: a child holding queued data does not end until it is read
         result = out.get(timeout=limit + 30)
