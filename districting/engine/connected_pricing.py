@@ -12,7 +12,8 @@ for the reduced costs ``r`` (inf where the pair is not allowed): a rooted connec
 (the pricing problem of districting columns, Mehrotra, Johnson & Nemhauser, "An optimization
 based heuristic for political districting", Management Science 44(8), 1998).
 
-Two ways, one answer type (:class:`Priced`):
+Two ways, one answer type (:class:`~districting.engine.pricing.Priced`, shared with the
+pricing without contiguity):
 
 - ``exact=False``: greedy growth from the root over the unit graph, best reduced cost first,
   a unit of positive cost taken only as a bridge to a cheaper neighbour (a one-step lookahead);
@@ -33,7 +34,6 @@ from __future__ import annotations
 import heapq
 import time
 from collections import deque
-from dataclasses import dataclass
 
 import numpy as np
 
@@ -42,6 +42,7 @@ from . import tuning
 from .connectivity import UnitGraph
 from .cuts import min_separator, rooted_cuts, separator
 from .formulation import undominated
+from .pricing import Priced
 
 __all__ = ["Priced", "price_connected", "site_band_limits", "reachable_units"]
 
@@ -50,15 +51,6 @@ _TOL = 1e-6
 LP_ROUNDS = 10
 #: The pricing MIP stops once a zone is within this share of its bound.
 PRICE_GAP = 1e-4
-
-
-@dataclass(frozen=True)
-class Priced:
-    """Zones found for one site, their reduced costs, and a bound on the best zone's."""
-
-    zones: list[np.ndarray]  # sorted unit indices, each a feasible zone for the site
-    values: list[float]  # sum of the reduced costs over each zone
-    bound: float  # lower bound on min over ALL feasible zones; -inf unknown, inf: none exists
 
 
 def site_band_limits(problem: Problem, site: int) -> tuple[np.ndarray, np.ndarray]:
