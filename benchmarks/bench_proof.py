@@ -32,18 +32,15 @@ from pathlib import Path
 import numpy as np
 
 ROOT = Path(__file__).resolve().parent.parent
-sys.path[:0] = [str(ROOT), str(ROOT / "tests")]
+sys.path[:0] = [str(ROOT), str(ROOT / "tests"), str(ROOT / "benchmarks")]
 
+from demo_cases import demo_cases  # noqa: E402
 from flow_milp import flow_optimum  # noqa: E402
 
 from districting.engine import solve  # noqa: E402
 from districting.engine.connectivity import UnitGraph  # noqa: E402
 from districting.engine.repair import make_valid  # noqa: E402
 from districting.engine.run import objective  # noqa: E402
-from districting.intake import validate_project  # noqa: E402
-from districting.study import RunSettings, build_problem  # noqa: E402
-
-OPTIONS = (("shortest travel", 0.0), ("fewer moves", 3000.0))
 
 
 def _reference(problem, limit: float) -> tuple[float, float]:
@@ -86,43 +83,36 @@ def main() -> None:
                     help="only the free optimum and that plan made valid (the free restart)")
     ap.add_argument("--data", default=str(ROOT / "data" / "demo"))
     args = ap.parse_args()
-    inputs, report = validate_project(args.data, cache=True)
-    if inputs is None:
-        raise SystemExit(report.format())
     routes = [("new", True)] + ([("old", False)] if args.old else [])
     print(f"{'travel':14} {'case':30} {'route':5} {'engine s':>8} {'status':>10} "
           f"{'engine plan':>13} {'engine bound':>13} {'gap %':>8} {'flow opt':>13} "
           f"{'flow s':>7} {'free opt':>13} {'plan above ref %':>16} {'bound below %':>13}",
           flush=True)
-    for travel in args.travel:
-        for level in args.levels:
-            for label, weight in OPTIONS:
-                rs = RunSettings(level=level, travel=travel, stability_weight=weight)
-                problem, _ = build_problem(inputs, rs)
-                free = solve(problem.replace(edges=None), gap=1e-7, time_limit=args.flow_time)
-                if args.repaired:
-                    fixed = make_valid(problem, UnitGraph.of(problem), free.assignment)
-                    value = objective(problem, fixed) if fixed is not None else float("nan")
-                    print(f"{travel:14} {level + ', ' + label:30} free optimum "
-                          f"{free.objective:,.0f}, made valid {value:,.0f} "
-                          f"({100 * (value / free.objective - 1):.3f}% above)", flush=True)
-                    continue
-                ref, ref_s = float("nan"), float("nan")
-                if problem.n_sites <= args.flow_sites:
-                    ref, ref_s = _reference(problem, args.flow_time)
-                low = ref if np.isfinite(ref) else free.objective
-                for name, new in routes:
-                    plan = _engine(problem, args.time_limit, new)
-                    seconds = plan.build_seconds + plan.solve_seconds
-                    above = 100 * (plan.objective / low - 1)
-                    below = 100 * (1 - plan.bound / ref) if np.isfinite(ref) else float("nan")
-                    flow_txt = f"{ref:13,.0f}" if np.isfinite(ref) else (
-                        f"{'not within':>13}" if problem.n_sites <= args.flow_sites
-                        else f"{'-':>13}")
-                    print(f"{travel:14} {level + ', ' + label:30} {name:5} {seconds:8.1f} "
-                          f"{plan.status:>10} {plan.objective:13,.0f} {plan.bound:13,.0f} "
-                          f"{100 * plan.gap:8.4f} {flow_txt} {ref_s:7.1f} "
-                          f"{free.objective:13,.0f} {above:16.4f} {below:13.4f}", flush=True)
+    for travel, level, label, problem in demo_cases(args.data, args.travel, args.levels):
+        free = solve(problem.replace(edges=None), gap=1e-7, time_limit=args.flow_time)
+        if args.repaired:
+            fixed = make_valid(problem, UnitGraph.of(problem), free.assignment)
+            value = objective(problem, fixed) if fixed is not None else float("nan")
+            print(f"{travel:14} {level + ', ' + label:30} free optimum "
+                  f"{free.objective:,.0f}, made valid {value:,.0f} "
+                  f"({100 * (value / free.objective - 1):.3f}% above)", flush=True)
+            continue
+        ref, ref_s = float("nan"), float("nan")
+        if problem.n_sites <= args.flow_sites:
+            ref, ref_s = _reference(problem, args.flow_time)
+        low = ref if np.isfinite(ref) else free.objective
+        for name, new in routes:
+            plan = _engine(problem, args.time_limit, new)
+            seconds = plan.build_seconds + plan.solve_seconds
+            above = 100 * (plan.objective / low - 1)
+            below = 100 * (1 - plan.bound / ref) if np.isfinite(ref) else float("nan")
+            flow_txt = f"{ref:13,.0f}" if np.isfinite(ref) else (
+                f"{'not within':>13}" if problem.n_sites <= args.flow_sites
+                else f"{'-':>13}")
+            print(f"{travel:14} {level + ', ' + label:30} {name:5} {seconds:8.1f} "
+                  f"{plan.status:>10} {plan.objective:13,.0f} {plan.bound:13,.0f} "
+                  f"{100 * plan.gap:8.4f} {flow_txt} {ref_s:7.1f} "
+                  f"{free.objective:13,.0f} {above:16.4f} {below:13.4f}", flush=True)
 
 
 if __name__ == "__main__":

@@ -21,15 +21,13 @@ from pathlib import Path
 import numpy as np
 
 ROOT = Path(__file__).resolve().parent.parent
-sys.path[:0] = [str(ROOT)]
+sys.path[:0] = [str(ROOT), str(ROOT / "benchmarks")]
+
+from demo_cases import demo_cases  # noqa: E402
 
 from districting.engine.connectivity import UnitGraph, free_units  # noqa: E402
 from districting.engine.highs_route import HighsRoute  # noqa: E402
 from districting.engine.zone_bound import decomposes, zone_bound  # noqa: E402
-from districting.intake import validate_project  # noqa: E402
-from districting.study import RunSettings, build_problem  # noqa: E402
-
-OPTIONS = (("shortest travel", 0.0), ("fewer moves", 3000.0))
 
 
 def main() -> None:
@@ -40,37 +38,30 @@ def main() -> None:
                     help="seconds for each Lagrangian bound (all sites together)")
     ap.add_argument("--data", default=str(ROOT / "data" / "demo"))
     args = ap.parse_args()
-    inputs, report = validate_project(args.data, cache=True)
-    if inputs is None:
-        raise SystemExit(report.format())
     print(f"{'travel':14} {'case':30} {'LP':>13} {'cut LP':>13} {'cut s':>6} "
           f"{'L at LP':>13} {'s':>6} {'short':>5} {'L at cut LP':>13} {'s':>6} {'short':>5}",
           flush=True)
-    for travel in args.travel:
-        for level in args.levels:
-            for label, weight in OPTIONS:
-                rs = RunSettings(level=level, travel=travel, stability_weight=weight)
-                problem, _ = build_problem(inputs, rs)
-                case = f"{level}, {label}"
-                if not decomposes(problem):
-                    print(f"{travel:14} {case:30} the rows do not split by site", flush=True)
-                    continue
-                graph = UnitGraph.of(problem)
-                passable = free_units(problem)
-                route = HighsRoute(problem, passable if passable.any() else None)
-                lp = route.relaxation()[0]
-                plain = route.unit_duals()
-                t0 = time.perf_counter()
-                route.strengthen(graph, passable if passable.any() else None,
-                                 time.monotonic() + 20.0, np.inf, keep_share=0.0)
-                cut_s = time.perf_counter() - t0
-                cut_lp, cut = route.strongest()[0], route.unit_duals()
-                at_lp = zone_bound(problem, graph, plain, time_limit=args.time_limit)
-                at_cut = zone_bound(problem, graph, cut, time_limit=args.time_limit)
-                print(f"{travel:14} {case:30} {lp:13,.0f} {cut_lp:13,.0f} {cut_s:6.1f} "
-                      f"{at_lp.value:13,.0f} {at_lp.seconds:6.1f} {at_lp.cut_short:5d} "
-                      f"{at_cut.value:13,.0f} {at_cut.seconds:6.1f} {at_cut.cut_short:5d}",
-                      flush=True)
+    for travel, level, label, problem in demo_cases(args.data, args.travel, args.levels):
+        case = f"{level}, {label}"
+        if not decomposes(problem):
+            print(f"{travel:14} {case:30} the rows do not split by site", flush=True)
+            continue
+        graph = UnitGraph.of(problem)
+        passable = free_units(problem)
+        route = HighsRoute(problem, passable if passable.any() else None)
+        lp = route.relaxation()[0]
+        plain = route.unit_duals()
+        t0 = time.perf_counter()
+        route.strengthen(graph, passable if passable.any() else None,
+                         time.monotonic() + 20.0, np.inf, keep_share=0.0)
+        cut_s = time.perf_counter() - t0
+        cut_lp, cut = route.strongest()[0], route.unit_duals()
+        at_lp = zone_bound(problem, graph, plain, time_limit=args.time_limit)
+        at_cut = zone_bound(problem, graph, cut, time_limit=args.time_limit)
+        print(f"{travel:14} {case:30} {lp:13,.0f} {cut_lp:13,.0f} {cut_s:6.1f} "
+              f"{at_lp.value:13,.0f} {at_lp.seconds:6.1f} {at_lp.cut_short:5d} "
+              f"{at_cut.value:13,.0f} {at_cut.seconds:6.1f} {at_cut.cut_short:5d}",
+              flush=True)
 
 
 if __name__ == "__main__":

@@ -40,6 +40,13 @@ Price-and-branch: the restricted master over the generated columns solved as a M
 plan (an upper bound), checked with :func:`~districting.engine.connectivity.plan_checks`.
 Families the master cannot state (whole feeding with or without splits, group bands):
 :func:`column_bound` returns None.
+
+Not a stage of the solve session (measured, 30 s each, with 40% of the time left given to
+it before HiGHS's tree: Osman & Christofides 14, 17, 20 bound 971 -> 972, 1,023 -> 1,025.3,
+969 -> 973.6, but 8 803 -> 786 and SJC2 0.13% -> 0.20%, the time taken from the tree; on
+the demo's elementary level with contiguity 8 minutes did not converge, bound 7,994,041
+against 8,026,301 from :mod:`~districting.engine.zone_bound` at the cut LP's duals). A
+measure and a building block: ``benchmarks/bench_columns.py``.
 """
 
 from __future__ import annotations
