@@ -21,7 +21,7 @@ __all__ = [
     "SITE_STATUSES", "OPEN_TODAY", "OPEN_IN_PLAN", "CANDIDATE", "CLOSED", "TAKES_STUDENTS",
     "NOT_OPEN_TODAY", "takes_students", "open_today", "open_in_plan", "is_candidate",
     "is_closed", "usable_capacity", "site_band", "open_sites", "TOLERANCE",
-    "walkers_forbidden", "transported", "group_shares", "district_shares",
+    "walkers_forbidden", "transported", "group_shares", "district_shares", "seat_limits",
 ]
 
 #: open: open now and in the plan; closing: closes at the plan year (its students move);
@@ -90,6 +90,15 @@ def usable_capacity(capacity: np.ndarray, max_util: np.ndarray, forced: np.ndarr
     if open_count is not None:
         cand = cand[: max(int(open_count) - int(forced.sum()), 0)]
     return total + float(cand.sum())
+
+
+def seat_limits(problem: Problem) -> tuple[np.ndarray, np.ndarray]:
+    """(m,) the fewest and the most students each site's zone may hold in a demand row:
+    capacity x minimum and x maximum utilization (0 and inf without a capacity)."""
+    m = problem.n_sites
+    if problem.capacity is None:
+        return np.zeros(m), np.full(m, np.inf)
+    return problem.min_util * problem.capacity, problem.max_util * problem.capacity
 
 
 def open_sites(problem: Problem, assignment: np.ndarray) -> np.ndarray:

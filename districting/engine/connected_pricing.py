@@ -38,30 +38,20 @@ from collections import deque
 import numpy as np
 
 from ..problem import Problem
+from ..rules import seat_limits
 from . import tuning
 from .connectivity import UnitGraph
 from .cuts import min_separator, rooted_cuts, separator
 from .formulation import undominated
 from .pricing import Priced
 
-__all__ = ["Priced", "price_connected", "site_band_limits", "reachable_units"]
+__all__ = ["Priced", "price_connected", "reachable_units"]
 
 _TOL = 1e-6
 #: At most this many rounds of cuts from the LP relaxation before the pricing MIP.
 LP_ROUNDS = 10
 #: The pricing MIP stops once a zone is within this share of its bound.
 PRICE_GAP = 1e-4
-
-
-def site_band_limits(problem: Problem, site: int) -> tuple[np.ndarray, np.ndarray]:
-    """(T,) lower and upper limits on the site's students per demand row (0 and inf
-    without a capacity)."""
-    t = problem.n_years
-    if problem.capacity is None:
-        return np.zeros(t), np.full(t, np.inf)
-    q = float(problem.capacity[site])
-    return (np.full(t, float(problem.min_util[site]) * q),
-            np.full(t, float(problem.max_util[site]) * q))
 
 
 def reachable_units(graph: UnitGraph, ok: np.ndarray, root: int) -> np.ndarray:
@@ -81,7 +71,9 @@ class _Site:
         ok = np.isfinite(reduced) & problem.allowed[:, site]
         root = int(problem.roots[site]) if problem.roots is not None else -1
         self.units = reachable_units(graph, ok, root)
-        self.lo, self.hi = site_band_limits(problem, site)
+        fewest, most = seat_limits(problem)
+        self.lo = np.full(problem.n_years, float(fewest[site]))
+        self.hi = np.full(problem.n_years, float(most[site]))
         locked = np.flatnonzero(problem.locks == site)
         n = len(self.units)
         local = np.full(problem.n_units, -1, np.int64)

@@ -25,6 +25,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..problem import Problem
+from ..rules import seat_limits
 from .connectivity import UnitGraph
 from .tuning import TOL
 
@@ -65,13 +66,9 @@ def site_slice(problem: Problem, site: int, reduced: np.ndarray) -> SiteSlice:
     forced = np.flatnonzero(forced_mask)
     d = problem.demand
     base = d[:, forced].sum(axis=1)
-    if problem.capacity is None:
-        hi = np.full(t_rows, np.inf)
-        lo = np.full(t_rows, -np.inf)
-    else:
-        q = problem.capacity[site]
-        hi = problem.max_util[site] * q + TOL - base
-        lo = problem.min_util[site] * q - TOL - base
+    fewest, most = seat_limits(problem)
+    hi = np.full(t_rows, most[site]) + TOL - base
+    lo = np.full(t_rows, fewest[site]) - TOL - base
     ok = np.isfinite(reduced) & ~forced_mask & (problem.locks < 0)
     ok &= (d <= hi[:, None]).all(axis=0)
     items = np.flatnonzero(ok)
