@@ -196,10 +196,8 @@ def rooted_cuts(graph: UnitGraph, w: np.ndarray, root: int, passable: np.ndarray
                 violation: float = 0.01) -> list[tuple[np.ndarray, np.ndarray]]:
     """The violated cuts of one zone (:func:`fractional_cuts`): ``w`` (n,) the point's
     values x*[., j], ``root`` its root unit; (units, separator) pairs, one per piece."""
-    n = graph.n
+    n, r, pas = graph.n, root, passable
     out_cuts: list[tuple[np.ndarray, np.ndarray]] = []
-    pas = passable
-    r = root
     cand = (w > violation) & ~pas
     cand[r] = False
     if not cand.any():

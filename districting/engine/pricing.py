@@ -195,7 +195,8 @@ def price_zone(problem: Problem, graph: UnitGraph | None, site: int, reduced: np
             and len(v) * (np.floor(s.hi[0]) + 1) <= DP_LIMIT):
         chosen, value = _dp(s, v)
         bound = value
-    elif s.load.shape[0] == 0 or not np.isfinite(s.hi).any() and not np.isfinite(s.lo).any():
+    elif s.load.shape[0] == 0 or (not np.isfinite(s.hi).any() and (s.lo <= 0).all()):
+        # no cap and no floor left: every item of negative value, and only those
         chosen = v < 0
         value = bound = float(v[chosen].sum())
     else:
