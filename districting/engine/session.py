@@ -65,6 +65,7 @@ from .tuning import (
     PROBE_LIMIT,
     ROOT_MAX,
     ROOT_SHARE,
+    ROUND_SETUP_PER_COLUMN,
     STALL_ROUNDS,
     STALL_SHARE,
     START_MAX,
@@ -356,8 +357,10 @@ class Session:
                 st.status = "cancelled"
                 break
             left = run.left()
-            if left is not None and left <= 0:
-                st.status = "time_limit"
+            if left is not None and (left <= 0 or (
+                    run.best is not None
+                    and left < ROUND_SETUP_PER_COLUMN * _columns(st.backend))):
+                st.status = "time_limit"  # a round could not start before the limit
                 break
             if run.best_obj < fixed_at:
                 st.backend.fix_by_reduced_cost(run.best_obj)
@@ -462,7 +465,9 @@ class Session:
         st.relaxed, self._full, self._backend = False, True, None
         st.backend = self._ensure_backend(None)
         st.run.build += self.build_seconds
-        if st.backend.relaxation() is not None and st.run.best is not None:
+        left = st.run.left()
+        lp = st.backend.relaxation(None if left is None else LP_SHARE * left)
+        if lp is not None and st.run.best is not None:
             st.backend.fix_by_reduced_cost(st.run.best_obj)
         return -1
 
