@@ -36,9 +36,13 @@ __all__ = [
     "moved_students",
     "zone_touch",
     "stays_connected",
+    "cut_units",
+    "ZoneCuts",
 ]
 
 _TOL = 1e-6
+#: ZoneCuts: single searches per zone before its cut units are computed at once.
+_SEARCHES_FIRST = 4
 
 
 class UnitGraph:
@@ -322,3 +326,80 @@ def stays_connected(i: int, j: int, al: list[int], nbrs: list[list[int]]) -> boo
                         if groups == 1:
                             return True
                         r, q = a, queues[a]
+
+
+def cut_units(units, j: int, al: list[int], nbrs: list[list[int]]) -> set[int]:
+    """The units of zone j (``units``: all of them) whose leaving would split the piece of
+    the zone they lie in: the articulation points of the subgraph the zone induces
+    (Hopcroft & Tarjan, "Algorithm 447: efficient algorithms for graph manipulation",
+    Communications of the ACM 16(6), 1973), one iterative depth-first search per piece,
+    O(units + edges inside the zone). ``i not in cut_units(...)`` is
+    :func:`stays_connected` for every unit of the zone at once.
+    """
+    disc: dict[int, int] = {}
+    low: dict[int, int] = {}
+    cut: set[int] = set()
+    for s in units:
+        if s in disc:
+            continue
+        disc[s] = low[s] = len(disc)
+        children = 0
+        stack = [(s, -1, iter(nbrs[s]))]
+        while stack:
+            x, parent, it = stack[-1]
+            for y in it:
+                if al[y] != j or y == parent:
+                    continue
+                if y in disc:
+                    low[x] = min(low[x], disc[y])
+                else:
+                    disc[y] = low[y] = len(disc)
+                    stack.append((y, x, iter(nbrs[y])))
+                    break
+            else:
+                stack.pop()
+                if parent < 0:
+                    continue
+                low[parent] = min(low[parent], low[x])
+                if parent == s:
+                    children += 1
+                elif low[x] >= disc[parent]:
+                    cut.add(parent)
+        if children >= 2:
+            cut.add(s)
+    return cut
+
+
+class ZoneCuts:
+    """:func:`stays_connected` answered from each zone's :func:`cut_units`, computed once
+    per zone and kept until the zone changes: a local search that tries many moves per
+    step searches each zone once instead of once per try (the demo's high level, two zones
+    of about 780 units: 61,802 searches in two repairs before)."""
+
+    def __init__(self, al: list[int], nbrs: list[list[int]]) -> None:
+        self.al, self.nbrs = al, nbrs
+        self._cut: dict[int, set[int]] = {}
+        self._asked: dict[int, int] = {}  # searches per zone since it last changed
+
+    def keeps(self, i: int, j: int, av: np.ndarray) -> bool:
+        """Zone j stays connected when unit i leaves it; ``av``: ``al`` as an array now.
+        The first few questions per zone are single searches (often cut short early)."""
+        cut = self._cut.get(j)
+        if cut is not None:
+            return i not in cut
+        asked = self._asked.get(j, 0)
+        if asked < _SEARCHES_FIRST:
+            self._asked[j] = asked + 1
+            return stays_connected(i, j, self.al, self.nbrs)
+        cut = self._cut[j] = cut_units(np.flatnonzero(av == j).tolist(), j, self.al,
+                                       self.nbrs)
+        return i not in cut
+
+    def changed(self, *zones: int) -> None:
+        """The units of ``zones`` changed (every zone when none is named)."""
+        if not zones:
+            self._cut.clear()
+            self._asked.clear()
+        for z in zones:
+            self._cut.pop(z, None)
+            self._asked.pop(z, None)

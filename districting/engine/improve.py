@@ -25,7 +25,7 @@ from collections import deque
 import numpy as np
 
 from ..problem import Problem
-from .connectivity import UnitGraph, stays_connected, zone_loads, zone_touch
+from .connectivity import UnitGraph, ZoneCuts, stays_connected, zone_loads, zone_touch
 
 __all__ = ["fixed_units", "rebalance", "improve", "relocate"]
 
@@ -130,6 +130,7 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
     cap_moved = np.inf if problem.max_moved is None else problem.max_moved
     nbrs = graph.lists
     al = a.tolist()
+    cuts = ZoneCuts(al, nbrs)
     steps = max_steps or 4 * n
     for _ in range(steps):
         exc = _excess(load, hi, lo)
@@ -146,6 +147,7 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
             if dm_chain is None:
                 return None
             moved += dm_chain
+            cuts.changed()
             continue
         d = dem[:, cu]
         lj, lk = load[:, cj] - d, load[:, ck] + d
@@ -157,8 +159,7 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
         better = fine & (dv < -_TOL)
         idx = np.flatnonzero(better)
         order = idx[np.argsort(dc[idx] / -dv[idx], kind="stable")][:2000]  # cost per student
-        c = next((c for c in order.tolist()
-                  if stays_connected(int(cu[c]), int(cj[c]), al, nbrs)), None)
+        c = next((c for c in order.tolist() if cuts.keeps(int(cu[c]), int(cj[c]), av)), None)
         if c is None:
             # sideways moves (when no move lowers the excess, or each would cut a zone)
             over = (load > hi + _TOL).any(axis=0)
@@ -169,10 +170,11 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
             side_order = idx[np.lexsort((dc[idx], dist[ck[idx]]))][:2000]
             order = np.concatenate([order, side_order])
             c = next((c for c in side_order.tolist()
-                      if stays_connected(int(cu[c]), int(cj[c]), al, nbrs)), None)
+                      if cuts.keeps(int(cu[c]), int(cj[c]), av)), None)
         if c is not None:
             i, j, k = int(cu[c]), int(cj[c]), int(ck[c])
             al[i] = k
+            cuts.changed(j, k)
             load[:, j] -= dem[:, i]
             load[:, k] += dem[:, i]
             moved += float(dm[c])
@@ -198,6 +200,7 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
                 if drop < (_TOL if sideways else -_TOL) and moved + dmb <= cap_moved + _TOL:
                     for x in br.tolist():
                         al[x] = k
+                    cuts.changed(j, k)
                     load[:, j] -= d
                     load[:, k] += d
                     moved += dmb
@@ -210,6 +213,7 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
                 if dm_chain is None:
                     return None
                 moved += dm_chain
+                cuts.changed()
     return None
 
 

@@ -134,3 +134,25 @@ def test_leaving_unit_connectivity_agrees_with_networkx():
         same = [w for w in nbrs[i] if al[w] == j]
         expected = all(nx.has_path(rest, same[0], w) for w in same[1:])
         assert _stays_connected(i, j, al, nbrs) == expected
+
+
+def test_cut_units_are_the_articulation_points_of_each_zone():
+    # cut_units (iterative Hopcroft-Tarjan over one zone's induced subgraph) against
+    # networkx.articulation_points of that subgraph, on random graphs with three zones; and
+    # ZoneCuts, which answers stays_connected from them, agrees with it for every unit
+    from districting.engine.connectivity import ZoneCuts, cut_units, stays_connected
+
+    rng = np.random.default_rng(1)
+    for t in range(300):
+        n = int(rng.integers(3, 40))
+        gr = nx.gnm_random_graph(n, int(rng.integers(n - 1, 3 * n)), seed=t)
+        nbrs = [list(gr[x]) for x in range(n)]
+        al = [int(z) for z in rng.integers(0, 3, n)]
+        av = np.array(al)
+        cuts = ZoneCuts(al, nbrs)
+        for j in range(3):
+            units = [x for x in range(n) if al[x] == j]
+            expected = set(nx.articulation_points(gr.subgraph(units)))
+            assert cut_units(units, j, al, nbrs) == expected, (t, j)
+        for i in rng.permutation(n).tolist() * 2:  # the second pass reads the kept cuts
+            assert cuts.keeps(i, al[i], av) == stays_connected(i, al[i], al, nbrs), (t, i)
