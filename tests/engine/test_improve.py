@@ -156,3 +156,32 @@ def test_cut_units_are_the_articulation_points_of_each_zone():
             assert cut_units(units, j, al, nbrs) == expected, (t, j)
         for i in rng.permutation(n).tolist() * 2:  # the second pass reads the kept cuts
             assert cuts.keeps(i, al[i], av) == stays_connected(i, al[i], al, nbrs), (t, i)
+        for _ in range(20):  # moves: the zones they change are told, the answers follow
+            i, k = int(rng.integers(n)), int(rng.integers(3))
+            j, al[i], av[i] = al[i], k, k
+            cuts.changed(j, k)
+            for x in range(n):
+                assert cuts.keeps(x, al[x], av) == stays_connected(x, al[x], al, nbrs), (t, x)
+
+
+def test_rebalance_keeps_zones_connected_over_many_moves():
+    # Long rebalances on 14 x 10 grids with four schools: each move changes two zones, so
+    # a zone's cut units kept from before a move would let a unit leave that now splits
+    # its zone. networkx checks every zone afterwards, the plan checker every band.
+    xy, edges = grid(14, 10)
+    sites = np.array([0, 13, 126, 139])
+    cost = np.hypot(xy[:, None, 0] - xy[sites][None, :, 0], xy[:, None, 1] - xy[sites][None, :, 1])
+    for seed in range(6):
+        rng = np.random.default_rng(seed)
+        d = rng.integers(1, 6, size=(2, len(xy))).astype(float)
+        cap = np.full(4, d.sum(axis=1).max() / 4 * 1.06)
+        cap[seed % 4] *= 0.75  # one small school: its nearest zone far over
+        cap[(seed + 1) % 4] *= 1.3
+        prob = Problem.from_arrays(cost, d, capacity=cap, edges=edges, roots=sites,
+                                   max_util=1.0, min_util=0.5)
+        g = UnitGraph.of(prob)
+        a = repair.absorb(prob, g, np.argmin(prob.cost, axis=1))
+        b = ls.rebalance(prob, g, a)
+        assert b is not None, seed
+        assert zones_connected(b, prob, edges), seed
+        assert_plan_valid(prob, b)  # the independent checker
