@@ -95,7 +95,7 @@ def test_progress_is_quiet_off_a_terminal():
 def test_demo_command(tmp_path):
     """The README's main job: every level, two options each, exports and packets."""
     # a shorter limit than the README run: the job end to end, not the plans' quality
-    code, out, _ = run_cli("demo", "--out", str(tmp_path), "--time-limit", "10")
+    code, out, _ = run_cli("demo", "--out", str(tmp_path), "--time-limit", "5")
     assert code == 0, out
     for level in ("elementary", "middle", "high"):
         for option in ("shortest-travel", "fewer-moves"):

@@ -158,7 +158,7 @@ def test_lorena_senne_sjc1_optimum():
 # each, is `benchmarks/bench_published.py`: a measurement, not a test). A proof must give the
 # published optimum; a plan stopped by the limit must have a bound at or below the optimum and
 # a cost at or above it (and, like every plan in the tests, pass the independent checker).
-SLOW_LIMIT = 30.0  # seconds per instance
+SLOW_LIMIT = 15.0  # seconds per instance
 
 
 def against_published(plan, cost: float, optimum: float, tol: float) -> None:
