@@ -34,6 +34,7 @@ import time
 from collections.abc import Callable
 
 import numpy as np
+import scipy.sparse as sp
 
 from ..plan import Plan, Round
 from ..problem import Problem
@@ -61,22 +62,21 @@ _STATUS = {"optimal": "optimal", "gaplimit": "optimal", "timelimit": "time_limit
 _REPAIR_SHARE = 0.3
 
 
-def _add_rows(model, xs: list, block: RowBlock) -> int:
-    """Each row of ``block`` as a linear constraint of ``model`` over columns ``xs``."""
-    from pyscipopt.scip import Expr, Term
+def _add_rows(model, terms: list, block: RowBlock) -> int:
+    """Each row of ``block`` as a linear constraint of ``model``; ``terms``: one PySCIPOpt
+    ``Term`` per column, made once per model (making them per row took most of the time)."""
+    from pyscipopt.scip import Expr
 
     if not block.n_rows:
         return 0
-    order = np.argsort(block.row, kind="stable")
-    row, col, coef = block.row[order], block.col[order], block.coef[order]
-    starts = np.searchsorted(row, np.arange(block.n_rows + 1))
+    # one row per CSR row, repeated columns of a row summed
+    a = sp.csr_matrix((block.coef, (block.row, block.col)), shape=(block.n_rows, len(terms)))
+    a.sum_duplicates()
+    ptr, cols, vals = a.indptr, a.indices.tolist(), a.data.tolist()
     for r in range(block.n_rows):
-        terms: dict = {}
-        for c, v in zip(col[starts[r]:starts[r + 1]].tolist(),
-                        coef[starts[r]:starts[r + 1]].tolist(), strict=True):
-            key = Term(xs[c])
-            terms[key] = terms.get(key, 0.0) + v
-        expr = Expr(terms)
+        lo_r, hi_r = ptr[r], ptr[r + 1]
+        expr = Expr(dict(zip([terms[c] for c in cols[lo_r:hi_r]], vals[lo_r:hi_r],
+                             strict=True)))
         lo, hi = float(block.lo[r]), float(block.hi[r])
         if lo == hi:
             model.addCons(expr == hi)
@@ -97,9 +97,12 @@ def _model(f: Formulation):
     xs = [model.addVar(vtype="B", lb=float(lo), ub=float(hi), obj=float(c))
           for lo, hi, c in zip(f.lower.tolist(), f.upper.tolist(), f.cost.tolist(),
                                strict=True)]
+    from pyscipopt.scip import Term
+
+    terms = [Term(x) for x in xs]
     for block in f.blocks:
-        _add_rows(model, xs, block)
-    return model, xs
+        _add_rows(model, terms, block)
+    return model, xs, terms
 
 
 def _give(model, sol, xs: list, values: np.ndarray, submit) -> None:
@@ -126,10 +129,11 @@ def _handler_class():
     class Contiguity(Conshdlr):
         """Zones connected to their roots: checked, enforced by lazy separator cuts."""
 
-        def __init__(self, f: Formulation, graph: UnitGraph, xs: list, run: Run,
-                     sepa_freq: int, repair: bool, cancel: Callable[[], bool] | None,
-                     found: list[Cut]) -> None:
+        def __init__(self, f: Formulation, graph: UnitGraph, xs: list, terms: list,
+                     run: Run, sepa_freq: int, repair: bool,
+                     cancel: Callable[[], bool] | None, found: list[Cut]) -> None:
             self.f, self.graph, self.xs, self.run, self.cancel = f, graph, xs, run, cancel
+            self.terms = terms
             self.found = found  # every cut added, kept by the caller for the next solve
             self.passable = free_units(f.problem)
             self.sepa_freq, self.repair = sepa_freq, repair
@@ -169,7 +173,7 @@ def _handler_class():
             remap[fresh] = np.arange(len(fresh))
             sub = RowBlock(block.family, remap[block.row[keep]], block.col[keep],
                            block.coef[keep], block.lo[fresh], block.hi[fresh])
-            self.added += _add_rows(self.model, self.xs, sub)
+            self.added += _add_rows(self.model, self.terms, sub)
             return len(fresh)
 
         def _offer(self, a: np.ndarray) -> None:
@@ -262,14 +266,15 @@ def solve_scip(problem: Problem, graph: UnitGraph | None = None,
     if f.infeasible_reason:
         return infeasible_plan(problem, f.infeasible_reason, ROUTE)
     try:
-        model, xs = _model(f)
+        model, xs, terms = _model(f)
     except ImportError:
         return failed_plan(problem, "the branch-and-cut route needs PySCIPOpt "
                            "(pip install pyscipopt); the default solver does not", ROUTE)
     handler = None
     if graph is not None:
         found = cuts if cuts is not None else []
-        handler = _handler_class()(f, graph, xs, run, sepa_freq, repair, cancel, found)
+        handler = _handler_class()(f, graph, xs, terms, run, sepa_freq, repair, cancel,
+                                   found)
         model.includeConshdlr(handler, "contiguity", "zones connected to their roots",
                               sepapriority=0, enfopriority=-1, chckpriority=-1,
                               sepafreq=1, propfreq=-1, eagerfreq=-1, maxprerounds=0,
