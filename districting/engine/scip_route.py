@@ -91,14 +91,13 @@ def _add_rows(model, terms: list, block: RowBlock) -> int:
 def _model(f: Formulation):
     """A quiet SCIP model of the formulation: binary columns, every row family."""
     from pyscipopt import Model
+    from pyscipopt.scip import Term
 
     model = Model("districting")
     model.hideOutput()
     xs = [model.addVar(vtype="B", lb=float(lo), ub=float(hi), obj=float(c))
           for lo, hi, c in zip(f.lower.tolist(), f.upper.tolist(), f.cost.tolist(),
                                strict=True)]
-    from pyscipopt.scip import Term
-
     terms = [Term(x) for x in xs]
     for block in f.blocks:
         _add_rows(model, terms, block)
