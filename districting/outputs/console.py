@@ -32,7 +32,7 @@ class Progress:
             return
         if rnd.objective == float("inf"):
             where = "looking for a first plan"
-        elif rnd.gap == float("inf"):
+        elif not rnd.gap < 1.0:  # no bound yet, or one at or below zero (says nothing)
             where = "a plan found; how close to the best is not known yet"
         else:
             where = f"best plan so far within {gap_words(max(rnd.gap, 0.0))} of the best possible"

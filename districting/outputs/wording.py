@@ -94,7 +94,9 @@ def gap_words(gap: float) -> str:
 
 
 def _how_close(gap, bound_known: bool) -> str:
-    if _finite(gap) and bound_known:
+    # a gap of 100% or more is a bound at or below zero: it tells nothing (e.g. a solve
+    # stopped before its first LP finished)
+    if _finite(gap) and bound_known and float(gap) < 1.0:
         return f"within {gap_words(max(float(gap), 0.0))} of the best possible"
     return "a valid plan; how close to the best is not known"
 

@@ -40,6 +40,12 @@ def plan(status, gap=0.0, bound=100.0, message=""):
     (plan("time_limit", gap=float("inf"), bound=-float("inf")),
      "stopped at the time limit: a valid plan; how close to the best is not known"),
     (plan("cancelled", gap=0.0656), "stopped on request: within 6.6% of the best possible"),
+    # a bound of 0 (the solve stopped before its first LP finished): a gap of 100% says
+    # nothing, so no "within 100%"
+    (plan("time_limit", gap=1.0, bound=0.0),
+     "stopped at the time limit: a valid plan; how close to the best is not known"),
+    (plan("time_limit", gap=0.999, bound=0.1), "stopped at the time limit: within 99.9% of "
+                                                "the best possible"),
     (plan("infeasible", gap=float("inf"), bound=float("inf"),
           message="The 2029 elementary students (4,210) exceed the capacity (3,900).\nmore"),
      "no plan: The 2029 elementary students (4,210) exceed the capacity (3,900)"),
