@@ -16,6 +16,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..problem import Problem
+from ..rules import seat_limits
 from .findings import Finding, plural, students
 
 __all__ = ["split_groups", "stray_sites", "feeder_breaks", "whole_findings", "nested_findings",
@@ -75,8 +76,7 @@ def whole_findings(problem: Problem, reach: np.ndarray) -> list[Finding]:
     if problem.feeder_rule != "whole" or g is None:
         return []
     level = problem.level or "upper-level"
-    seats = (np.full(problem.n_sites, np.inf) if problem.capacity is None
-             else problem.max_util * problem.capacity)
+    seats = seat_limits(problem)[1]
     if problem.feeder_splits > 0:
         return _shared_findings(problem, reach, seats)
     out = []
@@ -148,7 +148,7 @@ def nested_seat_findings(problem: Problem) -> list[Finding]:
     g, roots = problem.feeder_groups, problem.roots
     if problem.feeder_rule != "nested" or g is None or roots is None or problem.capacity is None:
         return []
-    seats = np.where(problem.closed_sites, 0.0, problem.max_util * problem.capacity)
+    seats = np.where(problem.closed_sites, 0.0, seat_limits(problem)[1])
     root_g = np.where(roots >= 0, g[np.maximum(roots, 0)], -1)
     free_seats = float(seats[root_g < 0].sum())
     level = problem.level or "lower-level"

@@ -31,7 +31,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from ..problem import Problem
-from ..rules import open_sites
+from ..rules import open_sites, seat_limits
 from .connectivity import Cut
 from .tuning import LINK_LIMIT, TOL
 
@@ -163,7 +163,7 @@ def columns(problem: Problem, drop: np.ndarray | None = None,
     source = problem.replace(locks=np.full(n, -1)) if "locks" in elastic else problem
     ok = source.allowed & ~drop[:, None]
     if problem.capacity is not None and "capacity" not in elastic:
-        hi = problem.max_util * problem.capacity
+        hi = seat_limits(problem)[1]
         ok &= ~(problem.demand[:, :, None] > hi[None, None, :] + TOL).any(axis=0)
         if problem.locks.max(initial=-1) >= 0:
             li = np.flatnonzero(problem.locks >= 0)
@@ -322,7 +322,7 @@ def cover_rows(f: Formulation) -> RowBlock:
     cand = np.flatnonzero(p.candidates)
     if p.capacity is None or not len(cand) or "capacity" in f.elastic:
         return _block("cover", [])
-    hi = p.max_util * p.capacity
+    hi = seat_limits(p)[1]
     parts, keys = [], []
     for t in undominated(p.demand, larger=True):
         need = p.demand[t].sum() - hi[p.always_open].sum()

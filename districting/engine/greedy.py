@@ -29,6 +29,7 @@ import time
 import numpy as np
 
 from ..problem import Problem
+from ..rules import seat_limits
 
 __all__ = ["median_start"]
 
@@ -85,8 +86,7 @@ def _relocate_medians(problem: Problem, a: np.ndarray, opened: np.ndarray,
     new = opened.copy()
     forced = _forced(problem)
     usable = _usable(problem)
-    hi = (np.inf if problem.capacity is None
-          else problem.max_util * problem.capacity)
+    hi = seat_limits(problem)[1]
     for j in np.flatnonzero(opened & ~forced).tolist():
         z = np.flatnonzero(a == j)
         if len(z) == 0:
@@ -104,12 +104,9 @@ def _relocate_medians(problem: Problem, a: np.ndarray, opened: np.ndarray,
 def _limits(problem: Problem, opened: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """(T, m) upper and lower loads; closed-in-this-start sites take nobody."""
     t, m = problem.n_years, problem.n_sites
-    if problem.capacity is None:
-        hi = np.full((t, m), np.inf)
-        lo = np.zeros((t, m))
-    else:
-        hi = np.broadcast_to(problem.max_util * problem.capacity, (t, m)).copy()
-        lo = np.broadcast_to(problem.min_util * problem.capacity, (t, m)).copy()
+    floor, cap = seat_limits(problem)
+    hi = np.broadcast_to(cap, (t, m)).copy()
+    lo = np.broadcast_to(floor, (t, m)).copy()
     hi[:, ~opened] = 0.0
     lo[:, ~opened] = 0.0
     return hi, lo

@@ -25,6 +25,7 @@ from collections import deque
 import numpy as np
 
 from ..problem import Problem
+from ..rules import seat_limits
 from .connectivity import UnitGraph, ZoneCuts, stays_connected, zone_loads, zone_touch
 
 __all__ = ["fixed_units", "rebalance", "improve", "relocate"]
@@ -50,9 +51,8 @@ def _bands(problem: Problem, a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     used = np.zeros(m, bool)
     used[a[a >= 0]] = True
     used |= problem.always_open
-    hi = problem.max_util * problem.capacity
-    lo = np.where(used, problem.min_util * problem.capacity, 0.0)
-    return hi, lo
+    floor, hi = seat_limits(problem)
+    return hi, np.where(used, floor, 0.0)
 
 
 def _excess(load: np.ndarray, hi: np.ndarray, lo: np.ndarray) -> np.ndarray:
