@@ -26,7 +26,8 @@ import numpy as np
 
 from ..problem import Problem
 from ..rules import seat_limits
-from .connectivity import UnitGraph, ZoneCuts, stays_connected, zone_loads, zone_touch
+from .connectivity import UnitGraph, stays_connected, zone_loads, zone_touch
+from .zone_cuts import ZoneCuts
 
 __all__ = ["fixed_units", "rebalance", "improve", "relocate"]
 

@@ -141,7 +141,8 @@ def test_cut_units_are_the_articulation_points_of_each_zone():
     # networkx.articulation_points of that subgraph, on random graphs with three zones; and
     # ZoneCuts, which answers stays_connected from them, agrees with it for every unit while
     # fresh, and never says "yes" wrongly after moves
-    from districting.engine.connectivity import ZoneCuts, cut_units, stays_connected
+    from districting.engine.connectivity import stays_connected
+    from districting.engine.zone_cuts import ZoneCuts, cut_units
 
     rng = np.random.default_rng(1)
     for t in range(300):
