@@ -182,6 +182,19 @@ class HighsRoute:
             self._lp = self._run_lp(np.inf if time_limit is None else max(time_limit, 0.1))
         return self._lp
 
+    def adopt_relaxation(self, bound: float, value: np.ndarray, floor: np.ndarray,
+                         unit_duals: np.ndarray) -> None:
+        """Take the LP relaxation from outside instead of solving it here: the optimum of a
+        model this one restricts (``bound``), its point and each pair's floor ``bound +
+        rc`` as (n, m) arrays (:func:`districting.engine.pair_screen.screen_pairs`).
+
+        Valid for this model when it keeps every pair with a floor at or below the cost of
+        the plans sought: the bound and the reduced-cost test then hold for them."""
+        rc = np.maximum(floor[self.xi, self.xj] - bound, 0.0)
+        self._lp = (float(bound), value[self.xi, self.xj].copy(), rc)
+        self._lp_tried = True
+        self._last_duals = np.asarray(unit_duals, float).copy()
+
     @contextmanager
     def _presolve_for(self, time_limit: float, size: int):
         """HiGHS's presolve off inside the block when the run is time-limited and ``size``

@@ -137,3 +137,15 @@ STALL_SHARE = 0.25
 #: measured better than the flow route on the demo's two- and four-school levels, and the
 #: cut loop's plans better above, where the neighbourhood search runs: LNS_MIN_SITES).
 TREE_MAX_SITES = 8
+
+#: Pair screening (engine.pair_screen): pairs per unit in the first LP, and at most this
+#: many entering per unit in each pricing round.
+SCREEN_NEAREST = 8
+SCREEN_ADD = 4
+#: ... and it runs when the model has at least this many pairs of candidate sites (each a
+#: linking row; below, the whole LP is quick: Osman & Christofides' 10,000 pairs 0.2 s).
+SCREEN_MIN_PAIRS = 30_000
+#: Core plans after the screen: the pairs within these shares of the LP bound, narrowest
+#: first, each core solved in this share of the time left.
+CORE_GAPS = (0.002, 0.01)
+CORE_SHARE = 0.3
