@@ -30,19 +30,25 @@ from districting.engine.pair_screen import lagrangian_bound, screen_pairs
 from districting.engine.session import Session
 
 
-def strong_lp(dist: np.ndarray, dem: np.ndarray, p: int, cap: float) -> float:
-    """LP value of min sum d_ij x_ij, sum_j x_ij = 1, sum_i q_i x_ij <= Q y_j, x_ij <= y_j,
-    sum_j y_j = p, 0 <= x, y <= 1 (the strong capacitated p-median formulation)."""
+def strong_lp(dist: np.ndarray, dem: np.ndarray, p: int, cap: float,
+              floor: float = 0.0, forced: tuple[int, ...] = ()) -> float:
+    """LP value of min sum d_ij x_ij, sum_j x_ij = 1, F y_j <= sum_i q_i x_ij <= Q y_j,
+    x_ij <= y_j, sum_j y_j = p, 0 <= x, y <= 1 (the strong capacitated p-median
+    formulation, with a floor F of students per open site), y_j = 1 for j in ``forced``."""
     n = len(dem)
     nx = n * n
     c = np.concatenate([dist.ravel(), np.zeros(n)])
     rows_eq = sp.hstack([sp.kron(sp.eye(n), np.ones((1, n))), sp.csr_matrix((n, n))])
     count = sp.hstack([sp.csr_matrix((1, nx)), np.ones((1, n))])
     capacity = sp.hstack([sp.kron(dem[None, :], sp.eye(n)), -cap * sp.eye(n)])
+    floors = sp.hstack([-sp.kron(dem[None, :], sp.eye(n)), floor * sp.eye(n)])
     link = sp.hstack([sp.eye(nx), -sp.kron(np.ones((n, 1)), sp.eye(n))])
-    res = linprog(c, A_ub=sp.vstack([capacity, link]).tocsr(), b_ub=np.zeros(n + nx),
+    res = linprog(c, A_ub=sp.vstack([capacity, floors, link]).tocsr(),
+                  b_ub=np.zeros(2 * n + nx),
                   A_eq=sp.vstack([rows_eq, count]).tocsr(),
-                  b_eq=np.concatenate([np.ones(n), [p]]), bounds=(0, 1), method="highs-ds")
+                  b_eq=np.concatenate([np.ones(n), [p]]),
+                  bounds=[(0, 1)] * nx + [(1 if j in forced else 0, 1) for j in range(n)],
+                  method="highs-ds")
     assert res.status == 0
     return float(res.fun)
 
@@ -63,6 +69,41 @@ def test_the_bound_is_the_lp_of_the_strong_formulation():
     assert screen.columns < dist.size
     # the LP point covers every unit once
     assert np.allclose(screen.value.sum(axis=1), 1.0)
+
+
+@pytest.mark.parametrize("n_forced", [0, 2])
+def test_the_bound_with_a_floor_per_open_site(n_forced):
+    # the same instance with every open site holding at least 60 students (half its
+    # capacity), and with the sites farthest from the rest open whatever the plan (their
+    # floors bind): the bound is still the hand-written LP's
+    dist, dem, p, q, _ = osman_instance(1)
+    forced = tuple(np.argsort(dist.mean(axis=1))[len(dem) - n_forced:].tolist())
+    opened = np.isin(np.arange(len(dem)), forced)
+    problem = Problem.from_arrays(dist / dem[:, None], dem, capacity=q, p=p, min_util=0.5,
+                                  open_sites=opened)
+    plan = median_start(problem, None, 0.5)
+    screen = screen_pairs(problem, None, plan, np.inf, nearest=3)
+    assert screen is not None
+    want = strong_lp(dist, dem, p, q, floor=0.5 * q, forced=forced)
+    assert want > strong_lp(dist, dem, p, q) + 1.0  # the floor binds
+    assert screen.bound == pytest.approx(want, rel=1e-7)
+
+
+def test_the_adopted_lp_fixes_no_pair_of_an_optimal_plan():
+    # Osman & Christofides (1994) instance 4: the model holds the LP the screen priced;
+    # fixing by reduced cost against the published optimum keeps the published optimal
+    # plan's pairs (a wrong reduced cost would fix them and "prove" a worse plan)
+    k = 4
+    dist, dem, p, q, opt = osman_instance(k)
+    problem = capacitated(dist, dem, p, q)
+    pub = published_assignment(next((DATA / "orlib_pmedcap" / "solutions_lit").glob(
+        f"solOPT.cpmp{k:02d}_*.json")))
+    screen = screen_pairs(problem, None, median_start(problem, None, 0.5), np.inf)
+    route = HighsRoute(problem)
+    route.adopt_relaxation(screen.bound, screen.value, screen.floor, screen.unit_duals)
+    assert route.relaxation()[0] == pytest.approx(HighsRoute(problem).relaxation()[0])
+    assert route.fix_by_reduced_cost(opt) > 0
+    assert (route.upper[route.column(np.arange(len(dem)), pub)] == 1).all()
 
 
 def test_lagrangian_bound_holds_at_any_multipliers():
