@@ -123,7 +123,9 @@ def _assign(problem: Problem, opened: np.ndarray, hi: np.ndarray) -> np.ndarray:
     a[locked] = problem.locks[locked]
     np.add.at(load.T, a[locked], d[:, locked].T)
     two = np.sort(wc, axis=1)[:, :2] if wc.shape[1] > 1 else np.c_[wc, np.full(n, np.inf)]
-    regret = np.where(np.isfinite(two[:, 1]), two[:, 1] - two[:, 0], np.inf)
+    # a unit with one open site it may use (or none) has no second choice: regret inf
+    regret = np.subtract(two[:, 1], two[:, 0], out=np.full(n, np.inf),
+                         where=np.isfinite(two[:, 1]))
     free = np.flatnonzero(a < 0)
     order = free[np.lexsort((-d[0, free], -regret[free]))]
     for i in order.tolist():
