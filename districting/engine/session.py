@@ -10,7 +10,9 @@ Stages of :meth:`Session.solve`, passing a :class:`~districting.engine.run.Solve
 
 1. ``_start`` -- pre-checks; the start (or today's zones) adapted and repaired is the first
    valid plan; with a bound carried over by :meth:`Session.update` it may already be proven;
-   the model is built;
+   on a large capacitated model with candidate sites the LP is priced from a few pairs per
+   unit and core plans are sought (:mod:`~districting.engine.screen_stage`); the model is
+   built;
 2. ``_lp_bound`` -- the LP relaxation bounds the cost; its own choice per unit, made valid,
    is a candidate plan; root cutting planes lift the bound (HiGHS route); ``_free_restart``
    -- the problem without contiguity solved in a share of the time and its plan made valid
@@ -49,13 +51,12 @@ from .heuristics import constructive, fix_and_resolve, prepare_start, rounded
 from .highs_route import HighsRoute
 from .improve import relocate
 from .neighbourhood import reoptimise
-from .pair_screen import Screen, screen_pairs
+from .pair_screen import Screen
 from .precheck import precheck
 from .repair import make_valid, reassign_empty, repair
 from .run import Run, SolveState, failed_plan, infeasible_plan
+from .screen_stage import screen_applies, screen_stage
 from .tuning import (
-    CORE_GAPS,
-    CORE_SHARE,
     FIRST_ROUND_MIN,
     FIRST_ROUND_SHARE,
     FREE_MAX,
@@ -69,7 +70,6 @@ from .tuning import (
     ROOT_MAX,
     ROOT_SHARE,
     ROUND_SETUP_PER_COLUMN,
-    SCREEN_MIN_PAIRS,
     STALL_ROUNDS,
     STALL_SHARE,
     START_MAX,
@@ -130,6 +130,15 @@ def exact_subsolve(problem: Problem, gap: float, time_limit: float | None,
     in the large-neighbourhood search (:func:`districting.engine.neighbourhood.reoptimise`)."""
     session = Session(problem)
     session.heuristics = False
+    return session.solve(gap, time_limit, start=start, cancel=cancel)
+
+
+def core_subsolve(problem: Problem, gap: float, time_limit: float | None,
+                  start: np.ndarray | None, cancel: Callable[[], bool] | None) -> Plan:
+    """A whole solve of a core (:mod:`~districting.engine.screen_stage`) without a screen
+    of its own."""
+    session = Session(problem)
+    session.screening = False
     return session.solve(gap, time_limit, start=start, cancel=cancel)
 
 
@@ -203,48 +212,6 @@ class Session:
             self.build_seconds = time.perf_counter() - t0
         return self._backend
 
-    def _screen(self, st: SolveState, drop: np.ndarray | None) -> Screen | None:
-        """The pair screen (:mod:`~districting.engine.pair_screen`) when it applies (HiGHS
-        route, a valid plan, capacities, at least ``SCREEN_MIN_PAIRS`` pairs of candidate
-        sites), then the core plans; else None. Without capacities (OR-Library's pmed11,
-        pmed16, pmed21) HiGHS solves the whole LP quickly and the screen measured no gain:
-        pmed21 proven in 21.7 s with it, 6.2 s without (60 s limit, 2026-12-04)."""
-        problem, run = self.problem, st.run
-        if (self.solver != "highs" or not self.screening or run.best is None
-                or problem.capacity is None
-                or int((problem.allowed & problem.candidates[None, :]).sum())
-                < SCREEN_MIN_PAIRS):
-            return None
-        left = run.left()
-        deadline = np.inf if left is None else time.monotonic() + LP_SHARE * left
-        screen = screen_pairs(problem, drop, run.best, deadline)
-        if screen is not None:
-            run.bound = max(run.bound, screen.bound)
-            self._core_plans(st, screen)
-        return screen
-
-    def _core_plans(self, st: SolveState, screen: Screen) -> None:
-        """Plans from the core: the problem restricted to the pairs whose floor lies within
-        ``CORE_GAPS`` of the LP bound (and the best plan's pairs), solved in a share of the
-        time, the narrowest core first; a wider one only when it found nothing better. A
-        restriction keeps every rule, so its plans are valid here. On Lorena & Senne's
-        SJC4a the MIP over all pairs held the first plan (5.9% above the optimum) for 20 s,
-        the core within 0.2% of the LP found one 0.12% above it in as long (measured)."""
-        run, problem = st.run, self.problem
-        for width in CORE_GAPS:
-            left = run.left()
-            budget = None if left is None else CORE_SHARE * left
-            if (budget is not None and budget < 0.5) or (st.cancel is not None
-                                                        and st.cancel()):
-                return
-            core = screen.keep(min(run.best_obj, screen.bound + width * abs(screen.bound)))
-            core[np.arange(problem.n_units), run.best] = True
-            sub = Session(problem.replace(forbidden=problem.forbidden | ~core), self.solver)
-            sub.screening = False
-            plan = sub.solve(st.gap, budget, start=run.best, cancel=st.cancel)
-            if plan.feasible and run.consider(plan.assignment):
-                return
-
     def solve(
         self,
         gap: float = 1e-4,
@@ -316,7 +283,10 @@ class Session:
             return run.plan("optimal", "", route, len(self.cuts), gap)
         try:
             drop = passable if relaxed else None
-            st.backend = self._ensure_backend(drop, self._screen(st, drop), run.best_obj)
+            screen = None
+            if route == "highs" and self.screening and screen_applies(problem, run):
+                screen = screen_stage(st, drop, core_subsolve)
+            st.backend = self._ensure_backend(drop, screen, run.best_obj)
         except (ImportError, RuntimeError, ValueError) as exc:
             return failed_plan(problem, f"could not build the model: {exc}", route)
         run.build = self.build_seconds

@@ -23,7 +23,7 @@ from scipy.optimize import linprog
 from test_benchmarks import DATA, capacitated, osman_instance, published_assignment
 
 from districting import Problem
-from districting.engine import session as session_module
+from districting.engine import screen_stage as stage_module
 from districting.engine.greedy import median_start
 from districting.engine.highs_route import HighsRoute
 from districting.engine.pair_screen import lagrangian_bound, screen_pairs
@@ -169,14 +169,14 @@ def test_a_solve_with_the_screen_proves_published_optima(monkeypatch, k):
     # solve proves the published optimum, and the screen keeps the published optimal
     # plan's pairs at its cost
     calls = []
-    real = session_module.screen_pairs
+    real = stage_module.screen_pairs
 
     def spy(*args, **kw):
         calls.append(real(*args, **kw))
         return calls[-1]
 
-    monkeypatch.setattr(session_module, "SCREEN_MIN_PAIRS", 0)
-    monkeypatch.setattr(session_module, "screen_pairs", spy)
+    monkeypatch.setattr(stage_module, "SCREEN_MIN_PAIRS", 0)
+    monkeypatch.setattr(stage_module, "screen_pairs", spy)
     dist, dem, p, q, opt = osman_instance(k)
     pub = published_assignment(next((DATA / "orlib_pmedcap" / "solutions_lit").glob(
         f"solOPT.cpmp{k:02d}_*.json")))
