@@ -1,11 +1,16 @@
 """The screen stage of a solve: on a large capacitated model, the LP priced from a few pairs
 per unit (:mod:`~districting.engine.pair_screen`), then plans from its core.
 
-Where it runs: the HiGHS route with a valid plan in hand, capacities, and at least
-``SCREEN_MIN_PAIRS`` pairs of candidate sites (each a linking row ``x[i, j] <= y[j]``).
-Without capacities (OR-Library's pmed11, pmed16, pmed21) HiGHS solves the whole LP quickly
-and the screen measured no gain: pmed21 proven in 21.7 s with it, 6.2 s without (60 s
-limit, 2026-12-04).
+Where it runs: the HiGHS route with a valid plan in hand, capacities, zones without
+contiguity, and at least ``SCREEN_MIN_PAIRS`` pairs of candidate sites (each a linking row
+``x[i, j] <= y[j]``). Measured (this 2-core machine, 2026-12-04), which is why not wider:
+
+- without capacities (OR-Library's pmed11, pmed16, pmed21) HiGHS solves the whole LP
+  quickly: pmed21 proven in 21.7 s with the screen, 6.2 s without (60 s limit);
+- on Osman & Christofides' instances (10,000 pairs, 30 s) it found better plans on 14 and
+  20 (982, the optimum, for 983; 1,030 for 1,041) but lost the proofs of 8 and 15 and
+  slowed 11, 13, 16, 17 and 19 by 1-6 s;
+- contiguous towns seldom have many candidate sites, and it was not measured there.
 
 Core plans: the problem restricted to the pairs whose floor lies within ``CORE_GAPS`` of
 the LP bound (and the best plan's pairs), solved in ``CORE_SHARE`` of the time left, the
@@ -39,8 +44,9 @@ SubSolve = Callable[[Problem, float, float | None, np.ndarray | None,
 
 
 def screen_applies(problem: Problem, run: Run) -> bool:
-    """A valid plan, capacities, and at least ``SCREEN_MIN_PAIRS`` pairs of candidate sites."""
-    return (run.best is not None and problem.capacity is not None
+    """A valid plan, capacities, zones without contiguity, and at least
+    ``SCREEN_MIN_PAIRS`` pairs of candidate sites."""
+    return (run.best is not None and problem.capacity is not None and not problem.contiguous
             and int((problem.allowed & problem.candidates[None, :]).sum()) >= SCREEN_MIN_PAIRS)
 
 
