@@ -34,7 +34,7 @@ from ..plan import Plan
 from ..problem import Problem
 from .pair_screen import Screen, screen_pairs
 from .run import Run, SolveState
-from .tuning import CORE_GAPS, CORE_SHARE, LP_SHARE, SCREEN_MIN_PAIRS
+from .tuning import CORE_GAPS, CORE_SHARE, CORE_STOP_GAP, LP_SHARE, SCREEN_MIN_PAIRS
 
 __all__ = ["screen_applies", "screen_stage"]
 
@@ -74,8 +74,8 @@ def core_plans(st: SolveState, screen: Screen, sub_solve: SubSolve) -> None:
         cap = min(run.best_obj, screen.bound + width * abs(screen.bound))
         core = screen.keep(cap)
         core[np.arange(problem.n_units), run.best] = True
-        plan = sub_solve(problem.replace(forbidden=problem.forbidden | ~core), st.gap, budget,
-                         run.best, st.cancel)
+        plan = sub_solve(problem.replace(forbidden=problem.forbidden | ~core),
+                         max(st.gap, CORE_STOP_GAP), budget, run.best, st.cancel)
         # a plan with a pair outside the core costs more than cap (its floor), any other
         # at least the core's bound: the lesser is a bound on the whole problem
         run.bound = max(run.bound, min(plan.bound, cap))

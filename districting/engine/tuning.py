@@ -150,3 +150,6 @@ SCREEN_MIN_PAIRS = 30_000
 #: first, each core solved in this share of the time left.
 CORE_GAPS = (0.002, 0.01)
 CORE_SHARE = 0.3
+#: A core's solve ends once its plan is within this share of its own bound: its plan is
+#: what it is for, and the model of the whole problem proves the rest.
+CORE_STOP_GAP = 2e-3
