@@ -4,12 +4,13 @@ On a large model with candidate sites the strong linking rows ``x[i, j] <= y[j]`
 row per pair, and the LP relaxation of all of them is slow (Lorena & Senne's SJC4a: 162,006
 columns and 162,410 rows, 31 s with HiGHS's dual simplex on this 2-core machine). Most
 pairs join a site far away and never carry a good plan. So the LP is solved over a subset
-S of the columns (each unit's ``NEAREST`` cheapest pairs, the pairs of a known plan, every
-non-pair column) with the rows S touches, and the rest are priced out, as in the column
-generation of any LP with many columns (Dantzig & Wolfe 1960; for location models, the
-"pricing of the assignment variables" of Beltran-Royo, Vial & Alonso-Ayuso, Computational
-Optimization and Applications 51, 2012, and of Avella, Boccia, Sforza & Vasil'ev, Journal
-of Heuristics 15, 2009):
+S of the columns (each unit's ``SCREEN_NEAREST`` cheapest pairs, the pairs of a known plan,
+every non-pair column) with the rows S touches, and the rest are priced out, as in column
+generation over the columns of any large LP (Dantzig & Wolfe, "Decomposition principle for
+linear programs", Operations Research 8, 1960). Keeping a large location model's working
+core small this way follows Avella, Boccia, Sforza & Vasil'ev, "An effective heuristic for
+large-scale capacitated facility location problems", Journal of Heuristics 15, 2009 (cited
+from memory):
 
 - any row multipliers ``y`` of the right signs give the Lagrangian bound of the FULL model
   (rows left out of the LP count with ``y = 0``)::
@@ -113,12 +114,15 @@ def screen_pairs(problem: Problem, drop: np.ndarray | None, plan: np.ndarray,
     present[:k] = _nearest(cost[:k], f.xi, problem.n_units, nearest)
     present[:k] |= f.vector(plan)[:k] > 0.5
     present[:k] |= col_lo[:k] > 0.5
-    pair_rows = a[:, :k].tocsr()
+    pair_rows = abs(a[:, :k].tocsr())
     touches = np.diff(pair_rows.indptr) > 0
 
     def rows_for(cols: np.ndarray) -> np.ndarray:
-        """Rows with a pair column in ``cols`` (a mask), and rows without pair columns."""
-        return ((abs(pair_rows) @ cols[:k].astype(float)) > 0) | ~touches
+        """Rows with a pair column in ``cols`` (a mask over all columns), and every row
+        without pair columns (the count, the cover). A row whose pairs are all left out (a
+        linking row; a site's band before any of its pairs enters) waits until one enters:
+        leaving a row out only relaxes the LP, and the bound counts it with y = 0."""
+        return ((pair_rows @ cols[:k].astype(float)) > 0) | ~touches
 
     h = _quiet_highs()
     h.setOptionValue("presolve", "off")
