@@ -45,7 +45,7 @@ __all__ = ["Screen", "screen_pairs", "lagrangian_bound"]
 
 @dataclass(frozen=True)
 class Screen:
-    """What pricing proved: the full LP's optimum (no column prices negative at its duals),
+    """What pricing proved: a bound on the whole model (its LP optimum once converged),
     the LP point and a floor per pair."""
 
     bound: float  # a lower bound on every plan of the full model
@@ -55,6 +55,10 @@ class Screen:
     rounds: int  # LP solves
     columns: int  # columns of the last LP
     seconds: float
+    #: no column priced negative: ``bound`` is the whole LP's optimum and ``value`` its
+    #: point. When the clock stopped pricing first, ``bound`` and ``floor`` still hold
+    #: (at the duals of the best LP solved) but ``value`` is zero.
+    converged: bool = True
 
     def keep(self, ub: float) -> np.ndarray:
         """(n, m) bool: the pairs a plan costing at most ``ub`` may use."""
@@ -91,12 +95,13 @@ def _nearest(cost: np.ndarray, xi: np.ndarray, n: int, k: int) -> np.ndarray:
 
 
 def screen_pairs(problem: Problem, drop: np.ndarray | None, plan: np.ndarray,
-                 deadline: float, nearest: int = SCREEN_NEAREST) -> Screen | None:
+                 deadline: float, nearest: int = SCREEN_NEAREST,
+                 max_rounds: int | None = None) -> Screen | None:
     """Price the LP of ``formulate(problem, drop)`` from a few pairs per unit and the pairs
     of the valid ``plan``; the screen's floors then say which pairs a plan may use.
 
-    Returns None when pricing does not finish before ``deadline`` (the full model is then
-    built as before).
+    Pricing stops at ``deadline`` or after ``max_rounds`` LP solves; returns None when not
+    even the first LP finishes.
     """
     import highspy
 
@@ -143,22 +148,25 @@ def screen_pairs(problem: Problem, drop: np.ndarray | None, plan: np.ndarray,
     lp.a_matrix_.value_ = sub.data
     h.passModel(lp)
     n_rows, n_cols = len(rows), len(cols)
-    rounds = 0
-    while True:
-        left = deadline - time.monotonic()
-        if left <= 0:
-            return None
-        h.setOptionValue("time_limit", float(left))
+    rounds, best, converged = 0, None, False
+    while time.monotonic() < deadline and (max_rounds is None or rounds < max_rounds):
+        h.setOptionValue("time_limit", float(deadline - time.monotonic()))
         h.run()
         rounds += 1
         if h.getModelStatus() != highspy.HighsModelStatus.kOptimal:
-            return None  # the full model is then built whole
+            break
         y = np.zeros(a.shape[0])
         on = model_row >= 0
         y[on] = np.asarray(h.getSolution().row_dual)[model_row[on]]
         lb, rc = lagrangian_bound(cost, a, row_lo, row_hi, col_lo, col_hi, y)
+        if best is None or lb >= best[0]:  # the last LP, once converged, is the best
+            xv = np.zeros(k)
+            inside = model_col[:k] >= 0
+            xv[inside] = np.asarray(h.getSolution().col_value)[model_col[:k][inside]]
+            best = (lb, rc, y, xv)
         enter = np.flatnonzero(~present & (rc < -max(1.0, abs(lb)) * 1e-9))
         if not len(enter):
+            converged = True
             break
         # the most negative few per unit (all of them at once can be most of the model)
         enter = enter[_nearest(rc[enter], f.xi[enter], problem.n_units, SCREEN_ADD)]
@@ -183,12 +191,14 @@ def screen_pairs(problem: Problem, drop: np.ndarray | None, plan: np.ndarray,
                       starts, model_col[nr.indices[live]].astype(np.int32), nr.data[live])
             model_row[new_rows] = n_rows + np.arange(len(new_rows))
             n_rows += len(new_rows)
-    xv = np.asarray(h.getSolution().col_value)
+    if best is None:
+        return None
+    lb, rc, y, xv = best
     shape = (problem.n_units, problem.n_sites)
     floor = np.full(shape, np.inf)
     floor[f.xi, f.xj] = np.where(col_lo[:k] > 0.5, -np.inf, lb + np.maximum(rc[:k], 0.0))
     value = np.zeros(shape)
-    on = np.flatnonzero(model_col[:k] >= 0)
-    value[f.xi[on], f.xj[on]] = xv[model_col[on]]
+    if converged:
+        value[f.xi, f.xj] = xv
     return Screen(lb, floor, value, y[: problem.n_units].copy(), rounds, n_cols,
-                  time.monotonic() - t0)
+                  time.monotonic() - t0, converged)

@@ -51,15 +51,19 @@ def screen_applies(problem: Problem, run: Run) -> bool:
 
 
 def screen_stage(st: SolveState, drop: np.ndarray | None, sub_solve: SubSolve) -> Screen | None:
-    """The screen within ``LP_SHARE`` of the time left (its bound taken), then the core
-    plans; None when pricing did not finish (the whole model is built as before)."""
+    """The screen within ``LP_SHARE`` of the time left (its bound taken, also when the
+    clock stopped pricing), then the core plans; None when pricing did not finish (the
+    whole model is then built as before)."""
     run = st.run
     left = run.left()
     deadline = np.inf if left is None else time.monotonic() + LP_SHARE * left
     screen = screen_pairs(st.problem, drop, run.best, deadline)
-    if screen is not None:
-        run.bound = max(run.bound, screen.bound)
-        core_plans(st, screen, sub_solve)
+    if screen is None:
+        return None
+    run.bound = max(run.bound, screen.bound)
+    if not screen.converged:
+        return None  # its bound holds, but the model is built whole (no LP point to adopt)
+    core_plans(st, screen, sub_solve)
     return screen
 
 

@@ -106,6 +106,23 @@ def test_the_adopted_lp_fixes_no_pair_of_an_optimal_plan():
     assert (route.upper[route.column(np.arange(len(dem)), pub)] == 1).all()
 
 
+def test_a_screen_stopped_early_still_bounds_and_keeps_the_optimal_pairs():
+    # Osman & Christofides (1994) instance 1, pricing stopped after the first LP: the bound
+    # lies below the LP optimum (hand-written LP), the floors still keep the published
+    # optimal plan's pairs at its cost, and no LP point is handed on
+    k = 1
+    dist, dem, p, q, opt = osman_instance(k)
+    problem = capacitated(dist, dem, p, q)
+    pub = published_assignment(next((DATA / "orlib_pmedcap" / "solutions_lit").glob(
+        f"solOPT.cpmp{k:02d}_*.json")))
+    screen = screen_pairs(problem, None, median_start(problem, None, 0.5), np.inf,
+                          nearest=2, max_rounds=1)
+    assert screen is not None and not screen.converged
+    assert screen.bound < strong_lp(dist, dem, p, q) - 1e-6
+    assert screen.keep(opt)[np.arange(len(dem)), pub].all()
+    assert not screen.value.any()
+
+
 def test_lagrangian_bound_holds_at_any_multipliers():
     # weak duality: at random multipliers the bound stays at or below the LP optimum
     dist, dem, p, q, _ = osman_instance(1)
