@@ -53,6 +53,15 @@ def strong_lp(dist: np.ndarray, dem: np.ndarray, p: int, cap: float,
     return float(res.fun)
 
 
+def published(k: int):
+    """Osman & Christofides (1994) instance k as a problem, with its distances, demand,
+    published optimum and published optimal assignment."""
+    dist, dem, p, q, opt = osman_instance(k)
+    pub = published_assignment(next((DATA / "orlib_pmedcap" / "solutions_lit").glob(
+        f"solOPT.cpmp{k:02d}_*.json")))
+    return capacitated(dist, dem, p, q), dist, dem, opt, pub
+
+
 def test_the_bound_is_the_lp_of_the_strong_formulation():
     # Osman & Christofides (1994) instance 1 (n=50, p=5, Q=120): the LP written by hand
     dist, dem, p, q, _ = osman_instance(1)
@@ -93,11 +102,7 @@ def test_the_adopted_lp_fixes_no_pair_of_an_optimal_plan():
     # Osman & Christofides (1994) instance 4: the model holds the LP the screen priced;
     # fixing by reduced cost against the published optimum keeps the published optimal
     # plan's pairs (a wrong reduced cost would fix them and "prove" a worse plan)
-    k = 4
-    dist, dem, p, q, opt = osman_instance(k)
-    problem = capacitated(dist, dem, p, q)
-    pub = published_assignment(next((DATA / "orlib_pmedcap" / "solutions_lit").glob(
-        f"solOPT.cpmp{k:02d}_*.json")))
+    problem, _dist, dem, opt, pub = published(4)
     screen = screen_pairs(problem, None, median_start(problem, None, 0.5), np.inf)
     route = HighsRoute(problem)
     route.adopt_relaxation(screen.bound, screen.value, screen.floor, screen.unit_duals)
@@ -110,15 +115,11 @@ def test_a_screen_stopped_early_still_bounds_and_keeps_the_optimal_pairs():
     # Osman & Christofides (1994) instance 1, pricing stopped after the first LP: the bound
     # lies below the LP optimum (hand-written LP), the floors still keep the published
     # optimal plan's pairs at its cost, and no LP point is handed on
-    k = 1
-    dist, dem, p, q, opt = osman_instance(k)
-    problem = capacitated(dist, dem, p, q)
-    pub = published_assignment(next((DATA / "orlib_pmedcap" / "solutions_lit").glob(
-        f"solOPT.cpmp{k:02d}_*.json")))
+    problem, dist, dem, opt, pub = published(1)
     screen = screen_pairs(problem, None, median_start(problem, None, 0.5), np.inf,
                           nearest=2, max_rounds=1)
     assert screen is not None and not screen.converged
-    assert screen.bound < strong_lp(dist, dem, p, q) - 1e-6
+    assert screen.bound < strong_lp(dist, dem, problem.p, float(problem.capacity[0])) - 1e-6
     assert screen.keep(opt)[np.arange(len(dem)), pub].all()
     assert not screen.value.any()
 
@@ -194,10 +195,8 @@ def test_a_solve_with_the_screen_proves_published_optima(monkeypatch, k):
 
     monkeypatch.setattr(stage_module, "SCREEN_MIN_PAIRS", 0)
     monkeypatch.setattr(stage_module, "screen_pairs", spy)
-    dist, dem, p, q, opt = osman_instance(k)
-    pub = published_assignment(next((DATA / "orlib_pmedcap" / "solutions_lit").glob(
-        f"solOPT.cpmp{k:02d}_*.json")))
-    plan = Session(capacitated(dist, dem, p, q)).solve(gap=1e-7, time_limit=60)
+    problem, dist, dem, opt, pub = published(k)
+    plan = Session(problem).solve(gap=1e-7, time_limit=60)
     assert plan.status == "optimal"
     assert dist[np.arange(len(dem)), plan.assignment].sum() == pytest.approx(opt)
     assert calls and calls[0] is not None
