@@ -144,7 +144,8 @@ TREE_MAX_SITES = 8
 SCREEN_NEAREST = 8
 SCREEN_ADD = 16
 #: ... and it runs when the model has at least this many pairs of candidate sites (each a
-#: linking row; below, the whole LP is quick: Osman & Christofides' 10,000 pairs 0.2 s).
+#: linking row). Below, the whole LP is quick (Osman & Christofides' 10,000 pairs: 0.2 s),
+#: and on those instances the screen with its cores was mixed (screen_stage's docstring).
 SCREEN_MIN_PAIRS = 30_000
 #: Core plans after the screen: the pairs within these shares of the LP bound, narrowest
 #: first, each core solved in this share of the time left.
