@@ -94,6 +94,12 @@ def _nearest(cost: np.ndarray, xi: np.ndarray, n: int, k: int) -> np.ndarray:
     return pick
 
 
+def _kept_starts(live: np.ndarray, indptr: np.ndarray) -> np.ndarray:
+    """Where each slice of a compressed matrix starts once only its ``live`` entries are
+    kept (the entries on rows or columns already in the LP)."""
+    return np.concatenate([[0], np.cumsum(live)])[indptr[:-1]].astype(np.int32)
+
+
 def screen_pairs(problem: Problem, drop: np.ndarray | None, plan: np.ndarray,
                  deadline: float, nearest: int = SCREEN_NEAREST,
                  max_rounds: int | None = None) -> Screen | None:
@@ -175,20 +181,16 @@ def screen_pairs(problem: Problem, drop: np.ndarray | None, plan: np.ndarray,
         n_cols += len(enter)
         block = a[:, enter].tocsc()  # entries in rows already in the LP
         live = model_row[block.indices] >= 0
-        counts = np.add.reduceat(np.append(live, False).astype(np.int64),
-                                 block.indptr[:-1]) * (np.diff(block.indptr) > 0)
-        starts = np.concatenate([[0], np.cumsum(counts)[:-1]]).astype(np.int32)
         h.addCols(len(enter), cost[enter], col_lo[enter], col_hi[enter], int(live.sum()),
-                  starts, model_row[block.indices[live]].astype(np.int32), block.data[live])
+                  _kept_starts(live, block.indptr),
+                  model_row[block.indices[live]].astype(np.int32), block.data[live])
         new_rows = np.flatnonzero(rows_for(present) & (model_row < 0))
         if len(new_rows):
             nr = a[new_rows].tocsr()
             live = model_col[nr.indices] >= 0
-            counts = np.add.reduceat(np.append(live, False).astype(np.int64),
-                                     nr.indptr[:-1]) * (np.diff(nr.indptr) > 0)
-            starts = np.concatenate([[0], np.cumsum(counts)[:-1]]).astype(np.int32)
             h.addRows(len(new_rows), row_lo[new_rows], row_hi[new_rows], int(live.sum()),
-                      starts, model_col[nr.indices[live]].astype(np.int32), nr.data[live])
+                      _kept_starts(live, nr.indptr),
+                      model_col[nr.indices[live]].astype(np.int32), nr.data[live])
             model_row[new_rows] = n_rows + np.arange(len(new_rows))
             n_rows += len(new_rows)
     if best is None:
