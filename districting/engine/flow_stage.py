@@ -15,7 +15,7 @@ prove slowly:
   PySCIPOpt is missing: up to ``FLOW_MAX_SITES`` sites and ``FLOW_MAX_ARCS`` flow arcs.
 
 The stage runs once, when the best plan is still far above the bound or the exact rounds
-stopped lifting the bound (:func:`~districting.engine.session._bound_stalls`), for a share
+stopped lifting the bound (:func:`~districting.engine.rounds.bound_stalls`), for a share
 ``FLOW_SHARE`` of the time left; its plan is kept when better (checked by the independent
 connectivity check like every plan) and its bound when tighter. The exact rounds then use the
 rest of the time. Along the demo's streets the rounds prove these levels in 2-6 s without it

@@ -19,14 +19,14 @@ Stages of :meth:`Session.solve`, passing a :class:`~districting.engine.run.Solve
    (a restart from the relaxed optimum, repaired);
 3. ``_first_heuristics`` -- on a model above ``LNS_BIG`` columns the large-neighbourhood
    search runs at once; without a valid start, fix-and-resolve gives the first plan;
-4. ``_exact_rounds`` -- the MIP with the cuts so far, warm-started from the best valid plan;
-   each answer is repaired into a plan (an upper bound; the MIP bound is a lower bound as
-   every cut is valid) and its violated separator cuts are added (Validi, Buchanan &
-   Lykhovyd, Operations Research 70(2), 2022), until the gap is within the request. When a
-   plan stays far above the bound on a problem with few sites (before the first round or
-   after a repair), or a round stops lifting the bound, a second exact route (the SCIP
-   tree, or the flow formulation: :mod:`~districting.engine.flow_stage`) is raced once
-   from the best plan.
+4. :func:`~districting.engine.rounds.exact_rounds` -- the MIP with the cuts so far,
+   warm-started from the best valid plan; each answer is repaired into a plan (an upper
+   bound; the MIP bound is a lower bound as every cut is valid) and its violated separator
+   cuts are added (Validi, Buchanan & Lykhovyd, Operations Research 70(2), 2022), until
+   the gap is within the request. When a plan stays far above the bound on a problem with
+   few sites (before the first round or after a repair), or a round stops lifting the
+   bound, a second exact route (the SCIP tree, or the flow formulation:
+   :mod:`~districting.engine.flow_stage`) is raced once from the best plan.
 
 Columns are removed only with a proof: a pair whose students exceed the site's upper
 capacity in some year is never a column, and after a valid plan of cost UB is known,
@@ -42,23 +42,20 @@ import numpy as np
 
 from ..plan import Plan, Round
 from ..problem import Problem, _same_array
-from .connectivity import Cut, UnitGraph, fragments, free_units, plan_checks
-from .cuts import separator_cuts
+from .connectivity import Cut, UnitGraph, free_units, plan_checks
 from .findings import no_plan_text
 from .flow_stage import flow_applies, flow_stage
 from .greedy import median_start
 from .heuristics import constructive, fix_and_resolve, prepare_start, rounded
 from .highs_route import HighsRoute
-from .improve import relocate
 from .neighbourhood import reoptimise
 from .pair_screen import Screen
 from .precheck import precheck
-from .repair import make_valid, reassign_empty, repair
+from .repair import make_valid
+from .rounds import Steps, exact_rounds, model_columns
 from .run import Run, SolveState, failed_plan, infeasible_plan
 from .screen_stage import screen_applies, screen_stage
 from .tuning import (
-    FIRST_ROUND_MIN,
-    FIRST_ROUND_SHARE,
     FREE_MAX,
     FREE_SHARE,
     LNS_BIG,
@@ -69,9 +66,6 @@ from .tuning import (
     PROBE_LIMIT,
     ROOT_MAX,
     ROOT_SHARE,
-    ROUND_SETUP_PER_COLUMN,
-    STALL_ROUNDS,
-    STALL_SHARE,
     START_MAX,
     START_SHARE,
 )
@@ -108,20 +102,6 @@ def _start_seconds(run) -> float:
     """Seconds for the start's local search: a tenth of the time left, at most START_MAX."""
     left = run.left()
     return START_MAX if left is None else max(0.0, min(START_MAX, START_SHARE * left))
-
-
-def _bound_stalls(best: float, bounds: list[float]) -> bool:
-    """The last ``STALL_ROUNDS`` exact rounds (``bounds``: the bound after each) lifted the
-    bound by less than ``STALL_SHARE`` of the gap still open below ``best``."""
-    if len(bounds) <= STALL_ROUNDS or not np.isfinite(best):
-        return False
-    open_gap = best - bounds[-1]
-    return open_gap > 0 and bounds[-1] - bounds[-1 - STALL_ROUNDS] < STALL_SHARE * open_gap
-
-
-def _columns(backend) -> int:
-    """Columns of the model (0 when the route does not say)."""
-    return int(getattr(backend, "ncol", 0))
 
 
 def exact_subsolve(problem: Problem, gap: float, time_limit: float | None,
@@ -236,7 +216,8 @@ class Session:
         self._free_restart(st)
         self._first_heuristics(st)
         self._race_flow(st)
-        return self._finish(self._exact_rounds(st, max_rounds))
+        steps = Steps(self.solver, self._race_flow, self._rebuild_full, self._neighbourhoods)
+        return self._finish(exact_rounds(st, steps, max_rounds))
 
     def _scip_tree(self, gap, time_limit, progress, cancel, start) -> Plan:
         """The whole solve in one SCIP tree, warm-started from ``start`` or the last plan,
@@ -355,7 +336,7 @@ class Session:
         can stall HiGHS, only when nothing else found a plan).
         """
         backend, run = st.backend, st.run
-        st.big = _columns(backend) > LNS_BIG
+        st.big = model_columns(backend) > LNS_BIG
         st.lns_done = not (st.graph is not None and self.heuristics
                            and st.problem.n_sites > LNS_MIN_SITES)
         if not st.lns_done and st.big and run.best is not None:
@@ -363,118 +344,13 @@ class Session:
             self._neighbourhoods(st)
             backend.fix_by_reduced_cost(run.best_obj)
         st.fix_done = not self.heuristics or (
-            run.best is not None and _columns(backend) > PROBE_LIMIT and st.graph is not None)
+            run.best is not None and model_columns(backend) > PROBE_LIMIT and st.graph is not None)
         if (not st.fix_done and not st.given and backend.relaxation() is not None
                 and (run.best is None or st.far())):
             st.fix_done = True
             fix_and_resolve(st)
             if run.best is not None:
                 backend.fix_by_reduced_cost(run.best_obj)
-
-    def _exact_rounds(self, st: SolveState, max_rounds: int) -> Plan:
-        """Stage 4: exact rounds on the model without any heuristic restriction (separator
-        cuts only), each warm-started from the best valid plan, until the gap is within the
-        request; the heuristics run (once each) when a round's plan is still far off."""
-        problem, run, gap, cancel = st.problem, st.run, st.gap, st.cancel
-        fixed_at = run.best_obj
-        for _ in range(max_rounds):
-            if run.best is not None and run.gap() <= gap + 1e-12:
-                st.status = "optimal"
-                break
-            if cancel is not None and cancel():
-                st.status = "cancelled"
-                break
-            left = run.left()
-            if left is not None and (left <= 0 or (
-                    run.best is not None
-                    and left < ROUND_SETUP_PER_COLUMN * _columns(st.backend))):
-                st.status = "time_limit"  # a round could not start before the limit
-                break
-            if run.best_obj < fixed_at:
-                st.backend.fix_by_reduced_cost(run.best_obj)
-                fixed_at = run.best_obj
-            st.backend.unrestrict()
-            # until a valid plan exists, cap each round so the repair and the heuristic get
-            # their turn well before the time limit (the MIP's incumbent is good enough)
-            budget = left if run.best is not None or left is None else max(
-                FIRST_ROUND_MIN, FIRST_ROUND_SHARE * left)
-            ans = st.backend.solve(gap, budget, run.best if run.best is not None else st.hint,
-                                   cancel)
-            if ans.status == "infeasible":
-                if run.best is None:
-                    from .diagnose import explain  # Pyomo only when needed (see above)
-
-                    message = explain(problem) or ans.message
-                    return infeasible_plan(problem, message, self.solver, run.rounds,
-                                           run.history, run.build, run.elapsed())
-                run.bound = run.best_obj  # every cut and fix is valid: nothing beats the plan
-                st.status = "optimal"
-                break
-            if ans.status == "error":
-                st.message = ans.message
-                if run.best is None:
-                    return failed_plan(problem, st.message, self.solver)
-                break
-            if ans.status in ("optimal", "time_limit", "cancelled", "feasible"):
-                run.bound = max(run.bound, ans.bound)
-            n_frag, added = 0, 0
-            if ans.assignment is not None:
-                n_frag, added = self._take_answer(st, ans.assignment)
-            run.record(max(added, 0), n_frag)
-            st.round_bounds.append(run.bound)
-            if run.gap() > gap + 1e-12 and _bound_stalls(run.best_obj, st.round_bounds):
-                self._race_flow(st, stalled=True)
-            if run.best is not None and run.gap() <= gap + 1e-12:
-                st.status = "optimal"
-                break
-            if ans.status == "cancelled":
-                st.status = "cancelled"
-                break
-            if ans.status == "time_limit" and run.left() is not None and run.left() <= 1e-3:
-                st.status = "time_limit"
-                break
-            if added == 0 and ans.assignment is not None and st.graph is not None:
-                # the MIP answer is contiguous after re-handing empty units, yet the gap
-                # is open: only the MIP's own gap is left; solving again cannot add cuts
-                if ans.status == "optimal":
-                    break
-            if st.graph is None and ans.status == "optimal":
-                break
-        else:
-            st.status = "feasible"
-        st.backend.unrestrict()
-        return run.plan(st.status, st.message, self.solver, len(self.cuts), gap)
-
-    def _take_answer(self, st: SolveState, a: np.ndarray) -> tuple[int, int]:
-        """One exact answer: kept when valid, else its cuts added and repaired into plans
-        (the heuristics run when no plan is known or, once each, when the plan is far off).
-        Returns (fragments, cuts added; -1 when the model was rebuilt)."""
-        problem, graph, run = st.problem, st.graph, st.run
-        if graph is None:
-            run.consider(a)
-            return 0, 0
-        n_frag, added = len(fragments(problem, graph, a)), 0
-        b, detached = reassign_empty(problem, graph, a)
-        if detached.any() or not run.consider(b):
-            cuts = separator_cuts(problem, graph, a, only=detached, passable=st.passable,
-                                  strict=st.relaxed)
-            added = st.backend.add_cuts(cuts)
-            self.cuts.extend(cuts)
-            if st.relaxed and added == 0:
-                added = self._rebuild_full(st)
-            fixed = repair(problem, graph, a)
-            if fixed is not None:
-                run.consider(relocate(problem, graph, fixed))
-            run.consider(make_valid(problem, graph, a))
-            far = run.best is None or (not st.fix_done and st.far())
-            if far and st.backend.relaxation() is not None:
-                st.fix_done = True
-                fix_and_resolve(st)
-        if not st.lns_done and run.best is not None and st.far():
-            st.lns_done = True
-            self._neighbourhoods(st)
-        self._race_flow(st)
-        return n_frag, added
 
     def _race_flow(self, st: SolveState, stalled: bool = False) -> None:
         """The race stage, once, on a problem with few sites
