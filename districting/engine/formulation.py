@@ -14,7 +14,8 @@ without pairs whose students exceed the site's upper capacity in some year: such
 never be used), then ``y[j]`` (binary) for every candidate site. Always-open sites have no
 ``y`` column (``y[j] = 1`` is a constant); closed sites have neither. With a limit on split
 feeders, ``z[g, j]`` (binary: lower zone g feeds site j) follow, one per pair some unit of
-g may use (:func:`split_columns`).
+g may use (:func:`split_columns`). The columns and :class:`RowBlock` are in
+:mod:`districting.engine.formulation_columns`.
 
 Each row family is one function (its formula in its docstring) returning a
 :class:`RowBlock`; :func:`formulate` calls them in a fixed order (the row order matters to
@@ -25,161 +26,20 @@ every row (no dominated rows left out) so a slack per row can say by how much it
 from __future__ import annotations
 
 from collections.abc import Iterable, Sequence
-from dataclasses import dataclass, field
 
 import numpy as np
-import scipy.sparse as sp
 
 from ..problem import Problem
-from ..rules import open_sites, seat_limits
+from ..rules import seat_limits
 from .connectivity import Cut
+from .formulation_columns import Formulation, RowBlock, block, columns
 from .tuning import LINK_LIMIT, TOL
 
-__all__ = ["RowBlock", "Formulation", "formulate", "separator_rows", "feeder_rows",
+__all__ = ["RowBlock", "Formulation", "columns", "formulate", "separator_rows", "feeder_rows",
            "split_columns", "split_rows", "ELASTIC_FAMILIES"]
 
 #: Families that can be built with a slack (``elastic=``).
 ELASTIC_FAMILIES = ("capacity", "floor", "locks", "max_moved", "transport", "groups")
-
-
-@dataclass(frozen=True)
-class RowBlock:
-    """Rows of one family: ``lo[r] <= sum_k coef x_k <= hi[r]`` over entries (row, col, coef).
-
-    ``keys[r]`` names row r in the family's own index (a unit, a (row t, site j) pair...).
-    """
-
-    family: str
-    row: np.ndarray
-    col: np.ndarray
-    coef: np.ndarray
-    lo: np.ndarray
-    hi: np.ndarray
-    keys: tuple = ()
-
-    @property
-    def n_rows(self) -> int:
-        return len(self.lo)
-
-
-def _block(family: str, parts: list[tuple], keys: Sequence = ()) -> RowBlock:
-    """A block from per-row parts (cols, coefs, lo, hi)."""
-    rows, cols, vals, lo, hi = [], [], [], [], []
-    for r, (c, v, a, b) in enumerate(parts):
-        c = np.asarray(c, np.int64)
-        rows.append(np.full(len(c), r, np.int64))
-        cols.append(c)
-        vals.append(np.asarray(v, float))
-        lo.append(float(a))
-        hi.append(float(b))
-    if not parts:
-        return RowBlock(family, np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0),
-                        np.zeros(0), np.zeros(0), ())
-    return RowBlock(family, np.concatenate(rows), np.concatenate(cols), np.concatenate(vals),
-                    np.array(lo), np.array(hi), tuple(keys))
-
-
-@dataclass
-class Formulation:
-    """Columns (x pairs, then y of candidates), their bounds and costs, and the row blocks."""
-
-    problem: Problem
-    drop: np.ndarray  # units left out (no students; handed out after each answer)
-    xi: np.ndarray  # unit of x column k
-    xj: np.ndarray  # site of x column k
-    colmap: np.ndarray  # (n, m) x column of a pair, -1 without one
-    ycol: np.ndarray  # (m,) y column of a candidate site, -1 otherwise
-    cost: np.ndarray
-    lower: np.ndarray
-    upper: np.ndarray
-    elastic: frozenset = frozenset()
-    blocks: list[RowBlock] = field(default_factory=list)
-    infeasible_reason: str = ""
-    zg: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))  # z column: group
-    zj: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))  # z column: site
-    zcol: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))  # its column
-
-    def split_on(self, assignment: np.ndarray) -> np.ndarray:
-        """The z columns a plan sets to 1 (each lower zone's sites), for a start vector."""
-        g = self.problem.feeder_groups
-        if not len(self.zcol) or g is None:
-            return np.zeros(0, np.int64)
-        a = np.asarray(assignment, np.int64)
-        used = {(int(k), int(j)) for k, j in zip(g, a, strict=True) if k >= 0 and j >= 0}
-        return np.array([c for k, j, c in zip(self.zg.tolist(), self.zj.tolist(),
-                                               self.zcol.tolist(), strict=True)
-                         if (k, j) in used], np.int64)
-
-    def vector(self, assignment: np.ndarray) -> np.ndarray:
-        """Column values of a plan: x of its pairs, y of its open candidates, its z."""
-        a = np.asarray(assignment, np.int64)
-        x = np.zeros(self.ncol)
-        has = np.flatnonzero(a >= 0)
-        c = self.colmap[has, a[has]]
-        x[c[c >= 0]] = 1.0
-        opened = open_sites(self.problem, a)
-        x[self.ycol[opened & (self.ycol >= 0)]] = 1.0
-        x[self.split_on(a)] = 1.0
-        return x
-
-    @property
-    def ncol(self) -> int:
-        return len(self.cost)
-
-    @property
-    def n_pairs(self) -> int:
-        return len(self.xi)
-
-    def matrix(self) -> tuple[sp.csc_matrix, np.ndarray, np.ndarray]:
-        """(A, row lower, row upper) of every block in order."""
-        rows, cols, vals, lo, hi = [], [], [], [], []
-        nrow = 0
-        for b in self.blocks:
-            rows.append(b.row + nrow)
-            cols.append(b.col)
-            vals.append(b.coef)
-            lo.append(b.lo)
-            hi.append(b.hi)
-            nrow += b.n_rows
-        a = sp.csc_matrix((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
-                          shape=(nrow, self.ncol))
-        a.sum_duplicates()
-        return a, np.concatenate(lo), np.concatenate(hi)
-
-
-# ---------------------------------------------------------------------------- columns
-def columns(problem: Problem, drop: np.ndarray | None = None,
-            elastic: Iterable[str] = ()) -> Formulation:
-    """x[i, j] for allowed pairs of units not in ``drop``, then y[j] for candidates.
-
-    A pair whose students exceed u_max[j] Q[j] in some year is left out (x = 0 in every
-    plan), except a locked pair (its infeasibility is reported, not hidden) and when the
-    capacity family is elastic. With elastic locks the pairs a lock removes stay in.
-    Cost: w[i, j] on x, 0 on y; bounds [0, 1].
-    """
-    elastic = frozenset(elastic)
-    n, m = problem.n_units, problem.n_sites
-    drop = np.zeros(n, bool) if drop is None else np.asarray(drop, bool)
-    source = problem.replace(locks=np.full(n, -1)) if "locks" in elastic else problem
-    ok = source.allowed & ~drop[:, None]
-    if problem.capacity is not None and "capacity" not in elastic:
-        hi = seat_limits(problem)[1]
-        ok &= ~(problem.demand[:, :, None] > hi[None, None, :] + TOL).any(axis=0)
-        if problem.locks.max(initial=-1) >= 0:
-            li = np.flatnonzero(problem.locks >= 0)
-            ok[li, problem.locks[li]] = problem.allowed[li, problem.locks[li]]
-    xi, xj = np.nonzero(ok)
-    k = len(xi)
-    colmap = np.full((n, m), -1, np.int64)
-    colmap[xi, xj] = np.arange(k)
-    cand = np.flatnonzero(problem.candidates)
-    ycol = np.full(m, -1, np.int64)
-    ycol[cand] = k + np.arange(len(cand))
-    ncol = k + len(cand)
-    cost = np.zeros(ncol)
-    cost[:k] = problem.weighted_cost[xi, xj]
-    return Formulation(problem, drop, xi, xj, colmap, ycol, cost, np.zeros(ncol),
-                       np.ones(ncol), elastic)
 
 
 # ---------------------------------------------------------------------------- rows
@@ -204,7 +64,7 @@ def linking_rows(f: Formulation) -> RowBlock:
     ci = np.flatnonzero(f.ycol[f.xj] >= 0)
     aggregate = f.problem.capacity is not None and "capacity" not in f.elastic
     if not len(ci) or (len(ci) > LINK_LIMIT and aggregate):
-        return _block("linking", [])
+        return block("linking", [])
     r = np.arange(len(ci))
     return RowBlock("linking", np.concatenate([r, r]),
                     np.concatenate([ci, f.ycol[f.xj[ci]]]),
@@ -218,9 +78,9 @@ def count_row(f: Formulation) -> RowBlock:
     p = f.problem
     cand = np.flatnonzero(p.candidates)
     if p.p is None or not (f.ycol[f.xj] >= 0).any():
-        return _block("count", [])
+        return block("count", [])
     rest = p.p - int(p.always_open.sum())
-    return _block("count", [(f.ycol[cand], np.ones(len(cand)), rest, rest)], [0])
+    return block("count", [(f.ycol[cand], np.ones(len(cand)), rest, rest)], [0])
 
 
 def root_rows(f: Formulation) -> RowBlock:
@@ -230,7 +90,7 @@ def root_rows(f: Formulation) -> RowBlock:
     p = f.problem
     parts, keys = [], []
     if p.roots is None:
-        return _block("roots", [])
+        return block("roots", [])
     for j in np.flatnonzero(p.roots >= 0).tolist():
         r = int(p.roots[j])
         c = f.colmap[r, j]
@@ -247,7 +107,7 @@ def root_rows(f: Formulation) -> RowBlock:
         else:
             parts.append(([c, f.ycol[j]], [1.0, -1.0], 0.0, 0.0))
             keys.append(j)
-    return _block("roots", parts, keys)
+    return block("roots", parts, keys)
 
 
 def undominated(d: np.ndarray, larger: bool) -> list[int]:
@@ -278,12 +138,12 @@ def band_rows(f: Formulation, upper_side: bool) -> RowBlock:
     p = f.problem
     family = "capacity" if upper_side else "floor"
     if p.capacity is None:
-        return _block(family, [])
+        return block(family, [])
     share = p.max_util if upper_side else p.min_util
     bound = share * p.capacity
     elastic = family in f.elastic
     if not upper_side and not elastic and not np.any(bound > TOL):
-        return _block(family, [])
+        return block(family, [])
     years = range(p.n_years) if elastic else undominated(p.demand, larger=upper_side)
     parts, keys = [], []
     for t in years:
@@ -311,7 +171,7 @@ def band_rows(f: Formulation, upper_side: bool) -> RowBlock:
                 lo, hi = (-np.inf, bound[j]) if upper_side else (bound[j], np.inf)
             parts.append((cs, vs, lo, hi))
             keys.append((t, j))
-    return _block(family, parts, keys)
+    return block(family, parts, keys)
 
 
 def cover_rows(f: Formulation) -> RowBlock:
@@ -321,7 +181,7 @@ def cover_rows(f: Formulation) -> RowBlock:
     p = f.problem
     cand = np.flatnonzero(p.candidates)
     if p.capacity is None or not len(cand) or "capacity" in f.elastic:
-        return _block("cover", [])
+        return block("cover", [])
     hi = seat_limits(p)[1]
     parts, keys = [], []
     for t in undominated(p.demand, larger=True):
@@ -329,7 +189,7 @@ def cover_rows(f: Formulation) -> RowBlock:
         if need > TOL:
             parts.append((f.ycol[cand], hi[cand], need, np.inf))
             keys.append(t)
-    return _block("cover", parts, keys)
+    return block("cover", parts, keys)
 
 
 def max_moved_row(f: Formulation) -> RowBlock:
@@ -338,13 +198,13 @@ def max_moved_row(f: Formulation) -> RowBlock:
     as moved for sure)."""
     p = f.problem
     if p.max_moved is None:
-        return _block("max_moved", [])
+        return block("max_moved", [])
     cur, d0 = p.current, p.demand[0]
     has = (cur >= 0) & (d0 > 0)
     total = float(d0[has].sum())
     c = f.colmap[np.flatnonzero(has), cur[has]]
     stay = c >= 0
-    return _block("max_moved", [(c[stay], -d0[has][stay], -np.inf, p.max_moved - total)], [0])
+    return block("max_moved", [(c[stay], -d0[has][stay], -np.inf, p.max_moved - total)], [0])
 
 
 def transport_row(f: Formulation) -> RowBlock:
@@ -352,10 +212,10 @@ def transport_row(f: Formulation) -> RowBlock:
     assigned to a school beyond their walking distance (those who need transport)."""
     p = f.problem
     if p.max_transported is None or p.walk is None:
-        return _block("transport", [])
+        return block("transport", [])
     rides = ~p.walk[f.xi, f.xj] & (p.demand[0][f.xi] > 0)
     k = np.flatnonzero(rides)
-    return _block("transport", [(k, p.demand[0][f.xi[k]], -np.inf, p.max_transported)], [0])
+    return block("transport", [(k, p.demand[0][f.xi[k]], -np.inf, p.max_transported)], [0])
 
 
 def group_rows(f: Formulation) -> RowBlock:
@@ -366,7 +226,7 @@ def group_rows(f: Formulation) -> RowBlock:
     cannot bind (s - b <= 0, s + b >= 1) and a row t without group counts (NaN)."""
     p = f.problem
     if p.groups is None or not p.group_band > 0:
-        return _block("groups", [])
+        return block("groups", [])
     parts, keys = [], []
     for g in range(p.groups.shape[0]):
         for t in range(p.n_years):
@@ -385,7 +245,7 @@ def group_rows(f: Formulation) -> RowBlock:
                         continue
                     parts.append((sel, coef[sel], lo, hi))
                     keys.append((g, t, j, side))
-    return _block("groups", parts, keys)
+    return block("groups", parts, keys)
 
 
 def lock_rows(f: Formulation) -> RowBlock:
@@ -396,9 +256,9 @@ def lock_rows(f: Formulation) -> RowBlock:
     lc = f.colmap[li, p.locks[li]]
     if "locks" not in f.elastic:
         f.lower[lc[lc >= 0]] = 1.0
-        return _block("locks", [])
+        return block("locks", [])
     ok = lc >= 0
-    return _block("locks", [([c], [1.0], 1.0, 1.0) for c in lc[ok].tolist()],
+    return block("locks", [([c], [1.0], 1.0, 1.0) for c in lc[ok].tolist()],
                   li[ok].tolist())
 
 
@@ -414,7 +274,7 @@ def feeder_rows(f: Formulation) -> RowBlock:
     p = f.problem
     g = p.feeder_groups
     if p.feeder_rule != "whole" or g is None or p.feeder_splits > 0:
-        return _block("feeder", [])
+        return block("feeder", [])
     units = np.flatnonzero((g >= 0) & ~f.drop)
     order = np.argsort(g[units], kind="stable")
     units = units[order]
@@ -462,7 +322,7 @@ def split_rows(f: Formulation) -> RowBlock:
     every x column of a unit i in lower zone g_i (z[g, j] = 1 when g feeds site j), then
     sum_j z[g, j] <= N + 1 for every lower zone g."""
     if not len(f.zcol):
-        return _block("splits", [])
+        return block("splits", [])
     k, g, j = _split_pairs(f)
     width = int(f.zj.max()) + 1
     lookup = np.full((int(f.zg.max()) + 1, width), -1, np.int64)
@@ -504,7 +364,7 @@ def separator_rows(f: Formulation, cuts: Sequence[Cut]) -> RowBlock:
                 cs.append(int(ac))
                 vs.append(1.0)
             parts.append((cs, vs, -np.inf, 1.0 if ac >= 0 else 0.0))
-    return _block("separator", parts)
+    return block("separator", parts)
 
 
 def formulate(problem: Problem, drop: np.ndarray | None = None,
