@@ -19,6 +19,7 @@ from . import tuning
 from .answer import Answer
 from .connectivity import Cut, UnitGraph
 from .cuts import fractional_cuts
+from .fixing import fixable
 from .formulation import formulate, separator_rows
 from .tuning import PROBE_LIMIT, ROOT_KEEP_SHARE, ROOT_MIN_GAIN, ROOT_ROUNDS
 
@@ -61,12 +62,16 @@ class HighsRoute:
         lp.integrality_ = [highspy.HighsVarType.kInteger] * ncol
         self.ncol = ncol
         self._cost = cost
-        self.lower0 = lower
+        self.lower0 = lower  # permanent lower bounds (a site opened by fixing gets 1)
         self.upper = upper.copy()  # permanent bounds (reduced-cost fixing lowers them)
         self._temp: np.ndarray | None = None  # columns a heuristic turned off for a while
         self._lp: tuple[float, np.ndarray, np.ndarray] | None = None
         self._lp_tried = False
         self._cut_lp: tuple[float, np.ndarray, np.ndarray] | None = None  # after strengthen
+        # (values, reduced costs) of the candidate sites' y columns in _lp and in _cut_lp
+        self._lp_sites: tuple[np.ndarray, np.ndarray] | None = None
+        self._cut_sites: tuple[np.ndarray, np.ndarray] | None = None
+        self._last_sites: tuple[np.ndarray, np.ndarray] | None = None
         self._last_duals: np.ndarray | None = None  # of the assignment rows, last LP
         self._tree: np.ndarray | None = None  # rows of the heuristic's site trees
         self._tree_off = np.zeros(0, np.int64)
@@ -180,6 +185,7 @@ class HighsRoute:
         self._lp_tried = True
         with self._continuous():
             self._lp = self._run_lp(np.inf if time_limit is None else max(time_limit, 0.1))
+            self._lp_sites = self._last_sites if self._lp is not None else None
         return self._lp
 
     def adopt_relaxation(self, bound: float, value: np.ndarray, floor: np.ndarray,
@@ -238,6 +244,8 @@ class HighsRoute:
         # the assignment rows come first (formulate): their duals are the multipliers of
         # the Lagrangian zone bound (districting.engine.zone_bound)
         self._last_duals = np.asarray(sol.row_dual)[: self.problem.n_units].copy()
+        y = self.ycol[self.ycol >= 0]
+        self._last_sites = (np.asarray(sol.col_value)[y], np.asarray(sol.col_dual)[y])
         return (float(h.getInfo().objective_function_value),
                 np.asarray(sol.col_value)[:k].copy(), np.asarray(sol.col_dual)[:k].copy())
 
@@ -294,7 +302,7 @@ class HighsRoute:
                 answer = self._run_lp(max(deadline - time.monotonic(), 0.01))
                 if answer is None:
                     break
-                self._cut_lp = answer
+                self._cut_lp, self._cut_sites = answer, self._last_sites
                 z_new, xv = answer[0], answer[1]
                 room = ub - z if np.isfinite(ub) and ub > z else 1e-3 * max(abs(z), 1.0)
                 stalls = stalls + 1 if z_new - z < min_gain * room else 0
@@ -309,23 +317,17 @@ class HighsRoute:
         return found
 
     def fix_by_reduced_cost(self, ub: float) -> int:
-        """Reduced-cost fixing against a valid plan of cost ``ub``; returns columns fixed.
-
-        For the LP relaxation min c x with optimum z_LP and reduced costs rc, every feasible
-        x satisfies c x >= z_LP + sum_k rc_k x_k over the columns nonbasic at their lower
-        bound 0 (rc_k >= 0). A plan using pair k therefore costs at least z_LP + rc_k; when
-        that exceeds ``ub`` (the cost of a valid plan in hand) no better plan uses k, and
-        x_k <= 0 is fixed for good. Columns at their upper bound have rc <= 0 and are never
-        fixed. Redone (with the same LP) whenever a better plan lowers ``ub``.
-        """
+        """Reduced-cost fixing (:mod:`districting.engine.fixing`) against a valid plan of
+        cost ``ub``, by the strongest LP; returns columns fixed. Pairs the LP leaves at 0
+        are fixed to 0; candidate sites are closed or opened. Redone (with the same LP)
+        whenever a better plan lowers ``ub``; a fixed column stays fixed."""
         lp = self.strongest()
         if lp is None or not np.isfinite(ub):
             return 0
         z, xv, rc = lp
-        slack = max(abs(ub), 1.0) * 1e-9
         k = len(self.xi)
-        drop = np.flatnonzero((z + rc > ub + slack) & (self.lower0[:k] < 0.5)
-                              & (self.upper[:k] > 0.5) & (xv < 0.5))
+        off, _ = fixable(z, xv, rc, ub, (self.lower0[:k] < 0.5) & (self.upper[:k] > 0.5))
+        drop = np.flatnonzero(off)
         if len(drop):
             self.upper[drop] = 0.0
             if self._temp is None or not len(self._temp):
@@ -334,8 +336,20 @@ class HighsRoute:
             else:
                 self._temp = np.union1d(self._temp, drop)
                 self._apply(self._temp, np.zeros(len(self._temp)))
-        self.fixed += len(drop)
-        return len(drop)
+        sites = self._cut_sites if self._cut_lp is not None else self._lp_sites
+        n_sites = 0
+        if sites is not None:
+            y = self.ycol[self.ycol >= 0]
+            close, open_ = fixable(z, sites[0], sites[1], ub,
+                                   (self.lower0[y] < 0.5) & (self.upper[y] > 0.5))
+            self.upper[y[close]] = 0.0
+            self.lower0[y[open_]] = 1.0
+            ys = y[close | open_]
+            n_sites = len(ys)
+            if n_sites:
+                self._apply(ys, self.upper[ys])
+        self.fixed += len(drop) + n_sites
+        return len(drop) + n_sites
 
     def _apply(self, cols: np.ndarray, upper: np.ndarray) -> None:
         if len(cols):

@@ -1,0 +1,90 @@
+"""Reduced-cost fixing of pairs and candidate sites (engine.fixing, HighsRoute).
+
+Checked against references written apart from the code under test:
+
+- Osman & Christofides (1994) instances 1-20 with their published optimal plans (copied to
+  tests/data with the citation): fixing against the published optimum keeps every pair
+  of the published plan, closes none of its sites and opens only sites it uses, while it
+  does close candidate sites on some of them (so the check can fail);
+- hand-made tiny instances, every plan enumerated: no plan costing at most the value fixed
+  against uses a fixed pair or a closed site, or leaves out a site opened by the proof
+  while it could open one more.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from test_pair_screen import brute_force, published
+
+from districting import Problem
+from districting.engine.fixing import fixable
+from districting.engine.highs_route import HighsRoute
+
+
+def site_bounds(route: HighsRoute) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(candidate sites, closed by the proof, opened by the proof)."""
+    sites = np.flatnonzero(route.ycol >= 0)
+    y = route.ycol[sites]
+    return sites, route.upper[y] < 0.5, route.lower0[y] > 0.5
+
+
+def test_fixing_against_the_published_optima_keeps_the_published_plans():
+    closed_any = 0
+    for k in range(1, 21):
+        problem, _dist, dem, opt, pub = published(k)
+        route = HighsRoute(problem)
+        assert route.relaxation() is not None
+        route.fix_by_reduced_cost(opt)
+        n = len(dem)
+        assert (route.upper[route.column(np.arange(n), pub)] == 1).all(), k
+        sites, closed, opened = site_bounds(route)
+        used = np.isin(sites, pub)
+        assert not (closed & used).any(), k
+        assert used[opened].all(), k
+        closed_any += int(closed.sum())
+    assert closed_any > 0  # the proof closes sites: the checks above can fail
+
+
+@pytest.mark.parametrize("seed", range(8))
+def test_no_plan_at_or_below_the_value_loses_its_pairs_or_sites(seed):
+    rng = np.random.default_rng(100 + seed)
+    n, m, p = 7, 5, 2
+    xy = rng.uniform(0, 10, (n, 2))
+    sites = rng.choice(n, m, replace=False)
+    dist = np.hypot(*(xy[:, None, :] - xy[None, sites, :]).transpose(2, 0, 1))
+    dem = rng.integers(1, 6, (2, n)).astype(float)
+    cap = np.full(m, np.ceil(dem.sum(axis=1).max() / p * 1.1))
+    problem = Problem.from_arrays(dist, dem, capacity=cap, p=p)
+    plans = brute_force(problem)
+    assert plans
+    for ub in (plans[0][0], plans[min(3, len(plans) - 1)][0]):
+        route = HighsRoute(problem)
+        assert route.relaxation() is not None
+        route.fix_by_reduced_cost(ub)
+        cand, closed, opened = site_bounds(route)
+        for cost, a in plans:
+            if cost > ub:
+                break
+            a = np.array(a)
+            assert (route.upper[route.column(np.arange(n), a)] == 1).all(), (ub, cost)
+            used = np.isin(cand, a)
+            assert not (closed & used).any(), (ub, cost)
+            # a site opened by the proof is open in the model's copy of every such plan:
+            # used, or free to open beside fewer than p used sites
+            assert used[opened].all() or len(set(a.tolist())) < p, (ub, cost)
+
+
+def test_fixable_by_hand():
+    # a hand-worked LP: z = 10; column 0 at 0 with rc 3, column 1 at 1 with rc -4,
+    # column 2 at 0 with rc 0.5, column 3 already fixed
+    value = np.array([0.0, 1.0, 0.0, 0.0])
+    rc = np.array([3.0, -4.0, 0.5, 9.0])
+    free = np.array([True, True, True, False])
+    zero, one = fixable(10.0, value, rc, 12.0, free)
+    assert zero.tolist() == [True, False, False, False]  # 10 + 3 > 12; 10 + 0.5 is not
+    assert one.tolist() == [False, True, False, False]  # 10 + 4 > 12
+    zero, one = fixable(10.0, value, rc, 13.5, free)
+    assert zero.tolist() == [False] * 4 and one.tolist() == [False, True, False, False]
+    zero, one = fixable(10.0, value, rc, np.inf, free)
+    assert not zero.any() and not one.any()
