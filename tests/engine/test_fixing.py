@@ -103,5 +103,7 @@ def test_fixable_by_hand():
     assert one.tolist() == [False, True, False, False]  # 10 + 4 > 12
     zero, one = fixable(10.0, value, rc, 13.5, free)
     assert zero.tolist() == [False] * 4 and one.tolist() == [False, True, False, False]
+    zero, one = fixable(10.0, value, rc, 14.0, free)  # at the value exactly: not fixed
+    assert not zero.any() and not one.any()
     zero, one = fixable(10.0, value, rc, np.inf, free)
     assert not zero.any() and not one.any()
