@@ -189,17 +189,23 @@ class HighsRoute:
         return self._lp
 
     def adopt_relaxation(self, bound: float, value: np.ndarray, floor: np.ndarray,
-                         unit_duals: np.ndarray) -> None:
+                         unit_duals: np.ndarray, site_rc: np.ndarray | None = None) -> None:
         """Take the LP relaxation from outside instead of solving it here: the optimum of a
         model this one restricts (``bound``), its point and each pair's floor ``bound +
-        rc`` as (n, m) arrays (:func:`districting.engine.pair_screen.screen_pairs`).
+        rc`` as (n, m) arrays (:func:`districting.engine.pair_screen.screen_pairs`), and
+        the candidate sites' reduced costs (m,) at the same multipliers.
 
         Valid for this model when it keeps every pair with a floor at or below the cost of
-        the plans sought: the bound and the reduced-cost test then hold for them."""
+        the plans sought: the bound and the reduced-cost test then hold for them. A site's
+        reduced cost counts its y at 1 when negative (the side the bound took), so the
+        site test of :meth:`fix_by_reduced_cost` reads it as an LP value of 1."""
         rc = np.maximum(floor[self.xi, self.xj] - bound, 0.0)
         self._lp = (float(bound), value[self.xi, self.xj].copy(), rc)
         self._lp_tried = True
         self._last_duals = np.asarray(unit_duals, float).copy()
+        if site_rc is not None:
+            src = np.asarray(site_rc, float)[self.ycol >= 0]
+            self._lp_sites = ((src < 0).astype(float), src)
 
     @contextmanager
     def _presolve_for(self, time_limit: float, size: int):

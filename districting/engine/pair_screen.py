@@ -59,6 +59,10 @@ class Screen:
     #: point. When the clock stopped pricing first, ``bound`` and ``floor`` still hold
     #: (at the duals of the best LP solved) but ``value`` is zero.
     converged: bool = True
+    #: (m,) reduced cost of each candidate site's y column at the bound's multipliers (0
+    #: for the others): a plan opening a site with rc >= 0 costs at least ``bound + rc``,
+    #: one closing a site with rc < 0 at least ``bound - rc``
+    site_rc: np.ndarray | None = None
 
     def keep(self, ub: float) -> np.ndarray:
         """(n, m) bool: the pairs a plan costing at most ``ub`` may use."""
@@ -202,5 +206,8 @@ def screen_pairs(problem: Problem, drop: np.ndarray | None, plan: np.ndarray,
     value = np.zeros(shape)
     if converged:
         value[f.xi, f.xj] = xv
+    site_rc = np.zeros(problem.n_sites)
+    cand = f.ycol >= 0
+    site_rc[cand] = rc[f.ycol[cand]]
     return Screen(lb, floor, value, y[: problem.n_units].copy(), rounds, n_cols,
-                  time.monotonic() - t0, converged)
+                  time.monotonic() - t0, converged, site_rc)

@@ -186,7 +186,7 @@ class Session:
             self._backend = _make_backend(problem, self.solver, drop)
             if screen is not None:
                 self._backend.adopt_relaxation(screen.bound, screen.value, screen.floor,
-                                               screen.unit_duals)
+                                               screen.unit_duals, screen.site_rc)
             if self.cuts:
                 self._backend.add_cuts(self.cuts)
             self.build_seconds = time.perf_counter() - t0

@@ -5,7 +5,8 @@ Checked against references written apart from the code under test:
 - Osman & Christofides (1994) instances 1-20 with their published optimal plans (copied to
   tests/data with the citation): fixing against the published optimum keeps every pair
   of the published plan, closes none of its sites and opens only sites it uses, while it
-  does close candidate sites on some of them (so the check can fail);
+  does close candidate sites on some of them (so the check can fail); the same with the LP
+  the pair screen priced (instances 11-20);
 - hand-made tiny instances, every plan enumerated: no plan costing at most the value fixed
   against uses a fixed pair or a closed site, or leaves out a site opened by the proof
   while it could open one more.
@@ -19,7 +20,9 @@ from test_pair_screen import brute_force, published
 
 from districting import Problem
 from districting.engine.fixing import fixable
+from districting.engine.greedy import median_start
 from districting.engine.highs_route import HighsRoute
+from districting.engine.pair_screen import screen_pairs
 
 
 def site_bounds(route: HighsRoute) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -66,6 +69,25 @@ def tiny(seed: int, clustered: bool) -> Problem:
 
 # seeds 10, 17, 23 and 30 of the clustered kind are those of the first 40 where the proof
 # opens a site: the opening is checked there, the closing on the others
+def test_the_screens_site_costs_keep_the_published_plans():
+    # the same check with the LP priced by the pair screen and adopted by the model (the
+    # sites' reduced costs at the screen's multipliers), Osman & Christofides 11-20
+    closed_any = 0
+    for k in range(11, 21):
+        problem, _dist, dem, opt, pub = published(k)
+        screen = screen_pairs(problem, None, median_start(problem, None, 0.5), np.inf)
+        route = HighsRoute(problem)
+        route.adopt_relaxation(screen.bound, screen.value, screen.floor, screen.unit_duals,
+                               screen.site_rc)
+        route.fix_by_reduced_cost(opt)
+        sites, closed, opened = site_bounds(route)
+        used = np.isin(sites, pub)
+        assert not (closed & used).any(), k
+        assert used[opened].all(), k
+        closed_any += int(closed.sum())
+    assert closed_any > 0
+
+
 @pytest.mark.parametrize("seed,clustered", [(100 + s, False) for s in range(8)]
                          + [(s, True) for s in (10, 17, 23, 30)])
 def test_no_plan_at_or_below_the_value_loses_its_pairs_or_sites(seed, clustered):
