@@ -9,7 +9,7 @@ Checked against references written apart from the code under test:
   the pair screen priced (instances 11-20);
 - hand-made tiny instances, every plan enumerated: no plan costing at most the value fixed
   against uses a fixed pair or a closed site, or leaves out a site opened by the proof
-  while it could open one more.
+  while it could open one more; with the model's own LP and with the screen's.
 """
 
 from __future__ import annotations
@@ -49,6 +49,22 @@ def test_fixing_against_the_published_optima_keeps_the_published_plans():
     assert closed_any > 0  # the proof closes sites: the checks above can fail
 
 
+def test_the_screens_site_costs_keep_the_published_plans():
+    # the same check with the LP priced by the pair screen and adopted by the model (the
+    # sites' reduced costs at the screen's multipliers), Osman & Christofides 11-20
+    closed_any = 0
+    for k in range(11, 21):
+        problem, _dist, _dem, opt, pub = published(k)
+        route = lp_route(problem, True, median_start(problem, None, 0.5))
+        route.fix_by_reduced_cost(opt)
+        sites, closed, opened = site_bounds(route)
+        used = np.isin(sites, pub)
+        assert not (closed & used).any(), k
+        assert used[opened].all(), k
+        closed_any += int(closed.sum())
+    assert closed_any > 0
+
+
 def tiny(seed: int, clustered: bool) -> Problem:
     """A hand-made capacitated instance small enough to enumerate (7 units, p = 2): random
     points, or points around three centres (where closing a cluster's only site costs so
@@ -67,37 +83,33 @@ def tiny(seed: int, clustered: bool) -> Problem:
     return Problem.from_arrays(dist, dem, capacity=cap, p=p)
 
 
-# seeds 10, 17, 23 and 30 of the clustered kind are those of the first 40 where the proof
-# opens a site: the opening is checked there, the closing on the others
-def test_the_screens_site_costs_keep_the_published_plans():
-    # the same check with the LP priced by the pair screen and adopted by the model (the
-    # sites' reduced costs at the screen's multipliers), Osman & Christofides 11-20
-    closed_any = 0
-    for k in range(11, 21):
-        problem, _dist, dem, opt, pub = published(k)
-        screen = screen_pairs(problem, None, median_start(problem, None, 0.5), np.inf)
-        route = HighsRoute(problem)
+def lp_route(problem: Problem, priced: bool, start: np.ndarray) -> HighsRoute:
+    """The model with its own LP, or with the LP the pair screen priced (from one pair per
+    unit and the pairs of ``start``) adopted."""
+    route = HighsRoute(problem)
+    if priced:
+        screen = screen_pairs(problem, None, start, np.inf, nearest=1)
+        assert screen is not None
         route.adopt_relaxation(screen.bound, screen.value, screen.floor, screen.unit_duals,
                                screen.site_rc)
-        route.fix_by_reduced_cost(opt)
-        sites, closed, opened = site_bounds(route)
-        used = np.isin(sites, pub)
-        assert not (closed & used).any(), k
-        assert used[opened].all(), k
-        closed_any += int(closed.sum())
-    assert closed_any > 0
+    else:
+        assert route.relaxation() is not None
+    return route
 
 
+# seeds 10, 17, 23 and 30 of the clustered kind are those of the first 40 where the proof
+# opens a site: the opening is checked there, the closing on the others
+@pytest.mark.parametrize("priced", [False, True])
 @pytest.mark.parametrize("seed,clustered", [(100 + s, False) for s in range(8)]
                          + [(s, True) for s in (10, 17, 23, 30)])
-def test_no_plan_at_or_below_the_value_loses_its_pairs_or_sites(seed, clustered):
+def test_no_plan_at_or_below_the_value_loses_its_pairs_or_sites(seed, clustered, priced):
     problem = tiny(seed, clustered)
     n, p = problem.n_units, problem.p
     plans = brute_force(problem)
     assert plans
-    for ub in (plans[0][0], plans[min(3, len(plans) - 1)][0]):
-        route = HighsRoute(problem)
-        assert route.relaxation() is not None
+    start = np.array(plans[len(plans) // 2][1])
+    for ub in (plans[0][0], plans[min(3, len(plans) - 1)][0], plans[len(plans) // 4][0]):
+        route = lp_route(problem, priced, start)
         route.fix_by_reduced_cost(ub)
         cand, closed, opened = site_bounds(route)
         if clustered and ub == plans[0][0]:
