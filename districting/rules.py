@@ -22,6 +22,7 @@ __all__ = [
     "NOT_OPEN_TODAY", "takes_students", "open_today", "open_in_plan", "is_candidate",
     "is_closed", "usable_capacity", "site_band", "open_sites", "TOLERANCE",
     "walkers_forbidden", "transported", "group_shares", "district_shares", "seat_limits",
+    "band_excess",
 ]
 
 #: open: open now and in the plan; closing: closes at the plan year (its students move);
@@ -99,6 +100,12 @@ def seat_limits(problem: Problem) -> tuple[np.ndarray, np.ndarray]:
     if problem.capacity is None:
         return np.zeros(m), np.full(m, np.inf)
     return problem.min_util * problem.capacity, problem.max_util * problem.capacity
+
+
+def band_excess(load: np.ndarray, hi: np.ndarray, lo: np.ndarray) -> np.ndarray:
+    """Students above the cap plus students missing below the floor, summed over the demand
+    rows (axis 0): how far ``load`` lies outside the band [``lo``, ``hi``]; 0 inside it."""
+    return (np.maximum(load - hi, 0.0) + np.maximum(lo - load, 0.0)).sum(axis=0)
 
 
 def open_sites(problem: Problem, assignment: np.ndarray) -> np.ndarray:

@@ -91,3 +91,11 @@ def test_todays_zones_under_the_plan_do_not_count_a_closing_school_as_open(tmp_p
     met = today.metrics
     flags = band_flags(met.load, problem, problem.years, today.plan.open_sites)
     assert flags[j] == "students at a school that is not open"
+
+
+def test_band_excess_by_hand():
+    # two demand rows, three sites with the band [50, 100]: site 0 inside in both rows,
+    # site 1 above by 10 and 5 (15), site 2 below by 20 in the first row only (20)
+    load = np.array([[60.0, 110.0, 30.0], [90.0, 105.0, 50.0]])
+    hi, lo = np.full(3, 100.0), np.full(3, 50.0)
+    assert rules.band_excess(load, hi, lo).tolist() == [0.0, 15.0, 20.0]

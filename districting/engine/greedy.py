@@ -29,7 +29,7 @@ import time
 import numpy as np
 
 from ..problem import Problem
-from ..rules import seat_limits
+from ..rules import band_excess, seat_limits
 
 __all__ = ["median_start"]
 
@@ -142,11 +142,6 @@ def _assign(problem: Problem, opened: np.ndarray, hi: np.ndarray) -> np.ndarray:
     return a
 
 
-def _excess(load: np.ndarray, hi: np.ndarray, lo: np.ndarray) -> np.ndarray:
-    """Students above the cap or below the floor, summed over the years (axis 0)."""
-    return (np.maximum(load - hi, 0.0) + np.maximum(lo - load, 0.0)).sum(axis=0)
-
-
 def _moves(problem, a, load, hi, lo, wc, movable) -> bool:
     """Apply improving single moves; True when one was taken."""
     d = problem.demand
@@ -158,11 +153,12 @@ def _moves(problem, a, load, hi, lo, wc, movable) -> bool:
     du = d[:, units]  # (T, u)
     # loads after moving each unit to each site: (T, u, m) on the destination side
     dest = load[:, None, :] + du[:, :, None]
-    gain_dest = _excess(load, hi, lo)[None, :] - _excess(dest, hi[:, None, :], lo[:, None, :])
+    gain_dest = (band_excess(load, hi, lo)[None, :]
+                 - band_excess(dest, hi[:, None, :], lo[:, None, :]))
     left = load[:, src] - du  # (T, u) the source after the move
-    ex_src = _excess(load[:, src][:, :, None], hi[:, src][:, :, None],
+    ex_src = band_excess(load[:, src][:, :, None], hi[:, src][:, :, None],
                      lo[:, src][:, :, None])[:, 0]
-    ex_left = _excess(left[:, :, None], hi[:, src][:, :, None], lo[:, src][:, :, None])[:, 0]
+    ex_left = band_excess(left[:, :, None], hi[:, src][:, :, None], lo[:, src][:, :, None])[:, 0]
     d_ex = -(gain_dest + (ex_src - ex_left)[:, None])  # change of total excess
     d_cost = wc[units] - wc[units, src][:, None]
     d_ex[np.arange(len(units)), src] = np.inf
@@ -180,9 +176,9 @@ def _moves(problem, a, load, hi, lo, wc, movable) -> bool:
         i, j, s = int(units[k]), int(best_site[k]), int(a[units[k]])
         if s == j or count[s] <= 1:
             continue
-        before = _excess(load[:, [s, j]], hi[:, [s, j]], lo[:, [s, j]]).sum()
+        before = band_excess(load[:, [s, j]], hi[:, [s, j]], lo[:, [s, j]]).sum()
         trial = load[:, [s, j]] + np.stack([-d[:, i], d[:, i]], axis=1)
-        after = _excess(trial, hi[:, [s, j]], lo[:, [s, j]]).sum()
+        after = band_excess(trial, hi[:, [s, j]], lo[:, [s, j]]).sum()
         dc = wc[i, j] - wc[i, s]
         if after < before - _TOL or (after <= before + _TOL and dc < -_TOL):
             load[:, [s, j]] = trial
@@ -212,7 +208,7 @@ def _swaps(problem, a, load, hi, lo, wc, movable, opened) -> bool:
             ex = (np.maximum(ls - hi[:, s][:, None, None], 0) + np.maximum(
                 lo[:, s][:, None, None] - ls, 0) + np.maximum(lt - hi[:, t][:, None, None], 0)
                 + np.maximum(lo[:, t][:, None, None] - lt, 0)).sum(axis=0)
-            ex0 = _excess(load[:, [s, t]], hi[:, [s, t]], lo[:, [s, t]]).sum()
+            ex0 = band_excess(load[:, [s, t]], hi[:, [s, t]], lo[:, [s, t]]).sum()
             d_ex = ex - ex0
             better = (d_ex < -_TOL) | ((np.abs(d_ex) <= _TOL) & (dc < -_TOL))
             if not better.any():

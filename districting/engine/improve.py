@@ -25,7 +25,7 @@ from collections import deque
 import numpy as np
 
 from ..problem import Problem
-from ..rules import seat_limits
+from ..rules import band_excess, seat_limits
 from .connectivity import UnitGraph, stays_connected, zone_loads, zone_touch
 from .zone_cuts import ZoneCuts
 
@@ -54,11 +54,6 @@ def _bands(problem: Problem, a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     used |= problem.always_open
     floor, hi = seat_limits(problem)
     return hi, np.where(used, floor, 0.0)
-
-
-def _excess(load: np.ndarray, hi: np.ndarray, lo: np.ndarray) -> np.ndarray:
-    """Students above the cap plus students missing below the floor, per column."""
-    return (np.maximum(load - hi, 0.0) + np.maximum(lo - load, 0.0)).sum(axis=0)
 
 
 def _reach(j: int, al: list[int], nbrs: list[list[int]], start: int,
@@ -134,7 +129,7 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
     cuts = ZoneCuts(al, nbrs)
     steps = max_steps or 4 * n
     for _ in range(steps):
-        exc = _excess(load, hi, lo)
+        exc = band_excess(load, hi, lo)
         if exc.sum() <= _TOL:
             return np.array(al, dtype=np.int64)
         av = np.array(al, dtype=np.int64)
@@ -152,7 +147,7 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
             continue
         d = dem[:, cu]
         lj, lk = load[:, cj] - d, load[:, ck] + d
-        new = _excess(lj, hi[cj], lo[cj]) + _excess(lk, hi[ck], lo[ck])
+        new = band_excess(lj, hi[cj], lo[cj]) + band_excess(lk, hi[ck], lo[ck])
         dv = new - exc[cj] - exc[ck]
         dc = wc[cu, ck] - wc[cu, cj]
         dm = _moved_delta(problem, cu, cj, ck)
@@ -194,7 +189,7 @@ def rebalance(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
                 if (~can[br]).any() or not allowed[br, k].all():
                     continue
                 d = dem[:, br].sum(axis=1)
-                drop = _excess((load[:, j] - d)[:, None], hi[[j]], lo[[j]])[0] + _excess(
+                drop = band_excess((load[:, j] - d)[:, None], hi[[j]], lo[[j]])[0] + band_excess(
                     (load[:, k] + d)[:, None], hi[[k]], lo[[k]])[0] - exc[j] - exc[k]
                 dmb = float(_moved_delta(problem, br, np.full(len(br), j),
                                          np.full(len(br), k)).sum())
@@ -289,7 +284,7 @@ def _eject(problem: Problem, graph: UnitGraph, al: list[int], load: np.ndarray,
             d = dem[:, cu[rows]]
             new_z = (load[:, [z]] + carry[:, None]) + (-d if push else d)
             if z == z0:
-                ok = _excess(new_z, hi[[z]], lo[[z]]) < _excess(
+                ok = band_excess(new_z, hi[[z]], lo[[z]]) < band_excess(
                     (load[:, [z]] + carry[:, None]), hi[[z]], lo[[z]]) - _TOL
             else:
                 ok = ((new_z <= hi[z] + _TOL) & (new_z >= lo[z] - _TOL)).all(axis=0)
