@@ -30,7 +30,9 @@ Stages of :meth:`Session.solve`, passing a :class:`~districting.engine.run.Solve
 
 Columns are removed only with a proof: a pair whose students exceed the site's upper
 capacity in some year is never a column, and after a valid plan of cost UB is known,
-reduced-cost fixing drops every pair with LP bound + reduced cost > UB.
+reduced-cost fixing (:mod:`~districting.engine.fixing`) drops every pair with LP bound +
+reduced cost > UB, and closes (or keeps open) every candidate site whose opening (closing)
+would cost more than UB.
 """
 
 from __future__ import annotations
