@@ -31,6 +31,7 @@ __all__ = [
     "is_contiguous",
     "free_units",
     "site_trees",
+    "tree_links",
     "plan_checks",
     "zone_loads",
     "moved_students",
@@ -197,6 +198,26 @@ def site_trees(problem: Problem, graph: UnitGraph) -> np.ndarray:
                            return_predecessors=True)
         parent[j] = np.where(pred >= 0, pred, -1)
     return parent
+
+
+def tree_links(problem: Problem, parent: np.ndarray, xi: np.ndarray, xj: np.ndarray,
+               colmap: np.ndarray, drop: np.ndarray
+               ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Each pair column's link in its site's tree (``parent`` from :func:`site_trees`):
+    (the pair columns k with a link, the column of the pair (q, j) for every column, -1
+    without one, and the mask of the columns a tree-shaped zone cannot use), q being unit
+    i's nearest ancestor in site j's tree that is in the model (not in ``drop``). A site
+    without a root and a site's root unit have no link."""
+    q = parent[xj, xi].copy()
+    for _ in range(problem.n_units):  # climb over units left out of the model
+        up = (q >= 0) & drop[np.maximum(q, 0)]
+        if not up.any():
+            break
+        q[up] = parent[xj[up], q[up]]
+    roots = problem.roots if problem.roots is not None else np.full(problem.n_sites, -1)
+    linked = (roots[xj] >= 0) & (xi != roots[xj])
+    qc = np.where(q >= 0, colmap[np.maximum(q, 0), xj], -1)
+    return np.flatnonzero(linked & (qc >= 0)), qc, linked & (qc < 0)
 
 
 # ---------------------------------------------------------------------- feasibility checks

@@ -17,7 +17,7 @@ import numpy as np
 from ..problem import Problem
 from . import tuning
 from .answer import Answer
-from .connectivity import Cut, UnitGraph
+from .connectivity import Cut, UnitGraph, tree_links
 from .cuts import fractional_cuts
 from .fixing import fixable
 from .formulation import formulate, separator_rows
@@ -380,21 +380,9 @@ class HighsRoute:
         :meth:`trees` turns them on. Returns the pair columns a tree-shaped zone cannot use
         (ancestor without a column, unit not reached). Heuristic only: a tree restricts the plans.
         """
-        p = self.problem
-        xi, xj = self.xi, self.xj
-        k = len(xi)
-        q = parent[xj, xi].copy()
-        for _ in range(p.n_units):  # climb over units left out of the model
-            up = (q >= 0) & self.drop[np.maximum(q, 0)]
-            if not up.any():
-                break
-            q[up] = parent[xj[up], q[up]]
-        roots = p.roots if p.roots is not None else np.full(p.n_sites, -1)
-        free_site = roots[xj] < 0
-        is_root = xi == roots[xj]
-        qc = np.where(q >= 0, self.colmap[np.maximum(q, 0), xj], -1)
-        off = ~free_site & ~is_root & (qc < 0)
-        rows = np.flatnonzero(~free_site & ~is_root & (qc >= 0))
+        k = len(self.xi)
+        rows, qc, off = tree_links(self.problem, parent, self.xi, self.xj, self.colmap,
+                                   self.drop)
         nr = len(rows)
         r0 = self.h.getNumRow()
         if nr:
