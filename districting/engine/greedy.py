@@ -157,7 +157,7 @@ def _moves(problem, a, load, hi, lo, wc, movable) -> bool:
                  - band_excess(dest, hi[:, None, :], lo[:, None, :]))
     left = load[:, src] - du  # (T, u) the source after the move
     ex_src = band_excess(load[:, src][:, :, None], hi[:, src][:, :, None],
-                     lo[:, src][:, :, None])[:, 0]
+                         lo[:, src][:, :, None])[:, 0]
     ex_left = band_excess(left[:, :, None], hi[:, src][:, :, None], lo[:, src][:, :, None])[:, 0]
     d_ex = -(gain_dest + (ex_src - ex_left)[:, None])  # change of total excess
     d_cost = wc[units] - wc[units, src][:, None]
@@ -205,9 +205,8 @@ def _swaps(problem, a, load, hi, lo, wc, movable, opened) -> bool:
             shift = d[:, ua][:, :, None] - d[:, ub][:, None, :]  # (T, |ua|, |ub|) s -> t
             ls = load[:, s][:, None, None] - shift
             lt = load[:, t][:, None, None] + shift
-            ex = (np.maximum(ls - hi[:, s][:, None, None], 0) + np.maximum(
-                lo[:, s][:, None, None] - ls, 0) + np.maximum(lt - hi[:, t][:, None, None], 0)
-                + np.maximum(lo[:, t][:, None, None] - lt, 0)).sum(axis=0)
+            ex = (band_excess(ls, hi[:, s][:, None, None], lo[:, s][:, None, None])
+                  + band_excess(lt, hi[:, t][:, None, None], lo[:, t][:, None, None]))
             ex0 = band_excess(load[:, [s, t]], hi[:, [s, t]], lo[:, [s, t]]).sum()
             d_ex = ex - ex0
             better = (d_ex < -_TOL) | ((np.abs(d_ex) <= _TOL) & (dc < -_TOL))
