@@ -20,7 +20,8 @@ import scipy.sparse as sp
 from ..problem import Problem
 from .connectivity import Cut, UnitGraph, fragments, main_labels, zone_components
 
-__all__ = ["separator", "min_separator", "separator_cuts", "fractional_cuts", "rooted_cuts"]
+__all__ = ["separator", "min_separator", "separator_cuts", "corridor", "fractional_cuts",
+           "rooted_cuts"]
 
 
 def separator(graph: UnitGraph, piece: np.ndarray, other: int) -> np.ndarray:
@@ -102,7 +103,7 @@ def separator_cuts(
     assignment: np.ndarray,
     only: np.ndarray | None = None,
     passable: np.ndarray | None = None,
-    strict: bool = False,
+    dropped: np.ndarray | None = None,
 ) -> list[Cut]:
     """Separator cuts violated by ``assignment``, one :class:`Cut` per fragment.
 
@@ -111,39 +112,35 @@ def separator_cuts(
     a fragment C is first grown through them to C' (its piece in the graph of its zone plus
     the passable units). When C' misses the root, N(C') separates C from the root and holds
     no passable unit, so the cut asks for a unit with students -- the MIP cannot answer it
-    by annexing one empty unit at a time. When C' reaches the root the usual separator
-    around C is used, or, with ``strict``, the fragment gets no cut (the caller's model has
-    no columns for passable units).
+    by annexing one empty unit at a time (only units the zone may take are grown through:
+    the others weigh nothing in the cut). When C' reaches the root the usual separator
+    around C is used. ``dropped`` marks passable units the caller's model leaves out (no
+    columns): then C is grown through them instead, and a fragment that reaches its root
+    that way gets no cut (:func:`corridor` names the units the model would need).
     """
     a = np.asarray(assignment, dtype=np.int64)
     labels = zone_components(graph, a)
     main = main_labels(problem, a, labels)
     cuts: list[Cut] = []
     grown_by_site: dict[int, np.ndarray] = {}
+    open_by_site: dict[int, np.ndarray] = {}
+    allowed = problem.allowed if passable is not None or dropped is not None else None
     for piece in fragments(problem, graph, a):
         if only is not None and not only[piece].any():
             continue
         j = int(a[piece[0]])
-        r = -1 if problem.roots is None else int(problem.roots[j])
-        if r >= 0:
-            other, anchor = r, -1
-        else:
-            members = np.flatnonzero((a == j) & (labels == main[j]))
-            if not len(members):
-                continue
-            other = anchor = int(members[0])
-        units = piece
-        sep = None
+        other, anchor = _other_side(problem, a, labels, main, j)
+        if other < 0:
+            continue
+        units, sep = piece, None
         if passable is not None:
-            if j not in grown_by_site:
-                grown_by_site[j] = graph.components((a == j) | passable)
-            grown_lab = grown_by_site[j]
-            grown = np.flatnonzero(grown_lab == grown_lab[piece[0]])
-            if grown_lab[other] != grown_lab[piece[0]]:
-                units = grown[a[grown] == j]
-                sep = separator(graph, grown, other)
-            elif strict:
-                continue
+            ok = allowed[:, j]  # a unit that may not join the zone is a wall for it
+            units, sep = _grown_cut(graph, a, piece, other, passable & ok, j, grown_by_site)
+        if sep is None and dropped is not None and dropped.any():
+            units, sep = _grown_cut(graph, a, piece, other, dropped & allowed[:, j], j,
+                                    open_by_site)
+            if sep is None:
+                continue  # joined to its root through units the model leaves out
         if sep is None:
             sep = separator(graph, piece, other)
         cuts.append(Cut(site=j, units=units, separator=sep, anchor=anchor))
@@ -153,6 +150,81 @@ def separator_cuts(
             if narrow is not None and 0 < len(narrow) < len(sep):
                 cuts.append(Cut(site=j, units=units, separator=narrow))
     return cuts
+
+
+def corridor(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
+             dropped: np.ndarray, only: np.ndarray | None = None) -> np.ndarray:
+    """The ``dropped`` units a model needs to cut ``assignment``'s fragments that
+    :func:`separator_cuts` could not: a fragment joined to its zone's root only through
+    units the model leaves out. Per such fragment, the dropped units on a shortest path
+    (fewest units) from it to the root through its zone and the dropped units; with them
+    in the model the fragment's separators can be written. Bool mask over the units."""
+    a = np.asarray(assignment, dtype=np.int64)
+    labels = zone_components(graph, a)
+    main = main_labels(problem, a, labels)
+    need = np.zeros(graph.n, bool)
+    by_site: dict[int, np.ndarray] = {}
+    allowed = problem.allowed
+    for piece in fragments(problem, graph, a):
+        if only is not None and not only[piece].any():
+            continue
+        j = int(a[piece[0]])
+        other, _ = _other_side(problem, a, labels, main, j)
+        if other < 0:
+            continue
+        if j not in by_site:
+            by_site[j] = graph.components((a == j) | (dropped & allowed[:, j]))
+        lab = by_site[j]
+        if lab[other] != lab[piece[0]]:
+            continue
+        inside = lab == lab[other]
+        d_piece = _hops(graph, inside, piece)
+        d_root = _hops(graph, inside, np.array([other]))
+        far = d_piece[other]
+        need |= dropped & inside & (np.abs(d_piece + d_root - far) < 0.5)
+    return need
+
+
+def _other_side(problem: Problem, a: np.ndarray, labels: np.ndarray, main: np.ndarray,
+                j: int) -> tuple[int, int]:
+    """(the unit a fragment of zone ``j`` must reach, the a-b anchor or -1): the site's
+    root, else the first unit of the zone's main piece; (-1, -1) when there is none."""
+    r = -1 if problem.roots is None else int(problem.roots[j])
+    if r >= 0:
+        return r, -1
+    members = np.flatnonzero((a == j) & (labels == main[j]))
+    if not len(members):
+        return -1, -1
+    return int(members[0]), int(members[0])
+
+
+def _grown_cut(graph: UnitGraph, a: np.ndarray, piece: np.ndarray, other: int,
+               through: np.ndarray, j: int, cache: dict[int, np.ndarray]
+               ) -> tuple[np.ndarray, np.ndarray | None]:
+    """The fragment grown through the units ``through`` (with its zone's own units): when
+    that misses ``other``, (its units of zone ``j``, a separator holding none of
+    ``through``); else (``piece``, None)."""
+    if j not in cache:
+        cache[j] = graph.components((a == j) | through)
+    lab = cache[j]
+    if lab[other] == lab[piece[0]]:
+        return piece, None
+    grown = np.flatnonzero(lab == lab[piece[0]])
+    return grown[a[grown] == j], separator(graph, grown, other)
+
+
+def _hops(graph: UnitGraph, inside: np.ndarray, sources: np.ndarray) -> np.ndarray:
+    """Fewest edges from ``sources`` to each unit, moving only through ``inside`` units
+    (infinite where unreachable)."""
+    from scipy.sparse.csgraph import shortest_path
+
+    sel = inside[graph.u] & inside[graph.v]
+    n = graph.n
+    src = n  # a super source one edge before every source unit
+    rows = np.concatenate([graph.u[sel], np.full(len(sources), src)])
+    cols = np.concatenate([graph.v[sel], sources])
+    g = sp.csr_matrix((np.ones(len(rows), np.int8), (rows, cols)), shape=(n + 1, n + 1))
+    return shortest_path(g, directed=True, unweighted=True, indices=src)[:n] - 1
 
 
 _FLOW_SCALE = 10_000  # LP values to integer capacities for scipy's max-flow

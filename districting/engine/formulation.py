@@ -343,13 +343,17 @@ def separator_rows(f: Formulation, cuts: Sequence[Cut]) -> RowBlock:
     """x[i, j] (+ x[a, j] - 1) - sum_{s in S} x[s, j] <= 0 for each unit i of each cut.
 
     A separator pair without a column is left out of its row (x[s, j] = 0 in every plan);
-    a cut through a unit the model leaves out is not written at all (cuts found on the full
-    model, reused by a relaxed rebuild: the unit may be handed any zone later).
+    a cut through a unit the model leaves out but the zone may take is not written at all
+    (cuts found on a fuller model, reused by a rebuild that leaves more out: the unit may
+    be handed any zone later).
     """
     parts = []
+    allowed = f.problem.allowed if f.drop.any() else None
     for cut in cuts:
         j = cut.site
-        if f.drop[cut.separator].any() or (cut.anchor >= 0 and f.drop[cut.anchor]):
+        if allowed is not None and (
+                (f.drop[cut.separator] & allowed[cut.separator, j]).any()
+                or (cut.anchor >= 0 and f.drop[cut.anchor])):
             continue
         sc = f.colmap[cut.separator, j]
         sc = sc[sc >= 0]

@@ -277,7 +277,7 @@ def cut_and_forbid(st: SolveState, a: np.ndarray, detached: np.ndarray,
     and mark the columns of units still cut off; returns (cuts added, newly forbidden)."""
     backend = st.backend
     cuts = separator_cuts(st.problem, st.graph, a, only=detached, passable=st.passable,
-                          strict=st.relaxed)
+                          dropped=st.dropped)
     added = backend.add_cuts(cuts)
     st.cuts.extend(cuts)
     units = np.flatnonzero(detached)

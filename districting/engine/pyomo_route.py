@@ -380,7 +380,9 @@ class PyomoRoute:
             self.model.separator_cuts.add(body <= hi)
         return block.n_rows
 
-    def solve(self, gap, time_left, start, cancel) -> Answer:
+    def solve(self, gap, time_left, start, cancel, prove_start: bool = False) -> Answer:
+        """One solve through Pyomo. ``prove_start`` changes nothing here: this reference
+        route has no callback to stop on the bound, so it keeps the gap asked."""
         r = solve_model(self.model, self.name, gap, time_left, start)
         a = None if r.assignment is None or np.any(np.asarray(r.assignment) < 0) else (
             np.asarray(r.assignment, np.int64))

@@ -38,12 +38,13 @@ __all__ = ["Steps", "exact_rounds", "model_columns", "bound_stalls"]
 @dataclass(frozen=True)
 class Steps:
     """The session's stages the rounds call: ``race(st, stalled)`` a second exact route once;
-    ``rebuild_full(st)`` the model with the empty units in (returns -1);
+    ``bring_in(st, answer, only)`` the model rebuilt with the left-out units that answer's
+    uncut fragments need (returns -1);
     ``neighbourhoods(st)`` the large-neighbourhood search. ``route`` names the solver."""
 
     route: str
     race: Callable[[SolveState, bool], None]
-    rebuild_full: Callable[[SolveState], int]
+    bring_in: Callable[[SolveState, np.ndarray, np.ndarray], int]
     neighbourhoods: Callable[[SolveState], None]
 
 
@@ -89,7 +90,7 @@ def exact_rounds(st: SolveState, steps: Steps, max_rounds: int) -> Plan:
         budget = left if run.best is not None or left is None else max(
             FIRST_ROUND_MIN, FIRST_ROUND_SHARE * left)
         ans = st.backend.solve(gap, budget, run.best if run.best is not None else st.hint,
-                               cancel)
+                               cancel, prove_start=run.best is not None)
         if ans.status == "infeasible":
             if run.best is None:
                 from .diagnose import explain  # Pyomo only when needed
@@ -148,11 +149,11 @@ def take_answer(st: SolveState, steps: Steps, a: np.ndarray) -> tuple[int, int]:
     b, detached = reassign_empty(problem, graph, a)
     if detached.any() or not run.consider(b):
         cuts = separator_cuts(problem, graph, a, only=detached, passable=st.passable,
-                              strict=st.relaxed)
+                              dropped=st.dropped)
         added = st.backend.add_cuts(cuts)
         st.cuts.extend(cuts)
         if st.relaxed and added == 0:
-            added = steps.rebuild_full(st)
+            added = steps.bring_in(st, a, detached)
         fixed = repair(problem, graph, a)
         if fixed is not None:
             run.consider(relocate(problem, graph, fixed))

@@ -110,8 +110,9 @@ class Run:
 class SolveState:
     """What the stages of one solve pass each other.
 
-    ``relaxed``: units without students are left out of the MIP (HiGHS route) until a round
-    needs them; ``passable`` marks those units. ``hint`` is a start that meets every rule
+    ``passable`` marks the units without students any zone may take; ``dropped`` those of
+    them the MIP leaves out (HiGHS route; None when every unit is in) until a round needs
+    them (:func:`districting.engine.cuts.corridor`). ``hint`` is a start that meets every rule
     but contiguity (or None). ``lns_done`` / ``fix_done``: the large-neighbourhood search and
     fix-and-resolve run at most once per solve. ``cuts`` is the session's cut list (cuts
     found here are kept for the next solve).
@@ -120,7 +121,7 @@ class SolveState:
     problem: Problem
     graph: UnitGraph | None
     passable: np.ndarray | None
-    relaxed: bool
+    dropped: np.ndarray | None
     run: Run
     gap: float
     cancel: Callable[[], bool] | None
@@ -136,6 +137,11 @@ class SolveState:
     parents: np.ndarray | None = None
     status: str = "feasible"
     message: str = ""
+
+    @property
+    def relaxed(self) -> bool:
+        """Some units are left out of the MIP."""
+        return self.dropped is not None
 
     def far(self) -> bool:
         """The best plan is far above the bound (the heuristics deserve another turn)."""

@@ -45,6 +45,7 @@ import numpy as np
 from ..plan import Plan, Round
 from ..problem import Problem, _same_array
 from .connectivity import Cut, UnitGraph, free_units, plan_checks
+from .cuts import corridor
 from .findings import no_plan_text
 from .flow_stage import flow_applies, flow_stage
 from .greedy import median_start
@@ -138,7 +139,8 @@ class Session:
         self.cuts: list[Cut] = []
         self.last: Plan | None = None
         self._backend = None
-        self._full = False  # True once empty units had to join the MIP
+        # units without students the MIP had to take in (the others stay out of it)
+        self._kept: np.ndarray | None = None
         self._graph = UnitGraph.of(problem) if problem.contiguous else None
         self._carried_bound = -np.inf  # a bound proven for a problem this one restricts
         self._solved: Problem | None = None  # the problem self.last was solved for
@@ -173,7 +175,8 @@ class Session:
             self._graph = UnitGraph.of(problem) if problem.contiguous else None
         self.problem = problem
         self._backend = None
-        self._full = False
+        if not same_graph:
+            self._kept = None
 
     def _ensure_backend(self, drop: np.ndarray | None = None, screen: Screen | None = None,
                         ub: float = np.inf):
@@ -218,7 +221,7 @@ class Session:
         self._free_restart(st)
         self._first_heuristics(st)
         self._race_flow(st)
-        steps = Steps(self.solver, self._race_flow, self._rebuild_full, self._neighbourhoods)
+        steps = Steps(self.solver, self._race_flow, self._bring_in, self._neighbourhoods)
         return self._finish(exact_rounds(st, steps, max_rounds))
 
     def _scip_tree(self, gap, time_limit, progress, cancel, start) -> Plan:
@@ -244,11 +247,13 @@ class Session:
             return infeasible_plan(problem, no_plan_text(reasons, problem.level), route)
         graph = self._graph
         passable = free_units(problem) if graph is not None else None
-        relaxed = bool(route == "highs" and passable is not None and passable.any()
-                       and not self._full)
+        dropped = None
+        if route == "highs" and passable is not None:
+            dropped = passable if self._kept is None else passable & ~self._kept
+            dropped = dropped if dropped.any() else None
         run = Run(problem, graph, t0, time_limit, progress)
         run.bound = self._carried_bound
-        st = SolveState(problem, graph, passable, relaxed, run, gap, cancel, self.cuts,
+        st = SolveState(problem, graph, passable, dropped, run, gap, cancel, self.cuts,
                         given=start is not None)
         cand = prepare_start(problem, graph, start)
         if cand is not None:
@@ -265,11 +270,10 @@ class Session:
             # one restricts (see update): proven without building a model
             return run.plan("optimal", "", route, len(self.cuts), gap)
         try:
-            drop = passable if relaxed else None
             screen = None
             if route == "highs" and self.screening and screen_applies(problem, run):
-                screen = screen_stage(st, drop, core_subsolve)
-            st.backend = self._ensure_backend(drop, screen, run.best_obj)
+                screen = screen_stage(st, st.dropped, core_subsolve)
+            st.backend = self._ensure_backend(st.dropped, screen, run.best_obj)
         except (ImportError, RuntimeError, ValueError) as exc:
             return failed_plan(problem, f"could not build the model: {exc}", route)
         run.build = self.build_seconds
@@ -293,7 +297,7 @@ class Session:
             # (not inside a neighbourhood's small solve, where they cost more than they give)
             left = run.left()
             budget = ROOT_MAX if left is None else min(ROOT_MAX, ROOT_SHARE * left)
-            self.cuts.extend(backend.strengthen(graph, st.passable if st.relaxed else None,
+            self.cuts.extend(backend.strengthen(graph, st.dropped,
                                                 time.monotonic() + budget, run.best_obj))
             lp = backend.strongest()
         if graph is None and self.heuristics:
@@ -366,10 +370,19 @@ class Session:
             st.flow_done = True
             flow_stage(st)
 
-    def _rebuild_full(self, st: SolveState) -> int:
-        """Empty units must join the MIP: only cuts through them are left. Returns -1."""
-        st.relaxed, self._full, self._backend = False, True, None
-        st.backend = self._ensure_backend(None)
+    def _bring_in(self, st: SolveState, answer: np.ndarray, only: np.ndarray) -> int:
+        """Units left out of the MIP must join it: the answer has fragments joined to their
+        roots only through them, which no cut on this model can reach. The model is rebuilt
+        with the left-out units on their shortest such paths (:func:`corridor`; all of them
+        when none is found), its cuts carried over. Returns -1."""
+        need = corridor(st.problem, st.graph, answer, st.dropped, only)
+        if not need.any():
+            need = st.dropped
+        self._kept = need if self._kept is None else self._kept | need
+        dropped = st.dropped & ~need
+        st.dropped = dropped if dropped.any() else None
+        self._backend = None
+        st.backend = self._ensure_backend(st.dropped)
         st.run.build += self.build_seconds
         left = st.run.left()
         lp = st.backend.relaxation(None if left is None else LP_SHARE * left)

@@ -126,6 +126,14 @@ FLOW_SHARE = 0.8
 FREE_SHARE = 0.2
 FREE_MAX = 20.0
 
+#: Each exact round's own MIP gap, as a share of the gap asked. The MIP's gap is measured
+#: against its own best answer, which may be a cheaper disconnected one: stopped at the gap
+#: asked, its bound stays below (that answer) x (1 - gap) and never proves the plan in
+#: hand while such answers exist (2,000 x 25 rerun after a lock: bound flat for 45 s at
+#: 0.055%). So a round goes on to this finer gap, and ends as soon as its bound proves the
+#: plan in hand within the gap asked (the start's cost; HighsRoute.solve).
+ROUND_GAP_SHARE = 0.1
+
 #: The exact rounds "stall" when the last STALL_ROUNDS rounds lifted the bound by less than
 #: STALL_SHARE of the gap still open; then the flow stage may race (few sites only). Demo
 #: high "fewer moves": with straight-line travel a round lifts 3-8% of the open gap; along
