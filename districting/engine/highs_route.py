@@ -90,7 +90,7 @@ class HighsRoute:
         self.fixed = 0
 
     def _interrupt(self, e) -> None:
-        if e.data_out.mip_dual_bound >= self._target:
+        if np.isfinite(self._target) and e.data_out.mip_dual_bound >= self._target:
             self._proven = True
             e.interrupt()
         elif (self._cancel is not None and self._cancel()) or time.monotonic() > self._deadline:

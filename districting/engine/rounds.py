@@ -152,7 +152,7 @@ def take_answer(st: SolveState, steps: Steps, a: np.ndarray) -> tuple[int, int]:
                               dropped=st.dropped)
         added = st.backend.add_cuts(cuts)
         st.cuts.extend(cuts)
-        if st.relaxed and added == 0:
+        if st.relaxed and added == 0 and detached.any():
             added = steps.bring_in(st, a, detached)
         fixed = repair(problem, graph, a)
         if fixed is not None:
