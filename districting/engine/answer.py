@@ -1,4 +1,4 @@
-"""What one MIP solve returned, the same for both solver routes."""
+"""What one MIP solve returned, the same for every solver route, and how a HiGHS run reads."""
 
 from __future__ import annotations
 
@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["Answer"]
+__all__ = ["Answer", "set_start", "highs_status", "highs_assignment"]
 
 
 @dataclass
@@ -18,3 +18,42 @@ class Answer:
     objective: float
     bound: float
     message: str = ""
+
+
+def set_start(h, col_value: np.ndarray) -> None:
+    """Give the highspy model ``h`` a start (every column's value)."""
+    import highspy
+
+    sol = highspy.HighsSolution()
+    sol.col_value = col_value
+    sol.value_valid = True
+    h.setSolution(sol)
+
+
+def highs_status(h) -> str:
+    """The status word of HiGHS's last run on ``h``: optimal, infeasible, time_limit,
+    cancelled (interrupted: the caller tells the clock from the user), feasible (a
+    solution limit) or error."""
+    import highspy
+
+    ms = highspy.HighsModelStatus
+    return {
+        ms.kOptimal: "optimal",
+        ms.kInfeasible: "infeasible",
+        ms.kTimeLimit: "time_limit",
+        ms.kInterrupt: "cancelled",
+        ms.kHighsInterrupt: "cancelled",
+        ms.kSolutionLimit: "feasible",
+    }.get(h.getModelStatus(), "error")
+
+
+def highs_assignment(h, xi: np.ndarray, xj: np.ndarray, n_units: int) -> np.ndarray | None:
+    """Site per unit in the solution of HiGHS's last run on ``h`` (its first columns are
+    the pairs ``xi``, ``xj``; -1 for a unit without one), or None without a solution."""
+    if h.getInfo().primal_solution_status != 2:
+        return None
+    col = np.asarray(h.getSolution().col_value)
+    xv = col[: len(xi)] > 0.5
+    a = np.full(n_units, -1, np.int64)
+    a[xi[xv]] = xj[xv]
+    return a

@@ -119,19 +119,11 @@ def separator_cuts(
     that way gets no cut (:func:`corridor` names the units the model would need).
     """
     a = np.asarray(assignment, dtype=np.int64)
-    labels = zone_components(graph, a)
-    main = main_labels(problem, a, labels)
     cuts: list[Cut] = []
     grown_by_site: dict[int, np.ndarray] = {}
     open_by_site: dict[int, np.ndarray] = {}
     allowed = problem.allowed if passable is not None or dropped is not None else None
-    for piece in fragments(problem, graph, a):
-        if only is not None and not only[piece].any():
-            continue
-        j = int(a[piece[0]])
-        other, anchor = _other_side(problem, a, labels, main, j)
-        if other < 0:
-            continue
+    for piece, j, other, anchor in _cut_off(problem, graph, a, only):
         units, sep = piece, None
         if passable is not None:
             ok = allowed[:, j]  # a unit that may not join the zone is a wall for it
@@ -160,18 +152,10 @@ def corridor(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
     (fewest units) from it to the root through its zone and the dropped units; with them
     in the model the fragment's separators can be written. Bool mask over the units."""
     a = np.asarray(assignment, dtype=np.int64)
-    labels = zone_components(graph, a)
-    main = main_labels(problem, a, labels)
     need = np.zeros(graph.n, bool)
     by_site: dict[int, np.ndarray] = {}
     allowed = problem.allowed
-    for piece in fragments(problem, graph, a):
-        if only is not None and not only[piece].any():
-            continue
-        j = int(a[piece[0]])
-        other, _ = _other_side(problem, a, labels, main, j)
-        if other < 0:
-            continue
+    for piece, j, other, _ in _cut_off(problem, graph, a, only):
         if j not in by_site:
             by_site[j] = graph.components((a == j) | (dropped & allowed[:, j]))
         lab = by_site[j]
@@ -185,17 +169,23 @@ def corridor(problem: Problem, graph: UnitGraph, assignment: np.ndarray,
     return need
 
 
-def _other_side(problem: Problem, a: np.ndarray, labels: np.ndarray, main: np.ndarray,
-                j: int) -> tuple[int, int]:
-    """(the unit a fragment of zone ``j`` must reach, the a-b anchor or -1): the site's
-    root, else the first unit of the zone's main piece; (-1, -1) when there is none."""
-    r = -1 if problem.roots is None else int(problem.roots[j])
-    if r >= 0:
-        return r, -1
-    members = np.flatnonzero((a == j) & (labels == main[j]))
-    if not len(members):
-        return -1, -1
-    return int(members[0]), int(members[0])
+def _cut_off(problem: Problem, graph: UnitGraph, a: np.ndarray, only: np.ndarray | None):
+    """Each fragment of ``a`` (holding one of the ``only`` units, when given) with its
+    site ``j``, the unit it must reach (the site's root, else the first unit of the zone's
+    main piece) and the a-b anchor (-1 with a root): (piece, j, other, anchor)."""
+    labels = zone_components(graph, a)
+    main = main_labels(problem, a, labels)
+    for piece in fragments(problem, graph, a):
+        if only is not None and not only[piece].any():
+            continue
+        j = int(a[piece[0]])
+        r = -1 if problem.roots is None else int(problem.roots[j])
+        if r >= 0:
+            yield piece, j, r, -1
+            continue
+        members = np.flatnonzero((a == j) & (labels == main[j]))
+        if len(members):
+            yield piece, j, int(members[0]), int(members[0])
 
 
 def _grown_cut(graph: UnitGraph, a: np.ndarray, piece: np.ndarray, other: int,

@@ -32,7 +32,7 @@ import scipy.sparse as sp
 
 from ..problem import Problem
 from . import tuning
-from .answer import Answer
+from .answer import Answer, highs_assignment, highs_status, set_start
 from .formulation import formulate
 
 __all__ = ["FlowRoute", "flow_size", "tree_flows"]
@@ -175,7 +175,7 @@ class FlowRoute:
     def solve(self, gap: float, time_left: float | None, start: np.ndarray | None,
               cancel: Callable[[], bool] | None) -> Answer:
         """One solve of the exact model; ``start`` must be a valid (connected) plan."""
-        hs, h = self._hs, self.h
+        h = self.h
         if self.infeasible_reason:
             return Answer("infeasible", None, np.inf, np.inf, self.infeasible_reason)
         tl = np.inf if time_left is None else max(float(time_left), 0.01)
@@ -184,24 +184,15 @@ class FlowRoute:
         deadline = time.monotonic() + tl + 0.5
         self._stop = lambda: (cancel is not None and cancel()) or time.monotonic() > deadline
         if start is not None:
-            sol = hs.HighsSolution()
-            sol.col_value = self.vector(np.asarray(start, np.int64))
-            sol.value_valid = True
-            h.setSolution(sol)
+            set_start(h, self.vector(np.asarray(start, np.int64)))
         h.run()
-        st, info = h.getModelStatus(), h.getInfo()
-        ms = hs.HighsModelStatus
-        a = None
-        if info.primal_solution_status == 2:
-            col = np.asarray(h.getSolution().col_value)
-            xv = col[: len(self.xi)] > 0.5
-            a = np.full(self.problem.n_units, -1, np.int64)
-            a[self.xi[xv]] = self.xj[xv]
-            if (a < 0).any():
-                a = None
-        status = {ms.kOptimal: "optimal", ms.kInfeasible: "infeasible",
-                  ms.kTimeLimit: "time_limit", ms.kInterrupt: "time_limit",
-                  ms.kHighsInterrupt: "time_limit"}.get(st, "error")
+        info = h.getInfo()
+        a = highs_assignment(h, self.xi, self.xj, self.problem.n_units)
+        if a is not None and (a < 0).any():
+            a = None
+        status = highs_status(h)
+        if status == "cancelled":
+            status = "time_limit"
         if status == "time_limit" and cancel is not None and cancel():
             status = "cancelled"
         bound = float(info.mip_dual_bound) if status != "infeasible" else np.inf

@@ -16,7 +16,7 @@ import numpy as np
 
 from ..problem import Problem
 from . import tuning
-from .answer import Answer
+from .answer import Answer, highs_assignment, highs_status, set_start
 from .connectivity import Cut, UnitGraph, tree_links
 from .cuts import fractional_cuts
 from .fixing import fixable
@@ -118,7 +118,7 @@ class HighsRoute:
         """One MIP solve from ``start``. With ``prove_start`` (the exact rounds) the solve
         ends as soon as its bound proves ``start`` within ``gap``, and otherwise goes on to
         the finer gap ``gap * tuning.ROUND_GAP_SHARE`` against its own best answer."""
-        hs, h = self._hs, self.h
+        h = self.h
         if self.infeasible_reason:
             return Answer("infeasible", None, np.inf, np.inf, self.infeasible_reason)
         tl = np.inf if time_left is None else max(float(time_left), 0.01)
@@ -128,14 +128,12 @@ class HighsRoute:
         self._target, self._proven = float("inf"), False
         h.setOptionValue("mip_rel_gap", float(gap))
         if start is not None:
-            sol = hs.HighsSolution()
-            sol.col_value = self.vector(start)
-            sol.value_valid = True
-            h.setSolution(sol)
+            x0 = self.vector(start)
+            set_start(h, x0)
             # the plan in hand is proven once the bound reaches its cost less the gap; the
             # MIP's own gap (to its cheapest answer, maybe a disconnected one) goes finer
             if prove_start:
-                held = float(np.dot(self._cost, sol.col_value))
+                held = float(np.dot(self._cost, x0))
                 self._target = held - float(gap) * abs(held)
                 h.setOptionValue("mip_rel_gap", float(gap) * tuning.ROUND_GAP_SHARE)
         # the MIP's presolve is slow in the rows (SJC4a: 162,410 rows, 11.5 s at a 10 s
@@ -143,38 +141,22 @@ class HighsRoute:
         # longer (5.9 s at 350,850 columns before its first clock check)
         with self._presolve_for(tl, h.getNumRow()):
             h.run()
-        st = h.getModelStatus()
         info = h.getInfo()
-        ms = hs.HighsModelStatus
-        has = info.primal_solution_status == 2
-        if has:
-            col = np.asarray(h.getSolution().col_value)
-            got = float(np.dot(self._cost, col))
+        if info.primal_solution_status == 2:
+            got = float(np.dot(self._cost, np.asarray(h.getSolution().col_value)))
             want = float(info.objective_function_value)
             if abs(got - want) > 1e-7 * max(1.0, abs(want)):
                 # seen after rows were added: HiGHS reported a stale objective with the
                 # start as its solution; solving again from scratch gives a true answer
                 h.clearSolver()
                 h.run()
-                st = h.getModelStatus()
                 info = h.getInfo()
-                has = info.primal_solution_status == 2
-        a = None
-        if has:
-            col = np.asarray(h.getSolution().col_value)
-            xv = col[: len(self.xi)] > 0.5
-            a = np.full(self.problem.n_units, -1, np.int64)
-            a[self.xi[xv]] = self.xj[xv]
-            if (a[~self.drop] < 0).any():
-                a, has = None, False
-        status = {
-            ms.kOptimal: "optimal",
-            ms.kInfeasible: "infeasible",
-            ms.kTimeLimit: "time_limit",
-            ms.kInterrupt: "cancelled",
-            ms.kHighsInterrupt: "cancelled",
-            ms.kSolutionLimit: "feasible",
-        }.get(st, "error")
+        a = highs_assignment(h, self.xi, self.xj, self.problem.n_units)
+        if a is not None and (a[~self.drop] < 0).any():
+            a = None
+        has = a is not None
+        st = h.getModelStatus()
+        status = highs_status(h)
         if status == "cancelled" and self._proven:
             status = "optimal"  # the bound proved the plan in hand within the gap asked
         elif status == "cancelled" and (cancel is None or not cancel()):
