@@ -7,6 +7,9 @@ school sites at some units and sizes capacities so they bind: total capacity is 
 the students of the busiest year and is spread unevenly, so some schools are overcrowded
 under nearest-school assignment. Students come in 3 demand rows (plan year and two
 projections) with growth on one side of town and decline on the other.
+
+:func:`scattered_grid` is a small grid town whose travel is distance plus a random amount
+per pair, so zones want to break up, with many units without students.
 """
 
 from __future__ import annotations
@@ -19,7 +22,7 @@ from scipy.spatial import Delaunay, cKDTree
 
 from districting import Problem
 
-__all__ = ["synthetic_town"]
+__all__ = ["synthetic_town", "scattered_grid"]
 
 
 def _region_points(rng: np.random.Generator, n: int, radius: float) -> np.ndarray:
@@ -133,3 +136,22 @@ def synthetic_town(
         "overcrowded_today": int((load > capacity).any(axis=0).sum()),
     }
     return problem, info
+
+
+def scattered_grid(w: int, h: int, m: int, empty: float, seed: int) -> Problem:
+    """A w x h grid (rook adjacency), ``m`` schools at random units, a share ``empty`` of
+    units without students (1-3 students elsewhere), travel = grid distance to the school
+    plus a uniform 0-4 per pair, capacity 1.25 x the mean load."""
+    rng = np.random.default_rng(900 + seed)
+    xy = np.array([(x, y) for y in range(h) for x in range(w)], float)
+    edges = [(y * w + x, y * w + x + 1) for y in range(h) for x in range(w - 1)]
+    edges += [(y * w + x, (y + 1) * w + x) for y in range(h - 1) for x in range(w)]
+    n = len(xy)
+    roots = rng.choice(n, m, replace=False)
+    near = np.hypot(*(xy[:, None, :] - xy[roots][None, :, :]).transpose(2, 0, 1))
+    cost = near + rng.uniform(0, 4, (n, m))
+    d = rng.integers(1, 4, n).astype(float)
+    d[rng.random(n) < empty] = 0
+    d[roots] = 1
+    cap = np.full(m, d.sum() / m * 1.25)
+    return Problem.from_arrays(cost, d, capacity=cap, edges=edges, roots=roots)
