@@ -3,7 +3,8 @@ grid towns, where round answers have pieces joined to their schools only through
 units (``engine.cuts.corridor``). Prints status, seconds and gap per case; speed is
 measured here, never asserted in tests.
 
-``.venv/bin/python benchmarks/bench_corridor.py [--time-limit S] [--rerun-limit S]``
+``.venv/bin/python benchmarks/bench_corridor.py [--time-limit S] [--rerun-limit S]
+[--only rerun|grids]``
 """
 
 from __future__ import annotations
@@ -29,7 +30,16 @@ def main(argv: list[str] | None = None) -> int:
                     help="first solve and rerun at 2,000 x 25, s each")
     ap.add_argument("--charge", type=float, default=3000.0,
                     help="metres per student moved against the plan before the lock")
+    ap.add_argument("--only", choices=["rerun", "grids"], default=None, help="one part only")
     args = ap.parse_args(argv)
+    if args.only != "grids":
+        rerun_rows(args)
+    if args.only != "rerun":
+        grid_rows(args)
+    return 0
+
+
+def rerun_rows(args) -> None:
     print("Rerun after locking 5 border units, 2,000 x 25 (charge "
           f"{args.charge:,.0f} m per student moved; {args.rerun_limit:g} s each solve)")
     print(f"{'seed':>4} {'empty':>5} {'status':>10} {'rerun s':>8} {'gap %':>8}")
@@ -37,6 +47,9 @@ def main(argv: list[str] | None = None) -> int:
         r = run_resolve(2000, 25, seed, empty, 1e-4, args.rerun_limit, args.charge)
         print(f"{seed:>4} {empty:>5.2f} {r['status']:>10} {r['resolve_s']:>8.2f} "
               f"{r['gap']:>8.4f}", flush=True)
+
+
+def grid_rows(args) -> None:
     print(f"\nScattered grid towns, 12 x 10 units, 6 schools, 45% without students "
           f"({args.time_limit:g} s)")
     print(f"{'seed':>4} {'status':>10} {'s':>6} {'objective':>10} {'gap %':>8}")
@@ -46,7 +59,6 @@ def main(argv: list[str] | None = None) -> int:
         plan = solve(problem, gap=1e-4, time_limit=args.time_limit)
         print(f"{seed:>4} {plan.status:>10} {time.perf_counter() - t0:>6.1f} "
               f"{plan.objective:>10.2f} {plan.gap * 100:>8.4f}", flush=True)
-    return 0
 
 
 if __name__ == "__main__":
