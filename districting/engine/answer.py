@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["Answer", "set_start", "highs_status", "highs_assignment"]
+__all__ = ["Answer", "set_start", "set_interrupt", "highs_status", "highs_assignment"]
 
 
 @dataclass
@@ -28,6 +28,17 @@ def set_start(h, col_value: np.ndarray) -> None:
     sol.col_value = col_value
     sol.value_valid = True
     h.setSolution(sol)
+
+
+def set_interrupt(event, stop: bool) -> None:
+    """Write HiGHS's interrupt flag from a MIP interrupt callback: ``stop`` or not.
+
+    The flag is written at every call, never only set: HiGHS keeps it from one run of a
+    model to the next (highspy 1.16: after one interrupt, every later run of that model
+    stopped at its first check, with no node and no simplex iteration, and reported
+    "interrupted by user"). Writing ``False`` clears what the last run left.
+    """
+    event.interrupt(bool(stop))
 
 
 def highs_status(h) -> str:

@@ -59,6 +59,7 @@ import numpy as np
 
 from ..problem import Problem
 from ..rules import open_sites
+from .answer import set_interrupt
 from .column_duals import COMPACT_MAX_PAIRS, compact_duals, subgradient
 from .connected_pricing import price_connected
 from .connectivity import UnitGraph, plan_checks
@@ -219,11 +220,13 @@ class _Master:
         deadline = time.monotonic() + (time_limit or np.inf) + 0.5
 
         def interrupt(e) -> None:  # HiGHS checks its own limit rarely on some models
-            if time.monotonic() > deadline:
-                e.interrupt()
+            set_interrupt(e, time.monotonic() > deadline)
 
         h.cbMipInterrupt.subscribe(interrupt)
-        h.run()
+        try:
+            h.run()
+        finally:
+            h.cbMipInterrupt.unsubscribe(interrupt)  # the next run has its own deadline
         if h.getInfo().primal_solution_status != 2:
             return None
         x = np.asarray(h.getSolution().col_value)[self.n_art:]

@@ -32,7 +32,7 @@ import scipy.sparse as sp
 
 from ..problem import Problem
 from . import tuning
-from .answer import Answer, highs_assignment, highs_status, set_start
+from .answer import Answer, highs_assignment, highs_status, set_interrupt, set_start
 from .formulation import formulate
 
 __all__ = ["FlowRoute", "flow_size", "tree_flows"]
@@ -156,7 +156,7 @@ class FlowRoute:
         self.h = h
         self.ncol = n0 + k
         self._stop: Callable[[], bool] = lambda: False
-        h.cbMipInterrupt.subscribe(lambda e: e.interrupt() if self._stop() else None)
+        h.cbMipInterrupt.subscribe(lambda e: set_interrupt(e, self._stop()))
 
     def vector(self, a: np.ndarray) -> np.ndarray:
         """Column values of a valid plan: x, y, feeder z and tree flows (each arc carries its

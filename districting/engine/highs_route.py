@@ -16,7 +16,7 @@ import numpy as np
 
 from ..problem import Problem
 from . import tuning
-from .answer import Answer, highs_assignment, highs_status, set_start
+from .answer import Answer, highs_assignment, highs_status, set_interrupt, set_start
 from .connectivity import Cut, UnitGraph, tree_links
 from .cuts import fractional_cuts
 from .fixing import fixable
@@ -92,9 +92,8 @@ class HighsRoute:
     def _interrupt(self, e) -> None:
         if np.isfinite(self._target) and e.data_out.mip_dual_bound >= self._target:
             self._proven = True
-            e.interrupt()
-        elif (self._cancel is not None and self._cancel()) or time.monotonic() > self._deadline:
-            e.interrupt()
+        set_interrupt(e, self._proven or (self._cancel is not None and self._cancel())
+                      or time.monotonic() > self._deadline)
 
     # --------------------------------------------------------------- interface
     def vector(self, assignment: np.ndarray) -> np.ndarray:
