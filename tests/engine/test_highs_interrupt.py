@@ -11,29 +11,39 @@ from __future__ import annotations
 
 import numpy as np
 
+import pytest
+
 from districting import Problem
+from districting.engine.flow_route import FlowRoute
 from districting.engine.highs_route import HighsRoute
 
 
-def tight_assignment() -> Problem:
-    """40 units, 5 sites whose capacities bind (a whole-unit assignment HiGHS must search:
-    its presolve does not solve it)."""
+def tight_assignment(contiguous: bool = False) -> Problem:
+    """40 units on an 8 x 5 grid, 5 sites whose capacities bind (a whole-unit assignment
+    HiGHS must search: its presolve does not solve it); with zones contiguous on the grid
+    and rooted at 5 units when ``contiguous``."""
     rng = np.random.default_rng(3)
-    xy = rng.uniform(0, 10, (40, 2))
-    sites = rng.uniform(0, 10, (5, 2))
-    cost = np.linalg.norm(xy[:, None] - sites[None], axis=2) * 100
+    xy = np.array([(i % 8, i // 8) for i in range(40)], float) + rng.uniform(-.3, .3, (40, 2))
+    roots = [0, 7, 19, 32, 39]
+    cost = np.linalg.norm(xy[:, None] - xy[roots][None], axis=2) * 100
     demand = rng.integers(5, 30, 40).astype(float)
     capacity = np.full(5, demand.sum() / 5 * 1.04)
-    return Problem.from_arrays(cost, demand, capacity)
+    if not contiguous:
+        return Problem.from_arrays(cost, demand, capacity)
+    edges = [(i, i + 1) for i in range(40) if i % 8 < 7] + [(i, i + 8) for i in range(32)]
+    return Problem.from_arrays(cost, demand, capacity, edges=edges, roots=roots)
 
 
-def test_a_run_after_an_interrupted_one_searches_again():
-    problem = tight_assignment()
-    route = HighsRoute(problem)
-    stopped = route.solve(1e-9, 30.0, None, cancel=lambda: True)
+@pytest.mark.parametrize("route_of, contiguous", [
+    (HighsRoute, False), (HighsRoute, True), (FlowRoute, True),
+], ids=["cut route", "cut route, contiguous", "flow route"])
+def test_a_run_after_an_interrupted_one_searches_again(route_of, contiguous):
+    problem = tight_assignment(contiguous)
+    route = route_of(problem)
+    stopped = route.solve(1e-9, 30.0, None, lambda: True)
     assert stopped.status == "cancelled"
-    again = route.solve(1e-9, 30.0, None, cancel=None)
-    fresh = HighsRoute(problem).solve(1e-9, 30.0, None, cancel=None)
+    again = route.solve(1e-9, 30.0, None, None)
+    fresh = route_of(problem).solve(1e-9, 30.0, None, None)
     assert fresh.status == "optimal"
     assert again.status == "optimal"
-    assert again.objective == fresh.objective
+    assert again.objective == pytest.approx(fresh.objective, rel=1e-9)
