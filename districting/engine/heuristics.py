@@ -25,6 +25,7 @@ from .tuning import (
     FIX_GAP_FLAT,
     FIX_LEVELS,
     FIX_ROUNDS,
+    FIX_SHARE,
     POLISH_GAP,
     POLISH_RESERVE,
     POLISH_ROUNDS,
@@ -138,6 +139,7 @@ def fix_and_resolve(st: SolveState, max_rounds: int = FIX_ROUNDS) -> None:
     lp = backend.relaxation()
     if lp is None:
         return
+    end = _share_end(run, FIX_SHARE)
     z, xv, rc = lp
     k = len(xv)
     scale = max(abs(z), 1.0)
@@ -165,7 +167,7 @@ def fix_and_resolve(st: SolveState, max_rounds: int = FIX_ROUNDS) -> None:
     for _ in range(max_rounds):
         if cancel is not None and cancel():
             break
-        left = run.left()
+        left = _left_until(run, end)
         if left is not None and left <= 0:
             break
         keep = must | (rc <= levels[level] * scale)
@@ -215,14 +217,27 @@ def fix_and_resolve(st: SolveState, max_rounds: int = FIX_ROUNDS) -> None:
     backend.trees(False)
     backend.unrestrict()
     if graph is not None and run.best is not None:
-        polish(st, min(st.gap, POLISH_GAP))
+        polish(st, min(st.gap, POLISH_GAP), end=end)
 
-def polish(st: SolveState, hgap: float, max_rounds: int = POLISH_ROUNDS) -> None:
+
+def _share_end(run, share: float) -> float | None:
+    """The moment (seconds into the solve) when ``share`` of the time left is used."""
+    left = run.left()
+    return None if left is None else run.elapsed() + share * max(left, 0.0)
+
+
+def _left_until(run, end: float | None) -> float | None:
+    """Seconds left before ``end`` (and before the solve's limit)."""
+    return None if end is None else min(run.left(), end - run.elapsed())
+
+def polish(st: SolveState, hgap: float, max_rounds: int = POLISH_ROUNDS,
+           end: float | None = None) -> None:
     """Improve the best plan by MIPs over its neighbourhood (heuristic).
 
     Columns are restricted to each unit's own zone and the zones of its neighbours in
     the best plan; units left cut off lose that pair and the MIP is solved again
-    (fix-and-resolve); each better contiguous plan recentres the neighbourhood.
+    (fix-and-resolve); each better contiguous plan recentres the neighbourhood. It stops
+    at ``end`` (seconds into the solve), when given.
     """
     problem, graph, backend, run, cancel = st.problem, st.graph, st.backend, st.run, st.cancel
     n = problem.n_units
@@ -235,6 +250,10 @@ def polish(st: SolveState, hgap: float, max_rounds: int = POLISH_ROUNDS) -> None
         left = run.left()
         if left is not None and left <= POLISH_RESERVE:
             break
+        if end is not None:
+            left = _left_until(run, end)
+            if left <= SUB_MIN:
+                break
         if centre is None or not np.array_equal(centre, run.best):
             centre = run.best.copy()
             forbid[:] = False

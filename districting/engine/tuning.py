@@ -97,6 +97,10 @@ FIX_GAP_FLAT = 1e-2
 #: Each restricted MIP gets at most this share of the time left, at least ``SUB_MIN`` s.
 SUB_SHARE = 0.3
 SUB_MIN = 0.05
+#: Share of the time left, at most, for fix-and-resolve and its polish together: its
+#: restricted MIPs ran on until half a second before the limit, leaving the exact rounds no
+#: turn (demo elementary, fewer moves, along streets: 60 s with no exact round).
+FIX_SHARE = 0.4
 #: Rounds, at most, of fix-and-resolve and of the polish around the best plan.
 FIX_ROUNDS = 60
 POLISH_ROUNDS = 40
