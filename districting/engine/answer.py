@@ -6,7 +6,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["Answer", "set_start", "set_interrupt", "highs_status", "highs_assignment"]
+__all__ = ["Answer", "set_start", "set_interrupt", "set_lp_time_limit", "highs_status",
+           "highs_assignment"]
 
 
 @dataclass
@@ -39,6 +40,18 @@ def set_interrupt(event, stop: bool) -> None:
     "interrupted by user"). Writing ``False`` clears what the last run left.
     """
     event.interrupt(bool(stop))
+
+
+def set_lp_time_limit(h, seconds: float) -> None:
+    """Give the next LP run of the highspy model ``h`` ``seconds`` (infinite: no limit).
+
+    HiGHS holds an LP run against the run time of the model summed over all its runs, MIP
+    runs included (highspy 1.16: after a MIP run of 1.27 s an LP given 1.0 s stopped at
+    once, "time limit reached"); a MIP run is held against its own time. So the limit
+    set is the run time so far plus ``seconds``.
+    """
+    limit = float(seconds) if not np.isfinite(seconds) else h.getRunTime() + float(seconds)
+    h.setOptionValue("time_limit", limit)
 
 
 def highs_status(h) -> str:

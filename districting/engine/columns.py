@@ -59,7 +59,7 @@ import numpy as np
 
 from ..problem import Problem
 from ..rules import open_sites
-from .answer import set_interrupt
+from .answer import set_interrupt, set_lp_time_limit
 from .column_duals import COMPACT_MAX_PAIRS, compact_duals, subgradient
 from .connected_pricing import price_connected
 from .connectivity import UnitGraph, plan_checks
@@ -185,9 +185,8 @@ class _Master:
         return True
 
     def _limit(self, seconds: float | None) -> None:
-        """HiGHS counts its time limit over every run of one object: add the time used."""
-        limit = np.inf if seconds is None else self.h.getRunTime() + max(seconds, 0.01)
-        self.h.setOptionValue("time_limit", float(limit))
+        """The next run's time limit (:func:`~districting.engine.answer.set_lp_time_limit`)."""
+        set_lp_time_limit(self.h, np.inf if seconds is None else max(seconds, 0.01))
 
     def solve_lp(self, time_limit: float | None) -> tuple[float, np.ndarray] | None:
         """(value, row duals) of the restricted master LP; None when it did not finish."""
@@ -210,7 +209,8 @@ class _Master:
         if self.n_art:
             art = np.arange(self.n_art, dtype=np.int32)
             h.changeColsBounds(self.n_art, art, np.zeros(self.n_art), np.zeros(self.n_art))
-        self._limit(time_limit)
+        # a MIP run is held against its own time, not the model's summed run time
+        h.setOptionValue("time_limit", float(np.inf if time_limit is None else max(time_limit, 0.01)))
         h.setOptionValue("mip_rel_gap", 1e-9)
         if start is not None:
             sol = hs.HighsSolution()

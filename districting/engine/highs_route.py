@@ -16,7 +16,14 @@ import numpy as np
 
 from ..problem import Problem
 from . import tuning
-from .answer import Answer, highs_assignment, highs_status, set_interrupt, set_start
+from .answer import (
+    Answer,
+    highs_assignment,
+    highs_status,
+    set_interrupt,
+    set_lp_time_limit,
+    set_start,
+)
 from .connectivity import Cut, UnitGraph, tree_links
 from .cuts import fractional_cuts
 from .fixing import fixable
@@ -238,7 +245,7 @@ class HighsRoute:
         """Solve the model as it stands (inside :meth:`_continuous`): (z, x, rc) of the
         pair columns, or None when the LP did not finish optimal."""
         hs, h = self._hs, self.h
-        h.setOptionValue("time_limit", float(time_limit))
+        set_lp_time_limit(h, time_limit)
         with self._presolve_for(time_limit, self.ncol):
             h.run()
         if h.getModelStatus() != hs.HighsModelStatus.kOptimal:

@@ -37,6 +37,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from ..problem import Problem
+from .answer import set_lp_time_limit
 from .formulation import formulate
 from .tuning import SCREEN_ADD, SCREEN_NEAREST
 
@@ -160,7 +161,7 @@ def screen_pairs(problem: Problem, drop: np.ndarray | None, plan: np.ndarray,
     n_rows, n_cols = len(rows), len(cols)
     rounds, best, converged = 0, None, False
     while time.monotonic() < deadline and (max_rounds is None or rounds < max_rounds):
-        h.setOptionValue("time_limit", float(deadline - time.monotonic()))
+        set_lp_time_limit(h, deadline - time.monotonic())
         h.run()
         rounds += 1
         if h.getModelStatus() != highspy.HighsModelStatus.kOptimal:

@@ -1,4 +1,5 @@
-"""A HiGHS run that was interrupted must not stop the next run of the same model.
+"""A HiGHS run that was interrupted must not stop the next run of the same model, and an LP
+run after MIP runs gets the time it is given.
 
 highspy 1.16 keeps the interrupt flag of its MIP callback from one run to the next: after
 one interrupt (the clock guard, the user, or the bound proving the plan in hand), every
@@ -47,3 +48,16 @@ def test_a_run_after_an_interrupted_one_searches_again(route_of, contiguous):
     assert fresh.status == "optimal"
     assert again.status == "optimal"
     assert again.objective == pytest.approx(fresh.objective, rel=1e-9)
+
+
+def test_an_lp_after_mip_runs_gets_its_own_time():
+    # HiGHS holds an LP run against the model's run time summed over all its runs (MIP runs
+    # included); the LP relaxation asked for after MIP runs must still get its 0.1 s
+    problem = tight_assignment()
+    route = HighsRoute(problem)
+    while route.h.getRunTime() < 0.3:
+        assert route.solve(1e-9, 30.0, None, None).status == "optimal"
+    lp = route.relaxation(0.1)
+    assert lp is not None
+    # the LP bound is at most the optimum (a second model built afresh)
+    assert lp[0] <= HighsRoute(problem).solve(1e-9, 30.0, None, None).objective + 1e-6
