@@ -210,7 +210,8 @@ class _Master:
             art = np.arange(self.n_art, dtype=np.int32)
             h.changeColsBounds(self.n_art, art, np.zeros(self.n_art), np.zeros(self.n_art))
         # a MIP run is held against its own time, not the model's summed run time
-        h.setOptionValue("time_limit", float(np.inf if time_limit is None else max(time_limit, 0.01)))
+        mip_limit = np.inf if time_limit is None else max(time_limit, 0.01)
+        h.setOptionValue("time_limit", float(mip_limit))
         h.setOptionValue("mip_rel_gap", 1e-9)
         if start is not None:
             sol = hs.HighsSolution()

@@ -11,7 +11,6 @@ round at all. The optimum here is checked against a second model built afresh.
 from __future__ import annotations
 
 import numpy as np
-
 import pytest
 
 from districting import Problem
