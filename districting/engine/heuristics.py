@@ -230,6 +230,7 @@ def _left_until(run, end: float | None) -> float | None:
     """Seconds left before ``end`` (and before the solve's limit)."""
     return None if end is None else min(run.left(), end - run.elapsed())
 
+
 def polish(st: SolveState, hgap: float, max_rounds: int = POLISH_ROUNDS,
            end: float | None = None) -> None:
     """Improve the best plan by MIPs over its neighbourhood (heuristic).
