@@ -144,8 +144,11 @@ class HighsRoute:
                 h.setOptionValue("mip_rel_gap", float(gap) * tuning.ROUND_GAP_SHARE)
         # the MIP's presolve is slow in the rows (SJC4a: 162,410 rows, 11.5 s at a 10 s
         # limit); on a town of 10,374 rows it is quick and without it HiGHS's set-up took
-        # longer (5.9 s at 350,850 columns before its first clock check)
-        with self._presolve_for(tl, h.getNumRow()):
+        # longer (5.9 s at 350,850 columns before its first clock check). A restricted
+        # model (most columns held at 0) presolves fast: on SJC4b one given 0.98 s took
+        # 1.05 s with presolve, 1.66 s without.
+        per_row = tuning.MIP_PRESOLVE_PER_ROW if self._temp is None else 0.0
+        with self._presolve_for(tl, h.getNumRow(), per_row):
             h.run()
         info = h.getInfo()
         if info.primal_solution_status == 2:
@@ -213,14 +216,16 @@ class HighsRoute:
             self._lp_sites = ((src < 0).astype(float), src)
 
     @contextmanager
-    def _presolve_for(self, time_limit: float, size: int):
+    def _presolve_for(self, time_limit: float, size: int, seconds_per: float = 0.0):
         """HiGHS's presolve off inside the block when the run is time-limited and ``size``
-        (the model's columns or rows) above ``tuning.LP_PRESOLVE_LIMIT``. Presolve checks the
-        clock rarely: on Lorena & Senne's SJC4a (162,006 columns, 162,410 rows) the LP's ran
-        90-277 s against limits of 3-20 s, and the MIP's 11.5 s against 10 s (the whole MIP
-        run 25.8 s against 13 s inside a solve), while it removed 805 rows. The simplex and
-        the tree check the clock often."""
-        quick = np.isfinite(time_limit) and size > tuning.LP_PRESOLVE_LIMIT
+        (the model's columns or rows) is above ``tuning.LP_PRESOLVE_LIMIT``, or when
+        ``size * seconds_per`` (the presolve's expected seconds) is above the limit.
+        Presolve checks the clock rarely: on Lorena & Senne's SJC4a (162,006 columns,
+        162,410 rows) the LP's ran 90-277 s against limits of 3-20 s, and the MIP's 11.5 s
+        against 10 s (the whole MIP run 25.8 s against 13 s inside a solve), while it
+        removed 805 rows. The simplex and the tree check the clock often."""
+        quick = np.isfinite(time_limit) and (
+            size > tuning.LP_PRESOLVE_LIMIT or size * seconds_per > time_limit)
         if quick:
             self.h.setOptionValue("presolve", "off")
         try:

@@ -63,3 +63,42 @@ def test_an_lp_after_mip_runs_gets_its_own_time():
     assert lp is not None
     # the LP bound is at most the optimum (a second model built afresh)
     assert lp[0] <= HighsRoute(problem).solve(1e-9, 30.0, None, None).objective + 1e-6
+
+
+def test_a_mip_whose_limit_is_shorter_than_its_presolve_runs_without_it(monkeypatch):
+    # HiGHS's MIP presolve does not look at the clock: on Lorena & Senne's SJC4b (149,400
+    # rows) an exact round given 7.0 s took 13.8 s. A time-limited MIP whose rows times
+    # tuning.MIP_PRESOLVE_PER_ROW exceed its limit runs without presolve; a restricted model
+    # (most columns held at 0; it presolves fast) and a run without a limit keep it.
+    from contextlib import contextmanager
+
+    from districting.engine import highs_route, tuning
+
+    seen: list[str] = []
+    inner = HighsRoute._presolve_for
+
+    @contextmanager
+    def watched(self, *args):
+        with inner(self, *args):
+            seen.append(self.h.getOptionValue("presolve")[1])
+            yield
+
+    monkeypatch.setattr(highs_route.HighsRoute, "_presolve_for", watched)
+    problem = tight_assignment()
+    route = HighsRoute(problem)
+    fresh = HighsRoute(problem).solve(1e-9, None, None, None)
+    rows = route.h.getNumRow()
+    monkeypatch.setattr(tuning, "MIP_PRESOLVE_PER_ROW", 30.0 / rows * 2)  # 60 s expected
+    short = route.solve(1e-9, 30.0, None, None)
+    assert seen[-1] == "off"
+    assert short.status == "optimal"
+    assert short.objective == pytest.approx(fresh.objective, rel=1e-9)
+    assert route.h.getOptionValue("presolve")[1] == "on"  # put back after the run
+    route.solve(1e-9, 90.0, None, None)
+    assert seen[-1] == "on"
+    route.solve(1e-9, None, None, None)
+    assert seen[-1] == "on"
+    route.restrict(np.array([0]))
+    route.solve(1e-9, 30.0, None, None)
+    assert seen[-1] == "on"
+    route.unrestrict()
