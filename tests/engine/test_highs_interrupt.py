@@ -1,5 +1,6 @@
-"""A HiGHS run that was interrupted must not stop the next run of the same model, and an LP
-run after MIP runs gets the time it is given.
+"""A HiGHS run that was interrupted must not stop the next run of the same model, an LP run
+after MIP runs gets the time it is given, and a MIP whose limit is shorter than its presolve
+would take runs without presolve.
 
 highspy 1.16 keeps the interrupt flag of its MIP callback from one run to the next: after
 one interrupt (the clock guard, the user, or the bound proving the plan in hand), every
@@ -66,7 +67,7 @@ def test_an_lp_after_mip_runs_gets_its_own_time():
 
 
 def test_a_mip_whose_limit_is_shorter_than_its_presolve_runs_without_it(monkeypatch):
-    # HiGHS's MIP presolve does not look at the clock: on Lorena & Senne's SJC4b (149,400
+    # HiGHS's MIP presolve rarely looks at the clock: on Lorena & Senne's SJC4b (149,400
     # rows) an exact round given 7.0 s took 13.8 s. A time-limited MIP whose rows times
     # tuning.MIP_PRESOLVE_PER_ROW exceed its limit runs without presolve; a restricted model
     # (most columns held at 0; it presolves fast) and a run without a limit keep it.
