@@ -4,7 +4,7 @@ Units with no students are handed out again (they cost nothing, so the MIP place
 random) (:func:`reassign_empty`), then disconnected pieces with students move into a
 neighbouring zone that can take them, cheapest first (:func:`repair`). :func:`make_valid`
 goes further: :func:`absorb` joins every piece to a zone even over capacity, then
-:func:`districting.engine.improve.rebalance` brings the bands back and
+:func:`districting.engine.rebalance.rebalance` brings the bands back and
 :func:`districting.engine.improve.improve` lowers the cost.
 """
 
@@ -24,7 +24,9 @@ from .connectivity import (
     zone_components,
     zone_loads,
 )
-from .improve import fixed_units, improve, rebalance
+from .improve import improve
+from .moves import fixed_units
+from .rebalance import rebalance
 
 __all__ = ["reassign_empty", "repair", "absorb", "make_valid"]
 

@@ -2,7 +2,7 @@
 
 :func:`cut_units` finds them for one zone by one depth-first search; :class:`ZoneCuts`
 answers :func:`~districting.engine.connectivity.stays_connected` from them for a local
-search that asks about many moves per step (:func:`districting.engine.improve.rebalance`).
+search that asks about many moves per step (:func:`districting.engine.rebalance.rebalance`).
 """
 
 from __future__ import annotations

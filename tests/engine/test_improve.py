@@ -13,6 +13,7 @@ from plan_check import assert_plan_valid
 
 from districting import Problem
 from districting.engine import improve as ls
+from districting.engine import rebalance as rb
 from districting.engine import repair
 from districting.engine.connectivity import UnitGraph
 
@@ -63,7 +64,7 @@ def test_rebalance_clears_an_over_full_school_in_every_year():
     a = repair.absorb(prob, g, np.argmin(prob.cost, axis=1))
     assert a is not None and zones_connected(a, prob, edges)
     assert (loads(prob, a)[:, 0] > 40).all()
-    b = ls.rebalance(prob, g, a)
+    b = rb.rebalance(prob, g, a)
     assert b is not None
     assert (loads(prob, b)[:, 0] <= 40).all()
     assert_plan_valid(prob, b)  # the independent checker
@@ -110,7 +111,7 @@ def test_rebalance_passes_the_excess_along_a_chain_of_zones():
     prob = Problem.from_arrays(cost, d, capacity=[6, 8, 6], edges=edges, roots=[0, 2, 5])
     g = UnitGraph.of(prob)
     a = np.array([0, 0, 1, 1, 2, 2])
-    b = ls.rebalance(prob, g, a)
+    b = rb.rebalance(prob, g, a)
     assert b is not None
     assert list(b) == [0, 1, 1, 2, 2, 2]
     assert list(loads(prob, b)[0]) == [5, 8, 5]
@@ -188,7 +189,7 @@ def test_rebalance_keeps_zones_connected_over_many_moves():
                                    max_util=1.0, min_util=0.5)
         g = UnitGraph.of(prob)
         a = repair.absorb(prob, g, np.argmin(prob.cost, axis=1))
-        b = ls.rebalance(prob, g, a)
+        b = rb.rebalance(prob, g, a)
         assert b is not None, seed
         assert zones_connected(b, prob, edges), seed
         assert_plan_valid(prob, b)  # the independent checker
