@@ -1,4 +1,5 @@
-"""What one MIP solve returned, the same for every solver route, and how a HiGHS run reads."""
+"""What one MIP solve returned, the same for every solver route, and how a HiGHS run reads
+(and a HiGHS model that prints nothing)."""
 
 from __future__ import annotations
 
@@ -6,8 +7,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["Answer", "set_start", "set_interrupt", "set_lp_time_limit", "highs_status",
-           "highs_assignment"]
+__all__ = ["Answer", "quiet_highs", "set_start", "set_interrupt", "set_lp_time_limit",
+           "highs_status", "highs_assignment"]
 
 
 @dataclass
@@ -81,3 +82,24 @@ def highs_assignment(h, xi: np.ndarray, xj: np.ndarray, n_units: int) -> np.ndar
     a = np.full(n_units, -1, np.int64)
     a[xi[xv]] = xj[xv]
     return a
+
+
+def quiet_highs():
+    """A Highs object with no output: its constructor prints a banner on the C stdout,
+    which would break the CLI's tables and pipes, so file descriptor 1 is muted meanwhile."""
+    import os
+    import sys
+
+    import highspy
+
+    sys.stdout.flush()
+    saved = os.dup(1)
+    try:
+        with open(os.devnull, "wb") as null:
+            os.dup2(null.fileno(), 1)
+            h = highspy.Highs()
+            h.setOptionValue("output_flag", False)
+    finally:
+        os.dup2(saved, 1)
+        os.close(saved)
+    return h

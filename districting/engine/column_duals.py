@@ -41,7 +41,7 @@ def compact_duals(problem: Problem, nrow: int, moved_row: int, ride_row: int,
     finish optimal within ``time_limit``."""
     import highspy
 
-    from .highs_route import _quiet_highs
+    from .answer import quiet_highs
 
     f = formulate(problem)
     if f.infeasible_reason:
@@ -55,7 +55,7 @@ def compact_duals(problem: Problem, nrow: int, moved_row: int, ride_row: int,
     lp.a_matrix_.start_ = a.indptr.astype(np.int32)
     lp.a_matrix_.index_ = a.indices.astype(np.int32)
     lp.a_matrix_.value_ = a.data
-    h = _quiet_highs()
+    h = quiet_highs()
     h.setOptionValue("presolve", "off")
     if time_limit is not None:
         h.setOptionValue("time_limit", max(float(time_limit), 0.1))

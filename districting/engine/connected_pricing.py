@@ -181,11 +181,11 @@ def _exact(s: _Site, pool: list[tuple[np.ndarray, np.ndarray]], time_limit: floa
     zone exists). Feasible zones met on the way are appended to ``found`` (local masks)."""
     import highspy
 
-    from .highs_route import _quiet_highs
+    from .answer import quiet_highs
 
     n = len(s.units)
     deadline = None if time_limit is None else time.monotonic() + time_limit
-    h = _quiet_highs()
+    h = quiet_highs()
     h.setOptionValue("threads", int(tuning.HIGHS_THREADS))  # one scheduler per process
     h.setOptionValue("mip_rel_gap", PRICE_GAP / 2)
     lower = np.zeros(n)

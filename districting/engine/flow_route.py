@@ -100,7 +100,7 @@ class FlowRoute:
     def __init__(self, problem: Problem, threads: int | None = None) -> None:
         import highspy
 
-        from .highs_route import _quiet_highs
+        from .answer import quiet_highs
 
         self._hs, self.problem = highspy, problem
         f = formulate(problem)
@@ -150,7 +150,7 @@ class FlowRoute:
         integer, cont = highspy.HighsVarType.kInteger, highspy.HighsVarType.kContinuous
         lp.integrality_ = [integer] * n0 + [cont] * k
         self._cost = np.asarray(lp.col_cost_, float)
-        h = _quiet_highs()
+        h = quiet_highs()
         h.setOptionValue("threads", int(threads or tuning.HIGHS_THREADS))
         h.passModel(lp)
         self.h = h

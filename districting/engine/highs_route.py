@@ -20,6 +20,7 @@ from .answer import (
     Answer,
     highs_assignment,
     highs_status,
+    quiet_highs,
     set_interrupt,
     set_lp_time_limit,
     set_start,
@@ -82,7 +83,7 @@ class HighsRoute:
         self._last_duals: np.ndarray | None = None  # of the assignment rows, last LP
         self._tree: np.ndarray | None = None  # rows of the heuristic's site trees
         self._tree_off = np.zeros(0, np.int64)
-        h = _quiet_highs()
+        h = quiet_highs()
         h.setOptionValue("threads", int(threads or tuning.HIGHS_THREADS))
         h.setOptionValue("presolve", "on")
         if ncol > PROBE_LIMIT or problem.group_band > 0:  # see tuning.PROBE_LIMIT
@@ -425,24 +426,3 @@ class HighsRoute:
     def column(self, units: np.ndarray, sites: np.ndarray) -> np.ndarray:
         """Column index per (unit, site) pair (-1: no column)."""
         return self.colmap[units, sites]
-
-
-def _quiet_highs():
-    """A Highs object with no output: its constructor prints a banner on the C stdout,
-    which would break the CLI's tables and pipes, so file descriptor 1 is muted meanwhile."""
-    import os
-    import sys
-
-    import highspy
-
-    sys.stdout.flush()
-    saved = os.dup(1)
-    try:
-        with open(os.devnull, "wb") as null:
-            os.dup2(null.fileno(), 1)
-            h = highspy.Highs()
-            h.setOptionValue("output_flag", False)
-    finally:
-        os.dup2(saved, 1)
-        os.close(saved)
-    return h

@@ -116,7 +116,7 @@ def screen_pairs(problem: Problem, drop: np.ndarray | None, plan: np.ndarray,
     """
     import highspy
 
-    from .highs_route import _quiet_highs
+    from .answer import quiet_highs
 
     t0 = time.monotonic()
     f = formulate(problem, drop)
@@ -140,7 +140,7 @@ def screen_pairs(problem: Problem, drop: np.ndarray | None, plan: np.ndarray,
         leaving a row out only relaxes the LP, and the bound counts it with y = 0."""
         return ((pair_rows @ cols[:k].astype(float)) > 0) | ~touches
 
-    h = _quiet_highs()
+    h = quiet_highs()
     h.setOptionValue("presolve", "off")
     model_row = np.full(a.shape[0], -1, np.int64)  # full row -> row of the LP
     model_col = np.full(ncol, -1, np.int64)

@@ -140,10 +140,10 @@ def _mip(s: SiteSlice, v: np.ndarray, time_limit: float | None
     """The knapsack as a HiGHS MIP: (choice or None, its value, a lower bound)."""
     import highspy
 
-    from .highs_route import _quiet_highs
+    from .answer import quiet_highs
 
     k, t_rows = len(v), s.load.shape[0]
-    h = _quiet_highs()
+    h = quiet_highs()
     h.setOptionValue("mip_rel_gap", 1e-9)
     if time_limit is not None:
         h.setOptionValue("time_limit", max(float(time_limit), 0.01))
