@@ -12,7 +12,9 @@ Sections:
 
 Each town runs in a fresh process (spawned), so its peak resident memory is its own.
 
-Usage: ``.venv/bin/python benchmarks/bench_engine.py [--quick | --full] [--data DIR]``.
+Usage: ``.venv/bin/python benchmarks/bench_engine.py [--quick | --full] [--data DIR]
+[--charge METRES]`` (``--charge``: the towns with a charge per student moved away from
+today's zones, as in a "fewer moves" option).
 """
 
 from __future__ import annotations
@@ -88,12 +90,14 @@ class _FirstPlan:
 
 
 def run_town(n_units: int, n_sites: int, seed: int, empty: float, gap: float,
-             time_limit: float) -> dict:
+             time_limit: float, charge: float = 0.0) -> dict:
+    """One synthetic town solved; ``charge``: metres of travel per student moved away from
+    today's zones (the stability weight of a "fewer moves" option)."""
     from towns import synthetic_town
 
     import districting
 
-    problem, info = synthetic_town(n_units, n_sites, seed, empty)
+    problem, info = synthetic_town(n_units, n_sites, seed, empty, stability_weight=charge)
     first = _FirstPlan()
     t0 = time.perf_counter()
     plan = districting.solve(problem, gap=gap, time_limit=time_limit, progress=first)
@@ -295,6 +299,8 @@ def main(argv: list[str] | None = None) -> int:
                     help="folder with orlib_pmedcap/ and lorena_senne_sjc/")
     ap.add_argument("--gap", type=float, default=1e-4, help="relative gap for the towns")
     ap.add_argument("--time-limit", type=float, default=120.0, help="per town solve, s")
+    ap.add_argument("--charge", type=float, default=0.0,
+                    help="metres per student moved away from today's zones, for the towns")
     ap.add_argument("--flow-time", type=float, default=120.0, help="flow formulation limit")
     ap.add_argument("--lit-time", type=float, default=60.0, help="per published instance")
     ap.add_argument("--skip", nargs="*", default=[],
@@ -309,11 +315,12 @@ def main(argv: list[str] | None = None) -> int:
     if "towns" not in args.skip:
         rows = []
         for n, m, s, e in town_grid(args):
-            row = _guarded(run_town, n, m, s, e, args.gap, args.time_limit)
+            row = _guarded(run_town, n, m, s, e, args.gap, args.time_limit, args.charge)
             rows.append({"units": n, "sites": m, "seed": s, "empty": e, **row})
             print(_table(rows[-1:], TOWN_COLS).split("\n")[-1], flush=True)
         print("\nSynthetic towns (gap requested "
-              f"{args.gap:g}; frag r1 = disconnected pieces in round 1 before repair)")
+              f"{args.gap:g}; charge {args.charge:,.0f} m per student moved; "
+              "frag r1 = disconnected pieces in round 1 before repair)")
         print(_table(rows, TOWN_COLS), "\n", flush=True)
 
     if "flow" not in args.skip:
