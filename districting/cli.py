@@ -1,10 +1,11 @@
 """The `districting` command: check, solve, options, verify, packet, export, lock, unlock,
 forbid, unforbid, demo (and serve, from ui/).
 
-Each sub-command is a thin wrapper over the engine's public functions; all the work lives
-in the modules it calls. Sub-commands from outside the engine (the workbench's ``serve``)
-register through the ``districting.commands`` entry point, so this module never imports
-the UI.
+This module builds the parser and runs the chosen command; what each command does is in
+:mod:`districting.cli_commands`, thin wrappers over the public functions of the modules
+they call, where all the work lives. Sub-commands from outside the engine (the workbench's
+``serve``) register through the ``districting.commands`` entry point, so this module never
+imports the UI.
 """
 
 from __future__ import annotations

@@ -4,8 +4,12 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
+
+if TYPE_CHECKING:
+    import highspy
 
 __all__ = ["Answer", "quiet_highs", "set_start", "set_interrupt", "set_lp_time_limit",
            "highs_status", "highs_assignment"]
@@ -84,7 +88,7 @@ def highs_assignment(h, xi: np.ndarray, xj: np.ndarray, n_units: int) -> np.ndar
     return a
 
 
-def quiet_highs():
+def quiet_highs() -> highspy.Highs:
     """A Highs object with no output: its constructor prints a banner on the C stdout,
     which would break the CLI's tables and pipes, so file descriptor 1 is muted meanwhile."""
     import os
